@@ -1,0 +1,1 @@
+"""Pure computation for chaintriage: numpy, scipy and pandas only (never textual or rich)."""

@@ -1,0 +1,1 @@
+"""Fictional demo snapshots and the script that makes them."""

@@ -1,0 +1,1 @@
+"""Colour themes shipped as TOML data files."""

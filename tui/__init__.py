@@ -1,0 +1,1 @@
+"""Presentation for chaintriage: the command line and the Textual app."""
