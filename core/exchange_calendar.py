@@ -206,9 +206,11 @@ class ExchangeCalendar:
         cand = _EarlyCloseCandidates().holidays(start, end).values.astype("datetime64[D]")
         early = np.union1d(cand, self._extra_early)
         early = early[np.is_busday(early, weekmask=_WEEKMASK) & ~np.isin(early, closed)]
-        self._lo, self._hi = lo, hi
+        # Publish the wider tables before the wider range, so a reader never sees a range
+        # its tables do not cover.
         self._closed, self._early = closed, early
         self._busdaycal = np.busdaycalendar(weekmask=_WEEKMASK, holidays=closed)
+        self._lo, self._hi = lo, hi
 
     def _range(self, start, end) -> tuple[np.datetime64, np.datetime64]:
         s, e = _as_dates(start, "start date")[0], _as_dates(end, "end date")[0]
