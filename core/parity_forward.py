@@ -21,8 +21,8 @@ Method (``implied_forward``):
    locked quote cannot take all the weight). Selection and fit are repeated
    until the set of points stops changing. At most half of the window is
    ever set aside, and at least two points stay.
-4. Sanity: 0.5 < DF <= 1.02 with the implied rate -ln(DF)/T in [-5%, +25%]
-   per year, and the forward near spot: |ln(F/S)| <= max(0.5 * T, 0.05)
+4. Sanity: 0.5 < DF <= max(1.02, exp(0.05 T)) with the implied rate
+   -ln(DF)/T in [-5%, +25%] per year, and the forward near spot: |ln(F/S)| <= max(0.5 * T, 0.05)
    (carry within +/-50% a year, with a 5% floor so that short expiries around a
    dividend or with a slightly stale spot are not thrown out). When only the
    DF fails (common for short expiries, where the slope is poorly determined
@@ -46,7 +46,9 @@ import numpy as np
 
 from .findings import NOTE, WARNING, ChainTriageError, Finding
 
-#: Plausible band for the discount factor (exclusive low, inclusive high).
+#: Plausible band for the discount factor (exclusive low, inclusive high). The
+#: high end widens to exp(0.05 T) for long expiries so that a mildly negative
+#: rate stays plausible; the rate band below is the binding check there.
 DF_BAND = (0.5, 1.02)
 #: Plausible band for the implied rate -ln(DF)/T, per year.
 RATE_BAND = (-0.05, 0.25)
@@ -185,7 +187,8 @@ def _carry_ok(forward: float, spot: float, t: float) -> bool:
 
 
 def _df_ok(df: float, t: float) -> bool:
-    if not (np.isfinite(df) and DF_BAND[0] < df <= DF_BAND[1]):
+    high = max(DF_BAND[1], float(np.exp(-RATE_BAND[0] * t)))
+    if not (np.isfinite(df) and DF_BAND[0] < df <= high):
         return False
     r = -np.log(df) / t
     return bool(RATE_BAND[0] <= r <= RATE_BAND[1])
@@ -291,6 +294,10 @@ def implied_forward(
                              f"for {_fmt(t)} years")
         resid = y[keep] - (a + s * k[keep])
 
+    if keep.sum() == 2:
+        findings.append(Finding(
+            NOTE, "parity forward from only 2 strikes quoted on both sides; a bad quote cannot be detected",
+        ))
     return ForwardEstimate(
         forward=float(forward), discount=float(df), method="parity",
         strikes_used=int(keep.sum()), residual_rms=float(np.sqrt(np.mean(resid ** 2))),

@@ -83,6 +83,9 @@ def test_reference_section7_two_strike_formula():
     assert est.discount == pytest.approx(df_two, abs=1e-12)
     assert est.discount == pytest.approx(df, abs=1e-9)
     assert est.forward == pytest.approx(f, abs=1e-9)
+    assert est.reason == ""
+    assert [fd.severity for fd in est.findings] == [NOTE]
+    assert "only 2 strikes" in est.findings[0].reason
 
 
 def test_max_strikes_window_is_near_the_money():
@@ -228,6 +231,17 @@ def test_short_expiry_noisy_df_keeps_parity_forward():
     assert abs(est.forward - f) < 0.05
     assert "implausible" in est.reason and "given rate" in est.reason
     assert any(fd.severity == NOTE for fd in est.findings)
+
+
+def test_negative_rate_long_expiry_is_plausible():
+    # [D] r = -1% over 2 years gives DF = 1.0202, above 1.02 but well inside the
+    # -5%..25% rate band: parity must be kept, not replaced.
+    f, df, c, p = _chain(r=-0.01, q=0.0, t=2.0)
+    assert df > 1.02
+    est = implied_forward(STRIKES, *_quotes(c, p), spot=S, t=2.0)
+    assert est.method == "parity" and est.reason == ""
+    assert est.forward == pytest.approx(f, abs=1e-9)
+    assert est.rate_implied == pytest.approx(-0.01, abs=1e-10)
 
 
 # ------------------------------------------------------- fallbacks [D]
