@@ -44,8 +44,9 @@ How the clean chains are made
   at most 40% of the half-spread; the bid is rounded down and the ask up to the
   tick, so the model price always lies within [bid, ask]. Bids below one tick
   become 0 (far out of the money); asks are at least one tick (one or two ticks
-  when the model price is below a tick). When the mid would fall below
-  DF*max(F-K, 0) + one tick (calls; puts likewise) the ask is raised so it does not.
+  when the model price is below a tick). When an in-the-money mid would fall
+  below DF*max(F-K, 0) + one tick (calls; puts likewise) the ask is raised so
+  it does not.
 - volume and open_interest: integers peaking near the money and at round
   strikes (multiples of 5 and 10 for TSBH; 25 and 50 for OSPX), decaying in
   the wings; more open interest on monthly expiries.
@@ -391,8 +392,8 @@ def _expiry_rows(u: Underlying, e: Expiry, t: float, theta: float, rng) -> list[
     bid = np.where(bid < 1.0, 0.0, bid)
     tiny = m_c < 1.0
     ask = np.where(tiny, np.where(rng.random(2 * n) < 0.6, 1.0, 2.0), np.maximum(ask, 1.0))
-    floor_c = intr * 100.0 + 1.0  # mid must not fall below intrinsic + one tick
-    low_mid = (bid + ask) / 2.0 < floor_c
+    floor_c = intr * 100.0 + 1.0  # an in-the-money mid must not fall below intrinsic + one tick
+    low_mid = (intr > 0) & ((bid + ask) / 2.0 < floor_c)
     ask = np.where(low_mid, _tick_ceil((2.0 * floor_c - bid) / 100.0), ask)
     assert np.all(bid <= m_c + 1e-6) and np.all(ask >= m_c - 1e-6), "model outside the quote"
     assert np.all(bid >= 0) and np.all(bid < ask)
