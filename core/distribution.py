@@ -221,6 +221,7 @@ class Distribution:
     notes: tuple[str, ...] = ()
     k: np.ndarray | None = None
     spacing: str = "log"
+    mean_beyond: tuple[float, float] = (0.0, 0.0)
 
     def quantile(self, p):
         """Strike at CDF level p, interpolated on the grid (running maximum of the CDF); NaN off the grid."""
@@ -239,11 +240,22 @@ class Distribution:
         return np.where((p >= xs[0]) & (p <= xs[-1]), out, np.nan)
 
     def _integrate(self, f) -> float:
-        # On the even k grid integrate f(K) dK = f(K) K dk (the trapezoid rule is then
-        # very accurate for a smooth density that dies off at both ends).
+        # On an even grid the trapezoid rule is very accurate for a smooth density that
+        # dies off at both ends: even in k, integrate f(K) dK = f(K) K dk.
         if self.spacing == "log" and self.k is not None:
             return float(trapezoid(f * self.strikes, self.k))
         return float(trapezoid(f, self.strikes))
+
+    def tail_mass(self) -> tuple[float, float]:
+        """Market-implied probability below the first and above the last strike (closed form)."""
+        return float(self.cdf[0]), float(1.0 - self.cdf[-1])
+
+    def tail_mean(self) -> tuple[float, float]:
+        """E[S_T; S_T below the first strike] and E[S_T; S_T above the last strike], price units (closed form).
+
+        mean() + sum(tail_mean()) is the forward for an arbitrage-free smile.
+        """
+        return self.mean_beyond
 
     def mass(self) -> float:
         """Trapezoid integral of the market-implied density over the grid (about 1)."""
@@ -254,7 +266,10 @@ class Distribution:
         return self._integrate(self.density_flat)
 
     def mean(self) -> float:
-        """Trapezoid E[S_T] under the market-implied density, price units (about the forward)."""
+        """Trapezoid E[S_T] over the grid under the market-implied density, price units.
+
+        About the forward; short of it when fat wings put mass beyond the grid.
+        """
         return self._integrate(self.strikes * self.density)
 
     def mean_flat(self) -> float:
@@ -263,13 +278,20 @@ class Distribution:
 
 
 def terminal_distribution(smile, forward, t, sigma_flat, n: int = 401, span_sd: float = 6.0,
-                          tail: float = 1e-7, spacing: str = "log") -> Distribution:
-    """Market-implied and one-vol lognormal distributions of S_T on a grid of n strikes.
+                          tail: float = 1e-7, spacing: str = "log", refine_tol: float = 1e-6,
+                          max_doublings: int = 4) -> Distribution:
+    """Market-implied and one-vol lognormal distributions of S_T on a grid of about n strikes.
 
     The grid spans at least +/- ``span_sd`` flat standard deviations
     (sigma_flat*sqrt(t)) in k = ln(K/F), widened to the smile's ``tail`` and
     1 - ``tail`` quantiles (but at most 4x that span), so quantiles and mass
-    see the tails. ``spacing``: 'log' (even in k) or 'linear' (even in strike).
+    see the tails. ``spacing``: 'log' (even in k) or 'linear' (even in
+    strike). When n points do not resolve the density (a sharp smile vertex:
+    the trapezoid mass misses the closed-form CDF step across the grid by
+    more than ``refine_tol``) the grid is made twice as fine, up to
+    ``max_doublings`` times, so it can hold more than n points. Probability
+    and E[S_T] beyond the grid ends are given by :meth:`Distribution.tail_mass`
+    and :meth:`Distribution.tail_mean` (closed form), and noted when large.
     """
     forward, t, sigma_flat = float(forward), float(t), float(sigma_flat)
     for name, val in (("forward", forward), ("t", t), ("sigma_flat", sigma_flat)):
@@ -285,14 +307,24 @@ def terminal_distribution(smile, forward, t, sigma_flat, n: int = 401, span_sd: 
         k_lo = max(min(k_lo, float(np.log(q_lo))), -4.0 * reach)
     if np.isfinite(q_hi):
         k_hi = min(max(k_hi, float(np.log(q_hi))), 4.0 * reach)
-    if spacing == "log":
-        k = np.linspace(k_lo, k_hi, n)
-        strikes = forward * np.exp(k)
-    else:
-        strikes = np.linspace(forward * np.exp(k_lo), forward * np.exp(k_hi), n)
-        k = np.log(strikes / forward)
-    dens = density_k(smile, k) / strikes
-    cdf = 1.0 - np.clip(_prob_above_k(smile, k), 0.0, 1.0)
+    n_now = n
+    for attempt in range(max_doublings + 1):
+        if spacing == "log":
+            k = np.linspace(k_lo, k_hi, n_now)
+            x = k
+        else:
+            x = np.linspace(np.exp(k_lo), np.exp(k_hi), n_now)  # strike / forward
+            k = np.log(x)
+        pk = density_k(smile, k)
+        cdf_raw = 1.0 - _prob_above_k(smile, k)
+        integrand = pk if spacing == "log" else pk / x
+        miss = abs(float(trapezoid(integrand, x)) - float(cdf_raw[-1] - cdf_raw[0]))
+        if miss <= refine_tol or attempt == max_doublings:
+            break
+        n_now = 2 * n_now - 1
+    strikes = forward * np.exp(k)
+    dens = pk / strikes
+    cdf = np.clip(cdf_raw, 0.0, 1.0)
     dens_flat = density_strike_flat(forward, strikes, sigma_flat, t)
     cdf_flat = 1.0 - prob_above_flat(forward, strikes, sigma_flat, t)
     neg = bool(np.any(dens < 0))
@@ -305,6 +337,34 @@ def terminal_distribution(smile, forward, t, sigma_flat, n: int = 401, span_sd: 
         )
     if np.any(~np.isfinite(dens)):
         notes.append("The market-implied density is undefined at some strikes (total variance not positive).")
+    if not miss <= refine_tol:
+        notes.append(
+            f"Even {n_now} grid points do not resolve the market-implied density: the grid integral "
+            f"misses the exact probability by {miss:.2g}."
+        )
+    # closed-form E[S_T; S_T beyond each grid end]: K P(beyond) -/+ the undiscounted put/call there
+    w_end = np.asarray(smile.total_variance(k[[0, -1]]), dtype=float)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        sw = np.sqrt(w_end)
+        dm = -k[[0, -1]] / sw - 0.5 * sw
+        dp = dm + sw
+    x_end = np.exp(k[[0, -1]])
+    put_lo = x_end[0] * ndtr(-dm[0]) - ndtr(-dp[0])
+    call_hi = ndtr(dp[1]) - x_end[1] * ndtr(dm[1])
+    mean_below = forward * float(x_end[0] * cdf_raw[0] - put_lo)
+    mean_above = forward * float(call_hi + x_end[1] * (1.0 - cdf_raw[-1]))
+    outside = float(cdf[0] + 1.0 - cdf[-1])
+    if mean_below + mean_above > 1e-4 * forward:
+        notes.append(
+            f"{100 * (mean_below + mean_above) / forward:.3g}% of E[S_T] comes from beyond the grid "
+            f"(fat wings), so the grid mean falls short of the forward by that much."
+        )
+    if outside > 1e-4:
+        notes.append(
+            f"{100 * outside:.3g}% of the market-implied probability lies beyond the grid "
+            f"(below {strikes[0]:.6g}: {100 * cdf[0]:.3g}%, above {strikes[-1]:.6g}: {100 * (1 - cdf[-1]):.3g}%); "
+            f"the smile's wings are very fat."
+        )
     return Distribution(forward=forward, t=t, sigma_flat=sigma_flat, strikes=strikes, density=dens,
                         density_flat=dens_flat, cdf=cdf, cdf_flat=cdf_flat, negative_density=neg,
-                        notes=tuple(notes), k=k, spacing=spacing)
+                        notes=tuple(notes), k=k, spacing=spacing, mean_beyond=(mean_below, mean_above))

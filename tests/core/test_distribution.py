@@ -279,6 +279,35 @@ def test_density_integrates_to_one_with_mean_at_the_forward(p):
     assert d.mean_flat() == pytest.approx(f, rel=1e-8)
 
 
+def test_sharp_vertex_gets_a_finer_grid():
+    # [D] a smile whose vertex is far narrower than the 401-point spacing: the grid is made finer until
+    # the trapezoid mass matches the closed-form CDF (G&J: the density integrates to 1)
+    p = SviParams(a=0.002, b=0.05, rho=-0.3, m=0.0, sigma=0.001)  # t = 0.05
+    d = dist.terminal_distribution(SviSlice(p), 100.0, 0.05, 0.25)
+    assert d.strikes.size > 401
+    assert d.mass() + sum(d.tail_mass()) == pytest.approx(1.0, abs=1e-6)
+    assert not any("do not resolve" in s for s in d.notes)
+    coarse = dist.terminal_distribution(SviSlice(p), 100.0, 0.05, 0.25, max_doublings=0)
+    assert coarse.strikes.size == 401 and any("do not resolve" in s for s in coarse.notes)
+
+
+def test_fat_wings_report_the_mass_and_mean_beyond_the_grid():
+    # [V] E[S_T] = F (REFERENCE §6, martingale); with a left wing slope of 1.12 (arbitrage-free slice)
+    # much of the probability sits near zero, beyond the grid, and the closed-form tail figures close the gap [D]
+    p = SviParams(a=0.05, b=0.7, rho=-0.6, m=0.0, sigma=0.4)  # wing slopes 1.12 and 0.28
+    assert svi.butterfly_check(p, np.linspace(-30, 10, 8001))[0]
+    f = 100.0
+    d = dist.terminal_distribution(SviSlice(p), f, 1.0, 0.3)
+    below, above = d.tail_mass()
+    assert below > 1e-4 and any("beyond the grid" in s for s in d.notes)
+    assert d.mass() + below + above == pytest.approx(1.0, abs=1e-6)
+    assert d.mean() + sum(d.tail_mean()) == pytest.approx(f, rel=1e-6)
+    # the lower tail's E[S_T; S_T < K0] by quad on the closed-form density [L scipy]
+    k0 = float(np.log(d.strikes[0] / f))
+    direct, _ = quad(lambda k: float(f * np.exp(k) * dist.density_k(SviSlice(p), k)), -200.0, k0, limit=500)
+    assert d.tail_mean()[0] == pytest.approx(direct, rel=1e-6, abs=1e-9)
+
+
 def test_vogt_density_is_negative_exactly_where_g_is_and_kept():
     # [V] G&J Example 3.1: g < 0 on k in [0.6424, 1.2569]; the density there is kept negative and flagged
     f = 100.0
