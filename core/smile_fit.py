@@ -141,6 +141,16 @@ class Smile:
                     expiry=expiry,
                 )
             )
+        if self.penalised:
+            out.append(
+                Finding(
+                    NOTE,
+                    f"smile re-fitted with an arbitrage penalty: the plain fit had g(k) < 0 (minimum {self.min_g_plain:.4g}); "
+                    f"the kept fit is {100 * self.rmse_vol:.3f} vol points RMSE from the quotes",
+                    underlying=underlying,
+                    expiry=expiry,
+                )
+            )
         if self.left_out_k:
             out.append(
                 Finding(

@@ -171,6 +171,8 @@ def test_penalised_refit_removes_arbitrage_and_says_so():
     free, min_g, _, _ = svi.butterfly_check(sm.params, np.linspace(*sm.check_range, 4001))
     assert free and min_g >= 0
     assert 0 < sm.rmse_vol < 0.02  # the price of removing it, under 2 vol points
+    found = sm.findings()
+    assert [fd.severity for fd in found] == [NOTE] and "penalty" in found[0].reason
 
 
 # ---------------------------------------------------------------------------
@@ -242,3 +244,13 @@ def test_bad_quotes_are_left_out_with_a_note():
 def test_unusable_input_raises_the_projects_error(args):
     with pytest.raises(ChainTriageError):
         fit_smile(*args)
+
+
+def test_penalised_refit_that_costs_too_much_is_not_kept(monkeypatch):
+    # [V] Vogt quotes again, with no RMSE cost allowed for the re-fit: the plain fit stays, reported as arbitrage
+    monkeypatch.setattr(smile_fit, "ARBITRAGE_REFIT_MAX_COST", 0.0)
+    k = np.linspace(-1.5, 1.5, 40)
+    sm = fit_smile(k, svi.total_variance(VOGT, k), None, 1.0)
+    assert not sm.penalised and sm.arbitrage_free is False
+    assert sm.min_g == pytest.approx(-0.032864, abs=1e-6)
+    assert any("plain fit is kept" in s for s in sm.notes)
