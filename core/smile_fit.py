@@ -16,11 +16,14 @@ weights are ``1/iv_i**2``: every quote counts the same in vol terms.
 Method: the quasi-explicit idea of Zeliade (2009) gives the start - for a
 fixed vertex (m, sigma) the remaining (a, b*rho, b) solve a linear least
 squares problem, here for a 17 x 16 grid of (m, sigma) at once - then
-``scipy.optimize.least_squares`` polishes all five parameters in a
-reparametrisation where every constraint is a box bound: minimum total
-variance ``v > 0``, Lee ratio ``s = b*(1+|rho|)/2`` in [0, 0.999] (wing
-slopes below 2), ``|rho| <= 0.999``, ``sigma > 0``. Every fitted slice is
-therefore a valid raw SVI within Lee's bound.
+Levenberg-Marquardt (``scipy.optimize.least_squares(method='lm')``, analytic
+Jacobian) polishes all five parameters in a reparametrisation where every
+constraint is a box bound, each box mapped onto the real line by a logistic
+function: minimum total variance ``v`` in [1e-4 min w, 2 max w], Lee ratio
+``s = b*(1+|rho|)/2`` in [0, 0.999] (wing slopes below 2),
+``|rho| <= 0.999``, m within one quoted k span of the quotes, sigma in
+[0.002, 10] quoted k spans. Every fitted slice is therefore a valid raw SVI
+within Lee's bound.
 
 After the fit: one pass of outlier handling (a quote more than
 max(6 robust SDs, 1 vol point) off the curve is left out of a re-fit, at most
@@ -429,9 +432,13 @@ def fit_smile(k, total_var, weights=None, t=None, *, vega=None, spread=None,
     ChainTriageError when t is not a positive number, the arrays differ in
     length, or no usable quote remains.
     """
-    if t is None or not np.isfinite(t) or float(t) <= 0:
+    try:
+        t_val = float(t)
+    except (TypeError, ValueError):
+        t_val = float("nan")
+    if not (np.isfinite(t_val) and t_val > 0):
         raise ChainTriageError(f"smile fit needs a positive time to expiry in years, got {t!r}")
-    t = float(t)
+    t = t_val
     k = np.atleast_1d(np.asarray(k, dtype=float))
     w = np.atleast_1d(np.asarray(total_var, dtype=float))
     if k.shape != w.shape or k.ndim != 1:

@@ -238,6 +238,7 @@ def test_bad_quotes_are_left_out_with_a_note():
         (np.array([0.0]), np.array([np.nan]), None, 1.0),  # nothing usable
         (np.array([0.0, 0.1]), np.array([0.04, 0.04]), None, 0.0),  # t not positive
         (np.array([0.0, 0.1]), np.array([0.04, 0.04]), None, None),  # t missing
+        (np.array([0.0, 0.1]), np.array([0.04, 0.04]), None, "soon"),  # t not a number
         (np.array([0.0, 0.1]), np.array([0.04]), None, 1.0),  # lengths differ
     ],
 )
