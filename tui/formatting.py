@@ -17,6 +17,7 @@ import math
 import re
 from typing import Any
 
+import numpy as np
 import pandas as pd
 
 #: Placeholder for a missing number (Unicode mode).
@@ -135,18 +136,15 @@ def fmt_price(value: Any, width: int | None = None, ascii_only: bool = False) ->
 
 def strike_decimals(values: Any) -> int:
     """Fewest decimals (0..3) that show every strike in ``values`` exactly (ignoring non-finite)."""
-    best = 0
-    for v in values:
-        x = as_finite(v)
-        if x is None:
-            continue
-        for d in range(0, 4):
-            if abs(round(x, d) - x) < 1e-9:
-                best = max(best, d)
-                break
-        else:
-            best = 3
-    return best
+    try:
+        x = np.asarray(values, dtype=float).ravel()
+    except (TypeError, ValueError):
+        x = np.array([v for v in (as_finite(v) for v in values) if v is not None], dtype=float)
+    x = x[np.isfinite(x)]
+    for d in range(0, 3):
+        if np.all(np.abs(np.round(x, d) - x) < 1e-9):
+            return d
+    return 3
 
 
 def fmt_strike(value: Any, decimals: int | None = None, width: int | None = None, ascii_only: bool = False) -> str:
