@@ -74,6 +74,8 @@ def fmt_pct(value: Any, decimals: int = 1, width: int | None = None, ascii_only:
     x = as_finite(value)
     if x is None:
         return _missing(width, ascii_only)
+    if not math.isfinite(x * 100):
+        return fit("####", width) if width is None else "#" * width
     text = f"{x * 100:.{decimals}f}%"
     if text.startswith("-") and float(text[:-1]) == 0.0:
         text = text[1:]
@@ -98,6 +100,8 @@ def fmt_prob(value: Any, width: int | None = None, ascii_only: bool = False) -> 
         text = "<0.1%"
     elif 0.9995 <= x < 1.0:
         text = ">99.9%"
+    elif not math.isfinite(x * 100):
+        text = "####"
     else:
         text = f"{x * 100:.1f}%"
         if text == "-0.0%":
