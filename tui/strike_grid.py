@@ -25,6 +25,7 @@ from typing import Any, Callable, Iterable, Sequence
 
 import numpy as np
 import pandas as pd
+from rich.cells import cell_len, set_cell_size
 from rich.segment import Segment
 from rich.style import Style
 from textual.binding import Binding
@@ -42,10 +43,15 @@ PUT = "put"
 
 
 def _fmt_text(value: Any, width: int | None = None, ascii_only: bool = False) -> str:
+    """Text from data, cleaned and fitted to ``width`` terminal cells (wide characters counted)."""
     text = fm.clean_text(value)
     if ascii_only:
         text = text.encode("ascii", "replace").decode("ascii")
-    return fm.fit(text, width, numeric=False, align="left")
+    if width is None:
+        return text
+    if cell_len(text) > width:
+        return set_cell_size(text, width - 1) + "~"
+    return set_cell_size(text, width)
 
 
 @dataclass(frozen=True)
@@ -88,6 +94,11 @@ COLUMNS: dict[str, ColumnSpec] = {
 DEFAULT_COLUMNS: tuple[str, ...] = ("bid", "ask", "iv", "sigma", "p_beyond", "p_touch")
 
 HEADER_LINES = 3
+
+
+def known_columns(keys: Iterable[str]) -> list[str]:
+    """``keys`` without the ones the grid does not know (e.g. from an older settings file)."""
+    return [k for k in keys if k in COLUMNS]
 
 
 class _Styles:
@@ -493,7 +504,7 @@ class StrikeGrid(ScrollView, can_focus=True):
             Segment(" ", st.cursor if state else st.base),
         ]
         segments += self._side_segments(PUT, i, state)
-        strip = Strip(segments, self._total_width())
+        strip = Strip(segments)
         self._row_cache[key] = strip
         return strip
 

@@ -360,3 +360,37 @@ def test_every_column_has_a_fixed_width_that_fits_its_heading():
     for spec in COLUMNS.values():
         assert len(spec.heading) <= spec.width and len(spec.heading_ascii) <= spec.width
         assert spec.heading_ascii.isascii()
+
+
+def test_wide_characters_in_data_keep_the_columns_aligned():
+    async def body(app, grid, pilot):
+        grid.set_columns(["flags", "bid"])
+        grid.set_rows(presentation_chain(STRIKES, FORWARD, flags="宽价差宽价差宽价差"), FORWARD)
+        await pilot.pause()
+        from rich.cells import cell_len
+        rows = [t for t in data_lines(grid) if strike_of_line(t) is not None]
+        positions = {cell_len(t.split("│")[0]) for t in rows}
+        assert len(positions) == 1  # the strike column starts at the same cell on every row
+    run(body)
+
+
+def test_clicking_a_side_highlights_that_contract():
+    async def body(app, grid, pilot):
+        grid.set_rows(presentation_chain(STRIKES, FORWARD), FORWARD)
+        await pilot.pause()
+        lines = grid.render_lines_text()
+        y = next(i for i, t in enumerate(lines) if strike_of_line(t) == 97.5)
+        put_x = len(lines[y].split("│")[0]) + 1 + len(lines[y].split("│")[1]) + 5
+        await pilot.click(StrikeGrid, offset=(put_x, y))
+        await pilot.pause()
+        assert grid.highlighted == (97.5, "put")
+        assert app.seen[-1].strike == 97.5 and app.seen[-1].kind == "put"
+        await pilot.click(StrikeGrid, offset=(3, y + 1))
+        await pilot.pause()
+        assert grid.highlighted == (100.0, "call")
+    run(body)
+
+
+def test_known_columns_drops_unknown_names():
+    from chaintriage.tui.strike_grid import known_columns
+    assert known_columns(["bid", "gamma", "p_touch"]) == ["bid", "p_touch"]
