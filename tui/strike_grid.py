@@ -260,23 +260,22 @@ class StrikeGrid(ScrollView, can_focus=True):
                     out[has] = col[pos[has]]
                 self._values[(spec.key, side)] = out
         self._forward = float(forward) if forward is not None and np.isfinite(forward) else math.nan
-        otm_col = None
+        otm_known = otm_vals = None
         if "otm" in frame.columns and n:
-            otm_col = frame["otm"].to_numpy()
+            try:
+                flags = frame["otm"].astype("boolean")
+                otm_known = ~flags.isna().to_numpy(dtype=bool)
+                otm_vals = flags.fillna(False).to_numpy(dtype=bool)
+            except (TypeError, ValueError):
+                otm_known = otm_vals = None  # not booleans: fall back to strike vs forward
         for side in (CALL, PUT):
             pos = self._pos[side]
-            derived = strikes > self._forward if side == CALL else strikes < self._forward
-            if otm_col is not None:
-                out = derived.copy()
-                has = pos >= 0
-                vals = otm_col[pos[has]]
-                known = np.array([isinstance(v, (bool, np.bool_)) for v in vals], dtype=bool)
-                sub = out[has]
-                sub[known] = vals[known].astype(bool)
-                out[has] = sub
-                self._otm[side] = out
-            else:
-                self._otm[side] = derived
+            out = strikes > self._forward if side == CALL else strikes < self._forward
+            if otm_known is not None:
+                sel = pos >= 0
+                sel[sel] = otm_known[pos[sel]]
+                out[sel] = otm_vals[pos[sel]]
+            self._otm[side] = out
         self._fwd_pos = int(np.searchsorted(strikes, self._forward, side="right")) \
             if math.isfinite(self._forward) else -1
         if expiry is None and n and "expiry" in frame.columns:

@@ -9,6 +9,10 @@ Timed, per switch (alternating between two expiries' frames):
            visible line of the mounted widget (what the compositor asks for);
   pilot  : set_rows + a full screen refresh through Textual (pilot.pause()),
            i.e. wall time until the frame is composed;
+  compose: set_rows + Textual's own screen layout and full-screen
+           composition (Screen._refresh_layout + Compositor.render_full_update,
+           private Textual APIs used here only to time the frame without the
+           pilot's idle-wait);
   table  : for comparison, Textual's DataTable clear() + add_rows(400 rows)
            + pilot.pause().
 The frames are PRESENTATION FIXTURES (invented numbers), not correctness data.
@@ -76,7 +80,7 @@ def summarise(name: str, samples: list[float]) -> float:
 async def bench_grid() -> tuple[float, float]:
     frames = [(presentation_frame("2027-01-15", 101.3), 101.3), (presentation_frame("2027-02-19", 102.1), 102.1)]
     app = GridApp()
-    direct, pilot_t, base = [], [], []
+    direct, pilot_t, base, compose = [], [], [], []
     async with app.run_test(size=SIZE) as pilot:
         grid = app.query_one(StrikeGrid)
         grid.set_rows(*frames[1])
@@ -96,6 +100,15 @@ async def bench_grid() -> tuple[float, float]:
             grid.set_rows(frame, fwd)
             await pilot.pause()
             pilot_t.append(time.perf_counter() - t0)
+        screen = app.screen
+        for i in range(REPEATS):
+            frame, fwd = frames[i % 2]
+            t0 = time.perf_counter()
+            grid.set_rows(frame, fwd)
+            screen._refresh_layout(screen.size)
+            screen._compositor.render_full_update()
+            compose.append(time.perf_counter() - t0)
+            await pilot.pause()
         for i in range(REPEATS):
             t0 = time.perf_counter()
             grid.refresh()
@@ -105,6 +118,7 @@ async def bench_grid() -> tuple[float, float]:
         assert sum(1 for t in lines if "│" in t) >= height - 4, "the grid did not draw its rows"
         print(f"grid: {N_STRIKES} strikes x 2 kinds, widget {grid.size.width}x{height} cells")
     out = (summarise("StrikeGrid set_rows + visible lines", direct),
+           summarise("StrikeGrid set_rows + composed screen", compose),
            summarise("StrikeGrid set_rows + pilot frame", pilot_t))
     summarise("  (pilot frame, unchanged rows)", base)
     return out
@@ -133,9 +147,11 @@ async def bench_table() -> float:
 
 
 def main() -> None:
-    direct, piloted = asyncio.run(bench_grid())
+    direct, composed, piloted = asyncio.run(bench_grid())
     table = asyncio.run(bench_table())
-    print(f"target <= 30 ms: direct {'met' if direct <= 30 else 'NOT met'}, pilot {'met' if piloted <= 30 else 'NOT met'}")
+    print("target <= 30 ms: " + ", ".join(f"{name} {'met' if v <= 30 else 'NOT met'}" for name, v in
+                                          (("direct", direct), ("composed", composed), ("pilot", piloted))))
+    print("note: the pilot figure includes Textual's idle wait (see the unchanged-rows line)")
     if not math.isclose(table, 0.0):
         print(f"DataTable / StrikeGrid (pilot frame) ratio: {table / piloted:.1f}x")
 

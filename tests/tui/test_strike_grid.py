@@ -394,3 +394,23 @@ def test_clicking_a_side_highlights_that_contract():
 def test_known_columns_drops_unknown_names():
     from chaintriage.tui.strike_grid import known_columns
     assert known_columns(["bid", "gamma", "p_touch"]) == ["bid", "p_touch"]
+
+
+def test_otm_column_from_data_wins_and_missing_values_fall_back_to_the_forward():
+    frame = presentation_chain(STRIKES, FORWARD)
+    frame["otm"] = frame["otm"].astype(object)
+    # Data says the 95 call is out of the money (say the pipeline used another forward);
+    # the 105 call has no flag, so strike vs forward decides (out of the money) [C].
+    frame.loc[(frame.strike == 95.0) & (frame.kind == "call"), "otm"] = True
+    frame.loc[(frame.strike == 105.0) & (frame.kind == "call"), "otm"] = None
+    async def body(app, grid, pilot):
+        grid.set_rows(frame, FORWARD)
+        await pilot.pause()
+        grid.cursor_to_strike(110.0)
+        await pilot.pause()
+        lines = data_lines(grid)
+        y95 = HEADER_LINES + next(i for i, t in enumerate(lines) if strike_of_line(t) == 95.0)
+        y105 = HEADER_LINES + next(i for i, t in enumerate(lines) if strike_of_line(t) == 105.0)
+        assert sides(grid, y95)[0].style.color.name == THEME.color("otm_call")
+        assert sides(grid, y105)[0].style.color.name == THEME.color("otm_call")
+    run(body)
