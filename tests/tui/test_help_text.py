@@ -1,0 +1,55 @@
+"""The help content: complete, consistent with the widgets, plain text.
+
+Checks are consistency checks against our own widgets [D] and the cautions
+that DESIGN.md asks the help to state [C].
+"""
+
+from __future__ import annotations
+
+from chaintriage.tui import help_text as ht
+from chaintriage.tui.strike_grid import COLUMNS, StrikeGrid
+
+
+def test_every_grid_column_is_explained_with_its_heading():
+    helped = {c.key: c for c in ht.COLUMNS}
+    assert set(helped) == set(COLUMNS)
+    for key, spec in COLUMNS.items():
+        assert helped[key].heading == spec.heading
+        assert len(helped[key].meaning) > 15
+
+
+def test_no_key_does_two_things_where_both_are_active():
+    active_together = ("ladder", "screen")
+    seen: dict[str, str] = {}
+    for k in ht.KEYS:
+        if k.context not in active_together:
+            continue
+        for key in k.keys:
+            assert key not in seen, f"{key!r} is bound to {seen[key]!r} and {k.action!r}"
+            seen[key] = k.action
+
+
+def test_ladder_keys_match_the_grid_bindings():
+    bound = set()
+    for b in StrikeGrid.BINDINGS:
+        bound.update(b.key.split(","))
+    documented = {key for k in ht.KEYS if k.context == "ladder" for key in k.keys}
+    assert bound <= documented
+    for key in ("up", "down", "k", "j", "pageup", "pagedown", "home", "end", "left", "right"):
+        assert key in bound
+
+
+def test_cautions_say_what_the_figures_are_and_are_not():
+    text = " ".join(ht.CAUTIONS).lower()
+    for phrase in ("risk-neutral", "european", "jumps", "as quoted now", "not advice"):
+        assert phrase in text
+
+
+def test_help_text_in_both_modes():
+    full = ht.help_text()
+    assert "CAUTIONS" in full and "P(beyond)" in full and "σ dist" in full
+    for k in ht.KEYS:
+        assert k.description in full
+    plain = ht.help_text(ascii_only=True)
+    assert plain.isascii()
+    assert "s dist" in plain and "Up / k" in plain

@@ -1,0 +1,92 @@
+"""The one-line contract summary and the system clipboard helper.
+
+The contract row is a PRESENTATION FIXTURE (invented figures); the checks are
+about the line's content and layout [D]. The clipboard tools are stand-in
+scripts on a temporary PATH.
+"""
+
+from __future__ import annotations
+
+import os
+import stat
+import sys
+import time
+
+import pandas as pd
+
+from chaintriage.tui.strike_summary import clipboard_commands, copy_to_system_clipboard, summarize
+
+AS_OF = pd.Timestamp("2026-12-01 14:30", tz="America/New_York")
+
+
+def row(**over):
+    """PRESENTATION FIXTURE: one put row with the pipeline's column names."""
+    r = dict(underlying="QRTZ", expiry=pd.Timestamp("2027-01-15"), strike=95.0, kind="put",
+             bid=1.20, ask=1.26, mid=1.23, iv=0.312, sigma_distance=-1.4849, p_beyond=0.081,
+             p_touch=0.159, breakeven=93.77)
+    r.update(over)
+    return r
+
+
+def test_summary_line_content():
+    line = summarize(row(), as_of=AS_OF)
+    assert line == ("QRTZ 2027-01-15 95 put | mid 1.23 | IV 31.2% | -1.48σ | P(beyond) 8.1% | "
+                    "P(touch) 15.9% | BE 93.77 | as of 2026-12-01 14:30 -05:00")
+
+
+def test_summary_from_a_pandas_row_and_ascii():
+    series = pd.Series(row(kind="c", strike=102.5, sigma_distance=0.52, breakeven=103.73))
+    line = summarize(series, as_of=AS_OF, ascii_only=True)
+    assert line.startswith("QRTZ 2027-01-15 102.5 call | ")
+    assert "| +0.52s |" in line and line.isascii()
+
+
+def test_missing_figures_and_hostile_text():
+    line = summarize(row(mid=float("nan"), iv=None, sigma_distance=float("inf"),
+                         underlying="QR\x1b[31mTZ\x07\n[b]x[/b]"), as_of=AS_OF)
+    assert "\x1b" not in line and "\x07" not in line and "\n" not in line
+    assert line.startswith("QRTZ [b]x[/b] 2027-01-15")
+    assert "mid -- |" in line and "IV -- |" in line and "| --σ |" in line
+    assert "nan" not in line.lower() and "inf" not in line.lower()
+
+
+def _tool(tmp_path, name, body):
+    path = tmp_path / name
+    path.write_text(f"#!{sys.executable}\n{body}\n", encoding="utf-8")
+    path.chmod(path.stat().st_mode | stat.S_IXUSR)
+    return str(path)
+
+
+def test_copy_through_a_clipboard_tool(tmp_path):
+    out = tmp_path / "clip.txt"
+    tool = _tool(tmp_path, "fakeclip", f"import sys; open({str(out)!r}, 'wb').write(sys.stdin.buffer.read())")
+    assert copy_to_system_clipboard("QRTZ 95 put | mid 1.23 σ", commands=[[tool]]) is True
+    assert out.read_text(encoding="utf-8") == "QRTZ 95 put | mid 1.23 σ"
+
+
+def test_copy_never_raises_and_reports_failure(tmp_path):
+    failing = _tool(tmp_path, "failclip", "import sys; sys.exit(3)")
+    hanging = _tool(tmp_path, "slowclip", "import time; time.sleep(10)")
+    assert copy_to_system_clipboard("x", commands=[]) is False
+    assert copy_to_system_clipboard("x", commands=[[str(tmp_path / "missing")]]) is False
+    assert copy_to_system_clipboard("x", commands=[[failing]]) is False
+    t0 = time.monotonic()
+    assert copy_to_system_clipboard("x", commands=[[hanging]], timeout=0.5) is False
+    assert time.monotonic() - t0 < 5
+    # a failing tool is passed over for the next one
+    out = tmp_path / "second.txt"
+    ok = _tool(tmp_path, "okclip", f"import sys; open({str(out)!r}, 'wb').write(sys.stdin.buffer.read())")
+    assert copy_to_system_clipboard("y", commands=[[failing], [ok]]) is True
+    assert out.read_text() == "y"
+
+
+def test_tool_detection_follows_the_session():
+    present = {"wl-copy", "xclip", "xsel", "pbcopy"}
+    which = lambda name: f"/usr/bin/{name}" if name in present else None  # noqa: E731
+    wayland = clipboard_commands({"WAYLAND_DISPLAY": "wayland-0"}, which)
+    assert wayland[0] == ["wl-copy"]
+    x11 = clipboard_commands({"DISPLAY": ":0"}, which)
+    assert x11[0][0] == "xclip" and ["wl-copy"] not in x11
+    bare = clipboard_commands({}, which)
+    assert bare == [["pbcopy"]]
+    assert clipboard_commands({"DISPLAY": ":0"}, lambda name: None) == []

@@ -1,0 +1,250 @@
+"""Number formatting for reading: pure functions, no Textual, no Rich.
+
+Every function takes a value (float, int, numpy scalar or None) and returns a
+plain string. A missing or non-finite value (None, NaN, +/-inf) is never shown
+as "nan" or "inf": it becomes a neutral placeholder ("·", or "--" in ASCII
+mode). With ``width`` the result is right-aligned to exactly that many cells;
+a number too long for its width is shown as a run of "#" (like a too-narrow
+spreadsheet column) rather than cut, since a cut number reads as another number.
+
+Units: probabilities, vols and spreads are decimals in (0.123 -> "12.3%");
+prices and strikes are in price units; sigma distance in sigmas.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+#: Placeholder for a missing number (Unicode mode).
+PLACEHOLDER = "·"
+#: Placeholder for a missing number (ASCII mode).
+PLACEHOLDER_ASCII = "--"
+#: Sigma sign (Unicode) and its ASCII stand-in.
+SIGMA = "σ"
+SIGMA_ASCII = "s"
+
+
+def placeholder(ascii_only: bool = False) -> str:
+    """The neutral mark shown instead of a missing number."""
+    return PLACEHOLDER_ASCII if ascii_only else PLACEHOLDER
+
+
+def as_finite(value: Any) -> float | None:
+    """``value`` as a finite float, or None when missing, NaN, inf or not a number."""
+    if value is None or isinstance(value, bool):
+        return None
+    try:
+        x = float(value)
+    except (TypeError, ValueError):
+        return None
+    return x if math.isfinite(x) else None
+
+
+def fit(text: str, width: int | None, *, numeric: bool = True, align: str = "right") -> str:
+    """Pad ``text`` to ``width`` cells (right-aligned by default).
+
+    Too-long numbers become "#" * width; too-long words are cut with a trailing "~".
+    """
+    if width is None:
+        return text
+    if width <= 0:
+        return ""
+    if len(text) > width:
+        if numeric:
+            return "#" * width
+        return text[: width - 1] + "~" if width > 1 else text[:1]
+    if align == "left":
+        return text.ljust(width)
+    if align == "center":
+        return text.center(width)
+    return text.rjust(width)
+
+
+def _missing(width: int | None, ascii_only: bool) -> str:
+    return fit(placeholder(ascii_only), width)
+
+
+def fmt_pct(value: Any, decimals: int = 1, width: int | None = None, ascii_only: bool = False) -> str:
+    """A decimal as a percentage: 0.1234 -> "12.3%". Used for vols (IV) and spreads."""
+    x = as_finite(value)
+    if x is None:
+        return _missing(width, ascii_only)
+    if not math.isfinite(x * 100):
+        return fit("####", width) if width is None else "#" * width
+    text = f"{x * 100:.{decimals}f}%"
+    if text.startswith("-") and float(text[:-1]) == 0.0:
+        text = text[1:]
+    return fit(text, width)
+
+
+def fmt_vol(value: Any, width: int | None = None, ascii_only: bool = False) -> str:
+    """An annualised implied vol (decimal) as a percentage with one decimal: 0.312 -> "31.2%"."""
+    return fmt_pct(value, 1, width, ascii_only)
+
+
+def fmt_prob(value: Any, width: int | None = None, ascii_only: bool = False) -> str:
+    """A probability (decimal 0..1) as a percentage with one decimal.
+
+    Tiny and near-certain values are not rounded to a false 0 or 100:
+    0.0004 -> "<0.1%", 0.9996 -> ">99.9%". Exactly 0 or 1 show as "0.0%" and "100.0%".
+    """
+    x = as_finite(value)
+    if x is None:
+        return _missing(width, ascii_only)
+    if 0.0 < x < 0.0005:
+        text = "<0.1%"
+    elif 0.9995 <= x < 1.0:
+        text = ">99.9%"
+    elif not math.isfinite(x * 100):
+        text = "####"
+    else:
+        text = f"{x * 100:.1f}%"
+        if text == "-0.0%":
+            text = "0.0%"
+    return fit(text, width)
+
+
+def fmt_spread(value: Any, width: int | None = None, ascii_only: bool = False) -> str:
+    """Bid-ask spread as a percentage of mid (decimal in): 0.052 -> "5.2%"; >= 1000% -> ">999%"."""
+    x = as_finite(value)
+    if x is None:
+        return _missing(width, ascii_only)
+    if x >= 9.995:
+        return fit(">999%", width)
+    return fmt_pct(x, 1, width, ascii_only)
+
+
+def price_decimals(value: float) -> int:
+    """Decimals needed to show a price to its tick: 2, or 3-4 for sub-penny prices."""
+    for d in (2, 3):
+        if abs(round(value, d) - round(value, 4)) < 1e-9:
+            return d
+    return 4
+
+
+def fmt_price(value: Any, width: int | None = None, ascii_only: bool = False) -> str:
+    """A price in price units: two decimals, more when it has sub-penny digits (1.225, 0.0035)."""
+    x = as_finite(value)
+    if x is None:
+        return _missing(width, ascii_only)
+    text = f"{x:.{price_decimals(x)}f}"
+    if text.startswith("-") and float(text) == 0.0:
+        text = text[1:]
+    return fit(text, width)
+
+
+def strike_decimals(values: Any) -> int:
+    """Fewest decimals (0..3) that show every strike in ``values`` exactly (ignoring non-finite)."""
+    try:
+        x = np.asarray(values, dtype=float).ravel()
+    except (TypeError, ValueError):
+        x = np.array([v for v in (as_finite(v) for v in values) if v is not None], dtype=float)
+    x = x[np.isfinite(x)]
+    for d in range(0, 3):
+        if np.all(np.abs(np.round(x, d) - x) < 1e-9):
+            return d
+    return 3
+
+
+def fmt_strike(value: Any, decimals: int | None = None, width: int | None = None, ascii_only: bool = False) -> str:
+    """A strike: 95 -> "95", 97.5 -> "97.5"; ``decimals`` forces a fixed count (for a column)."""
+    x = as_finite(value)
+    if x is None:
+        return _missing(width, ascii_only)
+    d = strike_decimals([x]) if decimals is None else decimals
+    return fit(f"{x:.{d}f}", width)
+
+
+def fmt_sigma(value: Any, width: int | None = None, ascii_only: bool = False) -> str:
+    """Sigma distance with its sign: 1.523 -> "+1.52σ" ("+1.52s" in ASCII mode)."""
+    x = as_finite(value)
+    if x is None:
+        return _missing(width, ascii_only)
+    text = f"{x:+.2f}"
+    if text == "-0.00":
+        text = "+0.00"
+    return fit(text + (SIGMA_ASCII if ascii_only else SIGMA), width)
+
+
+def fmt_delta(value: Any, width: int | None = None, ascii_only: bool = False) -> str:
+    """Delta (decimal, calls 0..1, puts -1..0) with its sign and two decimals: "+0.25", "-0.31"."""
+    x = as_finite(value)
+    if x is None:
+        return _missing(width, ascii_only)
+    text = f"{x:+.2f}"
+    if text == "-0.00":
+        text = "+0.00"
+    return fit(text, width)
+
+
+def fmt_count(value: Any, width: int | None = None, ascii_only: bool = False) -> str:
+    """A count (open interest, volume) with thousands separators: 12345 -> "12,345"."""
+    x = as_finite(value)
+    if x is None:
+        return _missing(width, ascii_only)
+    return fit(f"{round(x):,d}", width)
+
+
+def fmt_timestamp(value: Any, ascii_only: bool = False) -> str:
+    """A snapshot time as "2026-12-01 14:30 -05:00" (offset kept when the time has one)."""
+    if value is None:
+        return placeholder(ascii_only)
+    try:
+        ts = pd.Timestamp(value)
+    except (TypeError, ValueError):
+        return placeholder(ascii_only)
+    if ts is pd.NaT or pd.isna(ts):
+        return placeholder(ascii_only)
+    text = ts.strftime("%Y-%m-%d %H:%M")
+    if ts.tzinfo is not None:
+        off = ts.strftime("%z")  # +HHMM
+        if len(off) == 5:
+            text += f" {off[:3]}:{off[3:]}"
+    return text
+
+
+def fmt_date(value: Any, ascii_only: bool = False) -> str:
+    """An expiry as "2027-01-15"."""
+    if value is None:
+        return placeholder(ascii_only)
+    try:
+        ts = pd.Timestamp(value)
+    except (TypeError, ValueError):
+        return placeholder(ascii_only)
+    if ts is pd.NaT or pd.isna(ts):
+        return placeholder(ascii_only)
+    return ts.strftime("%Y-%m-%d")
+
+
+# Escape sequences (CSI, OSC, DCS/SOS/PM/APC strings, two-byte ESC codes) and
+# their 8-bit C1 forms, then any other control or bidirectional-override character.
+_ESCAPE_RE = re.compile(
+    r"(?:\x1b\[|\x9b)[0-?]*[ -/]*[@-~]"                 # CSI ... final byte
+    r"|(?:\x1b[\]PX^_]|[\x90\x98\x9d\x9e\x9f]).*?(?:\x07|\x1b\\|\x9c|$)"  # OSC/DCS/... to terminator
+    r"|\x1b[ -/]*[0-~]",                                 # other ESC sequences
+    re.DOTALL,
+)
+_CONTROL_RE = re.compile(
+    "[\x00-\x08\x0b-\x1f\x7f-\x9f\u200e\u200f\u202a-\u202e\u2066-\u2069]"
+)
+
+
+def clean_text(value: Any, *, keep_newlines: bool = False) -> str:
+    """Text from data made safe to show or copy: escape sequences and control
+    characters (C0, C1, DEL, bidi overrides) removed; tabs and newlines become spaces
+    unless ``keep_newlines``. None and NaN give ""."""
+    if value is None:
+        return ""
+    if isinstance(value, float) and not math.isfinite(value):
+        return ""
+    text = str(value)
+    text = _ESCAPE_RE.sub("", text)
+    if not keep_newlines:
+        text = text.replace("\r\n", " ").replace("\n", " ").replace("\r", " ")
+    text = text.replace("\t", " ")
+    return _CONTROL_RE.sub("", text)

@@ -1,0 +1,166 @@
+"""The help content as data: keys, what each grid column means, the words we use,
+and the cautions. ``help_text()`` lays it out as plain text (never markup).
+
+The key map is a proposal for the app; StrikeGrid binds the "ladder" keys
+itself. ``KEYS`` carries an action name per key so the app can build its
+bindings from this one list.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+
+@dataclass(frozen=True)
+class KeyHelp:
+    """One key (or a few equivalent keys, Textual key names), where it works,
+    the action name the app binds it to, and what it does."""
+
+    keys: tuple[str, ...]
+    context: str  # "ladder", "screen", "shortlist", "dialog"
+    action: str
+    description: str
+
+
+@dataclass(frozen=True)
+class ColumnHelp:
+    """A grid column (StrikeGrid.COLUMNS key), its heading, and its meaning in plain words."""
+
+    key: str
+    heading: str
+    meaning: str
+
+
+KEYS: tuple[KeyHelp, ...] = (
+    # The ladder (bound by StrikeGrid).
+    KeyHelp(("up", "k"), "ladder", "cursor_up", "move the highlight up one row (next lower strike)"),
+    KeyHelp(("down", "j"), "ladder", "cursor_down", "move the highlight down one row (next higher strike)"),
+    KeyHelp(("pageup", "pagedown"), "ladder", "cursor_page_up / cursor_page_down", "move a screenful"),
+    KeyHelp(("home", "end"), "ladder", "cursor_first / cursor_last", "lowest / highest strike"),
+    KeyHelp(("left", "right"), "ladder", "select_side", "select the call side / the put side"),
+    KeyHelp(("ctrl+pageup", "ctrl+pagedown"), "ladder", "page_left / page_right",
+            "scroll sideways when the columns are wider than the pane"),
+    # The triage screen.
+    KeyHelp(("]",), "screen", "next_expiry", "next expiry"),
+    KeyHelp(("[",), "screen", "previous_expiry", "previous expiry"),
+    KeyHelp(("f",), "screen", "set_filter", "show only strikes at least N sigmas from the forward (asks for N)"),
+    KeyHelp(("x",), "screen", "clear_filter", "show every strike again"),
+    KeyHelp(("plus", "minus"), "screen", "confidence_up / confidence_down",
+            "widen / narrow the range's confidence (68.27%, 80%, 90%, 95%, 99%)"),
+    KeyHelp(("c",), "screen", "copy_summary", "copy the highlighted contract's one-line summary"),
+    KeyHelp(("m",), "screen", "toggle_mark", "put the highlighted contract on the shortlist, or take it off"),
+    KeyHelp(("s",), "screen", "open_shortlist", "open the shortlist"),
+    KeyHelp(("o",), "screen", "choose_columns", "choose the columns shown on each side"),
+    KeyHelp(("v",), "screen", "toggle_plot", "show or hide the distribution pane"),
+    KeyHelp(("t",), "screen", "next_theme", "next colour theme (remembered)"),
+    KeyHelp(("a",), "screen", "toggle_ascii", "draw with plain ASCII characters, or with Unicode"),
+    KeyHelp(("e",), "screen", "show_findings", "what the loader and the pipeline said about the data"),
+    KeyHelp(("question_mark",), "screen", "show_help", "this help"),
+    KeyHelp(("q",), "screen", "quit", "quit"),
+    # The shortlist.
+    KeyHelp(("up", "k", "down", "j"), "shortlist", "cursor_up / cursor_down", "move through the shortlist"),
+    KeyHelp(("d", "delete"), "shortlist", "remove_entry", "take the contract off the shortlist"),
+    KeyHelp(("w",), "shortlist", "export", "write the shortlist to a file: .csv or .md by the name given"),
+    KeyHelp(("c",), "shortlist", "copy_summary", "copy the contract's one-line summary"),
+    # Any dialog or pane.
+    KeyHelp(("escape",), "dialog", "dismiss", "close the dialog or pane"),
+)
+
+#: How a Textual key name is shown to the user.
+KEY_LABELS: dict[str, str] = {
+    "up": "↑", "down": "↓", "left": "←", "right": "→", "pageup": "PgUp", "pagedown": "PgDn",
+    "home": "Home", "end": "End", "ctrl+pageup": "Ctrl+PgUp", "ctrl+pagedown": "Ctrl+PgDn",
+    "plus": "+", "minus": "-", "question_mark": "?", "escape": "Esc", "delete": "Del",
+}
+KEY_LABELS_ASCII: dict[str, str] = {**KEY_LABELS, "up": "Up", "down": "Down", "left": "Left", "right": "Right"}
+
+COLUMNS: tuple[ColumnHelp, ...] = (
+    ColumnHelp("bid", "bid", "best bid quoted in the snapshot"),
+    ColumnHelp("ask", "ask", "best ask quoted in the snapshot"),
+    ColumnHelp("mid", "mid", "halfway between bid and ask; the price the figures are computed from"),
+    ColumnHelp("iv", "IV", "implied volatility of the mid, Black-76 on the forward, annualised"),
+    ColumnHelp("sigma", "σ dist",
+               "sigma distance: ln(strike / forward) / (at-the-money IV x sqrt(T)); "
+               "+ above the forward, - below"),
+    ColumnHelp("p_beyond", "beyond",
+               "P(beyond): chance the underlying finishes beyond the strike at expiry in the "
+               "contract's direction (above for a call, below for a put), read from the whole smile"),
+    ColumnHelp("p_flat", "1-vol",
+               "the same chance from a plain lognormal at the one at-the-money vol; "
+               "a gap to 'beyond' is the skew's say"),
+    ColumnHelp("p_touch", "touch",
+               "P(touch): chance the underlying trades at the strike at some time before expiry, "
+               "starting from spot now"),
+    ColumnHelp("delta", "delta", "change in option price per unit change in the underlying (Black-76)"),
+    ColumnHelp("breakeven", "BE", "price at expiry where a buyer at mid breaks even: strike + mid for a call, "
+               "strike - mid for a put"),
+    ColumnHelp("p_breakeven", "P(BE)", "chance of finishing beyond the breakeven (the buyer's chance of profit "
+               "at expiry)"),
+    ColumnHelp("spread", "spread", "ask minus bid as a share of mid: how costly the market is to cross"),
+    ColumnHelp("open_interest", "OI", "open interest: contracts outstanding"),
+    ColumnHelp("volume", "volume", "contracts traded in the session"),
+    ColumnHelp("flags", "flags", "short words about the quote: zero-bid, wide, no-iv, ..."),
+)
+
+#: The ladder's other marks.
+MARKS: tuple[tuple[str, str], ...] = (
+    ("fwd line", "the dashed line across the ladder sits between the strikes around the forward "
+                 "and shows its value"),
+    ("colours", "out-of-the-money figures take the call or put colour of the theme; in-the-money "
+                "figures are plain on a shaded background"),
+    ("● / *", "the contract is on the shortlist"),
+    ("calls / puts", "the highlighted heading is the selected side; ← and → switch it"),
+)
+
+#: The plot's marks.
+PLOT: tuple[tuple[str, str], ...] = (
+    ("bars", "the market-implied distribution of the underlying at expiry (from the smile)"),
+    ("dots", "the one-vol lognormal distribution, for comparison"),
+    ("shaded bars", "the area beyond the highlighted strike; its P(beyond) is printed above"),
+    ("F, 1, 2", "the forward, and one and two sigmas either side of it"),
+)
+
+CAUTIONS: tuple[str, ...] = (
+    "Every figure is a model output computed from the quotes in the snapshot, under the "
+    "risk-neutral measure: not a forecast of what will happen.",
+    "Assumptions: European exercise; no jumps beyond what the smile already prices; "
+    "volatility as quoted now, at the snapshot time.",
+    "Stale, wide or one-sided quotes give unreliable figures: check the spread and the flags.",
+    "This is not advice. Decide for yourself.",
+)
+
+
+def key_label(key: str, ascii_only: bool = False) -> str:
+    """How a Textual key name is shown ("pageup" -> "PgUp")."""
+    labels = KEY_LABELS_ASCII if ascii_only else KEY_LABELS
+    return labels.get(key, key)
+
+
+def help_text(ascii_only: bool = False) -> str:
+    """The whole help as plain text (show it with rich Text, not markup)."""
+    out: list[str] = ["KEYS"]
+    titles = {"ladder": "In the ladder", "screen": "Anywhere on the triage screen",
+              "shortlist": "In the shortlist", "dialog": "In a dialog"}
+    for context, title in titles.items():
+        out.append(f"  {title}")
+        for k in KEYS:
+            if k.context == context:
+                keys = " / ".join(key_label(x, ascii_only) for x in k.keys)
+                out.append(f"    {keys:<22} {k.description}")
+    out += ["", "COLUMNS (each side of the ladder)"]
+    for c in COLUMNS:
+        heading = c.heading.replace("σ", "s") if ascii_only else c.heading
+        out.append(f"  {heading:<8} {c.meaning}")
+    out += ["", "MARKS"]
+    for name, meaning in MARKS:
+        out.append(f"  {name:<13} {meaning}")
+    out += ["", "DISTRIBUTION PANE"]
+    for name, meaning in PLOT:
+        out.append(f"  {name:<13} {meaning}")
+    out += ["", "CAUTIONS"]
+    out += [f"  - {c}" for c in CAUTIONS]
+    text = "\n".join(out) + "\n"
+    if ascii_only:
+        text = text.replace("●", "o").replace("←", "Left").replace("→", "Right").replace("σ", "s")
+        text = text.encode("ascii", "replace").decode("ascii")
+    return text

@@ -1,0 +1,251 @@
+"""The shortlist: contracts the user set aside, across expiries, with their figures.
+
+A contract is identified by (underlying, as_of, expiry, strike, kind). The
+shortlist keeps a copy of its figures as they were when it was added, and
+exports to CSV or Markdown. Exports are written atomically and never replace
+an existing file unless ``overwrite=True``.
+
+CSV cells holding text that starts with "=", "+", "-", "@", a tab, a
+carriage return or a NUL get a leading single quote, so a spreadsheet does
+not run them as formulas: OWASP "CSV Injection" guidance [M], as written in
+OWASP ASVS 5.0 requirement 1.2.10 ("'=', '+', '-', '@', '\\t' (tab), and '\\0'
+(null character)) must be escaped with a single quote if they appear as the
+first character in a field value") [V]; carriage return added per the OWASP
+CSV Injection page [M]. NUL characters are dropped from text cells. Numbers
+are written as plain numbers (so "-1.48" stays a number); missing numbers as
+empty cells. Markdown cells have pipes escaped and line breaks removed.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import math
+import os
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any, Iterable, Iterator, Mapping
+
+import pandas as pd
+
+from . import formatting as fm
+from .files import write_text_atomic
+
+#: Figures kept per contract (contracts-table column names), in export order.
+FIGURES: tuple[str, ...] = (
+    "bid", "ask", "mid", "iv", "sigma_distance", "p_beyond", "p_beyond_flat", "p_touch",
+    "delta", "breakeven", "p_breakeven", "spread_pct", "open_interest", "volume", "flags",
+)
+#: Figures that are text, not numbers.
+TEXT_FIGURES = frozenset({"flags"})
+
+KEY_FIELDS: tuple[str, ...] = ("underlying", "as_of", "expiry", "strike", "kind")
+
+#: Characters that make a spreadsheet treat a cell as a formula (OWASP CSV Injection).
+FORMULA_PREFIXES = ("=", "+", "-", "@", "\t", "\r", "\0")
+
+#: Markdown headings: our words for each exported field.
+MARKDOWN_HEADINGS: dict[str, str] = {
+    "underlying": "underlying", "as_of": "as of", "expiry": "expiry", "strike": "strike", "kind": "kind",
+    "bid": "bid", "ask": "ask", "mid": "mid", "iv": "IV", "sigma_distance": "σ dist",
+    "p_beyond": "P(beyond)", "p_beyond_flat": "P(beyond) 1-vol", "p_touch": "P(touch)", "delta": "delta",
+    "breakeven": "BE", "p_breakeven": "P(BE)", "spread_pct": "spread", "open_interest": "OI",
+    "volume": "volume", "flags": "flags",
+}
+
+
+@dataclass(frozen=True, order=True)
+class ContractKey:
+    """Identity of a shortlisted contract: as_of is ISO 8601 text, expiry "YYYY-MM-DD",
+    strike in price units, kind "call" or "put"."""
+
+    underlying: str
+    as_of: str
+    expiry: str
+    strike: float
+    kind: str
+
+    @classmethod
+    def of(cls, underlying: Any, as_of: Any, expiry: Any, strike: Any, kind: Any) -> "ContractKey":
+        """Build a key from loose values (Timestamps, numpy floats, "c"/"p")."""
+        k = str(kind).strip().lower()
+        k = {"c": "call", "p": "put"}.get(k, k)
+        when = as_of.isoformat() if isinstance(as_of, pd.Timestamp) else str(as_of)
+        return cls(underlying=str(underlying), as_of=when, expiry=fm.fmt_date(expiry, ascii_only=True),
+                   strike=float(strike), kind=k)
+
+    @classmethod
+    def from_row(cls, row: Mapping[str, Any], as_of: Any = None) -> "ContractKey":
+        """The key of a contracts-table row (``as_of`` from the snapshot when the row has none)."""
+        return cls.of(row["underlying"], as_of if as_of is not None else row.get("as_of"),
+                      row["expiry"], row["strike"], row["kind"])
+
+
+@dataclass
+class ShortlistEntry:
+    """A shortlisted contract and its figures when it was added."""
+
+    key: ContractKey
+    figures: dict[str, Any] = field(default_factory=dict)
+
+
+def _figures_of(row: Mapping[str, Any] | None) -> dict[str, Any]:
+    if row is None:
+        return {}
+    out: dict[str, Any] = {}
+    for name in FIGURES:
+        try:
+            value = row[name]
+        except (KeyError, IndexError, TypeError):
+            continue
+        if name in TEXT_FIGURES:
+            out[name] = "" if value is None or (isinstance(value, float) and math.isnan(value)) else str(value)
+        else:
+            x = fm.as_finite(value)
+            out[name] = math.nan if x is None else x
+    return out
+
+
+class Shortlist:
+    """Contracts set aside, in the order they were added."""
+
+    def __init__(self) -> None:
+        self._entries: dict[ContractKey, ShortlistEntry] = {}
+
+    def add(self, key: ContractKey, figures: Mapping[str, Any] | None = None) -> None:
+        """Add (or refresh the figures of) a contract."""
+        self._entries[key] = ShortlistEntry(key, _figures_of(figures))
+
+    def remove(self, key: ContractKey) -> bool:
+        """Remove a contract; True if it was there."""
+        return self._entries.pop(key, None) is not None
+
+    def toggle(self, key: ContractKey, figures: Mapping[str, Any] | None = None) -> bool:
+        """Add if absent, remove if present; True if it is on the shortlist afterwards."""
+        if key in self._entries:
+            del self._entries[key]
+            return False
+        self.add(key, figures)
+        return True
+
+    def clear(self) -> None:
+        self._entries.clear()
+
+    def __contains__(self, key: object) -> bool:
+        return key in self._entries
+
+    def __len__(self) -> int:
+        return len(self._entries)
+
+    def __iter__(self) -> Iterator[ShortlistEntry]:
+        return iter(list(self._entries.values()))
+
+    @property
+    def entries(self) -> list[ShortlistEntry]:
+        return list(self._entries.values())
+
+    def marked_in(self, underlying: Any, as_of: Any, expiry: Any) -> set[tuple[float, str]]:
+        """(strike, kind) of the shortlisted contracts of one expiry (for StrikeGrid.set_marked)."""
+        probe = ContractKey.of(underlying, as_of, expiry, 0.0, "call")
+        return {(e.key.strike, e.key.kind) for e in self._entries.values()
+                if (e.key.underlying, e.key.as_of, e.key.expiry) == (probe.underlying, probe.as_of, probe.expiry)}
+
+    # ------------------------------------------------------------ export
+
+    def to_csv_text(self) -> str:
+        """The shortlist as CSV text (header row, then one row per contract)."""
+        buf = io.StringIO()
+        writer = csv.writer(buf, lineterminator="\r\n")
+        writer.writerow(KEY_FIELDS + FIGURES)
+        for e in self._entries.values():
+            k = e.key
+            row = [_csv_text(k.underlying), _csv_text(k.as_of),
+                   _csv_text(k.expiry), _csv_number(k.strike), _csv_text(k.kind)]
+            # Text from data keeps its characters in CSV (a quoted field may hold
+            # anything); only the leading formula trigger is neutralised.
+            for name in FIGURES:
+                value = e.figures.get(name)
+                if name in TEXT_FIGURES:
+                    row.append(_csv_text(value))
+                else:
+                    row.append(_csv_number(value))
+            writer.writerow(row)
+        return buf.getvalue()
+
+    def to_markdown_text(self, ascii_only: bool = False) -> str:
+        """The shortlist as a Markdown table with figures formatted for reading."""
+        fields = KEY_FIELDS + FIGURES
+        head = [MARKDOWN_HEADINGS[f] if not ascii_only else MARKDOWN_HEADINGS[f].replace("σ", "s") for f in fields]
+        lines = ["| " + " | ".join(head) + " |",
+                 "|" + "|".join("---:" if f not in TEXT_FIGURES and f not in
+                                ("underlying", "as_of", "expiry", "kind") else "---" for f in fields) + "|"]
+        for e in self._entries.values():
+            k = e.key
+            cells = [k.underlying, k.as_of, k.expiry, fm.fmt_strike(k.strike), k.kind]
+            cells += [markdown_figure(name, e.figures.get(name), ascii_only) for name in FIGURES]
+            lines.append("| " + " | ".join(escape_markdown(c) for c in cells) + " |")
+        return "\n".join(lines) + "\n"
+
+    def export_csv(self, path: str | os.PathLike[str], *, overwrite: bool = False) -> Path:
+        """Write the CSV export atomically; TargetExistsError if ``path`` exists and not ``overwrite``."""
+        return write_text_atomic(path, self.to_csv_text(), overwrite=overwrite, newline="")
+
+    def export_markdown(self, path: str | os.PathLike[str], *, overwrite: bool = False,
+                        ascii_only: bool = False) -> Path:
+        """Write the Markdown export atomically; TargetExistsError if ``path`` exists and not ``overwrite``."""
+        return write_text_atomic(path, self.to_markdown_text(ascii_only), overwrite=overwrite)
+
+
+def _csv_text(text: Any) -> str:
+    s = "" if text is None or (isinstance(text, float) and math.isnan(text)) else str(text)
+    return neutralise_formula(s.replace("\0", ""))
+
+
+def neutralise_formula(text: Any) -> str:
+    """A text cell that a spreadsheet will not run: a leading single quote when the text
+    starts with = + - @ tab, carriage return or NUL (OWASP ASVS 5.0 1.2.10 [V])."""
+    s = "" if text is None else str(text)
+    if s.startswith(FORMULA_PREFIXES):
+        return "'" + s
+    return s
+
+
+def _csv_number(value: Any) -> str:
+    x = fm.as_finite(value)
+    return "" if x is None else repr(float(x))
+
+
+def markdown_figure(name: str, value: Any, ascii_only: bool = False) -> str:
+    """A figure formatted for reading in the Markdown export."""
+    if name in TEXT_FIGURES:
+        return fm.clean_text(value)
+    if name in ("bid", "ask", "mid", "breakeven"):
+        return fm.fmt_price(value, ascii_only=True)
+    if name == "iv":
+        return fm.fmt_vol(value, ascii_only=True)
+    if name == "sigma_distance":
+        return fm.fmt_sigma(value, ascii_only=ascii_only) if fm.as_finite(value) is not None else "--"
+    if name in ("p_beyond", "p_beyond_flat", "p_touch", "p_breakeven"):
+        return fm.fmt_prob(value, ascii_only=True)
+    if name == "delta":
+        return fm.fmt_delta(value, ascii_only=True)
+    if name == "spread_pct":
+        return fm.fmt_spread(value, ascii_only=True)
+    if name in ("open_interest", "volume"):
+        return fm.fmt_count(value, ascii_only=True)
+    x = fm.as_finite(value)
+    return "--" if x is None else repr(x)
+
+
+def escape_markdown(text: Any) -> str:
+    """A Markdown table cell: control characters removed, backslashes and pipes escaped."""
+    s = fm.clean_text(text)
+    return s.replace("\\", "\\\\").replace("|", "\\|")
+
+
+def shortlist_from(entries: Iterable[tuple[ContractKey, Mapping[str, Any] | None]]) -> Shortlist:
+    """A shortlist holding these (key, figures) pairs."""
+    sl = Shortlist()
+    for key, figures in entries:
+        sl.add(key, figures)
+    return sl
