@@ -309,6 +309,19 @@ def test_unconverged_elements_get_polished(monkeypatch):
     np.testing.assert_allclose(res.sigma, sigma, rtol=1e-12, atol=0)
 
 
+def test_polish_converges_from_far_starting_points():
+    # [D] The safety net on its own: from starting points a thousand times too
+    # small or too large, the bracketed loop still lands on the root.
+    x = -np.array([0.0, 0.1, 1.0, 5.0, 20.0, 0.5, 0.005])
+    s_true = np.array([0.2, 0.05, 1.0, 3.0, 8.0, 6.0, 1e-3])
+    bmax = np.exp(0.5 * x)
+    beta, _ = iv_module._black(x, s_true, bmax, 1.0 / bmax)
+    assert np.all((beta > 0) & (beta < bmax))
+    for start in (s_true * 1e-3, s_true * 1e3, np.full_like(s_true, np.nan)):  # NaN: no guess at all
+        got = iv_module._polish(beta, x, start.copy())
+        np.testing.assert_allclose(got, s_true, rtol=1e-12, atol=0)
+
+
 # ---------------------------------------------------------------- status codes
 
 
