@@ -479,7 +479,7 @@ def _read_table(path: str) -> _Table:
 # --------------------------------------------------------------------------- cell parsing (vectorised)
 
 
-def _numbers(s: pd.Series, *, percent: bool = False) -> tuple[np.ndarray, np.ndarray]:
+def _numbers_unique(s: pd.Series, *, percent: bool = False) -> tuple[np.ndarray, np.ndarray]:
     """Parse stripped text to float. Returns (values, status): 0 ok, 1 empty, 2 not a number, 3 not finite."""
     n = len(s)
     body = s
@@ -503,7 +503,7 @@ def _numbers(s: pd.Series, *, percent: bool = False) -> tuple[np.ndarray, np.nda
     return values, status
 
 
-def _dates(s: pd.Series, fmt: str | None) -> tuple[np.ndarray, np.ndarray]:
+def _dates_unique(s: pd.Series, fmt: str | None) -> tuple[np.ndarray, np.ndarray]:
     """Parse dates. Returns (datetime64[ns] values, status): 0 ok, 1 empty, 2 wrong format, 3 impossible, 4 out of range."""
     n = len(s)
     status = np.full(n, 2, dtype=np.int8)
@@ -532,7 +532,7 @@ def _dates(s: pd.Series, fmt: str | None) -> tuple[np.ndarray, np.ndarray]:
     return out, status
 
 
-def _times(s: pd.Series) -> tuple[np.ndarray, np.ndarray]:
+def _times_unique(s: pd.Series) -> tuple[np.ndarray, np.ndarray]:
     """Parse as_of text. Returns (UTC int64 ns, status): 0 ok, 1 empty, 2 not a time, 3 no offset, 4 impossible."""
     n = len(s)
     status = np.full(n, 2, dtype=np.int8)
@@ -553,6 +553,50 @@ def _times(s: pd.Series) -> tuple[np.ndarray, np.ndarray]:
     status[naive] = 3
     status[empty] = 1
     return ns, status
+
+
+def _per_unique(s: pd.Series, parse, *args, **kwargs):
+    """Run ``parse`` once per distinct value of ``s`` and spread the result back to every row.
+
+    Chains repeat values heavily (one as_of, a few dozen expiries, prices on
+    a tick grid), so this makes the text work proportional to the distinct
+    values, whatever string backend pandas uses.
+    """
+    codes, uniques = pd.factorize(s)
+    result = parse(pd.Series(np.asarray(uniques, dtype=object), dtype=str), *args, **kwargs)
+    if isinstance(result, tuple):
+        return tuple(np.asarray(r)[codes] for r in result)
+    return np.asarray(result)[codes]
+
+
+def _numbers(s: pd.Series, *, percent: bool = False) -> tuple[np.ndarray, np.ndarray]:
+    """Parse stripped text to float. Returns (values, status): 0 ok, 1 empty, 2 not a number, 3 not finite."""
+    return _per_unique(s, _numbers_unique, percent=percent)
+
+
+def _dates(s: pd.Series, fmt: str | None) -> tuple[np.ndarray, np.ndarray]:
+    """Parse dates to datetime64[ns]; status 0 ok, 1 empty, 2 wrong format, 3 impossible, 4 out of range."""
+    return _per_unique(s, _dates_unique, fmt)
+
+
+def _times(s: pd.Series) -> tuple[np.ndarray, np.ndarray]:
+    """Parse as_of text to UTC int64 ns; status 0 ok, 1 empty, 2 not a time, 3 no offset, 4 impossible."""
+    return _per_unique(s, _times_unique)
+
+
+def _stripped(s: pd.Series) -> pd.Series:
+    """The column with surrounding whitespace removed (str dtype)."""
+    codes, uniques = pd.factorize(s)
+    raw = np.asarray(uniques, dtype=object)
+    clean = pd.Series(raw, dtype=str).str.strip().to_numpy(dtype=object)
+    if np.array_equal(raw, clean):
+        return s.reset_index(drop=True)
+    return pd.Series(clean[codes] if len(codes) else np.array([], dtype=object), dtype=str)
+
+
+def _folded(s: pd.Series) -> np.ndarray:
+    """Case-folded values as an object array."""
+    return _per_unique(s, lambda u: u.str.casefold().to_numpy(dtype=object))
 
 
 # --------------------------------------------------------------------------- validation
@@ -640,7 +684,7 @@ class _FileValidator:
                     NOTE, f"the column mapping names {mapped!r} for {name}, but the file has no such column",
                     file=self.path))
         for name, i in chosen.items():
-            self.col[name] = self.t.cells[i].str.strip()
+            self.col[name] = _stripped(self.t.cells[i])
             self.label[name] = self.t.headers[i].strip() or name
         if missing:
             found = [h.strip() for h in self.t.headers if h.strip()]
@@ -743,8 +787,7 @@ class _FileValidator:
         s = self.col["kind"]
         spellings = dict(_KINDS)
         spellings.update(self.cmap.kind_aliases())
-        folded = s.str.casefold()
-        kind = folded.map(spellings)
+        kind = pd.Series(_folded(s), dtype=object).map(spellings)
         self.kind = kind.to_numpy(dtype=object, na_value=None)
         lab = self.lab("kind")
         rows.leave_out((s == "").to_numpy(dtype=bool), lab, "kind is empty")
@@ -913,7 +956,7 @@ class _FileValidator:
         # settle
         if "settle" in self.col:
             s = self.col["settle"]
-            folded = s.str.casefold()
+            folded = pd.Series(_folded(s), dtype=object)
             valid = folded.isin(list(_SETTLES)).to_numpy(dtype=bool)
             empty = (s == "").to_numpy(dtype=bool)
             self.warn_rows(ok & ~valid & ~empty, self.lab("settle"), "settle {v} is not pm or am; pm is used", s)
