@@ -315,8 +315,6 @@ def _records_fast(path: str, text: str, delim: str):
     keep = ~blank
     starts, ends = starts[keep], ends[keep]
     start_line, end_line, nfields, first_d = start_line[keep], end_line[keep], nfields[keep], first_d[keep]
-    if starts.size == 0:
-        return raw, dpos, starts, ends, start_line, end_line, nfields, first_d
     return raw, dpos, starts, ends, start_line, end_line, nfields, first_d
 
 
@@ -610,16 +608,20 @@ class _Rows:
         self.reason = np.empty(n, dtype=object)
         self.column = np.empty(n, dtype=object)
 
-    def leave_out(self, mask: np.ndarray, column: str | None, text, values: Sequence | None = None) -> None:
-        """Leave out ``mask`` rows not yet left out. ``text`` is a str, or a format with ``{v}``
-        filled from ``values`` (a cell per row), or a callable(index) -> str."""
-        sel = np.flatnonzero(mask & self.free)
+    def leave_out(self, where: np.ndarray, column: str | None, text, values: Sequence | None = None) -> None:
+        """Leave out the rows of ``where`` (a bool mask or row indices) not yet left out.
+
+        ``text`` is a str, or a format with ``{v}`` filled from ``values`` (a
+        cell per row), or a callable(index) -> str.
+        """
+        where = np.asarray(where)
+        sel = np.flatnonzero(where & self.free) if where.dtype == bool else where[self.free[where]]
         if sel.size == 0:
             return
         if callable(text):
             self.reason[sel] = [text(i) for i in sel]
         elif values is not None:
-            vals = np.asarray(values, dtype=object)[sel]
+            vals = values.iloc[sel] if isinstance(values, pd.Series) else np.asarray(values, dtype=object)[sel]
             self.reason[sel] = [text.format(v=_show(v)) for v in vals]
         else:
             self.reason[sel] = text
@@ -814,56 +816,59 @@ class _FileValidator:
 
     # -- per underlying ---------------------------------------------------
     def resolve_groups(self) -> None:
-        rows = self.rows
+        """Per underlying: the snapshot's as_of and spot, and expiries before its date.
+
+        Works on each underlying's row indices, so many underlyings cost no more
+        than one.
+        """
+        rows, lines = self.rows, self.t.line
         self.snap: dict[str, tuple[pd.Timestamp, float]] = {}
-        live = rows.free.copy()
-        names = pd.unique(pd.Series(self.und[live], dtype=object)) if live.any() else []
-        codes = {u: i for i, u in enumerate(names)}
-        self.group = np.full(self.n, -1, dtype=np.int64)
-        if live.any():
-            self.group[live] = pd.Series(self.und[live], dtype=object).map(codes).to_numpy(dtype=np.int64)
-        lines = self.t.line
+        self.group_rows: dict[str, np.ndarray] = {}
+        live = np.flatnonzero(rows.free)
+        codes, names = pd.factorize(pd.Series(self.und[live], dtype=object))
+        order = np.argsort(codes, kind="stable")
+        bounds = np.searchsorted(codes[order], np.arange(len(names) + 1))
         for g, und in enumerate(names):
-            in_g = self.group == g
+            gi = live[order[bounds[g]:bounds[g + 1]]]  # this underlying's rows, in file order
+            self.group_rows[und] = gi
             # as_of
             if self.ov.as_of is not None:
                 as_of = self.ov.as_of
-                at_latest = in_g
+                at_latest = gi
             else:
-                given = in_g & self.as_of_given
-                if not given.any():
-                    rows.leave_out(in_g, self.lab("as_of"),
+                given = gi[self.as_of_given[gi]]
+                if given.size == 0:
+                    rows.leave_out(gi, self.lab("as_of"),
                                    f"no as_of for {_show(und, 30)}: the as_of cell is empty on all its rows")
                     continue
                 ns = self.as_of_ns[given]
                 latest = ns.max()
-                at_latest = given & (self.as_of_ns == latest)
-                first = int(np.flatnonzero(at_latest)[0])
+                at_latest = given[ns == latest]
+                first = int(at_latest[0])
                 as_of = _timestamp(self.col["as_of"].iloc[first], int(latest))
                 if ns.min() != latest:
                     earliest = pd.Timestamp(int(ns.min()), tz="UTC").tz_convert(as_of.tz)
                     self.group_findings.append(Finding(
                         WARNING,
-                        f"as_of varies across {int(given.sum())} rows (from {earliest.isoformat()} to "
+                        f"as_of varies across {given.size} rows (from {earliest.isoformat()} to "
                         f"{as_of.isoformat()}); the latest is used for the whole snapshot",
                         file=self.path, line=int(lines[first]), column=self.lab("as_of"), underlying=und))
-                empty = in_g & ~self.as_of_given
-                if empty.any():
+                if given.size < gi.size:
                     self.group_findings.append(Finding(
-                        NOTE, f"as_of is empty on {int(empty.sum())} of {int(in_g.sum())} rows; "
+                        NOTE, f"as_of is empty on {gi.size - given.size} of {gi.size} rows; "
                               f"{as_of.isoformat()} is used for them",
                         file=self.path, column=self.lab("as_of"), underlying=und))
             # spot
             if self.ov.spot is not None:
                 spot = float(self.ov.spot)
             else:
-                has = in_g & np.isfinite(self.spot_v)
-                if not has.any():
-                    rows.leave_out(in_g, self.lab("spot"),
+                has = gi[np.isfinite(self.spot_v[gi])]
+                if has.size == 0:
+                    rows.leave_out(gi, self.lab("spot"),
                                    f"no spot for {_show(und, 30)}: the spot cell is empty on all its rows")
                     continue
-                pick = has & at_latest if (has & at_latest).any() else has
-                first = int(np.flatnonzero(pick)[0])
+                pick = has[np.isin(has, at_latest)]
+                first = int(pick[0] if pick.size else has[0])
                 spot = float(self.spot_v[first])
                 values = np.unique(self.spot_v[has])
                 if values.size > 1:
@@ -872,24 +877,23 @@ class _FileValidator:
                         f"spot varies ({values.size} values from {_fmt(values[0])} to {_fmt(values[-1])}); "
                         f"{_fmt(spot)} from this line (at the latest as_of) is used for the whole snapshot",
                         file=self.path, line=int(lines[first]), column=self.lab("spot"), underlying=und))
-                empty = in_g & (self.col["spot"] == "").to_numpy(dtype=bool)
-                if empty.any():
+                if has.size < gi.size:
                     self.group_findings.append(Finding(
-                        NOTE, f"spot is empty on {int(empty.sum())} of {int(in_g.sum())} rows; {_fmt(spot)} is used",
+                        NOTE, f"spot is empty on {gi.size - has.size} of {gi.size} rows; {_fmt(spot)} is used",
                         file=self.path, column=self.lab("spot"), underlying=und))
-            # expiry before the snapshot date
+            # expiry before the snapshot date (in the snapshot's own UTC offset)
             day = np.datetime64(as_of.tz_localize(None).normalize().to_datetime64(), "ns")
-            before = in_g & (self.expiry < day)
-            day_text = f"{as_of:%Y-%m-%d}"
-            rows.leave_out(before, self.lab("expiry"),
-                           lambda i: f"expiry {self.expiry[i].astype('datetime64[D]')} is before the snapshot date {day_text}")
+            before = gi[self.expiry[gi] < day]
+            if before.size:
+                day_text = f"{as_of:%Y-%m-%d}"
+                rows.leave_out(before, self.lab("expiry"), lambda i: (
+                    f"expiry {self.expiry[i].astype('datetime64[D]')} is before the snapshot date {day_text}"))
             self.snap[und] = (as_of, spot)
             # control characters in the name
             if self.ov.underlying is None and re.search(_CONTROL_RE, und):
-                first = int(np.flatnonzero(in_g)[0])
                 self.group_findings.append(Finding(
                     WARNING, f"underlying {_show(und)} contains control or invisible characters; kept as written",
-                    file=self.path, line=int(lines[first]), column=self.lab("underlying"), underlying=und))
+                    file=self.path, line=int(lines[gi[0]]), column=self.lab("underlying"), underlying=und))
 
     def check_duplicates(self) -> None:
         free = np.flatnonzero(self.rows.free)
@@ -1033,32 +1037,45 @@ class _FileValidator:
             raise SnapshotFileError(
                 self.path, f"no usable row: all {self.n} rows were left out ({common})",
                 findings=findings, rows_read=self.n)
-        snapshots = []
+        # one frame of every accepted row, sorted by underlying, expiry, strike, kind, then cut per underlying
         ok = self.rows.free
-        for und, (as_of, spot) in self.snap.items():
-            sel = ok & (self.und == und)
-            if not sel.any():
+        names = list(self.snap)
+        gid = np.full(self.n, -1, dtype=np.int64)
+        for g, und in enumerate(names):
+            gid[self.group_rows[und]] = g
+        acc = np.flatnonzero(ok & (gid >= 0))
+        order = np.lexsort((self.t.line[acc], self.kind[acc] == "put", self.strike[acc],
+                            self.expiry[acc].astype(np.int64), gid[acc]))
+        acc = acc[order]
+        frame = pd.DataFrame({
+            "expiry": self.expiry[acc].astype("datetime64[ns]"),
+            "strike": self.strike[acc].astype(np.float64),
+            "kind": pd.Series(self.kind[acc], dtype=str),
+            "bid": self.bid[acc].astype(np.float64),
+            "ask": self.ask[acc].astype(np.float64),
+            "iv": optional["iv"][acc].astype(np.float64),
+            "iv_basis": pd.Series(optional["iv_basis"][acc], dtype=str),
+            "volume": optional["volume"][acc].astype(np.float64),
+            "open_interest": optional["open_interest"][acc].astype(np.float64),
+            "settle": pd.Series(optional["settle"][acc], dtype=str),
+            "rate": optional["rate"][acc].astype(np.float64),
+            "div_yield": optional["div_yield"][acc].astype(np.float64),
+            "source_file": pd.Series(np.full(acc.size, self.path, dtype=object), dtype=str),
+            "source_line": self.t.line[acc].astype(np.int64),
+        })[list(CONTRACT_COLUMNS)]
+        bounds = np.searchsorted(gid[acc], np.arange(len(names) + 1))
+        by_underlying: dict[str, list[Finding]] = {}
+        for f in findings:
+            if f.underlying is not None:
+                by_underlying.setdefault(f.underlying, []).append(f)
+        snapshots = []
+        for g, und in enumerate(names):
+            if bounds[g] == bounds[g + 1]:
                 continue
-            contracts = pd.DataFrame({
-                "expiry": self.expiry[sel],
-                "strike": self.strike[sel],
-                "kind": pd.Series(self.kind[sel], dtype=str),
-                "bid": self.bid[sel],
-                "ask": self.ask[sel],
-                "iv": optional["iv"][sel],
-                "iv_basis": pd.Series(optional["iv_basis"][sel], dtype=str),
-                "volume": optional["volume"][sel],
-                "open_interest": optional["open_interest"][sel],
-                "settle": pd.Series(optional["settle"][sel], dtype=str),
-                "rate": optional["rate"][sel],
-                "div_yield": optional["div_yield"][sel],
-                "source_file": pd.Series(np.full(int(sel.sum()), self.path, dtype=object), dtype=str),
-                "source_line": self.t.line[sel].astype(np.int64),
-            })
-            contracts = _tidy(contracts)
-            snap_findings = [f for f in findings if f.underlying == und]
+            as_of, spot = self.snap[und]
+            contracts = frame.iloc[bounds[g]:bounds[g + 1]].reset_index(drop=True)
             snapshots.append(Snapshot(underlying=und, as_of=as_of, spot=spot, contracts=contracts,
-                                      findings=snap_findings, sources=(self.path,)))
+                                      findings=by_underlying.get(und, []), sources=(self.path,)))
         return FileLoad(path=self.path, snapshots=snapshots, findings=findings, rows_read=self.n,
                         rows_accepted=accepted)
 

@@ -20,8 +20,8 @@ import pandas as pd
 from chaintriage.core.loading import load_file
 
 
-def make_rows(n: int, seed: int = 7) -> pd.DataFrame:
-    """n contracts of a fictional underlying, with a few bad rows mixed in."""
+def make_rows(n: int, seed: int = 7, underlyings: int = 1) -> pd.DataFrame:
+    """n contracts of fictional underlyings (U0001, ...), with a few bad rows mixed in."""
     rng = np.random.default_rng(seed)
     expiries = pd.date_range("2026-04-17", periods=40, freq="7D").strftime("%Y-%m-%d").to_numpy()
     per = 2 * 40
@@ -33,7 +33,7 @@ def make_rows(n: int, seed: int = 7) -> pd.DataFrame:
     bid = np.round(mid - half, 2).clip(0)
     ask = np.round(mid + half, 2)
     df = pd.DataFrame({
-        "underlying": "QRTZ",
+        "underlying": "QRTZ" if underlyings == 1 else [f"U{i % underlyings:04d}" for i in range(n)],
         "as_of": "2026-04-01T15:30:00-04:00",
         "spot": "100.25",
         "expiry": exp,
@@ -61,10 +61,11 @@ def best_of(fn, repeat: int = 3) -> float:
 
 def main() -> None:
     n = int(sys.argv[1]) if len(sys.argv) > 1 else 100_000
-    df = make_rows(n)
+    cases = (("plain", 0, 1), ("all fields quoted", 1, 1), ("2000 underlyings", 0, 2000))
     with tempfile.TemporaryDirectory() as tmp:
-        for label, quoting in (("plain", 0), ("all fields quoted", 1)):
-            path = Path(tmp) / f"chain_{quoting}.csv"
+        for label, quoting, unds in cases:
+            df = make_rows(n, underlyings=unds)
+            path = Path(tmp) / f"chain_{quoting}_{unds}.csv"
             df.to_csv(path, index=False, quoting=quoting)
             res = load_file(path)
             assert res.rows_read == n, (res.rows_read, n)
@@ -72,7 +73,7 @@ def main() -> None:
             t_pd = best_of(lambda: pd.read_csv(path, dtype=str, keep_default_na=False))
             size = path.stat().st_size / 1e6
             print(f"{label}: {n} rows ({size:.1f} MB), accepted {res.rows_accepted}, "
-                  f"{len(res.findings)} findings")
+                  f"{len(res.findings)} findings, {len(res.snapshots)} snapshots")
             print(f"  load_file        best of 3: {t_load:.3f} s = {n / t_load:,.0f} rows/s")
             print(f"  pandas.read_csv  best of 3: {t_pd:.3f} s = {n / t_pd:,.0f} rows/s"
                   f"  (load_file takes {t_load / t_pd:.1f}x)")
