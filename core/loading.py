@@ -350,11 +350,12 @@ def _table_fast(path: str, text: str, delim: str) -> _Table | None:
     # extra fields beyond the header: fine when they are all empty
     extra = np.zeros(starts.size, dtype=bool)
     over = np.flatnonzero(nfields > width)
-    bad_chars = delim.encode() + b' \t"'
-    for i in over:
+    for i in over:  # rare: parse just the tail of the row, with the same quoting rules
         cut = dpos[first_d[i] + width - 1]
-        if raw[cut + 1 : ends[i]].translate(None, bad_chars):
-            extra[i] = True
+        tail = raw[cut + 1 : ends[i]].decode("utf-8")
+        fields = next(csv.reader(io.StringIO(tail, newline=""), delimiter=delim, quotechar='"',
+                                 doublequote=True, strict=False), [])
+        extra[i] = any(x.strip(" \t") for x in fields)
     headers = [str(h) for h in df.iloc[0].tolist()]
     cells = df.iloc[1:].reset_index(drop=True)
     cells.columns = range(width)
@@ -394,7 +395,7 @@ def _table_csv_module(path: str, text: str, delim: str) -> _Table:
     width = len(headers)
     body = rows[1:]
     nfields = np.fromiter((len(r) for r in body), dtype=np.int64, count=len(body))
-    extra = np.fromiter((any(x.strip() for x in r[width:]) for r in body), dtype=bool, count=len(body))
+    extra = np.fromiter((any(x.strip(" \t") for x in r[width:]) for r in body), dtype=bool, count=len(body))
     fixed = [r[:width] + [""] * (width - len(r)) if len(r) != width else r for r in body]
     cells = pd.DataFrame(fixed, columns=range(width), dtype=str) if fixed else pd.DataFrame(
         {i: pd.Series([], dtype=str) for i in range(width)}

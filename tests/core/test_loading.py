@@ -425,14 +425,17 @@ def test_unclosed_quote_is_a_file_error_naming_its_line(tmp_path, stray):
 def test_short_and_long_rows(tmp_path):
     p = csv_file(tmp_path, row(strike="90"), "QRTZ," + AS_OF + ",100,2026-03-20,95,call,1",
                  row(strike="100") + ",",  # a trailing empty field is harmless
-                 row(strike="105") + ",,oops")
+                 row(strike="105") + ",,oops",
+                 row(strike="110") + ',"",  ',  # empty and blank extras are harmless too
+                 row(strike="115") + ',""""')  # ... but a quoted quote is a value
     load = load_file(p)
     lo = left_out(load)
     assert [(f.line, f.reason) for f in lo] == [
         (3, "row has 7 fields; the header has 8"),
         (5, "row has 10 fields; the header has 8 (extra values at the end)"),
+        (7, "row has 9 fields; the header has 8 (extra values at the end)"),
     ]
-    assert load.rows_accepted == 2
+    assert load.rows_accepted == 3
 
 
 @pytest.mark.parametrize("delim", [";", "\t"])

@@ -125,7 +125,8 @@ def snapshot_files(draw):
         if shape == "short":
             r = r[: max(2, len(r) - 2)]
         elif shape == "long":
-            r = r + ["extra"]
+            r = r + draw(st.lists(st.sampled_from(["extra", "", " ", "\t", '"', "\x0b", "a\nb"]),
+                                  min_size=1, max_size=3))
         elif shape == "trailing":
             r = r + [""]
         rows.append(r)
