@@ -771,9 +771,12 @@ class _FileValidator:
         s = self.col["expiry"]
         self.expiry, st = _dates(s, self.cmap.expiry_format)
         lab = self.lab("expiry")
-        want = self.cmap.expiry_format or "YYYY-MM-DD"
         rows.leave_out(st == 1, lab, "expiry is empty")
-        rows.leave_out(st == 2, lab, f"expiry {{v}} is not a date written {want}", s)
+        if self.cmap.expiry_format is None:
+            rows.leave_out(st == 2, lab, "expiry {v} is not a date written YYYY-MM-DD", s)
+        else:  # strptime cannot tell a wrong shape from an impossible day
+            fmt = self.cmap.expiry_format.replace("{", "{{").replace("}", "}}")
+            rows.leave_out(st == 2, lab, f"expiry {{v}} is not a possible date in the format {fmt}", s)
         rows.leave_out(st == 3, lab, "expiry {v} is not a possible date", s)
         rows.leave_out(st == 4, lab, f"expiry {{v}} is outside the years {YEAR_MIN}-{YEAR_MAX}", s)
 

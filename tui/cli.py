@@ -112,8 +112,8 @@ def add_check_command(subparsers: argparse._SubParsersAction) -> None:
     p = subparsers.add_parser(
         "check",
         help="validate snapshot files and report every finding",
-        description="Validate snapshot files: report rows accepted, accepted with a warning, "
-                    "and left out (with the reason), by file and severity.",
+        description="Validate snapshot files: report the rows accepted, accepted with a\n"
+                    "warning, and left out (with the reason), by file and severity.",
         epilog=CHECK_EPILOG,
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )

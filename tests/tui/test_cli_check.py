@@ -114,7 +114,7 @@ def test_overrides_and_column_map(capsys):
     code, out, _ = run(capsys, "check", str(DATA / "foreign_export.csv"),
                        "--columns", str(DATA / "columns_example.toml"))
     assert code == 1  # the impossible 06/31 expiry
-    assert "line 7 [Expiration]" in out
+    assert "    line 7 [Expiration] VELM: expiry '06/31/2026' is not a possible date in the format %m/%d/%Y\n" in out
     code, out, _ = run(capsys, "check", str(DATA / "foreign_export.csv"),
                        "--columns", str(DATA / "columns_example.toml"),
                        "--underlying", "QRTZ", "--spot", "50", "--as-of", "2026-05-04T10:00:00-04:00",
