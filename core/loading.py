@@ -45,7 +45,7 @@ import io
 import re
 from collections import Counter
 from collections.abc import Iterable, Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
@@ -53,9 +53,7 @@ import pandas as pd
 
 from .column_map import (
     KNOWN_COLUMNS,
-    OPTIONAL_COLUMNS,
     REQUIRED_COLUMNS,
-    SNAPSHOT_COLUMNS,
     ColumnMap,
     header_key,
     load_column_map,
