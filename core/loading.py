@@ -1,0 +1,1228 @@
+"""Reading snapshot files: the one module that opens files.
+
+A snapshot file is a CSV (or, when pyarrow is installed, Parquet) table with
+one row per contract; see DESIGN.md "Snapshot file" and ``column_map`` for the
+column names. ``load_file`` turns one file into ``Snapshot`` objects (one per
+underlying) plus ``Finding``s: every data row is accepted, accepted with a
+warning, or left out with a reason, and ``rows_read == rows_accepted +
+left-out rows`` always holds.
+
+Decisions (documented for users in the README):
+
+- Encoding: UTF-8 with or without BOM. Other bytes stop the file with an error
+  naming the line (no guessing: a wrong guess would corrupt text silently).
+- Line numbers are those a text editor shows (header = line 1), counting
+  blank lines and the extra lines of quoted fields that contain newlines.
+  ``\\r\\n`` and lone ``\\r`` count as one line break. Parquet rows get the
+  line they would have in a CSV with a one-line header (first row = 2).
+- Blank lines (nothing but spaces/tabs) are skipped and are not rows.
+- A row with fewer fields than the header, or with extra non-empty fields, is
+  left out; extra empty fields (a trailing comma) are ignored.
+- ``as_of`` must carry a UTC offset (``Z``, ``+05:30``, ``-0500``); a naive
+  time leaves the row out, because guessing the zone would shift time to
+  expiry by hours. An override (``--as-of``) fixes a whole file.
+- ``as_of``/``spot`` empty on some rows of an underlying are filled from its
+  other rows (a NOTE says so). If they vary within one underlying, the latest
+  ``as_of`` is used, and the spot of the first row at that time (a WARNING
+  says so).
+- A row is left out for the first problem found, checked in this order:
+  field count, underlying, as_of, spot, expiry, strike, kind, bid, ask, the
+  bid/ask pair, expiry before the snapshot date, duplicate contract. An
+  accepted row may carry several warnings.
+- Wide spread warning: ask - bid > 50 % of mid AND > 0.10 price units.
+- Numbers are plain decimals (``1250``, ``0.35``, ``1e-3``); no thousands
+  separators. ``iv``, ``rate`` and ``div_yield`` may end in ``%``.
+- Text stays plain text: values are never interpreted; control characters in
+  ``underlying`` are kept, with a warning. Values quoted in reasons are shown
+  escaped (``repr``) so a finding is always safe to print.
+"""
+
+from __future__ import annotations
+
+import csv
+import difflib
+import io
+import re
+from collections import Counter
+from collections.abc import Iterable, Sequence
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from .column_map import (
+    KNOWN_COLUMNS,
+    REQUIRED_COLUMNS,
+    ColumnMap,
+    header_key,
+    load_column_map,
+)
+from .findings import LEFT_OUT, NOTE, WARNING, ChainTriageError, Finding
+from .snapshot import CONTRACT_COLUMNS, Snapshot
+
+__all__ = [
+    "SnapshotFileError",
+    "SnapshotOverrides",
+    "FileLoad",
+    "LoadResult",
+    "load_file",
+    "load_files",
+    "load_column_map",
+    "ColumnMap",
+    "WIDE_SPREAD_FRACTION",
+    "WIDE_SPREAD_MIN",
+]
+
+#: A spread wider than this fraction of mid (and than WIDE_SPREAD_MIN) gets a warning.
+WIDE_SPREAD_FRACTION = 0.5
+#: ... and wider than this many price units.
+WIDE_SPREAD_MIN = 0.10
+#: A file iv above this (as a decimal, i.e. 500 %) is taken for a unit mistake.
+IV_MAX = 5.0
+#: A rate or dividend yield above this in absolute value (100 %) is taken for a unit mistake.
+RATE_MAX = 1.0
+#: Dates outside these years are left out (they are typos, and out of pandas' ns range).
+YEAR_MIN, YEAR_MAX = 1900, 2199
+
+_NUM_RE = r"[+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?"
+_NONFINITE_RE = r"(?i)[+-]?(?:nan|inf|infinity)"
+_DATE_RE = r"\d{4}-\d{2}-\d{2}"
+_TIME_RE = r"\d{4}-\d{2}-\d{2}[T ]\d{2}:\d{2}(?::\d{2}(?:\.\d+)?)?"
+_OFFSET_RE = r"(?:Z|[+-]\d{2}(?::?\d{2})?)"
+_CONTROL_RE = "[\x00-\x1f\x7f-\x9f\u200b-\u200f\u202a-\u202e\u2066-\u2069\ufeff]"
+_KINDS = {"call": "call", "c": "call", "put": "put", "p": "put"}
+_SETTLES = {"pm": "pm", "am": "am"}
+_IV_BASES = ("252", "250", "365")
+_PARQUET_SUFFIXES = (".parquet", ".pq")
+
+
+# --------------------------------------------------------------------------- public types
+
+
+class SnapshotFileError(ChainTriageError):
+    """A whole file cannot be used. The message names the file and the reason.
+
+    ``findings`` holds the row findings when the file was read but no row was
+    usable; ``rows_read`` counts its data rows (0 when it could not be read).
+    """
+
+    def __init__(self, path: str, reason: str, *, findings: Sequence[Finding] = (), rows_read: int = 0):
+        self.path = str(path)
+        self.reason = reason
+        self.findings = list(findings)
+        self.rows_read = rows_read
+        super().__init__(f"{self.path}: {reason}")
+
+
+@dataclass
+class SnapshotOverrides:
+    """Snapshot-wide values given on the command line; they replace file columns.
+
+    ``as_of`` must carry a UTC offset (a tz-aware Timestamp, or ISO 8601 text
+    such as ``2026-03-20T15:30:00-04:00``); ``spot`` is in price units.
+    """
+
+    underlying: str | None = None
+    as_of: pd.Timestamp | str | None = None
+    spot: float | None = None
+
+    def resolved(self) -> SnapshotOverrides:
+        """A checked copy: stripped underlying, tz-aware Timestamp, finite positive float.
+
+        Raises ChainTriageError with a message when a value is unusable.
+        """
+        und = self.underlying
+        if und is not None:
+            und = str(und).strip()
+            if not und:
+                raise ChainTriageError("the underlying override is empty")
+        as_of = self.as_of
+        if as_of is not None:
+            as_of = parse_as_of(as_of, what="the as_of override")
+        spot = self.spot
+        if spot is not None:
+            try:
+                spot = float(spot)
+            except (TypeError, ValueError):
+                raise ChainTriageError(f"the spot override {spot!r} is not a number") from None
+            if not np.isfinite(spot) or spot <= 0:
+                raise ChainTriageError(f"the spot override {spot!r} must be a positive number")
+        return SnapshotOverrides(underlying=und, as_of=as_of, spot=spot)
+
+
+@dataclass
+class FileLoad:
+    """What one file gave: its snapshots (one per underlying), findings and row counts."""
+
+    path: str
+    snapshots: list[Snapshot]
+    findings: list[Finding]
+    rows_read: int
+    rows_accepted: int
+
+    @property
+    def rows_left_out(self) -> int:
+        return self.rows_read - self.rows_accepted
+
+
+@dataclass
+class LoadResult:
+    """Everything ``load_files`` gave: merged snapshots, all findings, per-file loads, file errors."""
+
+    snapshots: list[Snapshot]
+    findings: list[Finding]
+    files: list[FileLoad]
+    errors: list[SnapshotFileError]
+
+    @property
+    def rows_read(self) -> int:
+        return sum(f.rows_read for f in self.files) + sum(e.rows_read for e in self.errors)
+
+    @property
+    def rows_accepted(self) -> int:
+        return sum(f.rows_accepted for f in self.files)
+
+    @property
+    def rows_left_out(self) -> int:
+        return self.rows_read - self.rows_accepted
+
+
+def parse_as_of(value: pd.Timestamp | str, *, what: str = "as_of") -> pd.Timestamp:
+    """One snapshot time as a tz-aware Timestamp (ISO 8601 text with a UTC offset)."""
+    if not isinstance(value, str):
+        try:
+            value = pd.Timestamp(value)
+        except (TypeError, ValueError):
+            raise ChainTriageError(f"{what} {value!r} is not a time") from None
+        if value.tzinfo is None:
+            raise ChainTriageError(f"{what} {str(value)!r} has no UTC offset; give e.g. 2026-03-20T15:30:00-04:00")
+        return value
+    text = str(value).strip()
+    if re.fullmatch(_TIME_RE + _OFFSET_RE, text):
+        try:
+            ts = pd.Timestamp(text)
+        except (ValueError, OverflowError):
+            ts = None
+        if ts is not None and ts.tzinfo is not None and YEAR_MIN <= ts.year <= YEAR_MAX:
+            return ts
+        raise ChainTriageError(f"{what} {text!r} is not a possible time")
+    if re.fullmatch(_TIME_RE, text) or re.fullmatch(_DATE_RE, text):
+        raise ChainTriageError(f"{what} {text!r} has no UTC offset; give e.g. 2026-03-20T15:30:00-04:00")
+    raise ChainTriageError(f"{what} {text!r} is not an ISO 8601 time such as 2026-03-20T15:30:00-04:00")
+
+
+# --------------------------------------------------------------------------- reading the table
+
+
+@dataclass
+class _Table:
+    """The raw table: header texts and every cell as a str, plus row positions."""
+
+    headers: list[str]
+    cells: pd.DataFrame  # columns 0..len(headers)-1, dtype str, no missing values
+    line: np.ndarray  # first line of each row (int64)
+    end_line: np.ndarray  # last line of each row (int64)
+    nfields: np.ndarray  # number of fields in each row (int64)
+    extra: np.ndarray  # bool: row has non-empty fields beyond the header
+
+
+def _show(value: object, width: int = 40) -> str:
+    """A cell value quoted for a message: escaped, shortened."""
+    text = str(value)
+    if len(text) > width:
+        text = text[: width - 3] + "..."
+    return repr(text)
+
+
+def _decode(path: str, data: bytes) -> str:
+    if data.startswith((b"\xff\xfe", b"\xfe\xff")):
+        raise SnapshotFileError(path, "is UTF-16 text; save it as UTF-8 (CSV UTF-8)")
+    if data.startswith(b"PK\x03\x04"):
+        raise SnapshotFileError(path, "is a zip archive (perhaps a spreadsheet workbook); export it as CSV")
+    try:
+        text = data.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        before = data[: exc.start].replace(b"\r\n", b"\n").replace(b"\r", b"\n")
+        line = before.count(b"\n") + 1
+        raise SnapshotFileError(
+            path,
+            f"is not UTF-8 text: byte 0x{data[exc.start]:02X} on line {line} cannot be decoded; "
+            "save the file as UTF-8",
+        ) from None
+    return text.replace("\r\n", "\n").replace("\r", "\n")
+
+
+def _pick_delimiter(text: str) -> str:
+    """Comma, semicolon or tab: whichever the first non-blank line has most of."""
+    for line in text.split("\n", 50):
+        if line.strip(" \t"):
+            counts = {d: line.count(d) for d in (",", ";", "\t")}
+            best = max(counts, key=lambda d: (counts[d], d == ","))
+            return best if counts[best] else ","
+    return ","
+
+
+def _blank_bytes(delim: str) -> bytes:
+    return b" " if delim == "\t" else b" \t"
+
+
+def _records_fast(path: str, text: str, delim: str):
+    """Record boundaries from the bytes, vectorised; None when quotes are not plain.
+
+    Quotes are "plain" when each quote either opens a field (after a delimiter
+    or line break) or closes one (before a delimiter, line break or an escaped
+    quote). Then a line break ends a record exactly when an even number of
+    quotes precede it, which is what the CSV tokenizer does.
+    """
+    raw = text.encode("utf-8")
+    arr = np.frombuffer(raw, dtype=np.uint8)
+    n = arr.size
+    d = ord(delim)
+    qpos = np.flatnonzero(arr == 34)
+    if qpos.size:
+        prev = np.where(qpos > 0, arr[np.maximum(qpos - 1, 0)], 10)
+        nxt = np.where(qpos + 1 < n, arr[np.minimum(qpos + 1, n - 1)], 10)
+        even = (np.arange(qpos.size) % 2) == 0
+        ok_open = (prev == d) | (prev == 10) | (prev == 34)
+        ok_close = (nxt == d) | (nxt == 10) | (nxt == 34)
+        if not (ok_open[even].all() and ok_close[~even].all()):
+            return None
+        if qpos.size % 2:
+            opener = qpos[-1]
+            line = int(np.count_nonzero(arr[:opener] == 10)) + 1
+            raise SnapshotFileError(path, f"a quoted field opened on line {line} is never closed")
+    nl = np.flatnonzero(arr == 10)
+    inside = (np.searchsorted(qpos, nl) % 2) == 1
+    ends = nl[~inside]
+    starts = np.concatenate(([0], ends[:-1] + 1))
+    start_line = np.searchsorted(nl, starts) + 1
+    end_line = np.searchsorted(nl, ends) + 1
+    dpos = np.flatnonzero(arr == d)
+    dpos = dpos[(np.searchsorted(qpos, dpos) % 2) == 0]
+    first_d = np.searchsorted(dpos, starts)
+    nfields = np.searchsorted(dpos, ends) - first_d + 1
+    # blank records: empty, or only spaces (and tabs unless tab is the delimiter)
+    length = ends - starts
+    blank = length == 0
+    ws = _blank_bytes(delim)
+    cand = np.flatnonzero(~blank & np.isin(arr[np.minimum(starts, n - 1)], list(ws)))
+    for i in cand:
+        if not raw[starts[i] : ends[i]].strip(ws):
+            blank[i] = True
+    keep = ~blank
+    starts, ends = starts[keep], ends[keep]
+    start_line, end_line, nfields, first_d = start_line[keep], end_line[keep], nfields[keep], first_d[keep]
+    return raw, dpos, starts, ends, start_line, end_line, nfields, first_d
+
+
+def _table_fast(path: str, text: str, delim: str) -> _Table | None:
+    rec = _records_fast(path, text, delim)
+    if rec is None:
+        return None
+    raw, dpos, starts, ends, start_line, end_line, nfields, first_d = rec
+    if starts.size == 0:
+        raise SnapshotFileError(path, "is empty (no header line)")
+    width = int(nfields[0])
+    maxf = int(nfields.max())
+    try:
+        df = pd.read_csv(
+            io.StringIO(text),
+            sep=delim,
+            header=None,
+            names=range(maxf),
+            usecols=range(width),
+            dtype=str,
+            keep_default_na=False,
+            na_filter=False,
+            skip_blank_lines=True,
+            index_col=False,
+            engine="c",
+            quotechar='"',
+            doublequote=True,
+        )
+    except (pd.errors.ParserError, ValueError, MemoryError):
+        return None
+    if len(df) != starts.size:
+        return None
+    # extra fields beyond the header: fine when they are all empty
+    extra = np.zeros(starts.size, dtype=bool)
+    over = np.flatnonzero(nfields > width)
+    for i in over:  # rare: parse just the tail of the row, with the same quoting rules
+        cut = dpos[first_d[i] + width - 1]
+        tail = raw[cut + 1 : ends[i]].decode("utf-8")
+        fields = next(csv.reader(io.StringIO(tail, newline=""), delimiter=delim, quotechar='"',
+                                 doublequote=True, strict=False), [])
+        extra[i] = any(x.strip(" \t") for x in fields)
+    headers = [str(h) for h in df.iloc[0].tolist()]
+    cells = df.iloc[1:].reset_index(drop=True)
+    cells.columns = range(width)
+    return _Table(headers, cells, start_line[1:], end_line[1:], nfields[1:].astype(np.int64), extra[1:])
+
+
+def _table_csv_module(path: str, text: str, delim: str) -> _Table:
+    """The exact but slower path, for files whose quotes are not plain."""
+    sentinel = "\x00chaintriage-end\x00"
+    reader = csv.reader(io.StringIO(text + ("" if text.endswith("\n") else "\n") + sentinel + "\n"),
+                        delimiter=delim, quotechar='"', doublequote=True, strict=False)
+    rows: list[list[str]] = []
+    first_lines: list[int] = []
+    last_lines: list[int] = []
+    prev = 0
+    ws = _blank_bytes(delim).decode()
+    try:
+        for row in reader:
+            start, end = prev + 1, reader.line_num
+            prev = end
+            if not row or (len(row) == 1 and start == end and not row[0].strip(ws)):
+                continue
+            rows.append(row)
+            first_lines.append(start)
+            last_lines.append(end)
+    except csv.Error as exc:
+        raise SnapshotFileError(path, f"cannot be read as CSV near line {prev + 1} ({exc})") from None
+    if not rows or rows[-1] != [sentinel]:
+        start = first_lines[-1] if rows else 1
+        raise SnapshotFileError(path, f"a quoted field opened on line {start} is never closed")
+    rows.pop()
+    first_lines.pop()
+    last_lines.pop()
+    if not rows:
+        raise SnapshotFileError(path, "is empty (no header line)")
+    headers = [h for h in rows[0]]
+    width = len(headers)
+    body = rows[1:]
+    nfields = np.fromiter((len(r) for r in body), dtype=np.int64, count=len(body))
+    extra = np.fromiter((any(x.strip(" \t") for x in r[width:]) for r in body), dtype=bool, count=len(body))
+    fixed = [r[:width] + [""] * (width - len(r)) if len(r) != width else r for r in body]
+    cells = pd.DataFrame(fixed, columns=range(width), dtype=str) if fixed else pd.DataFrame(
+        {i: pd.Series([], dtype=str) for i in range(width)}
+    )
+    return _Table(headers, cells, np.asarray(first_lines[1:], np.int64), np.asarray(last_lines[1:], np.int64),
+                  nfields, extra)
+
+
+def _read_csv_table(path: str, data: bytes) -> _Table:
+    text = _decode(path, data)
+    if not text.strip():
+        raise SnapshotFileError(path, "is empty")
+    if not text.endswith("\n"):
+        text += "\n"
+    delim = _pick_delimiter(text)
+    table = _table_fast(path, text, delim)
+    if table is None:
+        table = _table_csv_module(path, text, delim)
+    return table
+
+
+def _parquet_to_str(s: pd.Series) -> pd.Series:
+    """One Parquet column as text, the way it would appear in a CSV export."""
+    missing = s.isna().to_numpy()
+    if isinstance(s.dtype, pd.DatetimeTZDtype):
+        out = s.dt.strftime("%Y-%m-%dT%H:%M:%S.%f%z")
+    elif pd.api.types.is_datetime64_any_dtype(s.dtype):
+        ok = s.dropna()
+        midnight = bool((ok == ok.dt.normalize()).all())
+        out = s.dt.strftime("%Y-%m-%d" if midnight else "%Y-%m-%dT%H:%M:%S.%f")
+    else:
+        out = s.astype(str)
+    out = out.astype(str)
+    out[missing] = ""
+    return out
+
+
+def _read_parquet_table(path: str) -> _Table:
+    try:
+        import pyarrow  # noqa: F401
+    except ImportError:
+        raise SnapshotFileError(
+            path, "is a Parquet file, and reading Parquet needs pyarrow: pip install 'chaintriage[parquet]'"
+        ) from None
+    try:
+        df = pd.read_parquet(path)
+    except Exception as exc:  # pyarrow raises many types for a damaged file
+        raise SnapshotFileError(path, f"cannot be read as Parquet ({type(exc).__name__}: {exc})") from None
+    headers = [str(c) for c in df.columns]
+    cells = pd.DataFrame({i: _parquet_to_str(df.iloc[:, i]) for i in range(len(headers))})
+    if not headers:
+        cells = pd.DataFrame(index=range(len(df)))
+    n = len(df)
+    line = np.arange(n, dtype=np.int64) + 2
+    return _Table(headers, cells.reset_index(drop=True), line, line.copy(),
+                  np.full(n, len(headers), np.int64), np.zeros(n, bool))
+
+
+def _read_table(path: str) -> _Table:
+    p = Path(path)
+    try:
+        if p.is_dir():
+            raise SnapshotFileError(path, "is a directory, not a file")
+        if not p.exists():
+            raise SnapshotFileError(path, "no such file")
+        if not p.is_file():
+            raise SnapshotFileError(path, "is not a regular file")
+        with open(p, "rb") as fh:
+            head = fh.read(4)
+            if p.suffix.lower() in _PARQUET_SUFFIXES or head == b"PAR1":
+                return _read_parquet_table(path)
+            data = head + fh.read()
+    except OSError as exc:
+        raise SnapshotFileError(path, f"cannot be read ({exc.strerror or exc})") from None
+    if not data:
+        raise SnapshotFileError(path, "is empty")
+    return _read_csv_table(path, data)
+
+
+# --------------------------------------------------------------------------- cell parsing (vectorised)
+
+
+def _numbers_unique(s: pd.Series, *, percent: bool = False) -> tuple[np.ndarray, np.ndarray]:
+    """Parse stripped text to float. Returns (values, status): 0 ok, 1 empty, 2 not a number, 3 not finite."""
+    n = len(s)
+    body = s
+    pct = np.zeros(n, dtype=bool)
+    if percent:
+        pct = s.str.endswith("%").to_numpy(dtype=bool)
+        if pct.any():
+            body = s.str.removesuffix("%").str.rstrip()
+    empty = (s == "").to_numpy(dtype=bool)
+    ok = body.str.fullmatch(_NUM_RE).to_numpy(dtype=bool)
+    values = np.full(n, np.nan)
+    if ok.any():
+        values[ok] = body[ok].astype(float).to_numpy(dtype=float)
+    values = np.where(pct, values / 100.0, values)
+    status = np.full(n, 2, dtype=np.int8)
+    status[empty] = 1
+    status[ok] = 0
+    nonfinite = (ok & ~np.isfinite(values)) | body.str.fullmatch(_NONFINITE_RE).to_numpy(dtype=bool)
+    status[nonfinite] = 3
+    values[status != 0] = np.nan
+    return values, status
+
+
+def _dates_unique(s: pd.Series, fmt: str | None) -> tuple[np.ndarray, np.ndarray]:
+    """Parse dates. Returns (datetime64[ns] values, status): 0 ok, 1 empty, 2 wrong format, 3 impossible, 4 out of range."""
+    n = len(s)
+    status = np.full(n, 2, dtype=np.int8)
+    empty = (s == "").to_numpy(dtype=bool)
+    out = np.full(n, np.datetime64("NaT"), dtype="datetime64[ns]")
+    if fmt is None:
+        shaped = s.str.fullmatch(_DATE_RE).to_numpy(dtype=bool)
+        year = np.zeros(n, dtype=np.int64)
+        if shaped.any():
+            year[shaped] = s[shaped].str.slice(0, 4).astype(int).to_numpy()
+        in_range = shaped & (year >= YEAR_MIN) & (year <= YEAR_MAX)
+        parsed = pd.to_datetime(s.where(in_range, ""), format="%Y-%m-%d", errors="coerce")
+        good = in_range & parsed.notna().to_numpy()
+        status[shaped & ~in_range] = 4
+        status[in_range & ~good] = 3
+    else:
+        parsed = pd.to_datetime(s.where(~empty, ""), format=fmt, errors="coerce")
+        ok = parsed.notna().to_numpy()
+        years = parsed.dt.year.to_numpy(dtype=float, na_value=np.nan)
+        good = ok & (years >= YEAR_MIN) & (years <= YEAR_MAX)
+        status[ok & ~good] = 4
+    if good.any():
+        out[good] = parsed[good].to_numpy().astype("datetime64[ns]")
+        status[good] = 0
+    status[empty] = 1
+    return out, status
+
+
+def _times_unique(s: pd.Series) -> tuple[np.ndarray, np.ndarray]:
+    """Parse as_of text. Returns (UTC int64 ns, status): 0 ok, 1 empty, 2 not a time, 3 no offset, 4 impossible."""
+    n = len(s)
+    status = np.full(n, 2, dtype=np.int8)
+    empty = (s == "").to_numpy(dtype=bool)
+    aware = s.str.fullmatch(_TIME_RE + _OFFSET_RE).to_numpy(dtype=bool)
+    naive = (s.str.fullmatch(_TIME_RE) | s.str.fullmatch(_DATE_RE)).to_numpy(dtype=bool)
+    ns = np.zeros(n, dtype=np.int64)
+    if aware.any():
+        year = s[aware].str.slice(0, 4).astype(int).to_numpy()
+        ok_year = np.zeros(n, dtype=bool)
+        ok_year[aware] = (year >= YEAR_MIN) & (year <= YEAR_MAX)
+        parsed = pd.to_datetime(s.where(ok_year, ""), format="ISO8601", utc=True, errors="coerce")
+        good = ok_year & parsed.notna().to_numpy()
+        if good.any():
+            ns[good] = parsed[good].dt.tz_convert("UTC").dt.tz_localize(None).to_numpy().astype("datetime64[ns]").astype(np.int64)
+        status[aware] = 4
+        status[good] = 0
+    status[naive] = 3
+    status[empty] = 1
+    return ns, status
+
+
+def _per_unique(s: pd.Series, parse, *args, **kwargs):
+    """Run ``parse`` once per distinct value of ``s`` and spread the result back to every row.
+
+    Chains repeat values heavily (one as_of, a few dozen expiries, prices on
+    a tick grid), so this makes the text work proportional to the distinct
+    values, whatever string backend pandas uses.
+    """
+    codes, uniques = pd.factorize(s)
+    result = parse(pd.Series(np.asarray(uniques, dtype=object), dtype=str), *args, **kwargs)
+    if isinstance(result, tuple):
+        return tuple(np.asarray(r)[codes] for r in result)
+    return np.asarray(result)[codes]
+
+
+def _numbers(s: pd.Series, *, percent: bool = False) -> tuple[np.ndarray, np.ndarray]:
+    """Parse stripped text to float. Returns (values, status): 0 ok, 1 empty, 2 not a number, 3 not finite."""
+    return _per_unique(s, _numbers_unique, percent=percent)
+
+
+def _dates(s: pd.Series, fmt: str | None) -> tuple[np.ndarray, np.ndarray]:
+    """Parse dates to datetime64[ns]; status 0 ok, 1 empty, 2 wrong format, 3 impossible, 4 out of range."""
+    return _per_unique(s, _dates_unique, fmt)
+
+
+def _times(s: pd.Series) -> tuple[np.ndarray, np.ndarray]:
+    """Parse as_of text to UTC int64 ns; status 0 ok, 1 empty, 2 not a time, 3 no offset, 4 impossible."""
+    return _per_unique(s, _times_unique)
+
+
+def _stripped(s: pd.Series) -> pd.Series:
+    """The column with surrounding whitespace removed (str dtype)."""
+    codes, uniques = pd.factorize(s)
+    raw = np.asarray(uniques, dtype=object)
+    clean = pd.Series(raw, dtype=str).str.strip().to_numpy(dtype=object)
+    if np.array_equal(raw, clean):
+        return s.reset_index(drop=True)
+    return pd.Series(clean[codes] if len(codes) else np.array([], dtype=object), dtype=str)
+
+
+def _folded(s: pd.Series) -> np.ndarray:
+    """Case-folded values as an object array."""
+    return _per_unique(s, lambda u: u.str.casefold().to_numpy(dtype=object))
+
+
+# --------------------------------------------------------------------------- validation
+
+
+class _Rows:
+    """Book-keeping of which rows are left out, and why (first reason wins)."""
+
+    def __init__(self, n: int):
+        self.free = np.ones(n, dtype=bool)
+        self.reason = np.empty(n, dtype=object)
+        self.column = np.empty(n, dtype=object)
+
+    def leave_out(self, where: np.ndarray, column: str | None, text, values: Sequence | None = None) -> None:
+        """Leave out the rows of ``where`` (a bool mask or row indices) not yet left out.
+
+        ``text`` is a str, or a format with ``{v}`` filled from ``values`` (a
+        cell per row), or a callable(index) -> str.
+        """
+        where = np.asarray(where)
+        sel = np.flatnonzero(where & self.free) if where.dtype == bool else where[self.free[where]]
+        if sel.size == 0:
+            return
+        if callable(text):
+            self.reason[sel] = [text(i) for i in sel]
+        elif values is not None:
+            vals = values.iloc[sel] if isinstance(values, pd.Series) else np.asarray(values, dtype=object)[sel]
+            self.reason[sel] = [text.format(v=_show(v)) for v in vals]
+        else:
+            self.reason[sel] = text
+        self.column[sel] = column
+        self.free[sel] = False
+
+
+def _fmt(x: float) -> str:
+    return f"{x:.10g}"
+
+
+class _FileValidator:
+    def __init__(self, path: str, table: _Table, overrides: SnapshotOverrides, cmap: ColumnMap):
+        self.path = path
+        self.t = table
+        self.ov = overrides
+        self.cmap = cmap
+        self.n = len(table.cells)
+        self.rows = _Rows(self.n)
+        self.file_findings: list[Finding] = []
+        self.group_findings: list[Finding] = []
+        self.warn: list[tuple[np.ndarray, str | None, list[str] | str]] = []
+        self.col: dict[str, pd.Series] = {}
+        self.label: dict[str, str] = {}
+
+    # -- columns ----------------------------------------------------------
+    def resolve_columns(self) -> None:
+        keys = [header_key(h) for h in self.t.headers]
+        where: dict[str, list[int]] = {}
+        for i, k in enumerate(keys):
+            where.setdefault(k, []).append(i)
+        used: set[int] = set()
+        chosen: dict[str, int] = {}
+        missing: list[str] = []
+        src = f" (column mapping {self.cmap.source})" if self.cmap.source else ""
+
+        def pick(name: str, idx: list[int]) -> None:
+            if len(idx) > 1:
+                cols = ", ".join(str(i + 1) for i in idx)
+                raise SnapshotFileError(self.path, f"column {self.t.headers[idx[0]].strip()!r} ({name}) appears "
+                                        f"more than once (columns {cols})")
+            chosen[name] = idx[0]
+            used.add(idx[0])
+
+        # mapped headers first, then our own names for the columns still unfound
+        for name in KNOWN_COLUMNS:
+            mapped = self.cmap.header_for(name)
+            if mapped is not None and where.get(header_key(mapped)):
+                pick(name, where[header_key(mapped)])
+        for name in KNOWN_COLUMNS:
+            if name in chosen:
+                continue
+            idx = [i for i in where.get(name, []) if i not in used]
+            if idx:
+                pick(name, idx)
+                continue
+            mapped = self.cmap.header_for(name)
+            if name in REQUIRED_COLUMNS:
+                missing.append(name if mapped is None else f"{name} (mapped to {mapped!r})")
+            elif mapped is not None:
+                self.file_findings.append(Finding(
+                    NOTE, f"the column mapping names {mapped!r} for {name}, but the file has no such column",
+                    file=self.path))
+        for name, i in chosen.items():
+            self.col[name] = _stripped(self.t.cells[i])
+            self.label[name] = self.t.headers[i].strip() or name
+        if missing:
+            found = [h.strip() for h in self.t.headers if h.strip()]
+            hint = ""
+            guesses = []
+            for m in missing:
+                base = m.split(" ")[0]
+                close = difflib.get_close_matches(base, [header_key(h) for h in found], n=1, cutoff=0.75)
+                if close:
+                    guesses.append(f"{close[0]!r} for {base}?")
+            if guesses:
+                hint = "; did you mean " + ", ".join(guesses)
+            shown = ", ".join(_show(h, 30) for h in found[:20]) + (" ..." if len(found) > 20 else "")
+            raise SnapshotFileError(
+                self.path,
+                f"required column(s) missing: {', '.join(missing)}{src}; the header has: {shown or 'nothing'}{hint}",
+            )
+        for name, flag, value in (("underlying", "--underlying", self.ov.underlying),
+                                  ("as_of", "--as-of", self.ov.as_of), ("spot", "--spot", self.ov.spot)):
+            if value is None and name not in self.col:
+                raise SnapshotFileError(
+                    self.path, f"no {name}: the file has no {name} column and no override was given ({flag})")
+            if value is not None and name in self.col:
+                self.file_findings.append(Finding(
+                    NOTE, f"{name} comes from the override ({value}); the file's {self.label[name]!r} column is not used",
+                    file=self.path))
+        ignored = [h.strip() for i, h in enumerate(self.t.headers) if i not in used and h.strip()]
+        if ignored:
+            shown = ", ".join(_show(h, 30) for h in ignored[:20]) + (" ..." if len(ignored) > 20 else "")
+            self.file_findings.append(Finding(NOTE, f"columns not used: {shown}", file=self.path))
+
+    def lab(self, name: str) -> str:
+        return self.label.get(name, name)
+
+    # -- row checks -------------------------------------------------------
+    def check_rows(self) -> None:
+        t, rows, n = self.t, self.rows, self.n
+        width = len(t.headers)
+        short = t.nfields < width
+        rows.leave_out(short, None, lambda i: f"row has {t.nfields[i]} fields; the header has {width}")
+        rows.leave_out(t.extra, None,
+                       lambda i: f"row has {t.nfields[i]} fields; the header has {width} (extra values at the end)")
+
+        # underlying
+        if self.ov.underlying is not None:
+            self.und = np.full(n, self.ov.underlying, dtype=object)
+        else:
+            s = self.col["underlying"]
+            self.und = s.to_numpy(dtype=object)
+            rows.leave_out((s == "").to_numpy(dtype=bool), self.lab("underlying"), "underlying is empty")
+            if self.ov.spot is not None:
+                names = pd.unique(s[rows.free & (s != "").to_numpy(dtype=bool)])
+                if len(names) > 1:
+                    listed = ", ".join(_show(x, 20) for x in names[:5]) + (" ..." if len(names) > 5 else "")
+                    raise SnapshotFileError(
+                        self.path,
+                        f"holds {len(names)} underlyings ({listed}); one spot override cannot serve them all "
+                        "(give --underlying too, or split the file)")
+
+        # as_of
+        if self.ov.as_of is None:
+            s = self.col["as_of"]
+            self.as_of_ns, st = _times(s)
+            self.as_of_given = st == 0
+            lab = self.lab("as_of")
+            rows.leave_out(st == 2, lab, "as_of {v} is not an ISO 8601 time such as 2026-03-20T15:30:00-04:00", s)
+            rows.leave_out(st == 3, lab, "as_of {v} has no UTC offset; write it like 2026-03-20T15:30:00-04:00 "
+                           "or give --as-of", s)
+            rows.leave_out(st == 4, lab, "as_of {v} is not a possible time", s)
+
+        # spot
+        if self.ov.spot is None:
+            s = self.col["spot"]
+            self.spot_v, st = _numbers(s)
+            lab = self.lab("spot")
+            rows.leave_out(st == 2, lab, "spot {v} is not a number", s)
+            rows.leave_out(st == 3, lab, "spot {v} is not a finite number", s)
+            rows.leave_out((st == 0) & ~(self.spot_v > 0), lab, "spot {v} is not positive", s)
+
+        # expiry
+        s = self.col["expiry"]
+        self.expiry, st = _dates(s, self.cmap.expiry_format)
+        lab = self.lab("expiry")
+        rows.leave_out(st == 1, lab, "expiry is empty")
+        if self.cmap.expiry_format is None:
+            rows.leave_out(st == 2, lab, "expiry {v} is not a date written YYYY-MM-DD", s)
+        else:  # strptime cannot tell a wrong shape from an impossible day
+            fmt = self.cmap.expiry_format.replace("{", "{{").replace("}", "}}")
+            rows.leave_out(st == 2, lab, f"expiry {{v}} is not a possible date in the format {fmt}", s)
+        rows.leave_out(st == 3, lab, "expiry {v} is not a possible date", s)
+        rows.leave_out(st == 4, lab, f"expiry {{v}} is outside the years {YEAR_MIN}-{YEAR_MAX}", s)
+
+        # strike
+        s = self.col["strike"]
+        self.strike, st = _numbers(s)
+        lab = self.lab("strike")
+        rows.leave_out(st == 1, lab, "strike is empty")
+        rows.leave_out(st == 2, lab, "strike {v} is not a number", s)
+        rows.leave_out(st == 3, lab, "strike {v} is not a finite number", s)
+        rows.leave_out((st == 0) & ~(self.strike > 0), lab, "strike {v} is not positive", s)
+
+        # kind
+        s = self.col["kind"]
+        spellings = dict(_KINDS)
+        spellings.update(self.cmap.kind_aliases())
+        kind = pd.Series(_folded(s), dtype=object).map(spellings)
+        self.kind = kind.to_numpy(dtype=object, na_value=None)
+        lab = self.lab("kind")
+        rows.leave_out((s == "").to_numpy(dtype=bool), lab, "kind is empty")
+        extra = "/".join(sorted(self.cmap.kind_aliases()))
+        expected = "call/put or c/p" + (f" or {extra}" if extra else "")
+        rows.leave_out(kind.isna().to_numpy(), lab, f"kind {{v}} is not {expected}", s)
+
+        # bid / ask
+        self.bid, bst = _numbers(self.col["bid"])
+        self.ask, ast = _numbers(self.col["ask"])
+        for name, v, st in (("bid", self.bid, bst), ("ask", self.ask, ast)):
+            s, lab = self.col[name], self.lab(name)
+            rows.leave_out(st == 2, lab, f"{name} {{v}} is not a number", s)
+            rows.leave_out(st == 3, lab, f"{name} {{v}} is not a finite number", s)
+            rows.leave_out((st == 0) & (v < 0), lab, f"{name} {{v}} is a negative price", s)
+        bid, ask = self.bid, self.ask
+        has_b, has_a = bst == 0, ast == 0
+        rows.leave_out(~has_b & ~has_a, None, "no bid and no ask")
+        rows.leave_out(has_b & ~has_a & (bid == 0), self.lab("bid"), "zero bid and no ask: no price")
+        rows.leave_out(has_b & has_a & (bid == 0) & (ask == 0), None, "bid and ask are both zero: no quote")
+        crossed = has_b & has_a & (bid > ask)
+        rows.leave_out(crossed, None,
+                       lambda i: f"crossed market: bid {_fmt(bid[i])} is above ask {_fmt(ask[i])}")
+
+    # -- per underlying ---------------------------------------------------
+    def resolve_groups(self) -> None:
+        """Per underlying: the snapshot's as_of and spot, and expiries before its date.
+
+        Works on each underlying's row indices, so many underlyings cost no more
+        than one.
+        """
+        rows, lines = self.rows, self.t.line
+        self.snap: dict[str, tuple[pd.Timestamp, float]] = {}
+        self.group_rows: dict[str, np.ndarray] = {}
+        live = np.flatnonzero(rows.free)
+        codes, names = pd.factorize(pd.Series(self.und[live], dtype=object))
+        order = np.argsort(codes, kind="stable")
+        bounds = np.searchsorted(codes[order], np.arange(len(names) + 1))
+        for g, und in enumerate(names):
+            gi = live[order[bounds[g]:bounds[g + 1]]]  # this underlying's rows, in file order
+            self.group_rows[und] = gi
+            # as_of
+            if self.ov.as_of is not None:
+                as_of = self.ov.as_of
+                at_latest = gi
+            else:
+                given = gi[self.as_of_given[gi]]
+                if given.size == 0:
+                    rows.leave_out(gi, self.lab("as_of"),
+                                   f"no as_of for {_show(und, 30)}: the as_of cell is empty on all its rows")
+                    continue
+                ns = self.as_of_ns[given]
+                latest = ns.max()
+                at_latest = given[ns == latest]
+                first = int(at_latest[0])
+                as_of = _timestamp(self.col["as_of"].iloc[first], int(latest))
+                if ns.min() != latest:
+                    earliest = pd.Timestamp(int(ns.min()), tz="UTC").tz_convert(as_of.tz)
+                    self.group_findings.append(Finding(
+                        WARNING,
+                        f"as_of varies across {given.size} rows (from {earliest.isoformat()} to "
+                        f"{as_of.isoformat()}); the latest is used for the whole snapshot",
+                        file=self.path, line=int(lines[first]), column=self.lab("as_of"), underlying=und))
+                if given.size < gi.size:
+                    self.group_findings.append(Finding(
+                        NOTE, f"as_of is empty on {gi.size - given.size} of {gi.size} rows; "
+                              f"{as_of.isoformat()} is used for them",
+                        file=self.path, column=self.lab("as_of"), underlying=und))
+            # spot
+            if self.ov.spot is not None:
+                spot = float(self.ov.spot)
+            else:
+                has = gi[np.isfinite(self.spot_v[gi])]
+                if has.size == 0:
+                    rows.leave_out(gi, self.lab("spot"),
+                                   f"no spot for {_show(und, 30)}: the spot cell is empty on all its rows")
+                    continue
+                pick = has[np.isin(has, at_latest)]
+                first = int(pick[0] if pick.size else has[0])
+                spot = float(self.spot_v[first])
+                values = np.unique(self.spot_v[has])
+                if values.size > 1:
+                    self.group_findings.append(Finding(
+                        WARNING,
+                        f"spot varies ({values.size} values from {_fmt(values[0])} to {_fmt(values[-1])}); "
+                        f"{_fmt(spot)} from this line (at the latest as_of) is used for the whole snapshot",
+                        file=self.path, line=int(lines[first]), column=self.lab("spot"), underlying=und))
+                if has.size < gi.size:
+                    self.group_findings.append(Finding(
+                        NOTE, f"spot is empty on {gi.size - has.size} of {gi.size} rows; {_fmt(spot)} is used",
+                        file=self.path, column=self.lab("spot"), underlying=und))
+            # expiry before the snapshot date (in the snapshot's own UTC offset)
+            day = np.datetime64(as_of.tz_localize(None).normalize().to_datetime64(), "ns")
+            before = gi[self.expiry[gi] < day]
+            if before.size:
+                day_text = f"{as_of:%Y-%m-%d}"
+                rows.leave_out(before, self.lab("expiry"), lambda i: (
+                    f"expiry {self.expiry[i].astype('datetime64[D]')} is before the snapshot date {day_text}"))
+            self.snap[und] = (as_of, spot)
+            # control characters in the name
+            if self.ov.underlying is None and re.search(_CONTROL_RE, und):
+                self.group_findings.append(Finding(
+                    WARNING, f"underlying {_show(und)} contains control or invisible characters; kept as written",
+                    file=self.path, line=int(lines[gi[0]]), column=self.lab("underlying"), underlying=und))
+
+    def check_duplicates(self) -> None:
+        free = np.flatnonzero(self.rows.free)
+        if free.size < 2:
+            return
+        keys = pd.DataFrame({
+            "u": self.und[free],
+            "e": self.expiry[free].astype(np.int64),
+            "s": self.strike[free],
+            "k": self.kind[free],
+            "line": self.t.line[free],
+        })
+        dup = keys.duplicated(["u", "e", "s", "k"], keep="first").to_numpy()
+        if not dup.any():
+            return
+        first_line = keys.groupby(["u", "e", "s", "k"], sort=False)["line"].transform("first").to_numpy()
+        mask = np.zeros(self.n, dtype=bool)
+        mask[free[dup]] = True
+        firsts = np.zeros(self.n, dtype=np.int64)
+        firsts[free] = first_line
+        self.rows.leave_out(mask, None,
+                            lambda i: f"duplicate of line {firsts[i]} (same underlying, expiry, strike and kind)")
+
+    # -- warnings for accepted rows ----------------------------------------
+    def optional_columns(self) -> dict[str, np.ndarray]:
+        n, ok = self.n, self.rows.free
+        out: dict[str, np.ndarray] = {}
+        for name in ("iv", "volume", "open_interest", "rate", "div_yield"):
+            if name not in self.col:
+                out[name] = np.full(n, np.nan)
+                continue
+            s, lab = self.col[name], self.lab(name)
+            v, st = _numbers(s, percent=name in ("iv", "rate", "div_yield"))
+            self.warn_rows(ok & (st == 2), lab, f"{name} {{v}} is not a number; left blank", s)
+            self.warn_rows(ok & (st == 3), lab, f"{name} {{v}} is not a finite number; left blank", s)
+            bad = np.zeros(n, dtype=bool)
+            if name == "iv":
+                bad = (st == 0) & ~(v > 0)
+                self.warn_rows(ok & bad, lab, "iv {v} is not positive; left blank", s)
+                big = (st == 0) & (v > IV_MAX)
+                self.warn_rows(ok & big, lab, "iv {v} is above 500%; left blank (write a percentage with a % sign, "
+                                             "e.g. 25.3%)", s)
+                bad |= big
+            elif name in ("volume", "open_interest"):
+                bad = (st == 0) & (v < 0)
+                self.warn_rows(ok & bad, lab, f"{name} {{v}} is negative; left blank", s)
+            else:
+                bad = (st == 0) & (np.abs(v) > RATE_MAX)
+                self.warn_rows(ok & bad, lab, f"{name} {{v}} is above 100%; left blank (write 5% or 0.05)", s)
+            v = v.copy()
+            v[bad] = np.nan
+            out[name] = v
+        # iv_basis
+        if "iv_basis" in self.col:
+            s = self.col["iv_basis"]
+            norm = s.str.replace(r"\.0*$", "", regex=True)
+            valid = norm.isin(_IV_BASES).to_numpy(dtype=bool)
+            empty = (s == "").to_numpy(dtype=bool)
+            self.warn_rows(ok & ~valid & ~empty, self.lab("iv_basis"),
+                           "iv_basis {v} is not 252, 250 or 365; left blank", s)
+            out["iv_basis"] = np.where(valid, norm.to_numpy(dtype=object), "")
+        else:
+            out["iv_basis"] = np.full(n, "", dtype=object)
+        # settle
+        if "settle" in self.col:
+            s = self.col["settle"]
+            folded = pd.Series(_folded(s), dtype=object)
+            valid = folded.isin(list(_SETTLES)).to_numpy(dtype=bool)
+            empty = (s == "").to_numpy(dtype=bool)
+            self.warn_rows(ok & ~valid & ~empty, self.lab("settle"), "settle {v} is not pm or am; pm is used", s)
+            out["settle"] = np.where(valid, folded.to_numpy(dtype=object), "pm")
+        else:
+            out["settle"] = np.full(n, "pm", dtype=object)
+        return out
+
+    def warn_rows(self, mask: np.ndarray, column: str | None, text, values=None) -> None:
+        sel = np.flatnonzero(mask)
+        if sel.size == 0:
+            return
+        if callable(text):
+            msgs = [text(i) for i in sel]
+        elif values is not None:
+            vals = np.asarray(values, dtype=object)[sel]
+            msgs = [text.format(v=_show(v)) for v in vals]
+        else:
+            msgs = [text] * sel.size
+        self.warn.append((sel, column, msgs))
+
+    def quote_warnings(self) -> None:
+        ok = self.rows.free
+        bid, ask = self.bid, self.ask
+        has_b, has_a = np.isfinite(bid), np.isfinite(ask)
+        self.warn_rows(ok & has_b & has_a & (bid == 0), self.lab("bid"), "zero bid")
+        self.warn_rows(ok & ~has_b & has_a, self.lab("bid"), "no bid")
+        self.warn_rows(ok & has_b & ~has_a, self.lab("ask"), lambda i: f"no ask (bid {_fmt(bid[i])})")
+        spread = ask - bid
+        mid = (ask + bid) / 2
+        with np.errstate(invalid="ignore"):
+            wide = ok & has_b & has_a & (bid > 0) & (spread > WIDE_SPREAD_FRACTION * mid) & (spread > WIDE_SPREAD_MIN)
+        self.warn_rows(wide, None, lambda i: (
+            f"wide spread: bid {_fmt(bid[i])}, ask {_fmt(ask[i])} (spread {100 * spread[i] / mid[i]:.0f}% of mid)"))
+
+    # -- output -----------------------------------------------------------
+    def row_finding(self, severity: str, i: int, reason: str, column: str | None) -> Finding:
+        und = self.und[i]
+        und = und if isinstance(und, str) and und else None
+        e = self.expiry[i]
+        exp = None if np.isnat(e) else str(e.astype("datetime64[D]"))
+        return Finding(severity, reason, file=self.path, line=int(self.t.line[i]), column=column,
+                       underlying=und, expiry=exp)
+
+    def findings(self) -> list[Finding]:
+        rows, t = self.rows, self.t
+        out: list[Finding] = list(self.file_findings) + list(self.group_findings)
+        for i in np.flatnonzero(~rows.free):
+            reason = rows.reason[i]
+            if t.end_line[i] > t.line[i]:
+                reason += f" (this row spans lines {t.line[i]}-{t.end_line[i]})"
+            out.append(self.row_finding(LEFT_OUT, int(i), reason, rows.column[i]))
+        for sel, column, msgs in self.warn:
+            for i, msg in zip(sel, msgs):
+                out.append(self.row_finding(WARNING, int(i), msg, column))
+        out.sort(key=lambda f: (f.line is not None, f.line or 0))
+        return out
+
+    def run(self) -> FileLoad:
+        self.resolve_columns()
+        self.check_rows()
+        self.resolve_groups()
+        self.check_duplicates()
+        optional = self.optional_columns()
+        self.quote_warnings()
+        findings = self.findings()
+        accepted = int(self.rows.free.sum())
+        if accepted == 0:
+            if self.n == 0:
+                raise SnapshotFileError(self.path, "no usable row: there are no data rows below the header",
+                                        findings=findings)
+            counts = Counter(_reason_kind(r) for r in self.rows.reason[~self.rows.free])
+            common = "; ".join(f"{c} x {r}" for r, c in counts.most_common(3))
+            raise SnapshotFileError(
+                self.path, f"no usable row: all {self.n} rows were left out ({common})",
+                findings=findings, rows_read=self.n)
+        # one frame of every accepted row, sorted by underlying, expiry, strike, kind, then cut per underlying
+        ok = self.rows.free
+        names = list(self.snap)
+        gid = np.full(self.n, -1, dtype=np.int64)
+        for g, und in enumerate(names):
+            gid[self.group_rows[und]] = g
+        acc = np.flatnonzero(ok & (gid >= 0))
+        order = np.lexsort((self.t.line[acc], self.kind[acc] == "put", self.strike[acc],
+                            self.expiry[acc].astype(np.int64), gid[acc]))
+        acc = acc[order]
+        frame = pd.DataFrame({
+            "expiry": self.expiry[acc].astype("datetime64[ns]"),
+            "strike": self.strike[acc].astype(np.float64),
+            "kind": pd.Series(self.kind[acc], dtype=str),
+            "bid": self.bid[acc].astype(np.float64),
+            "ask": self.ask[acc].astype(np.float64),
+            "iv": optional["iv"][acc].astype(np.float64),
+            "iv_basis": pd.Series(optional["iv_basis"][acc], dtype=str),
+            "volume": optional["volume"][acc].astype(np.float64),
+            "open_interest": optional["open_interest"][acc].astype(np.float64),
+            "settle": pd.Series(optional["settle"][acc], dtype=str),
+            "rate": optional["rate"][acc].astype(np.float64),
+            "div_yield": optional["div_yield"][acc].astype(np.float64),
+            "source_file": pd.Series(np.full(acc.size, self.path, dtype=object), dtype=str),
+            "source_line": self.t.line[acc].astype(np.int64),
+        })[list(CONTRACT_COLUMNS)]
+        bounds = np.searchsorted(gid[acc], np.arange(len(names) + 1))
+        by_underlying: dict[str, list[Finding]] = {}
+        for f in findings:
+            if f.underlying is not None:
+                by_underlying.setdefault(f.underlying, []).append(f)
+        snapshots = []
+        for g, und in enumerate(names):
+            if bounds[g] == bounds[g + 1]:
+                continue
+            as_of, spot = self.snap[und]
+            contracts = frame.iloc[bounds[g]:bounds[g + 1]].reset_index(drop=True)
+            snapshots.append(Snapshot(underlying=und, as_of=as_of, spot=spot, contracts=contracts,
+                                      findings=by_underlying.get(und, []), sources=(self.path,)))
+        return FileLoad(path=self.path, snapshots=snapshots, findings=findings, rows_read=self.n,
+                        rows_accepted=accepted)
+
+
+def _timestamp(text: str, utc_ns: int) -> pd.Timestamp:
+    """The as_of Timestamp in the file's own UTC offset (UTC if that cannot be kept)."""
+    try:
+        ts = pd.Timestamp(text)
+        if ts.tzinfo is not None and ts.value == utc_ns:
+            return ts
+    except (ValueError, OverflowError):
+        pass
+    return pd.Timestamp(utc_ns, tz="UTC")
+
+
+def _reason_kind(reason: str) -> str:
+    """A reason with quoted values removed, for counting the common ones."""
+    return re.sub(r"'[^']*'|\"[^\"]*\"|line \d+|\d+(\.\d+)?", "…", reason)
+
+
+def _tidy(contracts: pd.DataFrame) -> pd.DataFrame:
+    """Canonical column order and dtypes, sorted by expiry, strike, kind (stable)."""
+    contracts = contracts[list(CONTRACT_COLUMNS)]
+    contracts = contracts.sort_values(["expiry", "strike", "kind"], kind="mergesort").reset_index(drop=True)
+    contracts["expiry"] = contracts["expiry"].astype("datetime64[ns]")
+    for c in ("strike", "bid", "ask", "iv", "volume", "open_interest", "rate", "div_yield"):
+        contracts[c] = contracts[c].astype(np.float64)
+    contracts["source_line"] = contracts["source_line"].astype(np.int64)
+    return contracts
+
+
+# --------------------------------------------------------------------------- public functions
+
+
+def _as_column_map(column_map: ColumnMap | str | Path | None) -> ColumnMap:
+    if column_map is None:
+        return ColumnMap()
+    if isinstance(column_map, ColumnMap):
+        return column_map
+    return load_column_map(column_map)
+
+
+def load_file(
+    path: str | Path,
+    *,
+    overrides: SnapshotOverrides | None = None,
+    column_map: ColumnMap | str | Path | None = None,
+) -> FileLoad:
+    """Load one snapshot file (CSV, or Parquet when pyarrow is installed).
+
+    ``overrides`` replace the file's underlying / as_of / spot columns;
+    ``column_map`` (a ColumnMap or the path of a TOML mapping file) says how
+    to find our columns under other header names. Raises SnapshotFileError
+    when the file as a whole is unusable, ChainTriageError for a bad override
+    or mapping file.
+    """
+    name = str(path)
+    ov = (overrides or SnapshotOverrides()).resolved()
+    cmap = _as_column_map(column_map)
+    table = _read_table(name)
+    return _FileValidator(name, table, ov, cmap).run()
+
+
+def load_files(
+    paths: Iterable[str | Path],
+    *,
+    overrides: SnapshotOverrides | None = None,
+    column_map: ColumnMap | str | Path | None = None,
+) -> LoadResult:
+    """Load several files, going on past unusable ones (their errors are collected).
+
+    Snapshots of the same underlying at the same instant from different files
+    are merged into one (e.g. calls and puts exported apart); a contract found
+    in an earlier file is left out of the later file, with a finding, and that
+    file's counts are adjusted. A bad override or mapping file raises
+    ChainTriageError before any file is read.
+    """
+    ov = (overrides or SnapshotOverrides()).resolved()
+    cmap = _as_column_map(column_map)
+    files: list[FileLoad] = []
+    errors: list[SnapshotFileError] = []
+    for p in paths:
+        try:
+            files.append(load_file(p, overrides=ov, column_map=cmap))
+        except SnapshotFileError as exc:
+            errors.append(exc)
+    merged, merge_findings = _merge(files)
+    findings = [f for fl in files for f in fl.findings] + merge_findings
+    return LoadResult(snapshots=merged, findings=findings, files=files, errors=errors)
+
+
+def _merge(files: list[FileLoad]) -> tuple[list[Snapshot], list[Finding]]:
+    """Merge snapshots with the same underlying and instant across files.
+
+    A contract already given by an earlier file is left out of the later one:
+    the later file gets a LEFT_OUT finding, its ``rows_accepted`` drops by one
+    and the row leaves its own snapshot, so per-file accounting stays exact.
+    """
+    groups: dict[tuple[str, int], list[tuple[FileLoad, Snapshot]]] = {}
+    for fl in files:
+        for snap in fl.snapshots:
+            groups.setdefault((snap.underlying, snap.as_of.value), []).append((fl, snap))
+    out: list[Snapshot] = []
+    extra_findings: list[Finding] = []
+    for (und, _), members in groups.items():
+        if len(members) == 1:
+            out.append(members[0][1])
+            continue
+        first_fl, first = members[0]
+        allc = pd.concat(
+            [s.contracts.assign(_member=m) for m, (_, s) in enumerate(members)], ignore_index=True)
+        keys = ["expiry", "strike", "kind"]
+        dup = allc.duplicated(keys, keep="first").to_numpy()
+        group_findings: list[Finding] = []
+        if dup.any():
+            first_at = allc.groupby(keys, sort=False)[["source_file", "source_line"]].transform("first")
+            for i in np.flatnonzero(dup):
+                fl, snap = members[int(allc["_member"].iat[i])]
+                finding = Finding(
+                    LEFT_OUT,
+                    f"duplicate of {first_at['source_file'].iat[i]}:{int(first_at['source_line'].iat[i])} "
+                    "(same underlying, expiry, strike and kind)",
+                    file=fl.path, line=int(allc["source_line"].iat[i]), underlying=und,
+                    expiry=str(allc["expiry"].iat[i].date()))
+                fl.findings.append(finding)
+                snap.findings.append(finding)
+                fl.rows_accepted -= 1
+            for m, (fl, snap) in enumerate(members):
+                gone = allc.loc[dup & (allc["_member"] == m).to_numpy(), "source_line"].to_numpy()
+                if gone.size:
+                    keep = ~np.isin(snap.contracts["source_line"].to_numpy(), gone)
+                    snap.contracts = snap.contracts[keep].reset_index(drop=True)
+                    fl.findings.sort(key=lambda f: (f.line is not None, f.line or 0))
+                    if snap.contracts.empty:
+                        fl.snapshots.remove(snap)
+        spots = [s.spot for _, s in members]
+        if len(set(spots)) > 1:
+            listed = ", ".join(f"{fl.path} {_fmt(s.spot)}" for fl, s in members)
+            group_findings.append(Finding(
+                WARNING, f"spot differs between files at the same as_of ({listed}); {_fmt(first.spot)} is used",
+                underlying=und))
+        extra_findings.extend(group_findings)
+        contracts = _tidy(allc[~dup].drop(columns="_member").reset_index(drop=True))
+        snap_findings = [f for _, s in members for f in s.findings] + group_findings
+        sources = tuple(dict.fromkeys(src for _, s in members for src in s.sources))
+        out.append(Snapshot(underlying=und, as_of=first.as_of, spot=first.spot, contracts=contracts,
+                            findings=snap_findings, sources=sources))
+    return out, extra_findings
