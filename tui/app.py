@@ -19,7 +19,7 @@ from textual.widgets import DataTable, Footer, Header
 from chaintriage.core.findings import ChainTriageError
 from chaintriage.core.loading import ColumnMap, LoadResult, SnapshotOverrides, load_files
 from chaintriage.core.snapshot import Snapshot
-from chaintriage.tui.cli import error
+from chaintriage.tui.cli_common import error
 
 #: Columns of the contracts table, in order.
 TABLE_COLUMNS = ("underlying", "as_of", "spot", "expiry", "strike", "kind", "bid", "ask")
@@ -109,7 +109,7 @@ def load_for_app(paths: Sequence[str | Path], *, overrides: SnapshotOverrides | 
 
 
 def open_app(paths: Sequence[str | Path], *, overrides: SnapshotOverrides | None = None,
-             column_map: ColumnMap | None = None) -> int:
+             column_map: ColumnMap | None = None, settings=None) -> int:
     """Load snapshots (the demo chains when ``paths`` is empty) and run the app. Returns an exit status."""
     try:
         result = load_for_app(paths, overrides=overrides, column_map=column_map)

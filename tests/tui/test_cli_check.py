@@ -167,7 +167,7 @@ def test_help_has_examples(capsys, argv):
 def test_subcommands_registered_through_add_commands():
     parser = cli.build_parser()
     sub = next(a for a in parser._actions if a.dest == "command")
-    assert set(sub.choices) == {"check"}
+    assert set(sub.choices) == {"open", "check", "table", "expiries"}
     assert cli.add_check_command in cli.COMMANDS
 
 

@@ -1,0 +1,142 @@
+"""`chaintriage table` and `chaintriage expiries` on a flat-vol model chain written to CSV.
+
+The chain is priced with QuantLib's blackFormula [L] at one vol, so the
+command's P(beyond) must be N(d2) (Hull §15.8 [V]) and its implied vols the
+model vol.
+"""
+
+from __future__ import annotations
+
+import io
+import json
+
+import numpy as np
+import pandas as pd
+import pytest
+from scipy.stats import norm
+
+from chaintriage.tui import cli
+from tests.core.chain_builders import AS_OF, build_snapshot, ql_black, year_fractions
+
+VOL = 0.3
+SPOT = 50.0
+EXPIRIES = ["2027-01-15", "2027-02-19"]
+
+
+@pytest.fixture(scope="module")
+def chain_csv(tmp_path_factory):
+    ts = year_fractions(EXPIRIES, basis="365")
+    fwd = SPOT * np.exp(0.03 * ts)
+    dfs = np.exp(-0.04 * ts)
+    strikes = [np.arange(30.0, 75.1, 1.0)] * 2
+    snap = build_snapshot(
+        EXPIRIES, strikes,
+        lambda i, k: ql_black(fwd[i], k, VOL, ts[i], dfs[i], True),
+        lambda i, k: ql_black(fwd[i], k, VOL, ts[i], dfs[i], False), spot=SPOT)
+    frame = snap.contracts.drop(columns=["source_file", "source_line", "iv", "iv_basis"])
+    frame.insert(0, "underlying", "FLTX")
+    frame.insert(1, "as_of", AS_OF.isoformat())
+    frame.insert(2, "spot", SPOT)
+    frame["expiry"] = frame["expiry"].dt.strftime("%Y-%m-%d")
+    path = tmp_path_factory.mktemp("chain") / "fltx.csv"
+    frame.to_csv(path, index=False, float_format="%.12g")
+    return path, ts, fwd
+
+
+def run(capsys, *argv):
+    code = cli.main(list(argv))
+    out, err = capsys.readouterr()
+    return code, out, err
+
+
+def test_table_csv_has_the_documented_columns_and_decimals(chain_csv, capsys):
+    path, ts, fwd = chain_csv
+    code, out, err = run(capsys, "table", str(path), "--format", "csv", "--basis", "365")
+    assert code == 0
+    frame = pd.read_csv(io.StringIO(out))
+    for col in ("underlying", "expiry", "strike", "kind", "bid", "ask", "mid", "iv", "sigma_distance",
+                "p_beyond", "p_beyond_flat", "p_touch", "delta", "breakeven", "p_breakeven", "spread_pct", "flags"):
+        assert col in frame.columns
+    assert frame["p_beyond"].between(0, 1).all()
+    i = frame["expiry"].map({e: j for j, e in enumerate(EXPIRIES)}).to_numpy()
+    k = frame["strike"].to_numpy()
+    # Out of the money, where the CSV's 12-digit prices keep all the time value.
+    otm = np.where(frame["kind"] == "call", k > fwd[i], k < fwd[i]) & (frame["mid"] > 0.02)
+    np.testing.assert_allclose(frame.loc[otm, "iv"], VOL, atol=1e-8)
+    # N(d2) at the model vol (Hull §15.8 [V]).
+    d2 = (np.log(fwd[i] / k) - 0.5 * VOL**2 * ts[i]) / (VOL * np.sqrt(ts[i]))
+    expected = np.where(frame["kind"] == "call", norm.cdf(d2), norm.cdf(-d2))
+    np.testing.assert_allclose(frame["p_beyond"], expected, atol=1e-6)
+    assert "model findings" in err
+
+
+def test_table_filters_beyond_side_and_expiry(chain_csv, capsys):
+    path, *_ = chain_csv
+    code, out, _ = run(capsys, "table", str(path), "--format", "json", "--beyond", "1.5",
+                       "--side", "puts", "--expiry", EXPIRIES[1], "--quiet")
+    assert code == 0
+    rows = json.loads(out)
+    assert rows, "the filter kept nothing"
+    assert {r["kind"] for r in rows} == {"put"}
+    assert {r["expiry"] for r in rows} == {EXPIRIES[1]}
+    assert all(r["sigma_distance"] <= -1.5 for r in rows)
+    # Every put at or beyond -1.5 sigma is there.
+    code, out, _ = run(capsys, "table", str(path), "--format", "json", "--quiet")
+    allrows = json.loads(out)
+    expected = [r for r in allrows if r["kind"] == "put" and r["expiry"] == EXPIRIES[1]
+                and r["sigma_distance"] is not None and r["sigma_distance"] <= -1.5]
+    assert len(rows) == len(expected)
+
+
+def test_table_unknown_expiry_is_an_error(chain_csv, capsys):
+    path, *_ = chain_csv
+    code, out, err = run(capsys, "table", str(path), "--expiry", "2031-01-01", "--quiet")
+    assert code == 2
+    assert "2031-01-01" in err and EXPIRIES[0] in err
+
+
+def test_plain_output_never_shows_nan(chain_csv, capsys):
+    path, *_ = chain_csv
+    code, out, _ = run(capsys, "table", str(path), "--quiet")
+    assert code == 0
+    assert "nan" not in out.lower() and "inf" not in out.lower()
+    assert "P(beyond)" in out.splitlines()[0]
+
+
+def test_expiries_and_horizon(chain_csv, capsys):
+    """Plain range F exp(-/+ z sigma sqrt T) with z = N^{-1}(0.975) at 95% (scipy [L])."""
+    path, ts, fwd = chain_csv
+    code, out, _ = run(capsys, "expiries", str(path), "--format", "json", "--basis", "365",
+                       "--confidence", "95%", "--quiet")
+    assert code == 0
+    rows = json.loads(out)
+    assert [r["expiry"] for r in rows] == EXPIRIES
+    z = norm.ppf(0.975)
+    for r, t, f in zip(rows, ts, fwd):
+        assert r["forward"] == pytest.approx(f, rel=1e-9)
+        assert r["range_low"] == pytest.approx(f * np.exp(-z * VOL * np.sqrt(t)), rel=1e-6)
+        assert r["arbitrage_free"] is True
+    code, out, _ = run(capsys, "expiries", str(path), "--format", "csv", "--days", "30", "--basis", "365",
+                       "--quiet")
+    frame = pd.read_csv(io.StringIO(out))
+    assert list(frame.columns) == ["underlying", "days", "forward", "range_low", "range_high"]
+    assert frame["range_low"].iloc[0] < frame["forward"].iloc[0] < frame["range_high"].iloc[0]
+
+
+def test_rows_left_out_give_exit_status_1(chain_csv, tmp_path, capsys):
+    path, *_ = chain_csv
+    text = path.read_text().splitlines()
+    bad = text + [text[1].replace(",call,", ",straddle,")]
+    p = tmp_path / "bad.csv"
+    p.write_text("\n".join(bad) + "\n")
+    code, out, err = run(capsys, "table", str(p), "--format", "csv")
+    assert code == 1
+    assert "straddle" in err
+
+
+def test_unusable_file_gives_exit_status_2(tmp_path, capsys):
+    p = tmp_path / "empty.csv"
+    p.write_text("")
+    code, out, err = run(capsys, "expiries", str(p))
+    assert code == 2
+    assert "empty.csv" in err

@@ -1,0 +1,67 @@
+"""Shared pieces of the command line: exit codes, safe printing, snapshot options.
+
+Streams: data (reports, tables) goes to stdout; messages about unusable
+files, bad options and other errors go to stderr, prefixed ``chaintriage:``.
+Text from files is printed with control characters escaped.
+"""
+
+from __future__ import annotations
+
+import argparse
+import re
+import sys
+from typing import TextIO
+
+from chaintriage.core.loading import ColumnMap, SnapshotOverrides, load_column_map
+
+PROG = "chaintriage"
+
+#: Exit status: every row usable (warnings allowed).
+EXIT_OK = 0
+#: Exit status: some rows were left out.
+EXIT_ROWS_LEFT_OUT = 1
+#: Exit status: a file was unusable, or an option / mapping file was bad.
+EXIT_UNUSABLE = 2
+
+_CONTROL = re.compile("[\x00-\x08\x0b-\x1f\x7f-\x9f\u200b-\u200f\u202a-\u202e\u2066-\u2069\ufeff]")
+
+
+def plain(text: object) -> str:
+    """Text safe to print on a terminal: control and invisible characters escaped."""
+    return _CONTROL.sub(lambda m: m.group().encode("unicode_escape").decode("ascii"), str(text))
+
+
+def error(message: str, stream: TextIO | None = None) -> None:
+    """Print a message for the user on stderr."""
+    print(f"{PROG}: {plain(message)}", file=stream or sys.stderr)
+
+
+def add_snapshot_options(parser: argparse.ArgumentParser) -> None:
+    """Options every command that loads snapshot files accepts (--columns, --underlying, --as-of, --spot)."""
+    group = parser.add_argument_group("snapshot options")
+    group.add_argument("--columns", metavar="MAP.toml",
+                       help="TOML file that maps our column names to the file's headers")
+    group.add_argument("--underlying", metavar="NAME",
+                       help="underlying name for every row (replaces the file's underlying column)")
+    group.add_argument("--as-of", metavar="TIME", dest="as_of",
+                       help="snapshot time, ISO 8601 with a UTC offset, e.g. 2026-03-20T15:30:00-04:00 "
+                            "(replaces the file's as_of column)")
+    group.add_argument("--spot", metavar="PRICE", type=_spot_arg,
+                       help="underlying price (replaces the file's spot column)")
+
+
+def _spot_arg(text: str) -> float:
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"not a number: {text!r}") from None
+    if not (value > 0 and value != float("inf")):
+        raise argparse.ArgumentTypeError(f"must be a positive number: {text!r}")
+    return value
+
+
+def snapshot_options(args: argparse.Namespace) -> tuple[SnapshotOverrides, ColumnMap | None]:
+    """The overrides and column map from parsed options. Raises ChainTriageError when one is bad."""
+    overrides = SnapshotOverrides(underlying=args.underlying, as_of=args.as_of, spot=args.spot).resolved()
+    column_map = load_column_map(args.columns) if args.columns else None
+    return overrides, column_map
