@@ -41,10 +41,14 @@ class Finding:
         if self.severity not in SEVERITIES:
             raise ValueError(f"unknown severity {self.severity!r}")
 
-    def location(self) -> str:
-        """Where the finding points, e.g. ``chain.csv:12 [bid]`` (plain text)."""
+    def location(self, with_file: bool = True) -> str:
+        """Where the finding points, e.g. ``chain.csv:12 [bid]`` (plain text).
+
+        With ``with_file=False`` the file name is left out (``line 12 [bid]``),
+        for reports already grouped by file.
+        """
         parts = []
-        if self.file is not None:
+        if self.file is not None and with_file:
             parts.append(self.file if self.line is None else f"{self.file}:{self.line}")
         elif self.line is not None:
             parts.append(f"line {self.line}")

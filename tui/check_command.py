@@ -57,21 +57,8 @@ def add_check_command(subparsers: argparse._SubParsersAction) -> None:
 _SEVERITY_TITLES = ((LEFT_OUT, "left out"), (WARNING, "warnings"), (NOTE, "notes"))
 
 
-def _in_file_location(f: Finding) -> str:
-    parts = []
-    if f.line is not None:
-        parts.append(f"line {f.line}")
-    if f.column:
-        parts.append(f"[{f.column}]")
-    if f.underlying:
-        parts.append(f.underlying)
-    if f.expiry:
-        parts.append(f.expiry)
-    return " ".join(parts)
-
-
 def _finding_line(f: Finding, *, with_file: bool = False) -> str:
-    where = f.location() if with_file else _in_file_location(f)
+    where = f.location(with_file=with_file)
     return plain(f"{where}: {f.reason}" if where else f.reason)
 
 
