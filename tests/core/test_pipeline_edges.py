@@ -1,0 +1,126 @@
+"""Edge-case chains through the pipeline: usable output where it can be computed, findings where not.
+
+Prices come from QuantLib's blackFormula [L] at one vol; the checks here are
+about behaviour (no exception, no inf, a finding that says why), so they use
+facts of the trade [C] rather than published numbers.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from chaintriage.core.pipeline import PipelineSettings, annotate
+from tests.core.chain_builders import build_snapshot, ql_black, year_fractions
+
+VOL = 0.25
+SPOT = 100.0
+
+
+def _priced(expiries, strikes, **kw):
+    ts = year_fractions(expiries)
+    fwd = SPOT * np.exp(0.02 * ts)
+    dfs = np.exp(-0.03 * ts)
+    return build_snapshot(
+        expiries, [np.asarray(strikes, float)] * len(expiries),
+        lambda i, k: ql_black(fwd[i], k, VOL, max(ts[i], 1e-9), dfs[i], True),
+        lambda i, k: ql_black(fwd[i], k, VOL, max(ts[i], 1e-9), dfs[i], False), spot=SPOT, **kw)
+
+
+def _no_infinities(ann):
+    num = ann.contracts.select_dtypes("number")
+    assert not np.isinf(num.to_numpy()).any()
+    num = ann.expiries.select_dtypes("number")
+    assert not np.isinf(num.to_numpy()).any()
+
+
+def test_calls_only_falls_back_to_rates_with_a_finding():
+    snap = _priced(["2027-01-15"], np.arange(80, 121, 2.5), rate=0.03, div_yield=0.01)
+    snap.contracts = snap.contracts[snap.contracts["kind"] == "call"].reset_index(drop=True)
+    ann = annotate(snap, PipelineSettings(basis="365"))
+    _no_infinities(ann)
+    assert ann.expiries["forward_method"].iloc[0] == "rates"
+    assert any("forward" in f.reason for f in ann.findings)
+    # Vols still come out, from the rates forward.
+    assert ann.contracts["iv"].notna().sum() > 10
+
+
+def test_no_strike_quoted_on_both_sides_and_no_rates_uses_spot():
+    snap = _priced(["2027-01-15"], np.arange(80, 121, 2.5))
+    c = snap.contracts
+    keep = ((c["kind"] == "call") & (c["strike"] >= 100)) | ((c["kind"] == "put") & (c["strike"] < 100))
+    snap.contracts = c[keep].reset_index(drop=True)
+    ann = annotate(snap, PipelineSettings(basis="365"))
+    _no_infinities(ann)
+    assert ann.expiries["forward_method"].iloc[0] == "spot"
+    assert ann.expiries["forward"].iloc[0] == SPOT
+    assert any(f.severity == "warning" and "forward" in f.reason for f in ann.findings)
+
+
+def test_single_strike_gives_a_flat_smile_and_probabilities():
+    snap = _priced(["2027-01-15"], [100.0])
+    ann = annotate(snap, PipelineSettings(basis="365"))
+    _no_infinities(ann)
+    c = ann.contracts
+    assert c["p_beyond"].notna().all()
+    assert ann.expiries["fit_method"].iloc[0] == "flat"
+
+
+def test_all_bids_zero_still_gives_vols_from_the_ask_half():
+    snap = _priced(["2027-01-15"], np.arange(80, 121, 2.5))
+    snap.contracts["bid"] = 0.0
+    ann = annotate(snap, PipelineSettings(basis="365"))
+    _no_infinities(ann)
+    assert (ann.contracts["flags"].str.contains("zero-bid")).all()
+
+
+def test_expiry_already_past_at_as_of_has_no_probabilities_and_a_finding():
+    # Expiry on the snapshot date, PM settled, but the snapshot is taken after the close.
+    snap = _priced(["2026-12-01"], np.arange(90, 111, 5.0))
+    snap.as_of = pd.Timestamp("2026-12-01 16:30", tz="America/New_York")
+    ann = annotate(snap, PipelineSettings(basis="252"))
+    _no_infinities(ann)
+    assert ann.expiries["t_years"].iloc[0] == 0.0
+    assert ann.contracts["p_beyond"].isna().all()
+    assert any("no time left" in f.reason for f in ann.findings)
+
+
+def test_expiry_today_with_minutes_left():
+    snap = _priced(["2026-12-01"], np.arange(90, 111, 1.0))
+    snap.as_of = pd.Timestamp("2026-12-01 15:50", tz="America/New_York")
+    ann = annotate(snap, PipelineSettings(basis="252"))
+    _no_infinities(ann)
+    t = ann.expiries["t_years"].iloc[0]
+    assert t == pytest.approx(10 / 390 / 252)  # 10 minutes of a 390-minute session [C]
+
+
+def test_prices_below_intrinsic_get_no_vol_and_the_rest_still_works():
+    snap = _priced(["2027-01-15"], np.arange(80, 121, 2.5))
+    c = snap.contracts
+    deep = (c["kind"] == "call") & (c["strike"] == 80.0)
+    c.loc[deep, ["bid", "ask"]] = [1.0, 1.2]  # far below the ~20 of intrinsic value
+    ann = annotate(snap, PipelineSettings(basis="365"))
+    _no_infinities(ann)
+    row = ann.contracts[(ann.contracts["kind"] == "call") & (ann.contracts["strike"] == 80.0)].iloc[0]
+    assert np.isnan(row["iv"])
+    assert "no-iv" in row["flags"]
+    assert ann.contracts["iv"].notna().sum() > 20
+
+
+def test_sub_penny_and_very_large_prices():
+    ts = year_fractions(["2027-06-17"])
+    snap = build_snapshot(
+        ["2027-06-17"], [np.arange(4000.0, 6001.0, 50.0)],
+        lambda i, k: ql_black(5000.0, k, VOL, ts[i], 1.0, True),
+        lambda i, k: ql_black(5000.0, k, VOL, ts[i], 1.0, False), spot=5000.0, half_spread=0.0005)
+    ann = annotate(snap, PipelineSettings(basis="365"))
+    _no_infinities(ann)
+    np.testing.assert_allclose(ann.expiries["atm_iv"], VOL, atol=1e-4)
+
+
+def test_empty_snapshot_does_not_crash():
+    snap = _priced(["2027-01-15"], [100.0])
+    snap.contracts = snap.contracts.iloc[0:0]
+    ann = annotate(snap, PipelineSettings(basis="365"))
+    assert len(ann.contracts) == 0 and len(ann.expiries) == 0
