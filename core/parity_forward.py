@@ -40,7 +40,6 @@ years; rates continuously compounded per year (decimal); DF dimensionless.
 
 from __future__ import annotations
 
-import warnings
 from dataclasses import dataclass
 
 import numpy as np
@@ -379,6 +378,16 @@ def implied_forwards(
     return out
 
 
+def _nanmedian_last(x: np.ndarray) -> np.ndarray:
+    """Median over the last axis ignoring NaN, as np.nanmedian (NaN where a row has no number)."""
+    xs = np.sort(x, axis=-1)  # NaN sort last
+    count = np.sum(~np.isnan(x), axis=-1)
+    lo = np.take_along_axis(xs, np.maximum((count - 1) // 2, 0)[..., None], axis=-1)[..., 0]
+    hi = np.take_along_axis(xs, np.maximum(count // 2, 0)[..., None], axis=-1)[..., 0]
+    with np.errstate(invalid="ignore"):
+        return np.where(count > 0, 0.5 * (lo + hi), np.nan)
+
+
 def _parity_fast_path(group, k, cb, ca, pb, pa, spot, t, m, n_exp):
     """Vectorised clean case of implied_forward. Returns (ok, forward, df, strikes_used, residual_rms) per expiry."""
     with np.errstate(invalid="ignore"):
@@ -417,9 +426,8 @@ def _parity_fast_path(group, k, cb, ca, pb, pa, spot, t, m, n_exp):
     yw = np.where(valid, yy[rows[:, None], win], np.nan)
     sw_ = np.where(valid, sp[rows[:, None], win], np.nan)
 
-    with np.errstate(invalid="ignore", divide="ignore"), warnings.catch_warnings():
-        warnings.simplefilter("ignore", RuntimeWarning)  # all-NaN rows of expiries left to the slow path
-        med_pos = np.nanmedian(np.where(sw_ > 0, sw_, np.nan), axis=1)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        med_pos = _nanmedian_last(np.where(sw_ > 0, sw_, np.nan))
         floor = np.where(np.isfinite(med_pos), 0.25 * med_pos, 0.0)
         floor = np.maximum(floor, 1e-8 * spot)
         spread = np.maximum(sw_, floor[:, None])
@@ -429,10 +437,10 @@ def _parity_fast_path(group, k, cb, ca, pb, pa, spot, t, m, n_exp):
         dk = kw[:, None, :] - kw[:, :, None]
         dy = yw[:, None, :] - yw[:, :, None]
         slopes = np.where(dk != 0, dy / dk, np.nan)
-        s = np.nanmedian(np.nanmedian(slopes, axis=2), axis=1)
-        a = np.nanmedian(yw - s[:, None] * kw, axis=1)
+        s = _nanmedian_last(_nanmedian_last(slopes))
+        a = _nanmedian_last(yw - s[:, None] * kw)
         r = yw - (a[:, None] + s[:, None] * kw)
-        scale = 1.4826 * np.nanmedian(np.abs(r - np.nanmedian(r, axis=1)[:, None]), axis=1)
+        scale = 1.4826 * _nanmedian_last(np.abs(r - _nanmedian_last(r)[:, None]))
         limit = np.maximum(OUTLIER_HALF_SPREADS * half, OUTLIER_SCALES * scale[:, None])
         excess = np.abs(r) / limit
         all_in = np.all(~valid | (excess <= 1.0), axis=1) | (n_w < 4)

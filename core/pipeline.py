@@ -175,10 +175,10 @@ def _calendar(extra_closed) -> ExchangeCalendar:
     return cal
 
 
-def _first_per_expiry(values: np.ndarray, present: np.ndarray, starts: np.ndarray, ends: np.ndarray):
-    """(index of the first present value per expiry group, whether there is one); groups are row ranges."""
-    pos = np.where(present, np.arange(values.size), values.size)
-    first = np.minimum.reduceat(pos, starts) if values.size else np.zeros(0, dtype=np.int64)
+def _first_per_expiry(present: np.ndarray, starts: np.ndarray, ends: np.ndarray):
+    """(row of the first present value per expiry group, whether there is one); groups are row ranges."""
+    pos = np.where(present, np.arange(present.size), present.size)
+    first = np.minimum.reduceat(pos, starts) if present.size else np.zeros(0, dtype=np.int64)
     found = first < ends
     return np.where(found, first, 0), found
 
@@ -190,39 +190,47 @@ def _mids(bid: np.ndarray, ask: np.ndarray) -> np.ndarray:
         return np.where(np.isfinite(ask) & (ask > 0), 0.5 * (bid0 + ask), np.nan)
 
 
-def _columns(contracts: pd.DataFrame) -> dict[str, np.ndarray]:
-    """The contract columns as numpy arrays, rows sorted by expiry, strike and kind (stable)."""
-    expiry = contracts["expiry"].to_numpy()
-    strike = contracts["strike"].to_numpy(float)
-    kind = contracts["kind"].to_numpy(dtype=object)
-    order = np.lexsort((kind != "call", strike, expiry))
-    cols = {"expiry": expiry[order], "strike": strike[order], "kind": kind[order]}
-    for name in ("bid", "ask", "iv", "volume", "open_interest", "rate", "div_yield"):
-        cols[name] = contracts[name].to_numpy(float)[order]
-    for name in ("iv_basis", "settle"):
-        cols[name] = contracts[name].to_numpy(dtype=object)[order]
-    cols["source_line"] = contracts["source_line"].to_numpy()[order]
-    return cols
+def _sort_order(contracts: pd.DataFrame) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Row order by expiry, strike and kind (stable, as a stable sort_values), with is_call and is_put in that order."""
+    kind = contracts["kind"]
+    is_call = (kind == "call").to_numpy(dtype=bool, na_value=False)
+    is_put = (kind == "put").to_numpy(dtype=bool, na_value=False)
+    if np.all(is_call | is_put):
+        kind_key = is_put  # 'call' sorts before 'put'
+    else:
+        kind_key = pd.factorize(kind, sort=True, use_na_sentinel=False)[0]
+    order = np.lexsort((kind_key, contracts["strike"].to_numpy(float), contracts["expiry"].to_numpy()))
+    return order, is_call[order], is_put[order]
+
+
+def _text_per_expiry(column: pd.Series, order: np.ndarray, starts: np.ndarray, ends: np.ndarray, default: str):
+    """First non-missing value of a text column per expiry group (rows in ``order``), else ``default``."""
+    present = ~column.isna().to_numpy(dtype=bool)[order]
+    first, found = _first_per_expiry(present, starts, ends)
+    values = column.array.take(order[first]).to_numpy(dtype=object) if found.size else np.zeros(0, dtype=object)
+    return np.where(found, values, default).astype(object)
 
 
 def annotate(snapshot: Snapshot, settings: PipelineSettings | None = None) -> AnnotatedSnapshot:
     """Run the whole per-expiry pipeline over a snapshot."""
     settings = settings or PipelineSettings()
     calendar = _calendar(settings.extra_closed)
-    cols = _columns(snapshot.contracts)
+    contracts = snapshot.contracts
+    order, is_call, is_put = _sort_order(contracts)
     findings: list[Finding] = []
     underlying = snapshot.underlying
-    n = cols["strike"].size
+    n = order.size
 
-    strike = cols["strike"]
-    kind = cols["kind"]
-    is_call = kind == "call"
-    bid = cols["bid"]
-    ask = cols["ask"]
+    def numeric(name: str) -> np.ndarray:
+        return contracts[name].to_numpy(float)[order]
+
+    strike = numeric("strike")
+    bid = numeric("bid")
+    ask = numeric("ask")
     mid = _mids(bid, ask)
 
     # Expiry groups: rows are sorted by expiry, so each expiry is one run of rows.
-    exp_values = cols["expiry"]
+    exp_values = contracts["expiry"].to_numpy()[order]
     new_exp = np.ones(n, dtype=bool)
     new_exp[1:] = exp_values[1:] != exp_values[:-1]
     starts = np.flatnonzero(new_exp)
@@ -232,17 +240,15 @@ def annotate(snapshot: Snapshot, settings: PipelineSettings | None = None) -> An
     ends = np.append(starts[1:], n)
 
     # 1. Time to settlement per expiry.
-    settle_raw = cols["settle"]
-    first, found = _first_per_expiry(settle_raw, ~pd.isna(settle_raw), starts, ends)
-    settle = np.where(found, settle_raw[first] if n else np.array([], dtype=object), "pm").astype(object)
+    settle = _text_per_expiry(contracts["settle"], order, starts, ends, "pm")
     t_exp = np.asarray(year_fraction(snapshot.as_of, expiries, settle, basis=settings.basis, calendar=calendar), float)
     trading_days = np.asarray(trading_days_to_expiry(snapshot.as_of, expiries, calendar=calendar))
     calendar_days = np.asarray(calendar_days_to_expiry(snapshot.as_of, expiries))
     rates = np.full(n_exp, np.nan)
     divs = np.full(n_exp, np.nan)
-    for values, out in ((cols["rate"], rates), (cols["div_yield"], divs)):
-        first, found = _first_per_expiry(values, ~np.isnan(values), starts, ends)
-        out[found] = values[first[found]]
+    for values, per_expiry in ((numeric("rate"), rates), (numeric("div_yield"), divs)):
+        first, found = _first_per_expiry(~np.isnan(values), starts, ends)
+        per_expiry[found] = values[first[found]]
 
     t_row = t_exp[exp_code]
     labels = [f"{expiry:%Y-%m-%d}" for expiry in expiries]
@@ -252,7 +258,6 @@ def annotate(snapshot: Snapshot, settings: PipelineSettings | None = None) -> An
     new_pair[1:] |= strike[1:] != strike[:-1]
     pair = np.cumsum(new_pair) - 1
     n_pairs = int(new_pair.sum())
-    is_put = kind == "put"
     quotes = {}
     for side, mask in (("call", is_call), ("put", is_put)):
         for name, values in (("bid", bid), ("ask", ask)):
@@ -281,8 +286,9 @@ def annotate(snapshot: Snapshot, settings: PipelineSettings | None = None) -> An
 
     # 3. Implied vols, all contracts at once.
     if settings.use_file_iv:
-        file_iv = cols["iv"]
-        basis = np.where(cols["iv_basis"] == "", settings.basis, cols["iv_basis"])
+        file_iv = numeric("iv")
+        iv_basis = contracts["iv_basis"].to_numpy(dtype=object)[order]
+        basis = np.where(iv_basis == "", settings.basis, iv_basis)
         iv = file_iv.copy()
         for other in ("252", "250", "365"):
             if other == settings.basis:
@@ -395,13 +401,14 @@ def annotate(snapshot: Snapshot, settings: PipelineSettings | None = None) -> An
         delta = df_row * (f_row / snapshot.spot) * fwd_delta
         spread_pct = np.where(mid > 0, (ask - np.where(np.isfinite(bid), bid, 0.0)) / mid, np.nan)
 
-    flags = _flags(cols["open_interest"], bid, iv, spread_pct, settings)
+    open_interest = numeric("open_interest")
+    flags = _flags(open_interest, bid, iv, spread_pct, settings)
 
     out = pd.DataFrame({
         "underlying": underlying,
-        "expiry": exp_values,
+        "expiry": contracts["expiry"].array.take(order),
         "strike": strike,
-        "kind": kind,
+        "kind": contracts["kind"].array.take(order),
         "bid": bid,
         "ask": ask,
         "mid": mid,
@@ -415,10 +422,10 @@ def annotate(snapshot: Snapshot, settings: PipelineSettings | None = None) -> An
         "p_breakeven": p_breakeven,
         "spread_pct": spread_pct,
         "flags": flags,
-        "volume": cols["volume"],
-        "open_interest": cols["open_interest"],
+        "volume": numeric("volume"),
+        "open_interest": open_interest,
         "otm": otm,
-        "source_line": cols["source_line"],
+        "source_line": contracts["source_line"].to_numpy()[order],
     })
 
     counts = ends - starts
@@ -455,7 +462,7 @@ def _atm_vols(slices: SviSlices, t: np.ndarray) -> np.ndarray:
 
 
 def _flags(oi: np.ndarray, bid: np.ndarray, iv: np.ndarray, spread_pct: np.ndarray,
-           settings: PipelineSettings) -> np.ndarray:
+           settings: PipelineSettings):
     """Short plain words per contract, comma-separated: no-iv, zero-bid, wide, thin."""
     words = ("no-iv", "zero-bid", "wide", "thin")
     with np.errstate(invalid="ignore"):
@@ -468,5 +475,5 @@ def _flags(oi: np.ndarray, bid: np.ndarray, iv: np.ndarray, spread_pct: np.ndarr
     code = np.zeros(bid.size, dtype=np.int64)
     for bit, mask in enumerate(masks):
         code |= mask.astype(np.int64) << bit
-    table = np.array([",".join(w for b, w in enumerate(words) if c >> b & 1) for c in range(16)], dtype=object)
-    return table[code]
+    table = pd.array([",".join(w for b, w in enumerate(words) if c >> b & 1) for c in range(16)], dtype="str")
+    return table.take(code)

@@ -48,7 +48,7 @@ from .svi import SviParams
 #: Levenberg-Marquardt iterations after which an expiry still moving is handed to fit_smile.
 MAX_ITER = 100
 #: Candidates of the grid start whose cost is recomputed directly (guards the expanded sums).
-_RERANK = 8
+_RERANK = 4
 
 
 # ---------------------------------------------------------------------------
@@ -96,21 +96,31 @@ def grid_start_batch(k, w, wt, starts) -> np.ndarray:
     s_r = np.empty((n_exp, n_grid))
     s_kr = np.empty((n_exp, n_grid))
     s_wr = np.empty((n_exp, n_grid))
+    buf = np.empty(n_grid * int((ends - starts).max()))
+    ss2 = ss * ss
+    vecs = np.stack([wt, wt * k, wt * w], axis=1)
     for e in range(n_exp):
         sl = slice(starts[e], ends[e])
         ke = k[sl]
         x = ke[None, :] - ms[e][:, None]  # (17, n)
-        x2 = x * x
-        big = np.sqrt(x2[:, None, :] + (ss[e] * ss[e])[None, :, None]).reshape(n_grid, ke.size)
-        wte = wt[sl]
-        sums = big @ np.stack([wte, wte * ke, wte * w[sl]], axis=1)
+        x *= x
+        big = buf[: n_grid * ke.size].reshape(17, 16, ke.size)
+        np.add(x[:, None, :], ss2[e][None, :, None], out=big)
+        np.sqrt(big, out=big)
+        sums = big.reshape(n_grid, ke.size) @ vecs[sl]
         s_r[e], s_kr[e], s_wr[e] = sums[:, 0], sums[:, 1], sums[:, 2]
     s0 = _segsum(wt, starts)[:, None]
     s_k = _segsum(wt * k, starts)[:, None]
     s_kk = _segsum(wt * k * k, starts)[:, None]
     s_w = _segsum(wt * w, starts)[:, None]
     s_kw = _segsum(wt * k * w, starts)[:, None]
-    s_ww = _segsum(wt * w * w, starts)[:, None]
+    # the cost below is expanded around the weighted mean of w (less cancellation)
+    gid = np.repeat(np.arange(n_exp), ends - starts)
+    wbar = s_w / s0
+    wc = w - wbar[gid, 0]
+    s_wc = _segsum(wt * wc, starts)[:, None]
+    s_kwc = _segsum(wt * k * wc, starts)[:, None]
+    s_wcwc = _segsum(wt * wc * wc, starts)[:, None]
     # sums over y = (k - m)/sigma and root = R/sigma, as in smile_fit._grid_start
     sxm = s_k - mm * s0  # sum wt (k - m)
     sxx = s_kk - 2.0 * mm * s_k + mm * mm * s0  # sum wt (k - m)^2
@@ -142,19 +152,24 @@ def grid_start_batch(k, w, wt, starts) -> np.ndarray:
     a = (s_w - b * s_shape) / s0
     wmin = _segmin(w, starts)[:, None]
     a = np.maximum(a, -b * sg * np.sqrt(1.0 - rho * rho) + 1e-3 * wmin)
-    # sse = sum wt (a + b shape - w)^2, expanded
+    # sse = sum wt (a + b shape - w)^2 = sum wt (ac + b shape - wc)^2 with ac = a - wbar, wc = w - wbar
+    ac = a - wbar
     s_sh2 = rho * rho * sxx + 2.0 * rho * sxr + sxx + sg * sg * s0
-    s_wsh = rho * swx + s_wr
-    sse = (a * a * s0 + b * b * s_sh2 + s_ww + 2.0 * a * b * s_shape - 2.0 * a * s_w - 2.0 * b * s_wsh)
+    s_wsh = rho * (s_kwc - mm * s_wc) + (s_wr - wbar * s_r)
+    sse = (ac * ac * s0 + b * b * s_sh2 + s_wcwc + 2.0 * ac * b * s_shape - 2.0 * ac * s_wc - 2.0 * b * s_wsh)
     sse = np.where(np.isfinite(sse), sse, np.inf)
     # re-check the best few directly, in candidate order, so ties and rounding resolve as a direct sum would
     top = np.sort(np.argpartition(sse, _RERANK - 1, axis=1)[:, :_RERANK], axis=1)
     rows = np.arange(n_exp)[:, None]
     ca, cb, cr, cm, cs = (z[rows, top] for z in (a, b, rho, mm, sg))
-    gid = np.repeat(np.arange(n_exp), ends - starts)
-    kq = k[:, None]
-    model = ca[gid] + cb[gid] * (cr[gid] * (kq - cm[gid]) + np.sqrt((kq - cm[gid]) ** 2 + cs[gid] ** 2))
-    direct = _segsum(((model - w[:, None]) ** 2) * wt[:, None], starts)
+    x = k[:, None] - cm[gid]
+    model = np.sqrt(x * x + (cs * cs)[gid])
+    model += cr[gid] * x
+    model *= cb[gid]
+    model += ca[gid]
+    model -= w[:, None]
+    model *= model
+    direct = _segsum(model * wt[:, None], starts)
     direct = np.where(np.isfinite(direct), direct, np.inf)
     pick = np.argmin(direct, axis=1)
     r1 = np.arange(n_exp)
@@ -226,10 +241,11 @@ def polish_batch(k, w, wt, starts, start: np.ndarray, *, max_iter: int = 1000) -
     x = lo + (hi - lo) * logistic(u) inside the box of :func:`box_bounds`,
     from ``start`` (raw SVI, clipped into the box as smile_fit._polish does).
     Each expiry has its own damping (Marquardt scaling by the largest
-    diagonal of J'J seen) and stops on its own: when a step lowers its cost
-    by less than 1e-15 relative, the step is at rounding level, or the
-    gradient vanishes; the work shrinks to the expiries still moving. A row
-    of NaN means the polish met non-finite values.
+    diagonal of J'J seen) and stops on its own: after a near Gauss-Newton
+    step shorter than 1e-10 of |u|, when a step lowers its cost by less than
+    1e-15 relative, or when no step can. An expiry not stopped after
+    ``max_iter`` steps is returned as not converged; a row of NaN means the
+    polish met non-finite values.
     """
     starts = np.asarray(starts)
     n_exp = starts.size
@@ -240,24 +256,20 @@ def polish_batch(k, w, wt, starts, start: np.ndarray, *, max_iter: int = 1000) -
     with np.errstate(invalid="ignore", divide="ignore"):
         u = np.log((x0 - lo) / (hi - x0))
     sw = np.sqrt(wt)
-    state = {
-        "u": u, "lam": np.full(n_exp, 1e-3), "nu": np.full(n_exp, 2.0), "scale": np.zeros((n_exp, 5)),
-        "iters": np.zeros(n_exp, dtype=np.int64), "bad": ~np.all(np.isfinite(u), axis=1),
-    }
     converged = np.zeros(n_exp, dtype=bool)
+    bad = ~np.all(np.isfinite(u), axis=1)
     for work in _size_chunks(counts):
-        work = work[~state["bad"][work]]
-        while work.size:
-            first, cnt = starts[work], counts[work]
-            kp = _pad(k, first, cnt, k[first])
-            wp = _pad(w, first, cnt, w[first])
-            swp = _pad(sw, first, cnt, np.zeros(work.size))
-            still = _lm_rounds(kp, wp, swp, lo[work], span[work], state, work, max_iter)
-            converged[work[~still]] = True
-            work = work[still & (state["iters"][work] < max_iter)]
-    x = lo + span / (1.0 + np.exp(-np.clip(state["u"], -50.0, 50.0)))
+        work = work[~bad[work]]
+        if not work.size:
+            continue
+        first, cnt = starts[work], counts[work]
+        kp = _pad(k, first, cnt, k[first])
+        wp = _pad(w, first, cnt, w[first])
+        swp = _pad(sw, first, cnt, np.zeros(work.size))
+        u[work], converged[work], bad[work] = _lm(kp, wp, swp, lo[work], span[work], u[work], max_iter)
+    x = lo + span / (1.0 + np.exp(-np.clip(u, -50.0, 50.0)))
     p = from_box(x)
-    bad = state["bad"] | ~np.all(np.isfinite(p), axis=1)
+    bad |= ~np.all(np.isfinite(p), axis=1)
     p[bad] = np.nan
     return p, converged & ~bad
 
@@ -266,75 +278,95 @@ def _normal_system(u, k, w, sw, lo, span):
     """J'J (n, 5, 5), J'r (n, 5) and r'r (n,) of the weighted residuals r = sw (w_svi - w) at u.
 
     Padded rows: ``k``, ``w``, ``sw`` are (n, m) with sw = 0 on padding.
+    Jacobian columns in (v, s, rho, m, sigma), times dx/du of the logistic map.
     """
     e = 1.0 / (1.0 + np.exp(-np.clip(u, -50.0, 50.0)))
     x = lo + span * e
     dx = span * e * (1.0 - e)
     v, s, rho, m, sig = (x[:, i, None] for i in range(5))
+    d0, d1, d2, d3, d4 = (dx[:, i, None] for i in range(5))
     q = np.sqrt(1.0 - rho * rho)
     inv = 1.0 / (1.0 + np.abs(rho))
     b = 2.0 * s * inv
     sgn = np.where(rho >= 0, 1.0, -1.0)
-    xk = k - m
-    r = np.sqrt(xk * xk + sig * sig)
-    h = rho * xk + r - sig * q
-    aug = np.empty(k.shape + (6,))
-    swd = sw[:, :, None] * dx[:, None, :]
-    aug[..., 0] = swd[..., 0]
-    aug[..., 1] = (2.0 * inv) * h * swd[..., 1]
-    aug[..., 2] = (b * (xk + sig * rho / q) - (b * sgn * inv) * h) * swd[..., 2]
-    aug[..., 3] = -b * (rho + xk / r) * swd[..., 3]
-    aug[..., 4] = b * (sig / r - q) * swd[..., 4]
-    aug[..., 5] = sw * (v + b * h - w)
-    m6 = np.matmul(aug.transpose(0, 2, 1), aug)
+    aug = np.empty((6,) + k.shape)  # column-major: each column one contiguous block
+    xk = np.subtract(k, m, out=aug[2])
+    r = np.multiply(xk, xk, out=aug[4])
+    r += sig * sig
+    np.sqrt(r, out=r)
+    h = np.multiply(xk, rho, out=aug[1])
+    h += r
+    h -= sig * q
+    res = np.multiply(h, b, out=aug[5])
+    res += v
+    res -= w
+    res *= sw
+    c3 = np.divide(xk, r, out=aug[3])  # d/dm = -b (rho + xk/r)
+    c3 += rho
+    c3 *= sw * (-b * d3)
+    c4 = np.divide(sig, r, out=aug[4])  # d/dsigma = b (sigma/r - q)
+    c4 -= q
+    c4 *= sw * (b * d4)
+    c2 = xk  # d/drho = b (xk + sigma rho/q) - b sgn h/(1 + |rho|)
+    c2 += sig * rho / q
+    c2 *= b * d2
+    c2 -= h * (b * sgn * inv * d2)
+    c2 *= sw
+    h *= sw * (2.0 * inv * d1)  # d/ds = 2 h/(1 + |rho|)
+    np.multiply(sw, d0, out=aug[0])  # d/dv = 1
+    rows = np.ascontiguousarray(aug.transpose(1, 0, 2))
+    m6 = np.matmul(rows, rows.transpose(0, 2, 1))
     return m6[:, :5, :5], m6[:, :5, 5], m6[:, 5, 5]
 
 
-def _lm_rounds(k, w, sw, lo, span, state, work, max_iter):
-    """LM iterations for the expiries ``work`` (padded rows) until half of them stop; returns 'still moving'."""
-    n = work.size
-    u = state["u"][work]
-    lam = state["lam"][work]
-    nu = state["nu"][work]
-    scale = state["scale"][work]
-    iters = state["iters"][work]
-    with np.errstate(invalid="ignore", over="ignore"):
+def _lm(k, w, sw, lo, span, u, max_iter):
+    """Batched LM on padded rows; returns (u, converged, bad)."""
+    n = u.shape[0]
+    with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
         a_mat, grad, cost = _normal_system(u, k, w, sw, lo, span)
-    bad = ~(np.isfinite(cost) & np.all(np.isfinite(a_mat), axis=(1, 2)))
+    bad = ~(np.isfinite(cost) & np.all(np.isfinite(a_mat), axis=(1, 2)) & np.all(np.isfinite(grad), axis=1))
     active = ~bad
+    converged = np.zeros(n, dtype=bool)
+    lam = np.full(n, 1e-3)
+    nu = np.full(n, 2.0)
+    scale = np.zeros((n, 5))
     eye = np.eye(5)
-    while active.sum() > n // 2 and np.any(active & (iters < max_iter)):
-        active &= iters < max_iter
-        scale = np.maximum(scale, np.einsum("eii->ei", a_mat))
-        dsc = np.where(scale > 0, scale, 1.0)
-        lhs = a_mat + (lam[:, None] * dsc)[:, :, None] * eye
-        lhs[~active] = eye
-        step = np.linalg.solve(lhs, -grad[..., None])[..., 0]
-        step[~active] = 0.0
+    for _ in range(max_iter):
+        idx = np.flatnonzero(active)
+        if not idx.size:
+            break
+        every = idx.size == n
+        sub = (lambda z: z) if every else (lambda z: z[idx])
+        a_i, g_i, c_i, u_i, lam_i, nu_i = (sub(z) for z in (a_mat, grad, cost, u, lam, nu))
+        sc_i = np.maximum(sub(scale), np.einsum("eii->ei", a_i))
+        dsc = np.where(sc_i > 0, sc_i, 1.0)
+        step = np.linalg.solve(a_i + (lam_i[:, None] * dsc)[:, :, None] * eye, -g_i[..., None])[..., 0]
         with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
-            a_new, g_new, c_new = _normal_system(u + step, k, w, sw, lo, span)
-            pred = -(step * grad).sum(axis=1) + lam * (dsc * step * step).sum(axis=1)
-            ratio = (cost - c_new) / pred
-            take = active & np.isfinite(c_new) & (c_new < cost) & np.all(np.isfinite(a_new), axis=(1, 2))
-            small_step = np.sqrt((step * step).sum(axis=1)) <= 1e-14 * (np.sqrt((u * u).sum(axis=1)) + 1e-14)
-            small_gain = take & ((cost - c_new) <= 1e-15 * cost) & (pred <= 1e-15 * cost)
-            no_grad = np.abs(grad).max(axis=1) <= 1e-16 * np.sqrt(np.maximum(cost, 1e-300) * dsc.max(axis=1))
-            a_mat = np.where(take[:, None, None], a_new, a_mat)
-            grad = np.where(take[:, None], g_new, grad)
-            u = np.where(take[:, None], u + step, u)
-            cost = np.where(take, c_new, cost)
+            a_new, g_new, c_new = _normal_system(u_i + step, sub(k), sub(w), sub(sw), sub(lo), sub(span))
+            pred = -(step * g_i).sum(axis=1) + lam_i * (dsc * step * step).sum(axis=1)
+            ratio = (c_i - c_new) / pred
+            take = (np.isfinite(c_new) & (c_new < c_i) & np.all(np.isfinite(a_new), axis=(1, 2))
+                    & np.all(np.isfinite(g_new), axis=1))
+            step_len = np.sqrt((step * step).sum(axis=1))
+            u_len = np.sqrt((u_i * u_i).sum(axis=1))
+            stop = (
+                (take & (lam_i <= 1e-2) & (step_len <= 1e-10 * (u_len + 1e-10)))  # near Gauss-Newton step, tiny
+                | (take & (c_i - c_new <= 1e-15 * c_i) & (pred <= 1e-15 * c_i))  # no gain left
+                | (step_len <= 1e-14 * (u_len + 1e-14))  # cannot move
+                | (np.abs(g_i).max(axis=1) <= 1e-16 * np.sqrt(np.maximum(c_i, 1e-300) * dsc.max(axis=1)))
+            )
             shrink = np.maximum(1.0 / 3.0, 1.0 - (2.0 * np.clip(ratio, 0.0, 1.0) - 1.0) ** 3)
-            lam = np.where(take, lam * shrink, np.minimum(lam * nu, 1e300))
-            nu = np.where(take, 2.0, np.minimum(nu * 2.0, 1e300))
-        iters = iters + active
-        active &= ~(small_step | small_gain | no_grad | (lam > 1e16))
-    state["u"][work] = u
-    state["lam"][work] = lam
-    state["nu"][work] = nu
-    state["scale"][work] = scale
-    state["iters"][work] = iters
-    state["bad"][work] |= bad
-    return active
+            lam_i = np.where(take, lam_i * shrink, lam_i * nu_i)
+            nu_i = np.where(take, 2.0, nu_i * 2.0)
+        stop |= lam_i > 1e16  # no step lowers the cost: at the minimum to rounding
+        a_mat[idx] = np.where(take[:, None, None], a_new, a_i)
+        grad[idx] = np.where(take[:, None], g_new, g_i)
+        cost[idx] = np.where(take, c_new, c_i)
+        u[idx] = np.where(take[:, None], u_i + step, u_i)
+        lam[idx], nu[idx], scale[idx] = lam_i, nu_i, sc_i
+        converged[idx[stop]] = True
+        active[idx[stop]] = False
+    return u, converged, bad
 
 
 # ---------------------------------------------------------------------------
@@ -349,8 +381,11 @@ def _tv(p: np.ndarray, k: np.ndarray) -> np.ndarray:
 
 
 def _g_rows(p: np.ndarray, k: np.ndarray) -> np.ndarray:
-    """G&J g(k) for parameter rows p (E, 5) against k (E, n)."""
-    return svi.g_function(SviParams(*(p[:, i, None] for i in range(5))), k)
+    """G&J g(k) for parameter rows p (E, 5) against k (E, n): svi.g_function with the square root taken once."""
+    a, b, rho, m, sig = (p[:, i, None] for i in range(5))
+    x = k - m
+    r = np.sqrt(x * x + sig * sig)
+    return svi.g_from_w(k, a + b * (rho * x + r), b * (rho + x / r), b * sig * sig / (r * r * r))
 
 
 def _vol_errors(p_q: np.ndarray, k, w, t_q):
