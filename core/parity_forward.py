@@ -368,7 +368,7 @@ def implied_forwards(
     out: list[ForwardEstimate] = []
     for i in range(n_exp):
         if fast_out is not None and fast_out[0][i]:
-            ok, fwd, df, n_used, rms = (x[i] for x in fast_out)
+            fwd, df, n_used, rms = (x[i] for x in fast_out[1:])
             out.append(ForwardEstimate(
                 forward=float(fwd), discount=float(df), method="parity", strikes_used=int(n_used),
                 residual_rms=float(rms), rate_implied=float(-np.log(df) / t[i]),

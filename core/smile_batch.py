@@ -412,7 +412,7 @@ def _atm_levels(k, w, starts, ends) -> np.ndarray:
 
 def _wild_batch(p, k, w, wt, starts, ends, t, w0) -> np.ndarray:
     """True where smile_fit._wild would reject the fit (the reason is left to fit_smile)."""
-    a, b, rho, m, sig = p.T
+    a, b, rho, sig = p[:, 0], p[:, 1], p[:, 2], p[:, 4]
     with np.errstate(invalid="ignore", over="ignore"):
         valid = (np.all(np.isfinite(p), axis=1) & (b >= 0) & (np.abs(rho) < 1) & (sig > 0)
                  & (a + b * sig * np.sqrt(np.maximum(1.0 - rho * rho, 0.0)) >= 0)
