@@ -406,9 +406,9 @@ def annotate(snapshot: Snapshot, settings: PipelineSettings | None = None) -> An
 
     out = pd.DataFrame({
         "underlying": underlying,
-        "expiry": contracts["expiry"].array.take(order),
+        "expiry": contracts["expiry"].take(order).reset_index(drop=True),
         "strike": strike,
-        "kind": contracts["kind"].array.take(order),
+        "kind": contracts["kind"].take(order).reset_index(drop=True),
         "bid": bid,
         "ask": ask,
         "mid": mid,

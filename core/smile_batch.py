@@ -159,7 +159,7 @@ def grid_start_batch(k, w, wt, starts) -> np.ndarray:
     sse = (ac * ac * s0 + b * b * s_sh2 + s_wcwc + 2.0 * ac * b * s_shape - 2.0 * ac * s_wc - 2.0 * b * s_wsh)
     sse = np.where(np.isfinite(sse), sse, np.inf)
     # re-check the best few directly, in candidate order, so ties and rounding resolve as a direct sum would
-    top = np.sort(np.argpartition(sse, _RERANK - 1, axis=1)[:, :_RERANK], axis=1)
+    top = np.sort(np.argsort(sse, axis=1, kind="stable")[:, :_RERANK], axis=1)  # exact ties: lowest index first
     rows = np.arange(n_exp)[:, None]
     ca, cb, cr, cm, cs = (z[rows, top] for z in (a, b, rho, mm, sg))
     x = k[:, None] - cm[gid]
@@ -520,7 +520,7 @@ def fit_smiles(k, total_var, t, group, *, vega=None, spread=None, weights=None,
         sl = slice(bounds[i], bounds[i + 1])
         try:
             results[i] = fit_smile(
-                k[sl], w[sl], None if weights_a is None else weights_a[sl], t[i],
+                k[sl], w[sl], None if weights_a is None else weights_a[sl], float(t[i]),
                 vega=None if vega_a is None else vega_a[sl], spread=None if spread_a is None else spread_a[sl],
                 arbitrage_refit=arbitrage_refit, outlier_check=outlier_check)
         except ChainTriageError as exc:
