@@ -16,9 +16,17 @@ quotes of all expiries sit in one flat array grouped by expiry, and
   expiries at once.
 
 An expiry that needs one of the rarer branches - fewer than 5 usable quotes,
-a non-finite or rejected fit (flat fallback), a rejected outlier re-fit, or
-butterfly arbitrage (with its penalised re-fit) - is handed whole to
-``fit_smile``, so those cases behave exactly as the single-expiry fit.
+quotes not in increasing k, a non-finite or rejected fit (flat fallback), a
+failed outlier re-fit, butterfly arbitrage (with its penalised re-fit), or
+a polish still moving after ``MAX_ITER`` steps (an optimum at the edge of
+the box, approached ever more slowly) - is handed whole to ``fit_smile``, so
+those cases behave exactly as the single-expiry fit.
+
+The polish stops only at a stationary point (a near Gauss-Newton step below
+1e-10 of the parameters, or no relative gain above 1e-15), while MINPACK in
+``fit_smile`` stops once the relative gain falls below 1e-13: the weighted
+cost is never higher than the single fit's, and the parameters can differ
+in the last digits where the cost is flat at rounding level.
 
 Units as in ``smile_fit``: k = ln(K/F), total variance w = iv**2 * t
 (dimensionless), t in years, vols decimal.
@@ -76,29 +84,35 @@ def grid_start_batch(k, w, wt, starts) -> np.ndarray:
     """Quasi-explicit start of every expiry: (E, 5) raw SVI (a, b, rho, m, sigma).
 
     ``k``, ``w``, ``wt``: quotes grouped by expiry (``starts``: first row of
-    each group). Same candidates, clipping and choice as
-    ``smile_fit._grid_start`` (the cost of each candidate is computed from
-    per-candidate sums; the best few are re-checked directly).
+    each group). Same 17 x 16 (m, sigma) candidates, linear solve, clipping
+    and choice as ``smile_fit._grid_start``. The sums over quotes that
+    involve R = sqrt((k - m)^2 + sigma^2) are one matrix product per expiry;
+    every other sum comes from moments of k and w. The weighted cost of each
+    candidate is expanded from the same sums (around the weighted mean of w,
+    to limit cancellation) and the best few are re-checked directly, lowest
+    candidate index first on exact ties, as an argmin over direct sums would.
     """
     starts = np.asarray(starts)
     n_exp = starts.size
     ends = np.append(starts[1:], k.size)
+    gid = np.repeat(np.arange(n_exp), ends - starts)
     kmin, kmax = _segmin(k, starts), _segmax(k, starts)
     span = np.maximum(kmax - kmin, 1e-3)
-    lo_m = kmin - 0.25 * span
-    hi_m = kmax + 0.25 * span
-    ms = np.linspace(lo_m, hi_m, 17, axis=1)  # (E, 17)
+    ms = np.linspace(kmin - 0.25 * span, kmax + 0.25 * span, 17, axis=1)  # (E, 17)
     ss = span[:, None] * np.geomspace(0.01, 2.0, 16)[None, :]  # (E, 16)
     n_grid = 17 * 16
     mm = np.repeat(ms, 16, axis=1)  # (E, G), m-major as meshgrid(indexing='ij').ravel()
     sg = np.tile(ss, (1, 17))
-    # per-candidate sums over quotes involving R = sqrt((k - m)^2 + sigma^2) = sigma * root
+    s0 = _segsum(wt, starts)[:, None]
+    wbar = _segsum(wt * w, starts)[:, None] / s0
+    wc = w - wbar[gid, 0]  # w about its weighted mean
+    # per-candidate sums over quotes of wt R, wt k R and wt wc R
     s_r = np.empty((n_exp, n_grid))
     s_kr = np.empty((n_exp, n_grid))
-    s_wr = np.empty((n_exp, n_grid))
+    s_wcr = np.empty((n_exp, n_grid))
     buf = np.empty(n_grid * int((ends - starts).max()))
     ss2 = ss * ss
-    vecs = np.stack([wt, wt * k, wt * w], axis=1)
+    vecs = np.stack([wt, wt * k, wt * wc], axis=1)
     for e in range(n_exp):
         sl = slice(starts[e], ends[e])
         ke = k[sl]
@@ -108,19 +122,15 @@ def grid_start_batch(k, w, wt, starts) -> np.ndarray:
         np.add(x[:, None, :], ss2[e][None, :, None], out=big)
         np.sqrt(big, out=big)
         sums = big.reshape(n_grid, ke.size) @ vecs[sl]
-        s_r[e], s_kr[e], s_wr[e] = sums[:, 0], sums[:, 1], sums[:, 2]
-    s0 = _segsum(wt, starts)[:, None]
+        s_r[e], s_kr[e], s_wcr[e] = sums[:, 0], sums[:, 1], sums[:, 2]
     s_k = _segsum(wt * k, starts)[:, None]
     s_kk = _segsum(wt * k * k, starts)[:, None]
     s_w = _segsum(wt * w, starts)[:, None]
     s_kw = _segsum(wt * k * w, starts)[:, None]
-    # the cost below is expanded around the weighted mean of w (less cancellation)
-    gid = np.repeat(np.arange(n_exp), ends - starts)
-    wbar = s_w / s0
-    wc = w - wbar[gid, 0]
     s_wc = _segsum(wt * wc, starts)[:, None]
     s_kwc = _segsum(wt * k * wc, starts)[:, None]
     s_wcwc = _segsum(wt * wc * wc, starts)[:, None]
+    s_wr = s_wcr + wbar * s_r  # sum wt w R
     # sums over y = (k - m)/sigma and root = R/sigma, as in smile_fit._grid_start
     sxm = s_k - mm * s0  # sum wt (k - m)
     sxx = s_kk - 2.0 * mm * s_k + mm * mm * s0  # sum wt (k - m)^2
@@ -155,7 +165,7 @@ def grid_start_batch(k, w, wt, starts) -> np.ndarray:
     # sse = sum wt (a + b shape - w)^2 = sum wt (ac + b shape - wc)^2 with ac = a - wbar, wc = w - wbar
     ac = a - wbar
     s_sh2 = rho * rho * sxx + 2.0 * rho * sxr + sxx + sg * sg * s0
-    s_wsh = rho * (s_kwc - mm * s_wc) + (s_wr - wbar * s_r)
+    s_wsh = rho * (s_kwc - mm * s_wc) + s_wcr
     sse = (ac * ac * s0 + b * b * s_sh2 + s_wcwc + 2.0 * ac * b * s_shape - 2.0 * ac * s_wc - 2.0 * b * s_wsh)
     sse = np.where(np.isfinite(sse), sse, np.inf)
     # re-check the best few directly, in candidate order, so ties and rounding resolve as a direct sum would
