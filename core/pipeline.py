@@ -4,8 +4,15 @@ Per expiry (DESIGN.md, "Computation, per expiry"): time to settlement,
 parity forward and discount factor, implied vols, a fitted smile, then per
 contract the sigma distance, finish-beyond probabilities (smile and flat),
 touch probability, delta, breakeven and its probability, spread and flags;
-per expiry the ranges at a chosen confidence. Work is vectorised over all
-contracts; the only Python loop is over expiries (tens, not thousands).
+per expiry the ranges at a chosen confidence.
+
+The expiries are computed together, not one after another: rows are sorted
+once by expiry, strike and kind, so each expiry is a run of rows and calls
+and puts line up per (expiry, strike); the parity forwards
+(``implied_forwards``), the smile fits (``smile_batch.fit_smiles``) and the
+smile ranges (``range_smile_rows``) take all expiries in one call, and the
+per-contract figures use each row's own expiry smile (``svi.SviSlices``).
+Python loops over expiries only assemble findings and result objects.
 """
 
 from __future__ import annotations
