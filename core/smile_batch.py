@@ -55,6 +55,8 @@ from .svi import SviParams
 
 #: Levenberg-Marquardt iterations after which an expiry still moving is handed to fit_smile.
 MAX_ITER = 100
+#: Quotes per block in the grid start's per-candidate sums.
+_CHUNK = 512
 #: Candidates of the grid start whose cost is recomputed directly (guards the expanded sums).
 _RERANK = 4
 
@@ -110,18 +112,20 @@ def grid_start_batch(k, w, wt, starts) -> np.ndarray:
     s_r = np.empty((n_exp, n_grid))
     s_kr = np.empty((n_exp, n_grid))
     s_wcr = np.empty((n_exp, n_grid))
-    buf = np.empty(n_grid * int((ends - starts).max()))
+    buf = np.empty(n_grid * min(int((ends - starts).max()), _CHUNK))
     ss2 = ss * ss
     vecs = np.stack([wt, wt * k, wt * wc], axis=1)
     for e in range(n_exp):
-        sl = slice(starts[e], ends[e])
-        ke = k[sl]
-        x = ke[None, :] - ms[e][:, None]  # (17, n)
-        x *= x
-        big = buf[: n_grid * ke.size].reshape(17, 16, ke.size)
-        np.add(x[:, None, :], ss2[e][None, :, None], out=big)
-        np.sqrt(big, out=big)
-        sums = big.reshape(n_grid, ke.size) @ vecs[sl]
+        sums = np.zeros((n_grid, 3))
+        for lo in range(starts[e], ends[e], _CHUNK):  # blocks of quotes keep the work in cache
+            sl = slice(lo, min(lo + _CHUNK, ends[e]))
+            ke = k[sl]
+            x = ke[None, :] - ms[e][:, None]  # (17, n)
+            x *= x
+            big = buf[: n_grid * ke.size].reshape(17, 16, ke.size)
+            np.add(x[:, None, :], ss2[e][None, :, None], out=big)
+            np.sqrt(big, out=big)
+            sums += big.reshape(n_grid, ke.size) @ vecs[sl]
         s_r[e], s_kr[e], s_wcr[e] = sums[:, 0], sums[:, 1], sums[:, 2]
     s_k = _segsum(wt * k, starts)[:, None]
     s_kk = _segsum(wt * k * k, starts)[:, None]
