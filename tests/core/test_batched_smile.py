@@ -265,3 +265,32 @@ def test_polish_stops_at_a_stationary_point():
 
     more = least_squares(res, u0, method="lm", ftol=1e-15, xtol=1e-15, gtol=1e-15)
     assert 2.0 * more.cost == pytest.approx(float(np.sum(res(u0) ** 2)), rel=1e-13)
+
+
+def test_given_weights_and_switches_are_passed_through():
+    # [D] explicit weights, no outlier pass, no arbitrage re-fit: still the single fit's kind of result
+    rng = np.random.default_rng(5)
+    slices = [random_slice(rng) for _ in range(12)]
+    k_v = np.linspace(-1.5, 1.5, 40)
+    slices.append((k_v, svi.total_variance(VOGT, k_v), 1.0, None, None))
+    k = np.concatenate([s[0] for s in slices])
+    w = np.concatenate([s[1] for s in slices])
+    t = np.array([s[2] for s in slices])
+    group = np.concatenate([np.full(s[0].size, i) for i, s in enumerate(slices)])
+    weights = np.where(w > 0, 1.0 / np.where(w > 0, w, 1.0), 0.0)  # equal weight per relative w error
+    got = fit_smiles(k, w, t, group, weights=weights, outlier_check=False, arbitrage_refit=False)
+    for i, (kk, ww, tt, _, _) in enumerate(slices):
+        s = group == i
+        try:
+            ref = fit_smile(kk, ww, weights[s], tt, outlier_check=False, arbitrage_refit=False)
+        except ChainTriageError as exc:
+            assert isinstance(got[i], ChainTriageError) and str(got[i]) == str(exc)
+            continue
+        assert (got[i].method, got[i].arbitrage_free, got[i].penalised, got[i].left_out_k) == (
+            ref.method, ref.arbitrage_free, ref.penalised, ref.left_out_k)
+        ok = np.isfinite(kk) & (ww > 0)
+        wt = weights[s][ok] / weights[s][ok].mean()
+        cost = [float(np.sum(wt * (sm.total_variance(kk[ok]) - ww[ok]) ** 2)) for sm in (got[i], ref)]
+        assert cost[0] <= cost[1] * (1.0 + 1e-12)
+    assert got[-1].arbitrage_free is False and not got[-1].penalised  # Vogt slice kept as fitted [V]
+    assert got[-1].min_g == pytest.approx(-0.032864, abs=1e-6)
