@@ -196,6 +196,63 @@ def range_smile(smile, forward, confidence):
     return q[0], q[1]
 
 
+def quantile_rows(smiles, forward, p, tol: float = 1e-13):
+    """:func:`quantile` for many smiles at once: one row per smile, shape (E, len(p)).
+
+    ``smiles`` evaluates every row's smile at once: its methods broadcast
+    parameters of shape (E, 1) against k of shape (E, m) (e.g. an
+    ``svi.SviSlices`` taken with ``[:, None]``). ``forward``: (E,) price
+    units; ``p``: 1-d levels in (0, 1), NaN outside. Each row takes exactly
+    the bracket and bisection steps :func:`quantile` takes for that smile on
+    its own; a row with a forward that is not a positive number is NaN.
+    """
+    forward = np.atleast_1d(np.asarray(forward, dtype=float))
+    p = np.atleast_1d(np.asarray(p, dtype=float))
+    out = np.full((forward.size, p.size), np.nan)
+    valid = np.isfinite(p) & (p > 0) & (p < 1)
+    if not np.any(valid) or forward.size == 0:
+        return out
+    pv = p[valid][None, :]
+    lo_target, hi_target = float(pv.min()), float(pv.max())
+    max_abs_k = 60.0
+    w0 = np.asarray(smiles.total_variance(np.zeros((forward.size, 1))), dtype=float)[:, 0]
+    with np.errstate(invalid="ignore"):
+        step = np.where(np.isfinite(w0) & (w0 > 0), 8.0 * np.sqrt(np.where(w0 > 0, w0, 1.0)), 1.0)
+    k_lo, k_hi = -step, step
+    while True:  # as _k_bracket: double outwards until the CDF brackets the levels (or the cap)
+        with np.errstate(invalid="ignore"):
+            need_lo = (k_lo > -max_abs_k) & ~(1.0 - _prob_above_k(smiles, k_lo[:, None])[:, 0] <= lo_target)
+            need_hi = (k_hi < max_abs_k) & ~(1.0 - _prob_above_k(smiles, k_hi[:, None])[:, 0] >= hi_target)
+        if not (need_lo.any() or need_hi.any()):
+            break
+        k_lo = np.where(need_lo, np.maximum(2.0 * k_lo, -max_abs_k), k_lo)
+        k_hi = np.where(need_hi, np.minimum(2.0 * k_hi, max_abs_k), k_hi)
+    lo = np.repeat(k_lo[:, None], pv.shape[1], axis=1)
+    hi = np.repeat(k_hi[:, None], pv.shape[1], axis=1)
+    active = np.ones(forward.size, dtype=bool)
+    for _ in range(200):
+        mid = 0.5 * (lo + hi)
+        below = (1.0 - np.clip(_prob_above_k(smiles, mid), 0.0, 1.0)) < pv
+        upd = active[:, None]
+        lo = np.where(upd & below, mid, lo)
+        hi = np.where(upd & ~below, mid, hi)
+        active &= ~(np.max(hi - lo, axis=1) < tol)
+        if not active.any():
+            break
+    ok = np.isfinite(forward) & (forward > 0)
+    with np.errstate(invalid="ignore"):
+        out[:, valid] = np.where(ok[:, None], forward[:, None] * np.exp(0.5 * (lo + hi)), np.nan)
+    return out
+
+
+def range_smile_rows(smiles, forward, confidence):
+    """:func:`range_smile` for many smiles at once: (low, high), each (E,), as :func:`quantile_rows`."""
+    c = float(confidence)
+    c = c if 0.0 < c < 1.0 else float("nan")
+    q = quantile_rows(smiles, forward, np.array([0.5 * (1.0 - c), 0.5 * (1.0 + c)]))
+    return q[:, 0], q[:, 1]
+
+
 @dataclass(frozen=True)
 class Distribution:
     """One expiry's terminal distribution on a strike grid.

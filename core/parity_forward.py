@@ -325,3 +325,142 @@ def _single(k, y, spot, t, rate, div_yield) -> ForwardEstimate:
         residual_rms=0.0, rate_implied=float(-np.log(df) / t), reason=reason,
         findings=(Finding(sev, f"parity forward: {reason}"),),
     )
+
+
+def implied_forwards(
+    group, strikes, call_bid, call_ask, put_bid, put_ask, *,
+    spot: float, t, rate=None, div_yield=None, max_strikes: int = 8,
+) -> list[ForwardEstimate]:
+    """:func:`implied_forward` for many expiries at once; same results, one per expiry.
+
+    Rows are (expiry, strike) pairs: ``group`` is the expiry index of each row
+    (0..E-1, non-decreasing), strikes ascending within an expiry; quotes
+    aligned per row as for :func:`implied_forward` (price units, NaN where a
+    side is missing). ``t`` (years), ``rate`` and ``div_yield`` (per year,
+    NaN when not known) are arrays of length E. The common case - at least
+    three near-the-money strikes, none set aside, a plausible discount factor
+    and forward - is solved for all expiries together; every other expiry
+    goes through :func:`implied_forward` itself.
+    """
+    group = np.asarray(group, dtype=np.int64)
+    k_all = np.asarray(strikes, dtype=float)
+    cb, ca, pb, pa = (np.asarray(x, dtype=float) for x in (call_bid, call_ask, put_bid, put_ask))
+    t = np.atleast_1d(np.asarray(t, dtype=float))
+    n_exp = t.size
+    rate = np.full(n_exp, np.nan) if rate is None else np.broadcast_to(np.asarray(rate, dtype=float), (n_exp,))
+    div_yield = (np.full(n_exp, np.nan) if div_yield is None
+                 else np.broadcast_to(np.asarray(div_yield, dtype=float), (n_exp,)))
+    spot = float(spot)
+    m = int(max_strikes)
+    if group.size and (np.any(np.diff(group) < 0) or group[0] < 0 or group[-1] >= n_exp):
+        raise ChainTriageError("implied_forwards: rows must be grouped by expiry index 0..E-1 in order")
+    bounds = np.searchsorted(group, np.arange(n_exp + 1))
+
+    def one(i: int) -> ForwardEstimate:
+        sl = slice(bounds[i], bounds[i + 1])
+        return implied_forward(k_all[sl], cb[sl], ca[sl], pb[sl], pa[sl], spot=spot, t=t[i],
+                               rate=rate[i], div_yield=div_yield[i], max_strikes=max_strikes)
+
+    if np.isfinite(spot) and spot > 0 and m >= 2 and group.size:
+        fast_out = _parity_fast_path(group, k_all, cb, ca, pb, pa, spot, t, m, n_exp)
+    else:
+        fast_out = None
+    out: list[ForwardEstimate] = []
+    for i in range(n_exp):
+        if fast_out is not None and fast_out[0][i]:
+            fwd, df, n_used, rms = (x[i] for x in fast_out[1:])
+            out.append(ForwardEstimate(
+                forward=float(fwd), discount=float(df), method="parity", strikes_used=int(n_used),
+                residual_rms=float(rms), rate_implied=float(-np.log(df) / t[i]),
+            ))
+        else:
+            out.append(one(i))
+    return out
+
+
+def _nanmedian_last(x: np.ndarray) -> np.ndarray:
+    """Median over the last axis ignoring NaN, as np.nanmedian (NaN where a row has no number)."""
+    xs = np.sort(x, axis=-1)  # NaN sort last
+    count = np.sum(~np.isnan(x), axis=-1)
+    lo = np.take_along_axis(xs, np.maximum((count - 1) // 2, 0)[..., None], axis=-1)[..., 0]
+    hi = np.take_along_axis(xs, np.maximum(count // 2, 0)[..., None], axis=-1)[..., 0]
+    with np.errstate(invalid="ignore"):
+        return np.where(count > 0, 0.5 * (lo + hi), np.nan)
+
+
+def _parity_fast_path(group, k, cb, ca, pb, pa, spot, t, m, n_exp):
+    """Vectorised clean case of implied_forward. Returns (ok, forward, df, strikes_used, residual_rms) per expiry."""
+    with np.errstate(invalid="ignore"):
+        usable = (
+            np.isfinite(k) & (k > 0)
+            & np.isfinite(cb) & np.isfinite(ca) & np.isfinite(pb) & np.isfinite(pa)
+            & (cb > 0) & (ca > 0) & (pb > 0) & (pa > 0) & (ca >= cb) & (pa >= pb)
+        )
+    idx = np.flatnonzero(usable)
+    g = group[idx]
+    cnt = np.bincount(g, minlength=n_exp)
+    first = np.concatenate([[0], np.cumsum(cnt)[:-1]])
+    pos = np.arange(idx.size) - first[g]
+    width = max(int(cnt.max()) if cnt.size else 0, 1)
+    kk = np.full((n_exp, width), np.nan)
+    yy = np.full((n_exp, width), np.nan)
+    sp = np.full((n_exp, width), np.nan)
+    kk[g, pos] = k[idx]
+    yy[g, pos] = 0.5 * (cb[idx] + ca[idx]) - 0.5 * (pb[idx] + pa[idx])
+    sp[g, pos] = (ca[idx] - cb[idx]) + (pa[idx] - pb[idx])
+    rows = np.arange(n_exp)
+    # strictly ascending strikes within each expiry (else the per-expiry path decides)
+    ascending = ~np.any(np.diff(kk, axis=1) <= 0, axis=1)
+    # near the money: the m closest strikes to the one with the smallest |C - P| (stable order)
+    j0 = np.argmin(np.where(np.isfinite(yy), np.abs(yy), np.inf), axis=1)
+    k0 = kk[rows, j0]
+    cand = j0[:, None] + np.arange(-m, m + 1)[None, :]
+    cand_ok = (cand >= 0) & (cand < cnt[:, None])
+    cand_c = np.clip(cand, 0, width - 1)
+    dist = np.where(cand_ok, np.abs(kk[rows[:, None], cand_c] - k0[:, None]), np.inf)
+    order = np.argsort(dist, axis=1, kind="stable")[:, :m]
+    win = cand_c[rows[:, None], order]
+    n_w = np.minimum(cnt, m)
+    valid = np.arange(m)[None, :] < n_w[:, None]
+    kw = np.where(valid, kk[rows[:, None], win], np.nan)
+    yw = np.where(valid, yy[rows[:, None], win], np.nan)
+    sw_ = np.where(valid, sp[rows[:, None], win], np.nan)
+
+    with np.errstate(invalid="ignore", divide="ignore"):
+        med_pos = _nanmedian_last(np.where(sw_ > 0, sw_, np.nan))
+        floor = np.where(np.isfinite(med_pos), 0.25 * med_pos, 0.0)
+        floor = np.maximum(floor, 1e-8 * spot)
+        spread = np.maximum(sw_, floor[:, None])
+        half = 0.5 * spread
+        w = 1.0 / spread ** 2
+        # repeated-median (Siegel) start
+        dk = kw[:, None, :] - kw[:, :, None]
+        dy = yw[:, None, :] - yw[:, :, None]
+        slopes = np.where(dk != 0, dy / dk, np.nan)
+        s = _nanmedian_last(_nanmedian_last(slopes))
+        a = _nanmedian_last(yw - s[:, None] * kw)
+        r = yw - (a[:, None] + s[:, None] * kw)
+        scale = 1.4826 * _nanmedian_last(np.abs(r - _nanmedian_last(r)[:, None]))
+        limit = np.maximum(OUTLIER_HALF_SPREADS * half, OUTLIER_SCALES * scale[:, None])
+        excess = np.abs(r) / limit
+        all_in = np.all(~valid | (excess <= 1.0), axis=1) | (n_w < 4)
+        # weighted least squares on every strike of the window
+        wv = np.where(valid, w, 0.0)
+        kv = np.where(valid, kw, 0.0)
+        yv = np.where(valid, yw, 0.0)
+        sw = wv.sum(axis=1)
+        km = (wv * kv).sum(axis=1) / sw
+        ym = (wv * yv).sum(axis=1) / sw
+        dkm = np.where(valid, kv - km[:, None], 0.0)
+        s = (wv * dkm * (yv - ym[:, None])).sum(axis=1) / (wv * dkm ** 2).sum(axis=1)
+        a = ym - s * km
+        df = -s
+        fwd = np.where(df != 0, a / df, np.nan)
+        high = np.maximum(DF_BAND[1], np.exp(-RATE_BAND[0] * t))
+        rate_impl = -np.log(df) / t
+        df_ok = np.isfinite(df) & (df > DF_BAND[0]) & (df <= high) & (rate_impl >= RATE_BAND[0]) & (rate_impl <= RATE_BAND[1])
+        carry_ok = np.isfinite(fwd) & (fwd > 0) & (np.abs(np.log(fwd / spot)) <= np.maximum(CARRY_LIMIT * t, CARRY_FLOOR))
+        resid = np.where(valid, yv - (a[:, None] + s[:, None] * kv), 0.0)
+        rms = np.sqrt((resid ** 2).sum(axis=1) / np.maximum(n_w, 1))
+    ok = ascending & (n_w >= 3) & all_in & df_ok & carry_ok & np.isfinite(t) & (t > 0)
+    return ok, fwd, df, n_w, rms

@@ -4,8 +4,15 @@ Per expiry (DESIGN.md, "Computation, per expiry"): time to settlement,
 parity forward and discount factor, implied vols, a fitted smile, then per
 contract the sigma distance, finish-beyond probabilities (smile and flat),
 touch probability, delta, breakeven and its probability, spread and flags;
-per expiry the ranges at a chosen confidence. Work is vectorised over all
-contracts; the only Python loop is over expiries (tens, not thousands).
+per expiry the ranges at a chosen confidence.
+
+The expiries are computed together, not one after another: rows are sorted
+once by expiry, strike and kind, so each expiry is a run of rows and calls
+and puts line up per (expiry, strike); the parity forwards
+(``implied_forwards``), the smile fits (``smile_batch.fit_smiles``) and the
+smile ranges (``range_smile_rows``) take all expiries in one call, and the
+per-contract figures use each row's own expiry smile (``svi.SviSlices``).
+Python loops over expiries only assemble findings and result objects.
 """
 
 from __future__ import annotations
@@ -21,15 +28,17 @@ from .distribution import (
     prob_above,
     prob_above_flat,
     range_flat,
-    range_smile,
+    range_smile_rows,
     terminal_distribution,
 )
 from .exchange_calendar import ExchangeCalendar
 from .findings import WARNING, ChainTriageError, Finding
 from .implied_vol import implied_vol
-from .parity_forward import ForwardEstimate, implied_forward
-from .smile_fit import Smile, fit_smile
+from .parity_forward import ForwardEstimate, implied_forwards
+from .smile_batch import fit_smiles
+from .smile_fit import Smile
 from .snapshot import Snapshot
+from .svi import SviParams, SviSlices
 from .time_to_expiry import (
     calendar_days_to_expiry,
     convert_vol,
@@ -155,9 +164,30 @@ class AnnotatedSnapshot:
         return f, float(low), float(high)
 
 
-def _first_per_expiry(frame: pd.DataFrame, column: str) -> pd.Series:
-    """First non-missing value of a column per expiry."""
-    return frame.groupby("expiry", sort=True)[column].first()
+_CALENDARS: dict[tuple, ExchangeCalendar] = {}
+
+
+def _calendar(extra_closed) -> ExchangeCalendar:
+    """The exchange calendar for these extra closed dates, kept between runs (its holiday tables are built once)."""
+    try:
+        key = tuple(extra_closed)
+        hash(key)
+    except TypeError:
+        return ExchangeCalendar(extra_closed=extra_closed)
+    cal = _CALENDARS.get(key)
+    if cal is None:
+        if len(_CALENDARS) >= 16:
+            _CALENDARS.clear()
+        cal = _CALENDARS[key] = ExchangeCalendar(extra_closed=extra_closed)
+    return cal
+
+
+def _first_per_expiry(present: np.ndarray, starts: np.ndarray, ends: np.ndarray):
+    """(row of the first present value per expiry group, whether there is one); groups are row ranges."""
+    pos = np.where(present, np.arange(present.size), present.size)
+    first = np.minimum.reduceat(pos, starts) if present.size else np.zeros(0, dtype=np.int64)
+    found = first < ends
+    return np.where(found, first, 0), found
 
 
 def _mids(bid: np.ndarray, ask: np.ndarray) -> np.ndarray:
@@ -167,70 +197,105 @@ def _mids(bid: np.ndarray, ask: np.ndarray) -> np.ndarray:
         return np.where(np.isfinite(ask) & (ask > 0), 0.5 * (bid0 + ask), np.nan)
 
 
+def _sort_order(contracts: pd.DataFrame) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Row order by expiry, strike and kind (stable, as a stable sort_values), with is_call and is_put in that order."""
+    kind = contracts["kind"]
+    is_call = (kind == "call").to_numpy(dtype=bool, na_value=False)
+    is_put = (kind == "put").to_numpy(dtype=bool, na_value=False)
+    if np.all(is_call | is_put):
+        kind_key = is_put  # 'call' sorts before 'put'
+    else:
+        kind_key = pd.factorize(kind, sort=True, use_na_sentinel=False)[0]
+    order = np.lexsort((kind_key, contracts["strike"].to_numpy(float), contracts["expiry"].to_numpy()))
+    return order, is_call[order], is_put[order]
+
+
+def _text_per_expiry(column: pd.Series, order: np.ndarray, starts: np.ndarray, ends: np.ndarray, default: str):
+    """First non-missing value of a text column per expiry group (rows in ``order``), else ``default``."""
+    present = ~column.isna().to_numpy(dtype=bool)[order]
+    first, found = _first_per_expiry(present, starts, ends)
+    values = column.array.take(order[first]).to_numpy(dtype=object) if found.size else np.zeros(0, dtype=object)
+    return np.where(found, values, default).astype(object)
+
+
 def annotate(snapshot: Snapshot, settings: PipelineSettings | None = None) -> AnnotatedSnapshot:
     """Run the whole per-expiry pipeline over a snapshot."""
     settings = settings or PipelineSettings()
-    calendar = ExchangeCalendar(extra_closed=settings.extra_closed)
-    df = snapshot.contracts.sort_values(["expiry", "strike", "kind"], kind="stable").reset_index(drop=True)
+    calendar = _calendar(settings.extra_closed)
+    contracts = snapshot.contracts
+    order, is_call, is_put = _sort_order(contracts)
     findings: list[Finding] = []
     underlying = snapshot.underlying
+    n = order.size
 
-    strike = df["strike"].to_numpy(float)
-    is_call = (df["kind"] == "call").to_numpy()
-    bid = df["bid"].to_numpy(float)
-    ask = df["ask"].to_numpy(float)
+    def numeric(name: str) -> np.ndarray:
+        return contracts[name].to_numpy(float)[order]
+
+    strike = numeric("strike")
+    bid = numeric("bid")
+    ask = numeric("ask")
     mid = _mids(bid, ask)
 
+    # Expiry groups: rows are sorted by expiry, so each expiry is one run of rows.
+    exp_values = contracts["expiry"].to_numpy()[order]
+    new_exp = np.ones(n, dtype=bool)
+    new_exp[1:] = exp_values[1:] != exp_values[:-1]
+    starts = np.flatnonzero(new_exp)
+    exp_code = np.cumsum(new_exp) - 1
+    expiries = pd.DatetimeIndex(exp_values[starts])
+    n_exp = len(expiries)
+    ends = np.append(starts[1:], n)
+
     # 1. Time to settlement per expiry.
-    expiries = pd.DatetimeIndex(sorted(df["expiry"].unique()))
-    settle = _first_per_expiry(df, "settle").reindex(expiries).fillna("pm").to_numpy()
+    settle = _text_per_expiry(contracts["settle"], order, starts, ends, "pm")
     t_exp = np.asarray(year_fraction(snapshot.as_of, expiries, settle, basis=settings.basis, calendar=calendar), float)
     trading_days = np.asarray(trading_days_to_expiry(snapshot.as_of, expiries, calendar=calendar))
     calendar_days = np.asarray(calendar_days_to_expiry(snapshot.as_of, expiries))
-    rates = _first_per_expiry(df, "rate").reindex(expiries).to_numpy(float)
-    divs = _first_per_expiry(df, "div_yield").reindex(expiries).to_numpy(float)
+    rates = np.full(n_exp, np.nan)
+    divs = np.full(n_exp, np.nan)
+    for values, per_expiry in ((numeric("rate"), rates), (numeric("div_yield"), divs)):
+        first, found = _first_per_expiry(~np.isnan(values), starts, ends)
+        per_expiry[found] = values[first[found]]
 
-    exp_code = pd.Categorical(df["expiry"], categories=expiries).codes
     t_row = t_exp[exp_code]
+    labels = [f"{expiry:%Y-%m-%d}" for expiry in expiries]
 
-    # 2. Forward and discount factor per expiry from put-call parity.
-    forwards = np.full(len(expiries), np.nan)
-    discounts = np.full(len(expiries), np.nan)
-    estimates: list[ForwardEstimate] = []
+    # 2. Forward and discount factor per expiry from put-call parity: one row per (expiry, strike).
+    new_pair = new_exp.copy()
+    new_pair[1:] |= strike[1:] != strike[:-1]
+    pair = np.cumsum(new_pair) - 1
+    n_pairs = int(new_pair.sum())
+    quotes = {}
+    for side, mask in (("call", is_call), ("put", is_put)):
+        for name, values in (("bid", bid), ("ask", ask)):
+            arr = np.full(n_pairs, np.nan)
+            arr[pair[mask]] = values[mask]
+            quotes[side, name] = arr
+    estimates = implied_forwards(
+        exp_code[new_pair], strike[new_pair], quotes["call", "bid"], quotes["call", "ask"],
+        quotes["put", "bid"], quotes["put", "ask"], spot=snapshot.spot, t=np.maximum(t_exp, 1e-12),
+        rate=rates, div_yield=divs,
+    )
+    forwards = np.array([e.forward for e in estimates], dtype=float)
+    discounts = np.array([e.discount for e in estimates], dtype=float)
     expiry_findings: list[list[Finding]] = [[] for _ in expiries]
-    for i, expiry in enumerate(expiries):
-        sel = exp_code == i
-        sub = df.loc[sel, ["strike", "kind", "bid", "ask"]]
-        calls = sub[sub["kind"] == "call"].set_index("strike")
-        puts = sub[sub["kind"] == "put"].set_index("strike")
-        ks = np.union1d(calls.index.to_numpy(float), puts.index.to_numpy(float))
-        c = calls.reindex(ks)
-        p = puts.reindex(ks)
-        est = implied_forward(
-            ks, c["bid"].to_numpy(float), c["ask"].to_numpy(float),
-            p["bid"].to_numpy(float), p["ask"].to_numpy(float),
-            spot=snapshot.spot, t=max(t_exp[i], 1e-12),
-            rate=None if np.isnan(rates[i]) else float(rates[i]),
-            div_yield=None if np.isnan(divs[i]) else float(divs[i]),
-        )
-        estimates.append(est)
-        forwards[i] = est.forward
-        discounts[i] = est.discount
+    for i, est in enumerate(estimates):
         for fnd in est.findings:
             expiry_findings[i].append(Finding(fnd.severity, f"forward: {fnd.reason}", underlying=underlying,
-                                              expiry=f"{expiry:%Y-%m-%d}"))
+                                              expiry=labels[i]))
         if not t_exp[i] > 0:
             expiry_findings[i].append(Finding(WARNING, "expiry has no time left at the snapshot time; "
                                               "no vols or probabilities", underlying=underlying,
-                                              expiry=f"{expiry:%Y-%m-%d}"))
+                                              expiry=labels[i]))
 
     f_row = forwards[exp_code]
     df_row = discounts[exp_code]
 
     # 3. Implied vols, all contracts at once.
     if settings.use_file_iv:
-        file_iv = df["iv"].to_numpy(float)
-        basis = df["iv_basis"].replace("", settings.basis).to_numpy()
+        file_iv = numeric("iv")
+        iv_basis = contracts["iv_basis"].to_numpy(dtype=object)[order]
+        basis = np.where(iv_basis == "", settings.basis, iv_basis)
         iv = file_iv.copy()
         for other in ("252", "250", "365"):
             if other == settings.basis:
@@ -240,16 +305,59 @@ def annotate(snapshot: Snapshot, settings: PipelineSettings | None = None) -> An
                 t_other = np.asarray(year_fraction(snapshot.as_of, expiries, settle, basis=other, calendar=calendar), float)
                 with np.errstate(divide="ignore", invalid="ignore"):
                     iv[m] = convert_vol(file_iv[m], t_other[exp_code][m], t_row[m])
-        iv_status_ok = np.isfinite(iv)
     else:
-        result = implied_vol(mid, f_row, strike, t_row, df_row, is_call)
-        iv = result.sigma
-        iv_status_ok = np.isfinite(iv)
+        iv = implied_vol(mid, f_row, strike, t_row, df_row, is_call).sigma
+    iv_status_ok = np.isfinite(iv)
 
-    # 4-5. Smile per expiry, then per-contract figures.
+    # 4. One smile per expiry, all expiries fitted together.
     k_row = np.log(strike / f_row)
     otm = np.where(is_call, strike >= f_row, strike < f_row)
-    n = len(df)
+    live = t_exp > 0
+    fit_sel = np.flatnonzero(otm & iv_status_ok & live[exp_code])
+    has_quotes = np.bincount(exp_code[fit_sel], minlength=n_exp) > 0
+    smiles: list = [None] * n_exp
+    if fit_sel.size:
+        tf = t_row[fit_sel]
+        vega = black76.vega(f_row[fit_sel], strike[fit_sel], iv[fit_sel], tf, df_row[fit_sel])
+        spread = ask[fit_sel] - np.where(np.isfinite(bid[fit_sel]), bid[fit_sel], 0.0)
+        fitted = fit_smiles(k_row[fit_sel], iv[fit_sel] ** 2 * tf, t_exp,
+                            exp_code[fit_sel], vega=vega, spread=spread)
+        smiles = [fitted[i] if has_quotes[i] else None for i in range(n_exp)]
+
+    atm_ivs = np.full(n_exp, np.nan)
+    fit_rmse = np.full(n_exp, np.nan)
+    fit_method = np.full(n_exp, "", dtype=object)
+    arb_free = np.zeros(n_exp, dtype=bool)
+    params = np.full((n_exp, 5), np.nan)
+    have_smile = np.zeros(n_exp, dtype=bool)
+    for i in range(n_exp):
+        smile = None
+        if live[i]:
+            got = smiles[i]
+            if isinstance(got, ChainTriageError):
+                expiry_findings[i].append(Finding(WARNING, f"no smile for this expiry: {got}",
+                                                  underlying=underlying, expiry=labels[i]))
+            elif got is None:
+                expiry_findings[i].append(Finding(WARNING, "no out-of-the-money quote with an implied vol; "
+                                                  "no smile for this expiry", underlying=underlying,
+                                                  expiry=labels[i]))
+            else:
+                smile = got
+        if smile is not None:
+            expiry_findings[i].extend(smile.findings(underlying, labels[i]))
+            params[i] = smile.params.as_tuple()
+            have_smile[i] = True
+            fit_rmse[i] = smile.rmse_vol
+            fit_method[i] = smile.method
+            arb_free[i] = bool(smile.arbitrage_free)
+    slices = SviSlices(SviParams(*params.T))
+    atm_ivs[have_smile] = _atm_vols(slices, t_exp)[have_smile]
+    results: dict[pd.Timestamp, ExpiryResult] = {}
+    for i, expiry in enumerate(expiries):
+        results[expiry] = ExpiryResult(expiry, float(t_exp[i]), estimates[i], smiles[i] if have_smile[i] else None,
+                                       atm_ivs[i], expiry_findings[i])
+
+    # 5. Per-contract figures from each row's own expiry smile, all rows at once.
     sigma_distance = np.full(n, np.nan)
     p_above = np.full(n, np.nan)
     p_above_flat = np.full(n, np.nan)
@@ -257,54 +365,29 @@ def annotate(snapshot: Snapshot, settings: PipelineSettings | None = None) -> An
     smile_vol = np.full(n, np.nan)
     p_above_be = np.full(n, np.nan)
     breakeven = np.where(is_call, strike + mid, strike - mid)
-    atm_ivs = np.full(len(expiries), np.nan)
-    results: dict[pd.Timestamp, ExpiryResult] = {}
-    ranges = np.full((len(expiries), 4), np.nan)
-    fit_rmse = np.full(len(expiries), np.nan)
-    fit_method = np.full(len(expiries), "", dtype=object)
-    arb_free = np.zeros(len(expiries), dtype=bool)
-
-    for i, expiry in enumerate(expiries):
-        t = t_exp[i]
-        exp_label = f"{expiry:%Y-%m-%d}"
-        sel = np.flatnonzero(exp_code == i)
-        smile = None
-        if t > 0:
-            fit_sel = sel[otm[sel] & iv_status_ok[sel]]
-            if fit_sel.size:
-                vega = black76.vega(f_row[fit_sel], strike[fit_sel], iv[fit_sel], t, df_row[fit_sel])
-                spread = ask[fit_sel] - np.where(np.isfinite(bid[fit_sel]), bid[fit_sel], 0.0)
-                try:
-                    smile = fit_smile(k_row[fit_sel], iv[fit_sel] ** 2 * t, t=t, vega=vega, spread=spread)
-                except ChainTriageError as exc:
-                    expiry_findings[i].append(Finding(WARNING, f"no smile for this expiry: {exc}",
-                                                      underlying=underlying, expiry=exp_label))
-            else:
-                expiry_findings[i].append(Finding(WARNING, "no out-of-the-money quote with an implied vol; "
-                                                  "no smile for this expiry", underlying=underlying, expiry=exp_label))
-        if smile is not None:
-            expiry_findings[i].extend(smile.findings(underlying, exp_label))
-            atm = float(smile.atm_vol())
-            atm_ivs[i] = atm
-            F = forwards[i]
-            ks = strike[sel]
-            sqrt_t = np.sqrt(t)
-            sigma_distance[sel] = k_row[sel] / (atm * sqrt_t)
-            p_above[sel] = prob_above(smile, F, ks)
-            p_above_flat[sel] = prob_above_flat(F, ks, atm, t)
-            smile_vol[sel] = smile.vol(k_row[sel])
-            be = breakeven[sel]
-            with np.errstate(invalid="ignore", divide="ignore"):
-                ok = np.isfinite(be) & (be > 0)
-            pa_be = np.full(sel.size, np.nan)
-            pa_be[ok] = prob_above(smile, F, be[ok])
-            p_above_be[sel] = pa_be
-            ranges[i, 0:2] = range_flat(F, atm, t, settings.confidence)
-            ranges[i, 2:4] = range_smile(smile, F, settings.confidence)
-            fit_rmse[i] = smile.rmse_vol
-            fit_method[i] = smile.method
-            arb_free[i] = bool(smile.arbitrage_free)
-        results[expiry] = ExpiryResult(expiry, float(t), estimates[i], smile, atm_ivs[i], expiry_findings[i])
+    ranges = np.full((n_exp, 4), np.nan)
+    rows = np.flatnonzero(have_smile[exp_code])
+    if rows.size:
+        row_smiles = slices.take(exp_code[rows])
+        atm_row = atm_ivs[exp_code[rows]]
+        t_r = t_row[rows]
+        f_r = f_row[rows]
+        sigma_distance[rows] = k_row[rows] / (atm_row * np.sqrt(t_r))
+        p_above[rows] = prob_above(row_smiles, f_r, strike[rows])
+        p_above_flat[rows] = prob_above_flat(f_r, strike[rows], atm_row, t_r)
+        w_r = np.asarray(row_smiles.total_variance(k_row[rows]), dtype=float)
+        with np.errstate(invalid="ignore"):
+            smile_vol[rows] = np.sqrt(np.where(w_r > 0, w_r, np.nan) / t_r)
+        be = breakeven[rows]
+        with np.errstate(invalid="ignore", divide="ignore"):
+            ok = np.isfinite(be) & (be > 0)
+        pa_be = np.full(rows.size, np.nan)
+        pa_be[ok] = prob_above(row_smiles.take(ok), f_r[ok], be[ok])
+        p_above_be[rows] = pa_be
+        e_ok = np.flatnonzero(have_smile)
+        ranges[e_ok, 0], ranges[e_ok, 1] = range_flat(forwards[e_ok], atm_ivs[e_ok], t_exp[e_ok], settings.confidence)
+        ranges[e_ok, 2], ranges[e_ok, 3] = range_smile_rows(slices.take((e_ok, None)), forwards[e_ok],
+                                                            settings.confidence)
 
     p_beyond = np.where(is_call, p_above, 1.0 - p_above)
     p_beyond_flat = np.where(is_call, p_above_flat, 1.0 - p_above_flat)
@@ -325,13 +408,14 @@ def annotate(snapshot: Snapshot, settings: PipelineSettings | None = None) -> An
         delta = df_row * (f_row / snapshot.spot) * fwd_delta
         spread_pct = np.where(mid > 0, (ask - np.where(np.isfinite(bid), bid, 0.0)) / mid, np.nan)
 
-    flags = _flags(df, bid, iv, spread_pct, settings)
+    open_interest = numeric("open_interest")
+    flags = _flags(open_interest, bid, iv, spread_pct, settings)
 
     out = pd.DataFrame({
         "underlying": underlying,
-        "expiry": df["expiry"],
+        "expiry": contracts["expiry"].take(order).reset_index(drop=True),
         "strike": strike,
-        "kind": df["kind"],
+        "kind": contracts["kind"].take(order).reset_index(drop=True),
         "bid": bid,
         "ask": ask,
         "mid": mid,
@@ -345,13 +429,13 @@ def annotate(snapshot: Snapshot, settings: PipelineSettings | None = None) -> An
         "p_breakeven": p_breakeven,
         "spread_pct": spread_pct,
         "flags": flags,
-        "volume": df["volume"].to_numpy(float),
-        "open_interest": df["open_interest"].to_numpy(float),
+        "volume": numeric("volume"),
+        "open_interest": open_interest,
         "otm": otm,
-        "source_line": df["source_line"].to_numpy(),
+        "source_line": contracts["source_line"].to_numpy()[order],
     })
 
-    counts = np.bincount(exp_code, minlength=len(expiries))
+    counts = ends - starts
     exp_table = pd.DataFrame({
         "underlying": underlying,
         "expiry": expiries,
@@ -377,17 +461,26 @@ def annotate(snapshot: Snapshot, settings: PipelineSettings | None = None) -> An
     return AnnotatedSnapshot(snapshot, settings, out, exp_table, results, findings)
 
 
-def _flags(df: pd.DataFrame, bid: np.ndarray, iv: np.ndarray, spread_pct: np.ndarray,
-           settings: PipelineSettings) -> np.ndarray:
+def _atm_vols(slices: SviSlices, t: np.ndarray) -> np.ndarray:
+    """At-the-money vol per expiry, sqrt(w(0)/t) as Smile.atm_vol (NaN where w(0) <= 0)."""
+    w = np.asarray(slices.total_variance(0.0), dtype=float)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.sqrt(np.where(w > 0, w, np.nan) / t)
+
+
+def _flags(oi: np.ndarray, bid: np.ndarray, iv: np.ndarray, spread_pct: np.ndarray,
+           settings: PipelineSettings):
     """Short plain words per contract, comma-separated: no-iv, zero-bid, wide, thin."""
-    oi = df["open_interest"].to_numpy(float)
-    parts = [
-        (~np.isfinite(iv), "no-iv"),
-        (~(bid > 0), "zero-bid"),
-        (spread_pct > settings.wide_spread, "wide"),
-        (np.isfinite(oi) & (oi < settings.thin_open_interest), "thin"),
-    ]
-    out = np.full(len(df), "", dtype=object)
-    for mask, word in parts:
-        out = np.where(mask, np.where(out == "", word, out + "," + word), out)
-    return out
+    words = ("no-iv", "zero-bid", "wide", "thin")
+    with np.errstate(invalid="ignore"):
+        masks = (
+            ~np.isfinite(iv),
+            ~(bid > 0),
+            spread_pct > settings.wide_spread,
+            np.isfinite(oi) & (oi < settings.thin_open_interest),
+        )
+    code = np.zeros(bid.size, dtype=np.int64)
+    for bit, mask in enumerate(masks):
+        code |= mask.astype(np.int64) << bit
+    table = pd.array([",".join(w for b, w in enumerate(words) if c >> b & 1) for c in range(16)], dtype="str")
+    return table.take(code)

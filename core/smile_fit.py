@@ -415,6 +415,24 @@ def _wild(p: SviParams, k, w, wt, t) -> str:
     return ""
 
 
+def _note_unusable(n_bad: int, n: int) -> str:
+    return f"{n_bad} of {n} quote(s) left out: non-finite k, total variance not positive, or weight not positive."
+
+
+def _note_outliers(k_far, err_far) -> str:
+    desc = ", ".join(f"k = {kk:.4f} (fit minus market {100 * e:+.2f} vol points)" for kk, e in zip(k_far, err_far))
+    return f"{len(k_far)} quote(s) far from the fitted curve left out of the fit: {desc}."
+
+
+def _note_too_many_outliers(nfar: int, thr: float) -> str:
+    return f"{nfar} quote(s) sit more than {100 * thr:.2f} vol points from the fitted curve; too many to leave out, all kept."
+
+
+def _note_summary(k, rmse: float, max_err: float) -> str:
+    return (f"Raw SVI fitted to {k.size} quote(s), k from {k.min():.4f} to {k.max():.4f}; "
+            f"RMSE {100 * rmse:.3f} vol points, largest error {100 * max_err:.3f}.")
+
+
 def fit_smile(k, total_var, weights=None, t=None, *, vega=None, spread=None,
               arbitrage_refit: bool = True, outlier_check: bool = True) -> Smile:
     """Fit raw SVI to one expiry's out-of-the-money quotes.
@@ -452,7 +470,7 @@ def fit_smile(k, total_var, weights=None, t=None, *, vega=None, spread=None,
     notes: list[str] = []
     ok = np.isfinite(k) & np.isfinite(w) & (w > 0) & np.isfinite(wt) & (wt > 0)
     if not np.all(ok):
-        notes.append(f"{int((~ok).sum())} of {k.size} quote(s) left out: non-finite k, total variance not positive, or weight not positive.")
+        notes.append(_note_unusable(int((~ok).sum()), k.size))
     k, w, wt = k[ok], w[ok], wt[ok]
     if k.size == 0:
         raise ChainTriageError("smile fit: no usable quotes for this expiry")
@@ -474,7 +492,6 @@ def fit_smile(k, total_var, weights=None, t=None, *, vega=None, spread=None,
         far = np.abs(err) > thr
         nfar = int(far.sum())
         if 0 < nfar <= max(1, k.size // 10) and k.size - nfar >= MIN_QUOTES_SVI:
-            desc = ", ".join(f"k = {kk:.4f} (fit minus market {100 * e:+.2f} vol points)" for kk, e in zip(k[far], err[far]))
             wt2 = wt.copy()
             wt2[far] = 0.0
             try:
@@ -482,13 +499,13 @@ def fit_smile(k, total_var, weights=None, t=None, *, vega=None, spread=None,
             except (FloatingPointError, ValueError, np.linalg.LinAlgError):
                 p2 = None
             if p2 is not None and not _wild(p2, k[~far], w[~far], wt2[~far], t):
-                notes.append(f"{nfar} quote(s) far from the fitted curve left out of the fit: {desc}.")
+                notes.append(_note_outliers(k[far], err[far]))
                 left_out = [float(x) for x in k[far]]
                 p = p2
                 k, w, wt = k[~far], w[~far], wt2[~far]
                 wt = wt / wt.mean()
         elif nfar:
-            notes.append(f"{nfar} quote(s) sit more than {100 * thr:.2f} vol points from the fitted curve; too many to leave out, all kept.")
+            notes.append(_note_too_many_outliers(nfar, thr))
 
     why = _wild(p, k, w, wt, t)
     if why:
@@ -557,8 +574,7 @@ def fit_smile(k, total_var, weights=None, t=None, *, vega=None, spread=None,
             f"The SVI fit has butterfly arbitrage (g < 0 on {where}, minimum g {min_g:.4g} at k = {k_min:.4f}); "
             f"kept as fitted (no re-fit asked), so its implied density is negative there."
         )
-    notes.insert(0, f"Raw SVI fitted to {k.size} quote(s), k from {k.min():.4f} to {k.max():.4f}; "
-                    f"RMSE {100 * rmse:.3f} vol points, largest error {100 * float(np.max(np.abs(err))):.3f}.")
+    notes.insert(0, _note_summary(k, rmse, float(np.max(np.abs(err)))))
     return Smile(
         params=p, t=t, method="svi", rmse_vol=rmse, arbitrage_free=bool(free), min_g=float(min_g),
         notes=tuple(notes), reason="", max_err_vol=float(np.max(np.abs(err))), k_at_min_g=float(k_min),

@@ -65,6 +65,43 @@ class SviParams:
         return (self.a, self.b, self.rho, self.m, self.sigma)
 
 
+@dataclass(frozen=True)
+class SviSlices:
+    """Many raw SVI slices evaluated at once, one per element.
+
+    ``params`` holds arrays (a, b, rho, m, sigma) that broadcast against the
+    log-moneyness ``k`` passed to the methods, e.g. one row of parameters per
+    contract, or shape (E, 1) against k of shape (E, n). The methods have the
+    same names and units as ``Smile``'s, so the functions of
+    ``distribution`` accept this object as a smile.
+    """
+
+    params: SviParams
+
+    @classmethod
+    def stack(cls, slices: list[SviParams]) -> SviSlices:
+        """Stack scalar parameter sets into arrays of shape (len(slices),)."""
+        arr = np.array([p.as_tuple() for p in slices], dtype=float).reshape(-1, 5)
+        return cls(SviParams(*(arr[:, i] for i in range(5))))
+
+    def take(self, index) -> SviSlices:
+        """The slices at ``index`` (numpy fancy indexing on every parameter)."""
+        p = self.params
+        return SviSlices(SviParams(*(np.asarray(v)[index] for v in p.as_tuple())))
+
+    def total_variance(self, k):
+        """Total variance w(k), dimensionless."""
+        return total_variance(self.params, k)
+
+    def dw_dk(self, k):
+        """w'(k)."""
+        return dw_dk(self.params, k)
+
+    def d2w_dk2(self, k):
+        """w''(k)."""
+        return d2w_dk2(self.params, k)
+
+
 def _xr(p: SviParams, k):
     x = np.asarray(k, dtype=float) - p.m
     return x, np.sqrt(x * x + p.sigma * p.sigma)

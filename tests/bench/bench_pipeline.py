@@ -1,20 +1,33 @@
 """Benchmark: the whole core pipeline on synthetic chains (run by hand, not by pytest).
 
-    python tests/bench/bench_pipeline.py [--quick]
+    python tests/bench/bench_pipeline.py [--quick] [--baseline REV] [--profile]
 
-Prints the warm time of ``annotate`` for a 20,000-contract, 50-expiry chain
-and a 200,000-contract chain (cost per contract should stay flat), the time
-per stage, and the peak memory of a 100,000-contract run measured in a child
-process (ru_maxrss, which includes the interpreter and libraries).
+Prints the warm time (best of N) of ``annotate`` for a 20,000-contract,
+50-expiry chain and a 200,000-contract chain (cost per contract should not
+grow), and the peak memory of a 100,000-contract run measured in a fresh
+child process (its resident high-water mark, which includes the interpreter
+and libraries).
+
+``--baseline REV`` also runs the same measurements on the core/ of a git
+revision (exported to a temporary directory and imported in child
+processes, alternating with the working tree), so before and after come
+from one run on the same, shared machine. ``--profile`` prints the top
+functions of a cProfile of the 20,000-contract run.
 """
 
 from __future__ import annotations
 
 import argparse
-import resource
+import cProfile
+import io
+import json
+import os
+import pstats
 import subprocess
 import sys
+import tempfile
 import time
+from pathlib import Path
 
 import numpy as np
 import pandas as pd
@@ -72,42 +85,117 @@ def best_of(fn, repeats: int) -> float:
     return best
 
 
-def peak_memory_child(n_contracts: int) -> float:
-    """Peak resident memory (MB) of a fresh process that builds and annotates the chain."""
+def peak_memory_child(n_contracts: int, env: dict | None = None) -> float:
+    """Peak resident memory (MB) of a fresh process that builds and annotates the chain.
+
+    Read from VmHWM in /proc/self/status (Linux): ru_maxrss would also count
+    the parent's memory, inherited across fork before exec.
+    """
     code = (
         "import resource, sys; sys.path.insert(0, %r)\n"
         "from bench_pipeline import synthetic_snapshot\n"
         "from chaintriage.core.pipeline import annotate\n"
         "annotate(synthetic_snapshot(%d, 50))\n"
-        "print(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss)\n"
-    ) % (str(__import__("pathlib").Path(__file__).parent), n_contracts)
-    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+        "try:\n"
+        "    print([int(l.split()[1]) for l in open('/proc/self/status') if l.startswith('VmHWM')][0])\n"
+        "except (OSError, IndexError):\n"
+        "    print(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss)\n"
+    ) % (str(Path(__file__).parent), n_contracts)
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True, env=env)
     return int(out.stdout.strip()) / 1024.0
+
+
+def measure(repeats: int) -> dict:
+    """Warm best-of-N milliseconds at 20k and 200k contracts (this process's chaintriage)."""
+    settings = PipelineSettings()
+    out = {}
+    for n in (20_000, 200_000):
+        snap = synthetic_snapshot(n, 50)
+        annotate(snap, settings)  # warm: imports, calendar cache
+        secs = best_of(lambda: annotate(snap, settings), repeats if n == 20_000 else max(1, repeats // 2))
+        out[n] = secs * 1e3
+    return out
+
+
+def child_env(core_root: str | None) -> dict:
+    env = dict(os.environ)
+    if core_root:
+        env["PYTHONPATH"] = core_root + os.pathsep + env.get("PYTHONPATH", "")
+    return env
+
+
+def export_revision(rev: str, into: str) -> str:
+    """core/ of a git revision as an importable ``chaintriage.core`` under ``into``."""
+    repo = Path(__file__).resolve().parents[2]
+    pkg = Path(into) / "chaintriage"
+    pkg.mkdir(parents=True)
+    (pkg / "__init__.py").write_text("")
+    archive = subprocess.run(["git", "-C", str(repo), "archive", rev, "core"], capture_output=True, check=True)
+    subprocess.run(["tar", "-x", "-C", str(pkg)], input=archive.stdout, check=True)
+    return into
+
+
+def run_child(core_root: str | None, repeats: int) -> dict:
+    code = "import json, sys; sys.path.insert(0, %r); import bench_pipeline as b; print(json.dumps(b.measure(%d)))" % (
+        str(Path(__file__).parent), repeats)
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True,
+                         env=child_env(core_root))
+    return {int(k): v for k, v in json.loads(out.stdout.strip().splitlines()[-1]).items()}
+
+
+def report(label: str, ms: dict, mb: float) -> None:
+    ratio = (ms[200_000] / 200_000) / (ms[20_000] / 20_000)
+    print(f"{label:10s} 20k: {ms[20_000]:8.1f} ms   200k: {ms[200_000]:8.1f} ms   "
+          f"per-contract 200k/20k: {ratio:.2f}x   peak 100k: {mb:5.0f} MB")
+
+
+def profile_20k(top: int = 15) -> None:
+    snap = synthetic_snapshot(20_000, 50)
+    annotate(snap)
+    prof = cProfile.Profile()
+    prof.enable()
+    for _ in range(3):
+        annotate(snap)
+    prof.disable()
+    buf = io.StringIO()
+    pstats.Stats(prof, stream=buf).sort_stats("tottime").print_stats(top)
+    print(buf.getvalue())
 
 
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__)
     parser.add_argument("--quick", action="store_true", help="fewer repeats")
+    parser.add_argument("--baseline", metavar="REV", help="also measure core/ of this git revision")
+    parser.add_argument("--profile", action="store_true", help="print a cProfile of the 20k run")
     args = parser.parse_args()
     repeats = 2 if args.quick else 5
-    settings = PipelineSettings()
 
-    results = {}
-    for n in (20_000, 200_000):
-        snap = synthetic_snapshot(n, 50)
-        annotate(snap, settings)  # warm: imports, calendar cache
-        secs = best_of(lambda: annotate(snap, settings), repeats if n == 20_000 else max(1, repeats // 2))
-        results[n] = secs
-        print(f"pipeline  {len(snap.contracts):>8,} contracts, 50 expiries: {secs * 1e3:8.1f} ms warm "
-              f"({secs / len(snap.contracts) * 1e6:.2f} us per contract)")
-    ratio = (results[200_000] / 200_000) / (results[20_000] / 20_000)
-    print(f"cost per contract, 200k vs 20k: {ratio:.2f}x (1.0 = linear)")
-    print("target: 20k-contract pipeline <= 60 ms warm")
-
-    mb = peak_memory_child(100_000)
-    print(f"peak memory, 100,000 contracts (whole process): {mb:.0f} MB (target <= 400 MB)")
-    base = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0
-    print(f"(this benchmark process so far: {base:.0f} MB)")
+    if args.baseline:
+        with tempfile.TemporaryDirectory() as tmp:
+            root = export_revision(args.baseline, tmp)
+            rounds = {"baseline": [], "now": []}
+            for _ in range(2):  # alternate, keep the best of each
+                rounds["baseline"].append(run_child(root, repeats))
+                rounds["now"].append(run_child(None, repeats))
+            best = {k: {n: min(r[n] for r in v) for n in (20_000, 200_000)} for k, v in rounds.items()}
+            mb = {"baseline": peak_memory_child(100_000, child_env(root)), "now": peak_memory_child(100_000)}
+        print(f"annotate, 50 expiries, warm best of {repeats} (two alternating rounds); baseline = {args.baseline}")
+        report("baseline", best["baseline"], mb["baseline"])
+        report("now", best["now"], mb["now"])
+        print(f"speed-up at 20k: {best['baseline'][20_000] / best['now'][20_000]:.1f}x, "
+              f"at 200k: {best['baseline'][200_000] / best['now'][200_000]:.1f}x")
+    else:
+        ms = measure(repeats)
+        for n in (20_000, 200_000):
+            print(f"pipeline  {n:>8,} contracts, 50 expiries: {ms[n]:8.1f} ms warm "
+                  f"({ms[n] / n * 1e3:.2f} us per contract)")
+        ratio = (ms[200_000] / 200_000) / (ms[20_000] / 20_000)
+        print(f"cost per contract, 200k vs 20k: {ratio:.2f}x (1.0 = linear)")
+        mb = peak_memory_child(100_000)
+        print(f"peak memory, 100,000 contracts (whole process): {mb:.0f} MB (target <= 400 MB)")
+    print("targets: 20k-contract pipeline <= 60 ms warm; per-contract cost not growing; peak <= 400 MB")
+    if args.profile:
+        profile_20k()
 
 
 if __name__ == "__main__":
