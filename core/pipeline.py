@@ -32,8 +32,8 @@ from .distribution import (
     terminal_distribution,
 )
 from .exchange_calendar import ExchangeCalendar
-from .findings import WARNING, ChainTriageError, Finding
-from .implied_vol import implied_vol
+from .findings import NOTE, WARNING, ChainTriageError, Finding
+from .implied_vol import ABOVE_UPPER_BOUND, BELOW_INTRINSIC, STATUS_REASONS, implied_vol
 from .parity_forward import ForwardEstimate, implied_forwards
 from .smile_batch import fit_smiles
 from .smile_fit import Smile
@@ -292,6 +292,7 @@ def annotate(snapshot: Snapshot, settings: PipelineSettings | None = None) -> An
     df_row = discounts[exp_code]
 
     # 3. Implied vols, all contracts at once.
+    otm = np.where(is_call, strike >= f_row, strike < f_row)
     if settings.use_file_iv:
         file_iv = numeric("iv")
         iv_basis = contracts["iv_basis"].to_numpy(dtype=object)[order]
@@ -306,12 +307,14 @@ def annotate(snapshot: Snapshot, settings: PipelineSettings | None = None) -> An
                 with np.errstate(divide="ignore", invalid="ignore"):
                     iv[m] = convert_vol(file_iv[m], t_other[exp_code][m], t_row[m])
     else:
-        iv = implied_vol(mid, f_row, strike, t_row, df_row, is_call).sigma
+        solved = implied_vol(mid, f_row, strike, t_row, df_row, is_call)
+        iv = solved.sigma
+        _no_vol_findings(solved.status, contracts, order, exp_code, is_call, strike, mid, otm,
+                         underlying, labels, expiry_findings)
     iv_status_ok = np.isfinite(iv)
 
     # 4. One smile per expiry, all expiries fitted together.
     k_row = np.log(strike / f_row)
-    otm = np.where(is_call, strike >= f_row, strike < f_row)
     live = t_exp > 0
     fit_sel = np.flatnonzero(otm & iv_status_ok & live[exp_code])
     has_quotes = np.bincount(exp_code[fit_sel], minlength=n_exp) > 0
@@ -459,6 +462,27 @@ def annotate(snapshot: Snapshot, settings: PipelineSettings | None = None) -> An
     for fs in expiry_findings:
         findings.extend(fs)
     return AnnotatedSnapshot(snapshot, settings, out, exp_table, results, findings)
+
+
+def _no_vol_findings(status, contracts, order, exp_code, is_call, strike, mid, otm, underlying, labels,
+                     expiry_findings) -> None:
+    """A finding, naming the file line, for each mid outside the no-arbitrage bounds (no vol exists).
+
+    A warning for an out-of-the-money contract (its quote feeds the smile), a
+    note for an in-the-money one (deep in the money the quote is mostly
+    intrinsic value and often carries no time value after rounding).
+    """
+    bad = np.flatnonzero((status == BELOW_INTRINSIC) | (status == ABOVE_UPPER_BOUND))
+    if not bad.size:
+        return
+    files = contracts["source_file"].to_numpy(dtype=object)[order[bad]]
+    lines = contracts["source_line"].to_numpy()[order[bad]]
+    for j, file, line in zip(bad, files, lines):
+        kind = "call" if is_call[j] else "put"
+        severity = WARNING if otm[j] else NOTE
+        expiry_findings[exp_code[j]].append(Finding(
+            severity, f"{kind} {strike[j]:g}: no implied vol: {STATUS_REASONS[int(status[j])]} (mid {mid[j]:.4g})",
+            file=str(file), line=int(line), underlying=underlying, expiry=labels[exp_code[j]]))
 
 
 def _atm_vols(slices: SviSlices, t: np.ndarray) -> np.ndarray:

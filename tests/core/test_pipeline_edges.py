@@ -124,3 +124,16 @@ def test_empty_snapshot_does_not_crash():
     snap.contracts = snap.contracts.iloc[0:0]
     ann = annotate(snap, PipelineSettings(basis="365"))
     assert len(ann.contracts) == 0 and len(ann.expiries) == 0
+
+
+def test_a_mid_below_intrinsic_is_named_in_a_finding_with_its_line():
+    snap = _priced(["2027-01-15"], np.arange(80, 121, 2.5))
+    c = snap.contracts
+    deep = (c["kind"] == "call") & (c["strike"] == 80.0)
+    c.loc[deep, ["bid", "ask"]] = [1.0, 1.2]
+    line = int(c.loc[deep, "source_line"].iloc[0])
+    ann = annotate(snap, PipelineSettings(basis="365"))
+    hits = [f for f in ann.findings if f.line == line]
+    assert len(hits) == 1
+    # In the money relative to the forward, so a note rather than a warning.
+    assert hits[0].severity == "note" and "intrinsic" in hits[0].reason and "call 80" in hits[0].reason
