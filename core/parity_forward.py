@@ -29,6 +29,13 @@ Method (``implied_forward``):
    but the forward is not), DF is taken from ``rate`` (or 1 without a rate) and
    the forward is re-estimated from the same points; method stays 'parity' and
    ``reason`` says so.
+   When the DF passes and a ``rate`` is given, the slope's standard error
+   decides between them: if the given rate's DF lies within
+   ``RATE_AGREEMENT_SES`` standard errors of the fitted DF, the quotes cannot
+   tell the two apart, so the given rate's DF is used and the forward
+   re-estimated from the same points (method 'parity-rate'). The slope of a
+   short expiry's parity line is poorly determined by tick-rounded quotes;
+   the intercept, and so the forward, is not.
 5. One usable strike: F = K + (C - P)/DF with DF from ``rate``, else 1.
 6. Fallbacks: with ``rate`` and/or ``div_yield`` (a missing one counts as 0):
    F = S exp((r - q) T), DF = exp(-r T) (NOTE). Otherwise F = spot, DF = 1
@@ -59,6 +66,8 @@ CARRY_FLOOR = 0.05
 #: A point is set aside when its residual exceeds both of these.
 OUTLIER_HALF_SPREADS = 2.0
 OUTLIER_SCALES = 5.0
+#: A given rate's DF within this many slope standard errors of the fitted DF is preferred.
+RATE_AGREEMENT_SES = 2.0
 
 
 @dataclass(frozen=True, slots=True)
@@ -66,7 +75,8 @@ class ForwardEstimate:
     """The forward and discount factor of one expiry, and how they were found.
 
     forward: price units. discount: dimensionless DF to the settlement date.
-    method: 'parity' | 'parity-single' | 'rates' | 'spot'.
+    method: 'parity' | 'parity-rate' (forward from parity, DF from the given
+    rate, which the quotes agree with) | 'parity-single' | 'rates' | 'spot'.
     strikes_used: strikes in the final fit (0 for 'rates' and 'spot').
     strikes_set_aside: near-the-money strikes dropped as inconsistent quotes.
     residual_rms: root-mean-square residual of C - P about the fitted line over
@@ -117,6 +127,17 @@ def _wls(k: np.ndarray, y: np.ndarray, w: np.ndarray) -> tuple[float, float]:
     ym = (w * y).sum() / sw
     s = (w * (k - km) * (y - ym)).sum() / (w * (k - km) ** 2).sum()
     return float(ym - s * km), float(s)
+
+
+def _slope_se(k: np.ndarray, y: np.ndarray, w: np.ndarray, a: float, s: float) -> float:
+    """Standard error of the weighted least-squares slope (price units per unit strike); inf below 3 points."""
+    n = k.size
+    if n < 3:
+        return float("inf")
+    r = y - (a + s * k)
+    sigma2 = float((w * r * r).sum()) / (n - 2)
+    km = float((w * k).sum() / w.sum())
+    return float(np.sqrt(sigma2 / float((w * (k - km) ** 2).sum())))
 
 
 def _robust_fit(k, y, half, w):
@@ -287,19 +308,27 @@ def implied_forward(
         reasons.append(reason)
         findings.append(Finding(NOTE, f"parity forward: {reason}"))
         resid = y[keep] - df * (forward - k[keep])
+        method = "parity"
     else:
         if not _carry_ok(forward, spot, t):
             return _fallback(spot, t, rate, div_yield,
                              f"put-call parity gave a forward {_fmt(forward)} too far from spot {_fmt(spot)} "
                              f"for {_fmt(t)} years")
-        resid = y[keep] - (a + s * k[keep])
+        method = "parity"
+        if rate is not None:
+            df_rate = float(np.exp(-rate * t))
+            if abs(df - df_rate) <= RATE_AGREEMENT_SES * _slope_se(k[keep], y[keep], w[keep], a, s):
+                fwd_rate = float(np.sum(w[keep] * (k[keep] + y[keep] / df_rate)) / np.sum(w[keep]))
+                if _carry_ok(fwd_rate, spot, t):
+                    df, forward, method = df_rate, fwd_rate, "parity-rate"
+        resid = y[keep] - df * (forward - k[keep])
 
     if keep.sum() == 2:
         findings.append(Finding(
             NOTE, "parity forward from only 2 strikes quoted on both sides; a bad quote cannot be detected",
         ))
     return ForwardEstimate(
-        forward=float(forward), discount=float(df), method="parity",
+        forward=float(forward), discount=float(df), method=method,
         strikes_used=int(keep.sum()), residual_rms=float(np.sqrt(np.mean(resid ** 2))),
         rate_implied=float(-np.log(df) / t), reason="; ".join(reasons),
         strikes_set_aside=n_out, findings=tuple(findings),
@@ -362,15 +391,16 @@ def implied_forwards(
                                rate=rate[i], div_yield=div_yield[i], max_strikes=max_strikes)
 
     if np.isfinite(spot) and spot > 0 and m >= 2 and group.size:
-        fast_out = _parity_fast_path(group, k_all, cb, ca, pb, pa, spot, t, m, n_exp)
+        fast_out = _parity_fast_path(group, k_all, cb, ca, pb, pa, spot, t, m, n_exp, rate)
     else:
         fast_out = None
     out: list[ForwardEstimate] = []
     for i in range(n_exp):
         if fast_out is not None and fast_out[0][i]:
-            fwd, df, n_used, rms = (x[i] for x in fast_out[1:])
+            fwd, df, n_used, rms, by_rate = (x[i] for x in fast_out[1:])
             out.append(ForwardEstimate(
-                forward=float(fwd), discount=float(df), method="parity", strikes_used=int(n_used),
+                forward=float(fwd), discount=float(df), method="parity-rate" if by_rate else "parity",
+                strikes_used=int(n_used),
                 residual_rms=float(rms), rate_implied=float(-np.log(df) / t[i]),
             ))
         else:
@@ -388,8 +418,11 @@ def _nanmedian_last(x: np.ndarray) -> np.ndarray:
         return np.where(count > 0, 0.5 * (lo + hi), np.nan)
 
 
-def _parity_fast_path(group, k, cb, ca, pb, pa, spot, t, m, n_exp):
-    """Vectorised clean case of implied_forward. Returns (ok, forward, df, strikes_used, residual_rms) per expiry."""
+def _parity_fast_path(group, k, cb, ca, pb, pa, spot, t, m, n_exp, rate):
+    """Vectorised clean case of implied_forward.
+
+    Returns (ok, forward, df, strikes_used, residual_rms, df_from_rate) per expiry.
+    """
     with np.errstate(invalid="ignore"):
         usable = (
             np.isfinite(k) & (k > 0)
@@ -461,6 +494,17 @@ def _parity_fast_path(group, k, cb, ca, pb, pa, spot, t, m, n_exp):
         df_ok = np.isfinite(df) & (df > DF_BAND[0]) & (df <= high) & (rate_impl >= RATE_BAND[0]) & (rate_impl <= RATE_BAND[1])
         carry_ok = np.isfinite(fwd) & (fwd > 0) & (np.abs(np.log(fwd / spot)) <= np.maximum(CARRY_LIMIT * t, CARRY_FLOOR))
         resid = np.where(valid, yv - (a[:, None] + s[:, None] * kv), 0.0)
+        # The given rate's DF, where the quotes cannot tell it from the fitted one (see implied_forward).
+        sigma2 = (wv * resid ** 2).sum(axis=1) / np.maximum(n_w - 2, 1)
+        se = np.where(n_w >= 3, np.sqrt(sigma2 / (wv * dkm ** 2).sum(axis=1)), np.inf)
+        df_rate = np.exp(-rate * t)
+        fwd_rate = (wv * (kv + yv / df_rate[:, None])).sum(axis=1) / sw
+        by_rate = (np.isfinite(rate) & (np.abs(df - df_rate) <= RATE_AGREEMENT_SES * se)
+                   & np.isfinite(fwd_rate) & (fwd_rate > 0)
+                   & (np.abs(np.log(fwd_rate / spot)) <= np.maximum(CARRY_LIMIT * t, CARRY_FLOOR)))
+        fwd = np.where(by_rate, fwd_rate, fwd)
+        df_out = np.where(by_rate, df_rate, df)
+        resid = np.where(valid, yv - df_out[:, None] * (fwd[:, None] - kv), 0.0)
         rms = np.sqrt((resid ** 2).sum(axis=1) / np.maximum(n_w, 1))
     ok = ascending & (n_w >= 3) & all_in & df_ok & carry_ok & np.isfinite(t) & (t > 0)
-    return ok, fwd, df, n_w, rms
+    return ok, fwd, df_out, n_w, rms, by_rate

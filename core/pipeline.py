@@ -249,6 +249,10 @@ def annotate(snapshot: Snapshot, settings: PipelineSettings | None = None) -> An
     # 1. Time to settlement per expiry.
     settle = _text_per_expiry(contracts["settle"], order, starts, ends, "pm")
     t_exp = np.asarray(year_fraction(snapshot.as_of, expiries, settle, basis=settings.basis, calendar=calendar), float)
+    # Interest and carry accrue in calendar time: rates and the parity plausibility
+    # bands use ACT/365 whatever the variance clock (the basis) is.
+    t_cal = (t_exp if settings.basis == "365" else
+             np.asarray(year_fraction(snapshot.as_of, expiries, settle, basis="365", calendar=calendar), float))
     trading_days = np.asarray(trading_days_to_expiry(snapshot.as_of, expiries, calendar=calendar))
     calendar_days = np.asarray(calendar_days_to_expiry(snapshot.as_of, expiries))
     rates = np.full(n_exp, np.nan)
@@ -273,7 +277,7 @@ def annotate(snapshot: Snapshot, settings: PipelineSettings | None = None) -> An
             quotes[side, name] = arr
     estimates = implied_forwards(
         exp_code[new_pair], strike[new_pair], quotes["call", "bid"], quotes["call", "ask"],
-        quotes["put", "bid"], quotes["put", "ask"], spot=snapshot.spot, t=np.maximum(t_exp, 1e-12),
+        quotes["put", "bid"], quotes["put", "ask"], spot=snapshot.spot, t=np.maximum(t_cal, 1e-12),
         rate=rates, div_yield=divs,
     )
     forwards = np.array([e.forward for e in estimates], dtype=float)

@@ -29,7 +29,7 @@ TABLE_COLUMNS = [
 #: Columns of `expiries`, in order.
 EXPIRY_COLUMNS = [
     "underlying", "expiry", "t_years", "trading_days", "calendar_days", "forward", "discount",
-    "atm_iv", "range_low", "range_high", "range_low_smile", "range_high_smile", "fit_rmse",
+    "forward_method", "atm_iv", "range_low", "range_high", "range_low_smile", "range_high_smile", "fit_rmse",
     "arbitrage_free", "contracts", "findings",
 ]
 

@@ -75,7 +75,9 @@ def test_batched_forwards_equal_the_one_expiry_function(seed):
             assert np.isnan(est.residual_rms)
         else:
             assert est.residual_rms == pytest.approx(ref.residual_rms, rel=1e-9, abs=1e-12)
-    assert methods == {"parity", "parity-single", "rates", "spot"} and set_aside  # every path was exercised
+    # every path was exercised ('parity-rate' too, on seeds whose noise hides the given rate)
+    assert {"parity", "parity-single", "rates", "spot"} <= methods <= {
+        "parity", "parity-rate", "parity-single", "rates", "spot"} and set_aside
 
 
 def test_clean_chain_recovers_the_model_forward():

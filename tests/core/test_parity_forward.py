@@ -244,6 +244,47 @@ def test_negative_rate_long_expiry_is_plausible():
     assert est.rate_implied == pytest.approx(-0.01, abs=1e-10)
 
 
+@pytest.mark.parametrize("seed", range(10))
+def test_given_rate_is_preferred_when_tick_rounded_quotes_cannot_tell(seed):
+    # [D] A 30-day expiry, quotes rounded to a 0.05 tick (common practice [C]):
+    # the fitted slope's DF wanders by more than the rate uncertainty itself, so
+    # a given rate whose DF lies within 2 slope SEs is used, and the forward is
+    # re-estimated from the same points. The forward stays within the tick.
+    t = 30 / 365
+    f, df, c, p = _chain(t=t)
+    rng = np.random.default_rng(seed)
+    tick = 0.05
+    half = rng.integers(1, 4, size=(2, STRIKES.size)) * tick
+    cm, pm = np.round(c / tick) * tick, np.round(p / tick) * tick
+    cb, ca, pb, pa = cm - half[0], cm + half[0], pm - half[1], pm + half[1]
+    plain_est = implied_forward(STRIKES, cb, ca, pb, pa, spot=S, t=t)
+    est = implied_forward(STRIKES, cb, ca, pb, pa, spot=S, t=t, rate=R)
+    if est.method == "parity-rate":
+        assert est.discount == pytest.approx(df, abs=1e-15)
+        assert est.rate_implied == pytest.approx(R, abs=1e-12)
+    else:  # the quotes said otherwise: the fitted line is kept as it was
+        assert (est.forward, est.discount) == (plain_est.forward, plain_est.discount)
+    assert abs(est.forward - f) < tick
+    assert est.findings == plain_est.findings
+
+
+def test_rate_far_from_exact_quotes_is_not_used():
+    # [D] Exact §7 prices (no noise: the slope SE is ~1e-16) with a given rate 2 points
+    # off: the quotes clearly disagree, so parity's own DF stays.
+    f, df, c, p = _chain()
+    est = implied_forward(STRIKES, *_quotes(c, p), spot=S, t=T, rate=R + 0.02)
+    assert est.method == "parity"
+    assert est.discount == pytest.approx(DF_TRUE, abs=1e-8)
+
+
+def test_rate_agreeing_with_exact_quotes_is_used():
+    # [D] Exact §7 prices and the true rate: identical DFs, so either way the result is exact.
+    f, df, c, p = _chain()
+    est = implied_forward(STRIKES, *_quotes(c, p), spot=S, t=T, rate=R)
+    assert est.forward == pytest.approx(F_TRUE, abs=1e-6)
+    assert est.discount == pytest.approx(DF_TRUE, abs=1e-8)
+
+
 # ------------------------------------------------------- fallbacks [D]
 
 def test_missing_sides_are_skipped():

@@ -26,6 +26,7 @@ from chaintriage.core.distribution import prob_above, range_smile
 from chaintriage.core.implied_vol import implied_vol
 from chaintriage.core.loading import load_file
 from chaintriage.core.parity_forward import implied_forward
+from chaintriage.core.time_to_expiry import year_fraction
 from chaintriage.core.pipeline import PipelineSettings, annotate
 from chaintriage.core.smile_fit import fit_smile, quote_weights
 from chaintriage.core.snapshot import Snapshot
@@ -101,8 +102,10 @@ def test_batched_pipeline_equals_the_per_expiry_reference(name, snap, settings):
         ks = np.union1d(calls.index.to_numpy(float), puts.index.to_numpy(float))
         c, p = calls.reindex(ks), puts.reindex(ks)
         rate, div = sub["rate"].dropna(), sub["div_yield"].dropna()
+        # parity works in calendar time (interest accrues on ACT/365), whatever the variance basis
+        t_cal = float(year_fraction(snap.as_of, [expiry], sub["settle"].iloc[0], basis="365")[0])
         est = implied_forward(ks, c["bid"].to_numpy(float), c["ask"].to_numpy(float), p["bid"].to_numpy(float),
-                              p["ask"].to_numpy(float), spot=snap.spot, t=max(t, 1e-12),
+                              p["ask"].to_numpy(float), spot=snap.spot, t=max(t_cal, 1e-12),
                               rate=float(rate.iloc[0]) if len(rate) else None,
                               div_yield=float(div.iloc[0]) if len(div) else None)
         got = res.forward_estimate

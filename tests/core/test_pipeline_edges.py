@@ -137,3 +137,19 @@ def test_a_mid_below_intrinsic_is_named_in_a_finding_with_its_line():
     assert len(hits) == 1
     # In the money relative to the forward, so a note rather than a warning.
     assert hits[0].severity == "note" and "intrinsic" in hits[0].reason and "call 80" in hits[0].reason
+
+
+def test_rates_accrue_in_calendar_time_on_a_trading_day_basis():
+    """Interest and carry accrue on calendar days (ACT/365) [C, common practice], while the 252 basis
+    is the variance clock: the rates fallback must give DF = exp(-r T_365), F = S exp((r - q) T_365)."""
+    from chaintriage.core.time_to_expiry import year_fraction
+
+    snap = _priced(["2027-01-15"], np.arange(80, 121, 2.5), rate=0.05, div_yield=0.01)
+    snap.contracts = snap.contracts[snap.contracts["kind"] == "call"].reset_index(drop=True)
+    ann = annotate(snap, PipelineSettings(basis="252"))
+    t365 = year_fraction(snap.as_of, ["2027-01-15"], "pm", basis="365")[0]
+    row = ann.expiries.iloc[0]
+    assert row["forward_method"] == "rates"
+    assert row["discount"] == pytest.approx(np.exp(-0.05 * t365), rel=1e-14)
+    assert row["forward"] == pytest.approx(SPOT * np.exp(0.04 * t365), rel=1e-14)
+    assert row["t_years"] != pytest.approx(t365, rel=1e-3)  # the variance clock differs
