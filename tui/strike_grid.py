@@ -344,6 +344,11 @@ class StrikeGrid(ScrollView, can_focus=True):
         return self._strikes
 
     @property
+    def strike_width(self) -> int:
+        """Cells of the strike column (grows with the longest strike shown)."""
+        return self._strike_width
+
+    @property
     def expiry(self) -> pd.Timestamp | None:
         return self._expiry
 
@@ -515,7 +520,7 @@ class StrikeGrid(ScrollView, can_focus=True):
         st = self._styles
         total = self._total_width()
         fill = "-" if self._ascii else "╌"
-        label = f" fwd {fm.fmt_price(self._forward)} "
+        label = f" fwd {fm.fmt_level(self._forward)} "
         centre = self._side_width() + 3 + self._strike_width // 2
         start = max(0, min(total - len(label), centre - len(label) // 2))
         left = fill * start
@@ -543,7 +548,7 @@ class StrikeGrid(ScrollView, can_focus=True):
             parts.append(self._underlying)
         parts.append(fm.fmt_date(self._expiry, self._ascii) if self._expiry is not None else "")
         title = " " + "  ".join(p for p in parts if p)
-        info = f"  fwd {fm.fmt_price(self._forward, ascii_only=self._ascii)}  {len(self._strikes)} strikes"
+        info = f"  fwd {fm.fmt_level(self._forward, ascii_only=self._ascii)}  {len(self._strikes)} strikes"
         if self._hidden:
             info += f", {self._hidden} hidden by the filter"
         line0 = Strip([Segment(title, st.header), Segment(info, st.header_dim)]).extend_cell_length(total, st.header_dim)
