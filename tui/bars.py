@@ -151,13 +151,13 @@ def top_pieces(*, underlying: str, as_of_text: str, spot: float, index: int, cou
                              (as_of_text, st.text), ("  spot ", st.dim),
                              (fm.fmt_price(spot, ascii_only=ascii_only), st.text)))
     if count > 1:
-        pieces.append(_piece(("snapshot ", st.dim), (f"{index + 1}/{count}", st.text), (" {}", st.dim)))
+        pieces.append(_piece(("snapshot ", st.dim), (f"{index + 1}/{count}", st.text), (" ({ })", st.dim)))
     if findings:
         mark = "!" if ascii_only else "⚠"
         pieces.append(_piece((f"{mark} {findings:,} finding{'s' if findings != 1 else ''}", st.warning),
-                             (" e", st.dim)))
+                             (" (e)", st.dim)))
     if shortlist:
-        pieces.append(_piece(("shortlist ", st.dim), (f"{shortlist}", st.marked), (" s", st.dim)))
+        pieces.append(_piece(("shortlist ", st.dim), (f"{shortlist}", st.marked), (" (s)", st.dim)))
     if busy:
         pieces.append(_piece((fm.clean_text(busy), st.accent)))
     return pieces
@@ -176,13 +176,13 @@ def expiry_pieces(info: ExpiryInfo | None, *, st: BarStyles, ascii_only: bool = 
         fwd.append((f" ({how})", st.warning if info.forward_method == "spot" else st.dim))
     pieces = [
         _piece(("expiry ", st.dim), (fm.fmt_date(info.expiry), st.strong),
-               (f"  {info.index + 1}/{info.count} [ ]", st.dim)),
+               (f"  {info.index + 1} of {info.count} ([ ])", st.dim)),
         _piece((days_t, st.text), (" trading / ", st.dim), (days_c, st.text), (" calendar days", st.dim)),
         _piece(*fwd),
         _piece(("ATM IV ", st.dim), (fm.fmt_vol(info.atm_iv, ascii_only=ascii_only), st.text)),
         _piece((f"{fmt_confidence(info.confidence)} range ", st.dim),
                (_band(*info.range_plain, ascii_only), st.text),
-               ("  smile ", st.dim), (_band(*info.range_smile, ascii_only), st.text), ("  + -", st.dim)),
+               ("  smile ", st.dim), (_band(*info.range_smile, ascii_only), st.text), ("  (+/-)", st.dim)),
     ]
     if info.fit_method:
         rmse = fm.as_finite(info.fit_rmse)
@@ -206,7 +206,7 @@ def expiry_pieces(info: ExpiryInfo | None, *, st: BarStyles, ascii_only: bool = 
         if no:
             words.append(f"{no} note{'s' if no != 1 else ''}")
         pieces.append(_piece(("this expiry: ", st.dim), (", ".join(words), st.warning if (lo or wa) else st.text),
-                             (" e", st.dim)))
+                             (" (e)", st.dim)))
     return pieces
 
 
@@ -216,9 +216,9 @@ def filter_pieces(flt: StrikeFilter, *, shown: int, total: int, hidden_columns: 
     if flt.active:
         pieces = [_piece(("filter ", st.accent), (flt.describe(ascii_only), st.text)),
                   _piece((f"{shown} of {total} strikes shown", st.strong if shown else st.warning),
-                         ("  x clears", st.dim))]
+                         ("  (x clears)", st.dim))]
     else:
-        pieces = [_piece(("filter off", st.dim), ("  f sets one", st.dim))]
+        pieces = [_piece(("filter off", st.dim), ("  (f sets one)", st.dim))]
     if hidden_columns:
         names = ", ".join(hidden_columns)
         pieces.append(_piece((f"not shown for lack of width: {names}", st.dim)))
