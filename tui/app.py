@@ -104,6 +104,7 @@ class TriageScreen(Screen):
     """The main screen: its keys call the app's actions."""
 
     BINDINGS = [
+        Binding("question_mark", "app.show_help", "help", key_display="?"),
         Binding("]", "app.next_expiry", "next expiry", key_display="]"),
         Binding("[", "app.previous_expiry", "prev expiry", key_display="["),
         Binding("}", "app.next_snapshot", "next snapshot", show=False),
@@ -121,7 +122,6 @@ class TriageScreen(Screen):
         Binding("a", "app.toggle_ascii", "ascii", show=False),
         Binding("e", "app.show_findings", "findings"),
         Binding("l", "app.load_file", "open file", show=False),
-        Binding("question_mark", "app.show_help", "help", key_display="?"),
         Binding("q", "app.quit", "quit"),
     ]
 
@@ -132,7 +132,7 @@ class TriageScreen(Screen):
         yield InfoBar(id="filterbar")
         with Horizontal(id="body"):
             yield StrikeGrid(id="grid", theme=app.chain_theme, columns=app.columns,
-                             ascii_only=app.ascii_only)
+                             ascii_only=app.ascii_only, title=False)
             yield DistributionPlot(id="plot", theme=app.chain_theme, ascii_only=app.ascii_only)
         with Vertical(id="loading"):
             yield LoadingIndicator()
@@ -152,8 +152,9 @@ class TriageScreen(Screen):
 class ChainTriageApp(App[int]):
     """Option chain triage from the keyboard.
 
-    Give ``paths`` (snapshot files; none: the bundled demo) or ``snapshots``
-    (already loaded). ``system_clipboard`` is called with the copied text in a
+    Give ``paths`` (snapshot files; none: the bundled demo), ``snapshots``
+    (already loaded: annotated in a worker) or ``views`` (already annotated,
+    shown at once). ``system_clipboard`` is called with the copied text in a
     worker thread (None: only the terminal's clipboard is used).
     """
 
@@ -210,12 +211,14 @@ class ChainTriageApp(App[int]):
     """
 
     def __init__(self, paths: Sequence[str | Path] = (), *, snapshots: Sequence[Snapshot] | None = None,
+                 views: Sequence[SnapshotView] | None = None,
                  overrides: SnapshotOverrides | None = None, column_map: ColumnMap | None = None,
                  pipeline_settings: Any = None,
                  system_clipboard: Callable[[str], bool] | None = copy_to_system_clipboard) -> None:
         super().__init__()
         self._paths = [str(p) for p in paths]
         self._given_snapshots = list(snapshots) if snapshots is not None else None
+        self._given_views = list(views) if views is not None else None
         self._overrides = overrides
         self._column_map = column_map
         self._pipeline_settings = pipeline_settings
@@ -248,6 +251,7 @@ class ChainTriageApp(App[int]):
         self._loads_running = 0
         self._findings_count: dict[int, int] = {}
         self._strike_total = 0
+        self._screen_up = False
         self.triage = TriageScreen(id="triage")
 
     # ------------------------------------------------------------ Textual hooks
@@ -260,11 +264,16 @@ class ChainTriageApp(App[int]):
 
     def screen_ready(self) -> None:
         """Called when the triage screen is mounted: start loading."""
+        self._screen_up = True
         self.triage.set_class(self.ascii_only, "-ascii")
         self._show_body(False)
         self.refresh_bars()
         for notice in self._startup_notices:
             self.notify(notice, title="settings and themes", severity="warning", markup=False)
+        if self._given_views:
+            self.views.extend(self._given_views)
+            self.show_view(0)
+            return
         self._start_load(self._paths, snapshots=self._given_snapshots, initial=True,
                          overrides=self._overrides)
 
@@ -419,7 +428,7 @@ class ChainTriageApp(App[int]):
 
     def update_layout(self) -> None:
         """Share the width between ladder and plot for the current terminal size."""
-        if not self.triage.is_mounted:
+        if not self._screen_up:
             return
         grid, plot = self.grid, self.plot
         width = self.triage.size.width or self.size.width
@@ -437,7 +446,7 @@ class ChainTriageApp(App[int]):
             self.update_plot()
 
     def refresh_bars(self) -> None:
-        if not self.triage.is_mounted:
+        if not self._screen_up:
             return
         st, ascii_only = self._bar_styles, self.ascii_only
         view = self.view
@@ -462,7 +471,7 @@ class ChainTriageApp(App[int]):
                         for k in self.left_out_columns]
         plot_note = ""
         if not self.plot.display and self.plot_pref != PLOT_HIDDEN:
-            plot_note = "plot hidden for lack of width: v shows it"
+            plot_note = "plot hidden (v shows it)"
         self._bar("filterbar").set_pieces(filter_pieces(
             self.strike_filter, shown=len(self.grid.strikes), total=self._strike_total,
             hidden_columns=hidden_names, plot_note=plot_note, st=st, ascii_only=ascii_only))
@@ -706,7 +715,7 @@ class ChainTriageApp(App[int]):
         self.chain_theme = theme
         self.theme = theme.textual_name
         self._bar_styles = BarStyles(theme)
-        if self.triage.is_mounted:
+        if self._screen_up:
             self.grid.set_theme(theme)
             self.plot.set_theme(theme)
             self.refresh_bars()

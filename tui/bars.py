@@ -219,9 +219,11 @@ def filter_pieces(flt: StrikeFilter, *, shown: int, total: int, hidden_columns: 
                          ("  (x clears)", st.dim))]
     else:
         pieces = [_piece(("filter off", st.dim), ("  (f sets one)", st.dim))]
+    notes = []
     if hidden_columns:
-        names = ", ".join(hidden_columns)
-        pieces.append(_piece((f"not shown for lack of width: {names}", st.dim)))
+        notes.append(f"{', '.join(hidden_columns)} not shown")
     if plot_note:
-        pieces.append(_piece((plot_note, st.dim)))
+        notes.append(plot_note)
+    if notes:
+        pieces.append(_piece(("narrow terminal: ", st.dim), ("; ".join(notes), st.dim)))
     return pieces

@@ -43,10 +43,15 @@ KEYS: tuple[KeyHelp, ...] = (
     # The triage screen.
     KeyHelp(("]",), "screen", "next_expiry", "next expiry"),
     KeyHelp(("[",), "screen", "previous_expiry", "previous expiry"),
-    KeyHelp(("f",), "screen", "set_filter", "show only strikes at least N sigmas from the forward (asks for N)"),
+    KeyHelp(("}",), "screen", "next_snapshot",
+            "next loaded snapshot (another underlying, or the same one at another time)"),
+    KeyHelp(("{",), "screen", "previous_snapshot", "previous loaded snapshot"),
+    KeyHelp(("f",), "screen", "set_filter",
+            "show only strikes at least N sigmas out of the money, optionally with spread and "
+            "open-interest limits (asks for them)"),
     KeyHelp(("x",), "screen", "clear_filter", "show every strike again"),
     KeyHelp(("plus", "minus"), "screen", "confidence_up / confidence_down",
-            "widen / narrow the range's confidence (68.27%, 80%, 90%, 95%, 99%)"),
+            "widen / narrow the range's confidence (68.27%, 80%, 90%, 95%, 99%); = works as +"),
     KeyHelp(("c",), "screen", "copy_summary", "copy the highlighted contract's one-line summary"),
     KeyHelp(("m",), "screen", "toggle_mark", "put the highlighted contract on the shortlist, or take it off"),
     KeyHelp(("s",), "screen", "open_shortlist", "open the shortlist"),
@@ -55,15 +60,22 @@ KEYS: tuple[KeyHelp, ...] = (
     KeyHelp(("t",), "screen", "next_theme", "next colour theme (remembered)"),
     KeyHelp(("a",), "screen", "toggle_ascii", "draw with plain ASCII characters, or with Unicode"),
     KeyHelp(("e",), "screen", "show_findings", "what the loader and the pipeline said about the data"),
+    KeyHelp(("l",), "screen", "load_file", "open another snapshot file (asks for its path)"),
     KeyHelp(("question_mark",), "screen", "show_help", "this help"),
     KeyHelp(("q",), "screen", "quit", "quit"),
     # The shortlist.
     KeyHelp(("up", "k", "down", "j"), "shortlist", "cursor_up / cursor_down", "move through the shortlist"),
+    KeyHelp(("enter",), "shortlist", "go_to", "show the contract in the ladder"),
     KeyHelp(("d", "delete"), "shortlist", "remove_entry", "take the contract off the shortlist"),
-    KeyHelp(("w",), "shortlist", "export", "write the shortlist to a file: .csv or .md by the name given"),
+    KeyHelp(("w",), "shortlist", "export",
+            "write the shortlist to a file: .csv or .md by the name given (asks before replacing a file)"),
     KeyHelp(("c",), "shortlist", "copy_summary", "copy the contract's one-line summary"),
     # Any dialog or pane.
-    KeyHelp(("escape",), "dialog", "dismiss", "close the dialog or pane"),
+    KeyHelp(("escape",), "dialog", "dismiss", "close the dialog or pane (q too, where nothing is typed)"),
+    KeyHelp(("enter",), "dialog", "submit", "apply what was typed (filter, path)"),
+    KeyHelp(("tab",), "dialog", "focus_next", "next field of the filter dialog"),
+    KeyHelp(("space",), "dialog", "toggle", "show or hide a column in the column list"),
+    KeyHelp(("y", "n"), "dialog", "answer", "yes / no, e.g. to replacing an existing file"),
 )
 
 #: How a Textual key name is shown to the user.
@@ -71,6 +83,7 @@ KEY_LABELS: dict[str, str] = {
     "up": "↑", "down": "↓", "left": "←", "right": "→", "pageup": "PgUp", "pagedown": "PgDn",
     "home": "Home", "end": "End", "ctrl+pageup": "Ctrl+PgUp", "ctrl+pagedown": "Ctrl+PgDn",
     "plus": "+", "minus": "-", "question_mark": "?", "escape": "Esc", "delete": "Del",
+    "enter": "Enter", "tab": "Tab", "space": "Space", "equals_sign": "=",
 }
 KEY_LABELS_ASCII: dict[str, str] = {**KEY_LABELS, "up": "Up", "down": "Down", "left": "Left", "right": "Right"}
 

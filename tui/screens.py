@@ -215,6 +215,10 @@ class ShortlistScreen(Screen):
         if entry is not None:
             self.main.copy_entry(entry)
 
+    def on_data_table_row_selected(self, event: DataTable.RowSelected) -> None:
+        event.stop()
+        self.action_go_to()
+
     def action_go_to(self) -> None:
         entry = self._current()
         if entry is not None and self.main.go_to_contract(entry.key):

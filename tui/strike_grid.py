@@ -93,6 +93,7 @@ COLUMNS: dict[str, ColumnSpec] = {
 #: The compact set shown until the user picks others.
 DEFAULT_COLUMNS: tuple[str, ...] = ("bid", "ask", "iv", "sigma", "p_beyond", "p_touch")
 
+#: Header lines above the strike rows (title, side labels, column headings).
 HEADER_LINES = 3
 
 
@@ -169,9 +170,13 @@ class StrikeGrid(ScrollView, can_focus=True):
             return self.grid
 
     def __init__(self, *, theme: ChainTheme | None = None, columns: Sequence[str] | None = None,
-                 ascii_only: bool = False, name: str | None = None, id: str | None = None,
-                 classes: str | None = None) -> None:
+                 ascii_only: bool = False, title: bool = True, name: str | None = None,
+                 id: str | None = None, classes: str | None = None) -> None:
+        """``title=False`` leaves out the title line (underlying, expiry, forward, strike count)
+        when the screen shows those elsewhere: the header is then HEADER_LINES - 1 lines."""
         super().__init__(name=name, id=id, classes=classes)
+        self._title = bool(title)
+        self.header_lines = HEADER_LINES if self._title else HEADER_LINES - 1
         self._theme = theme or FALLBACK_THEME
         self._styles = _Styles(self._theme)
         self._ascii = ascii_only
@@ -423,7 +428,7 @@ class StrikeGrid(ScrollView, can_focus=True):
         return self._fwd_pos if self._fwd_pos >= 0 and len(self._strikes) else None
 
     def _update_virtual_size(self) -> None:
-        self.virtual_size = Size(self._total_width(), self._display_count() + HEADER_LINES)
+        self.virtual_size = Size(self._total_width(), self._display_count() + self.header_lines)
 
     def _invalidate(self) -> None:
         self._row_cache.clear()
@@ -431,7 +436,7 @@ class StrikeGrid(ScrollView, can_focus=True):
         self.refresh()
 
     def _data_height(self) -> int:
-        return max(1, self.scrollable_content_region.height - HEADER_LINES)
+        return max(1, self.scrollable_content_region.height - self.header_lines)
 
     def _scroll_cursor_into_view(self, center: bool = False) -> None:
         if self._cursor < 0:
@@ -585,10 +590,10 @@ class StrikeGrid(ScrollView, can_focus=True):
     def render_line(self, y: int) -> Strip:
         scroll_x, scroll_y = self.scroll_offset
         width = self.scrollable_content_region.width
-        if y < HEADER_LINES:
-            strip = self._headers()[y]
+        if y < self.header_lines:
+            strip = self._headers()[y + (0 if self._title else 1)]
         else:
-            r = int(scroll_y) + y - HEADER_LINES
+            r = int(scroll_y) + y - self.header_lines
             if not len(self._strikes):
                 strip = self._empty_strip() if r == 0 else Strip.blank(0)
             elif 0 <= r < self._display_count():
@@ -649,9 +654,9 @@ class StrikeGrid(ScrollView, can_focus=True):
 
     def on_click(self, event: Click) -> None:
         y = event.y
-        if y < HEADER_LINES or not len(self._strikes):
+        if y < self.header_lines or not len(self._strikes):
             return
-        r = int(self.scroll_offset.y) + y - HEADER_LINES
+        r = int(self.scroll_offset.y) + y - self.header_lines
         if not 0 <= r < self._display_count():
             return
         i = self._strike_index(r)
