@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import contextlib
 import os
+import threading
 from collections.abc import Callable, Sequence
 from importlib import resources
 from pathlib import Path
@@ -49,6 +50,8 @@ DEMO_PACKAGE = "chaintriage.demo_chains"
 
 #: Exit status when nothing could be shown.
 EXIT_NOTHING = 2
+#: Seconds of loading before the moving loading indicator appears (the message is there at once).
+SPINNER_DELAY = 0.4
 
 
 def demo_files(root=None) -> list[str]:
@@ -83,21 +86,27 @@ def load_for_app(paths: Sequence[str | Path], *, overrides: SnapshotOverrides | 
 
 
 def annotate_view(snapshot: Snapshot, pipeline_settings: Any, load_findings: Sequence = (),
-                  confidence: float | None = None) -> SnapshotView:
+                  confidence: float | None = None, precompute: int | None = None) -> SnapshotView:
     """Run core's pipeline on one snapshot and wrap it for the screen (heavy: call off the UI thread).
 
-    The distributions, and the ranges at ``confidence``, are computed here too, so
-    paging through expiries afterwards costs no model work.
+    The distributions, and the ranges at ``confidence``, of the first ``precompute``
+    expiries (all when None) are computed here too, so paging through them costs no
+    model work; ``precompute_view`` does the rest later.
     """
     from chaintriage.core.pipeline import annotate
 
     annotated = annotate(snapshot, pipeline_settings)
     view = SnapshotView(annotated, file_findings_without_underlying(load_findings, snapshot.sources))
-    for e in view.expiries:
+    precompute_view(view, confidence, stop=precompute)
+    return view
+
+
+def precompute_view(view: SnapshotView, confidence: float | None, start: int = 0, stop: int | None = None) -> None:
+    """Compute (and cache) the distributions and ranges of expiries ``start:stop``."""
+    for e in view.expiries[start:stop]:
         view.distribution(e)
         if confidence is not None:
             view.ranges(e, confidence)
-    return view
 
 
 class TriageScreen(Screen):
@@ -135,7 +144,6 @@ class TriageScreen(Screen):
                              ascii_only=app.ascii_only, title=False)
             yield DistributionPlot(id="plot", theme=app.chain_theme, ascii_only=app.ascii_only)
         with Vertical(id="loading"):
-            yield LoadingIndicator()
             yield Static(Text("starting"), id="loading-msg")
         yield Footer(show_command_palette=False)
 
@@ -274,6 +282,8 @@ class ChainTriageApp(App[int]):
             self.views.extend(self._given_views)
             self.show_view(0)
             return
+        # A moving indicator only when loading takes a while: it would compete with a short load.
+        self.set_timer(SPINNER_DELAY, self._show_spinner)
         self._start_load(self._paths, snapshots=self._given_snapshots, initial=True,
                          overrides=self._overrides)
 
@@ -330,17 +340,25 @@ class ChainTriageApp(App[int]):
                     self._set_busy, f"computing {fm.clean_text(snap.underlying)} "
                                     f"({len(snap.contracts):,} contracts, {n + 1} of {len(snapshots)})")
                 try:
-                    view = annotate_view(snap, settings, load_findings, self.confidence)
+                    view = annotate_view(snap, settings, load_findings, self.confidence, precompute=1)
                 except ChainTriageError as exc:
                     errors.append(f"{snap.label}: {exc}")
                     continue
-                self.call_from_thread(self._add_view, view, added == 0)
+                drawn = threading.Event()
+                self.call_from_thread(self._add_view, view, added == 0, drawn)
                 added += 1
+                # Let the screen draw before more model work competes with it for the interpreter.
+                drawn.wait(2.0)
+                precompute_view(view, self.confidence, start=1)
         except ChainTriageError as exc:
             errors.append(str(exc))
         except Exception as exc:  # never a traceback on screen: say what failed and go on
             errors.append(f"could not load: {type(exc).__name__}: {exc}")
         self.call_from_thread(self._load_done, errors, added, initial)
+
+    def _show_spinner(self) -> None:
+        if not self.views:
+            self.triage.query_one("#loading").mount(LoadingIndicator(), before=0)
 
     def _set_busy(self, text: str) -> None:
         self._busy = text
@@ -349,12 +367,14 @@ class ChainTriageApp(App[int]):
                 self.triage.query_one("#loading-msg", Static).update(Text(fm.clean_text(text) + " ..."))
         self.refresh_bars()
 
-    def _add_view(self, view: SnapshotView, select: bool) -> None:
+    def _add_view(self, view: SnapshotView, select: bool, drawn: threading.Event | None = None) -> None:
         self.views.append(view)
         if select or self.view_index < 0:
             self.show_view(len(self.views) - 1)
         else:
             self.refresh_bars()
+        if drawn is not None:
+            self.call_after_refresh(drawn.set)
 
     def _load_done(self, errors: list[str], added: int, initial: bool) -> None:
         self._loads_running = max(0, self._loads_running - 1)

@@ -209,6 +209,8 @@ def test_loading_shows_progress_instead_of_a_frozen_screen(monkeypatch):
             assert not app.triage.query_one("#loading").has_class("-hidden")
             assert "computing OSPX" in str(app.triage.query_one("#loading-msg").render())
             assert "computing OSPX" in bar(app, "topbar")
+            await pilot.pause(0.5)  # a longer load also gets the moving indicator
+            assert len(app.triage.query("LoadingIndicator")) == 1
             await pilot.press("]", "c", "s")  # keys while loading do nothing harmful
             release.set()
             await wait_ready(app, pilot)
