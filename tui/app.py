@@ -211,10 +211,12 @@ class ChainTriageApp(App[int]):
         border: round $ct-accent;
     }
     .dialog.wide { width: 90%; max-width: 100; }
-    .dialog .field { height: auto; }
-    .dialog .label { width: 16; padding: 1 1 0 0; }
-    .dialog Input { width: 1fr; }
-    #f-error { color: $ct-error; }
+    .dialog .field { height: 1; margin: 1 0 0 0; }
+    .dialog .label { width: 16; }
+    .dialog Input { width: 1fr; background: $ct-background; }
+    .dialog Input:focus { background: $ct-highlight; }
+    #path-input { margin: 1 0; }
+    #f-error { height: auto; margin: 1 0 0 0; color: $ct-error; }
     #column-list { height: auto; max-height: 20; }
     """
 
@@ -628,7 +630,7 @@ class ChainTriageApp(App[int]):
         if self._system_clipboard is not None:
             tool = self._system_clipboard
             self.run_worker(lambda: tool(text), thread=True, group="clipboard", exit_on_error=False)
-        self.notify(text, title="copied to the clipboard", markup=False)
+        self.notify(text, title="copied to the clipboard", timeout=4, markup=False)
 
     def action_toggle_mark(self) -> None:
         view = self.view
@@ -639,11 +641,8 @@ class ChainTriageApp(App[int]):
             return
         key = ContractKey.of(view.snapshot.underlying, view.snapshot.as_of, contract["expiry"],
                              contract["strike"], contract["kind"])
-        on = self.shortlist.toggle(key, contract)
-        self.shortlist_changed()
-        label = f"{fm.clean_text(key.underlying)} {key.expiry} {fm.fmt_strike(key.strike)} {key.kind}"
-        self.notify(f"{label} {'set aside' if on else 'taken off'}; shortlist: {len(self.shortlist)}",
-                    timeout=2, markup=False)
+        self.shortlist.toggle(key, contract)
+        self.shortlist_changed()  # the mark in the ladder and the count in the top line say it
 
     def shortlist_changed(self) -> None:
         self._mark_grid()

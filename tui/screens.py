@@ -181,12 +181,12 @@ class ShortlistScreen(Screen):
         for i, e in enumerate(entries):
             table.add_row(*shortlist_row(e, self._ascii), key=str(i))
         n = len(entries)
-        title = Text(" shortlist ", style="bold")
+        title = Text(" shortlist: ", style="bold")
         title.append(f"{n} contract{'s' if n != 1 else ''}", style="bold")
-        title.append("    Enter goes to it, d takes it off, c copies, w writes a .csv or .md file, Esc closes",
-                     style="dim")
-        if not n:
-            title.append("\n empty: press m on a contract in the ladder to set it aside", style="dim")
+        if n:
+            title.append("   Enter shows one in the ladder", style="dim")
+        else:
+            title.append("   empty: m on a contract in the ladder sets it aside", style="dim")
         self.query_one("#shortlist-title", Static).update(title)
         if n and keep_row is not None:
             table.move_cursor(row=min(keep_row, n - 1))
@@ -301,13 +301,16 @@ class FilterDialog(ModalScreen[StrikeFilter | None]):
             yield Static(Text("show only strikes out of the money by at least", style="bold"))
             with Horizontal(classes="field"):
                 yield Static(Text("sigmas"), classes="label")
-                yield Input(value=val(c.sigma), placeholder="e.g. 1.5 (blank: any)", id="f-sigma")
+                yield Input(value=val(c.sigma), placeholder="e.g. 1.5 (blank: any)", id="f-sigma",
+                            compact=True)
             with Horizontal(classes="field"):
                 yield Static(Text("max spread %"), classes="label")
-                yield Input(value=val(c.max_spread, 100.0), placeholder="e.g. 20 (blank: any)", id="f-spread")
+                yield Input(value=val(c.max_spread, 100.0), placeholder="e.g. 20 (blank: any)", id="f-spread",
+                            compact=True)
             with Horizontal(classes="field"):
                 yield Static(Text("min open int."), classes="label")
-                yield Input(value=val(c.min_open_interest), placeholder="e.g. 100 (blank: any)", id="f-oi")
+                yield Input(value=val(c.min_open_interest), placeholder="e.g. 100 (blank: any)", id="f-oi",
+                            compact=True)
             yield Static(Text(""), id="f-error")
             yield Static(Text("Enter applies, Tab moves, Esc cancels. A strike stays when its call or its put "
                               "qualifies.", style="dim"))
@@ -347,7 +350,7 @@ class PathPrompt(ModalScreen[str | None]):
     def compose(self) -> ComposeResult:
         with Vertical(classes="dialog wide"):
             yield Static(Text(self._question, style="bold"))
-            yield Input(value=self._value, placeholder="path", id="path-input")
+            yield Input(value=self._value, placeholder="path", id="path-input", compact=True)
             yield Static(Text((self._hint + "; " if self._hint else "") + "Enter accepts, Esc cancels",
                               style="dim"))
 
