@@ -200,6 +200,7 @@ class ChainTriageApp(App[int]):
     #loading-msg { width: 1fr; content-align: center middle; color: $ct-dim; }
     .title { background: $ct-surface; color: $ct-text; height: auto; }
     #help-scroll { background: $ct-background; }
+    #finding-detail { height: auto; max-height: 8; background: $ct-surface; padding: 0 1; }
     #help-body { padding: 0 2; }
     DataTable { height: 1fr; }
     ModalScreen { align: center middle; background: $ct-background 60%; }

@@ -115,6 +115,21 @@ COLUMNS: tuple[ColumnHelp, ...] = (
     ColumnHelp("flags", "flags", "short words about the quote: zero-bid, wide, no-iv, ..."),
 )
 
+#: The areas of the triage screen, top to bottom.
+AREAS: tuple[tuple[str, str], ...] = (
+    ("top line", "the snapshot shown (underlying, snapshot time, spot), which of the loaded snapshots "
+                 "it is, how many findings its data has, and the shortlist's size"),
+    ("expiry lines", "the expiry and its place in the list; trading and calendar days left; the forward "
+                     "(from put-call parity); the at-the-money IV; the range at the chosen confidence, "
+                     "plain F x exp(+/- z x ATM IV x sqrt(T)) and from the smile's quantiles; the smile "
+                     "fit's error in vol points and whether it is free of butterfly arbitrage; this "
+                     "expiry's findings"),
+    ("filter line", "the filter in force and how many strikes it leaves; on a narrow terminal, the "
+                    "columns and the plot left out for lack of width"),
+    ("ladder", "calls on the left, the strike in the middle, puts on the right; one row per strike"),
+    ("plot", "beside the ladder when there is room: the highlighted expiry's distribution at expiry"),
+)
+
 #: The ladder's other marks.
 MARKS: tuple[tuple[str, str], ...] = (
     ("fwd line", "the dashed line across the ladder sits between the strikes around the forward "
@@ -151,7 +166,10 @@ def key_label(key: str, ascii_only: bool = False) -> str:
 
 def help_text(ascii_only: bool = False) -> str:
     """The whole help as plain text (show it with rich Text, not markup)."""
-    out: list[str] = ["KEYS"]
+    out: list[str] = ["SCREEN"]
+    for name, meaning in AREAS:
+        out.append(f"  {name:<13} {meaning}")
+    out += ["", "KEYS"]
     titles = {"ladder": "In the ladder", "screen": "Anywhere on the triage screen",
               "shortlist": "In the shortlist", "dialog": "In a dialog"}
     for context, title in titles.items():
@@ -177,3 +195,23 @@ def help_text(ascii_only: bool = False) -> str:
         text = text.replace("●", "o").replace("←", "Left").replace("→", "Right").replace("σ", "s")
         text = text.encode("ascii", "replace").decode("ascii")
     return text
+
+
+def wrap_help(text: str, width: int) -> str:
+    """``text`` (as from help_text) wrapped to ``width`` cells with hanging indents, so a long
+    description continues under itself rather than under the key."""
+    import re
+    import textwrap
+
+    width = max(20, int(width))
+    out: list[str] = []
+    for line in text.splitlines():
+        if len(line) <= width:
+            out.append(line)
+            continue
+        m = re.match(r"^(\s*\S.*?\s{2,})(\S.*)$", line) or re.match(r"^(\s*- )(.*)$", line)
+        indent = len(m.group(1)) if m and len(m.group(1)) < width // 2 else len(line) - len(line.lstrip())
+        first, rest = (m.group(1), m.group(2)) if m and indent == len(m.group(1)) else (line[:indent], line[indent:])
+        out.extend(textwrap.wrap(rest, width, initial_indent=first, subsequent_indent=" " * indent,
+                                 break_on_hyphens=False) or [line])
+    return "\n".join(out) + ("\n" if text.endswith("\n") else "")

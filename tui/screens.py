@@ -8,6 +8,7 @@ removed: never as markup.
 
 from __future__ import annotations
 
+import os
 from typing import TYPE_CHECKING, Any, Sequence
 
 from rich.text import Text
@@ -18,11 +19,11 @@ from textual.screen import ModalScreen, Screen
 from textual.widgets import DataTable, Footer, Input, SelectionList, Static
 from textual.widgets.selection_list import Selection
 
-from chaintriage.core.findings import ChainTriageError, Finding
+from chaintriage.core.findings import SEVERITIES, ChainTriageError, Finding
 
 from . import formatting as fm
 from .help_text import COLUMNS as COLUMN_HELP
-from .help_text import help_text
+from .help_text import help_text, wrap_help
 from .session import StrikeFilter
 from .shortlist import ShortlistEntry
 from .strike_grid import COLUMNS
@@ -60,6 +61,14 @@ class HelpScreen(Screen):
 
     def on_mount(self) -> None:
         self.query_one("#help-scroll").focus()
+        self._wrap()
+
+    def on_resize(self) -> None:
+        self._wrap()
+
+    def _wrap(self) -> None:
+        width = (self.size.width or 80) - 5  # padding and the scrollbar
+        self.query_one("#help-body", Static).update(Text(wrap_help(help_text(self._ascii), width)))
 
     def action_close(self) -> None:
         self.dismiss()
@@ -72,14 +81,24 @@ FINDING_COLUMNS = ("severity", "where", "column", "expiry", "reason")
 
 
 def finding_row(f: Finding) -> tuple[Text, ...]:
-    """One findings-table row: severity, file:line, column, expiry, reason (plain text)."""
+    """One findings-table row: severity, file name:line, column, expiry, reason (plain text)."""
     if f.file is not None:
-        where = f.file if f.line is None else f"{f.file}:{f.line}"
+        name = os.path.basename(f.file) or f.file
+        where = name if f.line is None else f"{name}:{f.line}"
     elif f.line is not None:
         where = f"line {f.line}"
     else:
         where = ""
     return (plain(f.severity), plain(where), plain(f.column or ""), plain(f.expiry or ""), plain(f.reason))
+
+
+def finding_detail(f: Finding) -> Text:
+    """The whole finding for the pane under the table: full location, then the reason."""
+    out = Text(f"{f.severity}: ", style="bold")
+    out.append(fm.clean_text(f.location()) or "the whole snapshot")
+    out.append("\n")
+    out.append(fm.clean_text(f.reason))
+    return out
 
 
 class FindingsScreen(Screen):
@@ -98,10 +117,16 @@ class FindingsScreen(Screen):
         head = Text(" findings for ", style="bold")
         head.append(fm.clean_text(self._title))
         head.append(f"  {n:,} finding{'s' if n != 1 else ''}", style="bold")
-        head.append("    Esc closes", style="dim")
+        counts = {sev: sum(1 for f in self._findings if f.severity == sev) for sev in SEVERITIES}
+        words = ", ".join(f"{c} {sev}" for sev, c in counts.items() if c)
+        if words:
+            head.append(f" ({words})")
+        if self._errors:
+            head.append(f"; {len(self._errors)} unusable file{'s' if len(self._errors) != 1 else ''}",
+                        style="bold")
         yield Static(head, classes="title")
-        table: DataTable = DataTable(id="findings-table", cursor_type="row", zebra_stripes=True)
-        yield table
+        yield DataTable(id="findings-table", cursor_type="row", zebra_stripes=True)
+        yield Static(Text(""), id="finding-detail")
         yield Footer(show_command_palette=False)
 
     def on_mount(self) -> None:
@@ -114,6 +139,20 @@ class FindingsScreen(Screen):
         if not self._findings and not self._errors:
             table.add_row(plain(""), plain(""), plain(""), plain(""), plain("nothing to report: every row was used"))
         table.focus()
+        self._show_detail(0)
+
+    def on_data_table_row_highlighted(self, event: DataTable.RowHighlighted) -> None:
+        self._show_detail(event.cursor_row)
+
+    def _show_detail(self, row: int) -> None:
+        detail = self.query_one("#finding-detail", Static)
+        k = row - len(self._errors)
+        if 0 <= row < len(self._errors):
+            detail.update(Text("unusable file\n", style="bold") + plain(self._errors[row]))
+        elif 0 <= k < len(self._findings):
+            detail.update(finding_detail(self._findings[k]))
+        else:
+            detail.update(Text(""))
 
     def action_close(self) -> None:
         self.dismiss()
@@ -123,24 +162,26 @@ class FindingsScreen(Screen):
 
 
 SHORTLIST_COLUMNS: tuple[tuple[str, str], ...] = (
-    ("underlying", "underlying"), ("as of", "as_of"), ("expiry", "expiry"), ("strike", "strike"),
-    ("kind", "kind"), ("mid", "mid"), ("IV", "iv"), ("σ dist", "sigma_distance"), ("beyond", "p_beyond"),
+    ("underlying", "underlying"), ("expiry", "expiry"), ("strike", "strike"), ("kind", "kind"),
+    ("mid", "mid"), ("IV", "iv"), ("σ dist", "sigma_distance"), ("beyond", "p_beyond"),
     ("touch", "p_touch"), ("BE", "breakeven"), ("spread", "spread_pct"), ("OI", "open_interest"),
+    ("as of", "as_of"),
 )
 
 
 def shortlist_row(entry: ShortlistEntry, ascii_only: bool = False) -> tuple[Text, ...]:
     """One shortlist-table row, formatted for reading."""
     k, fig = entry.key, entry.figures
-    cells: list[Text] = [plain(k.underlying), plain(fm.fmt_timestamp(k.as_of, ascii_only)), plain(k.expiry),
-                         Text(fm.fmt_strike(k.strike), justify="right"), plain(k.kind)]
+    cells: list[Text] = [plain(k.underlying), plain(k.expiry), Text(fm.fmt_strike(k.strike), justify="right"),
+                         plain(k.kind)]
     fmts = {
         "mid": fm.fmt_price, "iv": fm.fmt_vol, "sigma_distance": fm.fmt_sigma, "p_beyond": fm.fmt_prob,
         "p_touch": fm.fmt_prob, "breakeven": fm.fmt_price, "spread_pct": fm.fmt_spread,
         "open_interest": fm.fmt_count,
     }
-    for _, name in SHORTLIST_COLUMNS[5:]:
+    for _, name in SHORTLIST_COLUMNS[4:-1]:
         cells.append(Text(fmts[name](fig.get(name), ascii_only=ascii_only), justify="right"))
+    cells.append(plain(fm.fmt_timestamp(k.as_of, ascii_only)))
     return tuple(cells)
 
 

@@ -58,7 +58,7 @@ def test_shortlist_screen_lists_removes_copies_and_goes_to():
         assert table.row_count == 2
         first = app.shortlist.entries[0]
         row = [c.plain for c in table.get_row_at(0)]
-        assert row[0] == "OSPX" and row[2] == first.key.expiry and row[4] == first.key.kind
+        assert row[0] == "OSPX" and row[1] == first.key.expiry and row[3] == first.key.kind
         await pilot.press("c")
         assert app.clipboard.startswith(f"OSPX {first.key.expiry} ")
         await pilot.press("down", "d")
@@ -169,8 +169,12 @@ def test_findings_of_a_file_show_file_line_and_column(tmp_path):
         await pilot.press("e")
         table = app.screen.query_one("#findings-table")
         rows = [[c.plain for c in table.get_row_at(i)] for i in range(table.row_count)]
-        bad = [r for r in rows if r[1] == f"{p}:{len(lines)}"]
-        assert bad and bad[0][0] == "left-out" and bad[0][2] == "bid"
+        bad = [i for i, r in enumerate(rows) if r[1] == f"chain.csv:{len(lines)}"]
+        assert bad and rows[bad[0]][0] == "left-out" and rows[bad[0]][2] == "bid"
+        table.move_cursor(row=bad[0])
+        await pilot.pause()
+        detail = str(app.screen.query_one("#finding-detail").render())
+        assert f"{p}:{len(lines)}" in detail and "left-out" in detail  # the full path in the detail pane
 
     run(app, scenario)
 
@@ -182,11 +186,13 @@ def test_help_lists_every_key_and_the_cautions():
         await pilot.press("question_mark")
         screen = app.screen
         assert isinstance(screen, HelpScreen)
-        text = str(screen.query_one("#help-body").render())
+        shown = str(screen.query_one("#help-body").render())
+        assert max(len(line) for line in shown.splitlines()) <= screen.size.width
+        text = " ".join(shown.split())  # wrapped to the screen: compare word runs
         for k in ht.KEYS:
-            assert k.description in text
+            assert " ".join(k.description.split()) in text
         for c in ht.COLUMNS:
-            assert c.meaning in text
+            assert " ".join(c.meaning.split()) in text
         assert "not advice" in text and "European exercise" in text and "risk-neutral" in text
         await pilot.press("escape")
         assert app.screen is app.triage
