@@ -122,7 +122,9 @@ class _Styles:
         self.cursor_strike = Style(color=c["highlight_text"], bgcolor=c["highlight"], bold=True)
         self.selected = Style(color=c["selected_text"], bgcolor=c["selected"], bold=True)
         self.mark = Style(color=c["marked"], bgcolor=bg, bold=True)
-        self.cursor_mark = Style(color=c["marked"], bgcolor=c["highlight"], bold=True)
+        # On the highlighted row the mark takes the row's text colour: the mark colour may not
+        # stand out from the highlight (the shape of the mark says it).
+        self.cursor_mark = Style(color=c["highlight_text"], bgcolor=c["highlight"], bold=True)
         self.forward = Style(color=c["forward_marker"], bgcolor=bg)
         self.forward_label = Style(color=c["forward_marker"], bgcolor=bg, bold=True)
 
