@@ -50,6 +50,8 @@ DEMO_PACKAGE = "chaintriage.demo_chains"
 
 #: Exit status when nothing could be shown.
 EXIT_NOTHING = 2
+#: The command line's --confidence default: any other value given there is where the range starts.
+CLI_DEFAULT_CONFIDENCE = 0.68
 #: Seconds of loading before the moving loading indicator appears (the message is there at once).
 SPINNER_DELAY = 0.4
 
@@ -218,7 +220,7 @@ class ChainTriageApp(App[int]):
     .dialog Input:focus { background: $ct-highlight; }
     #path-input { margin: 1 0; }
     #f-error { height: auto; margin: 1 0 0 0; color: $ct-error; }
-    #column-list { height: auto; max-height: 20; }
+    #column-list { height: auto; max-height: 17; border: none; padding: 0; margin: 1 0; }
     """
 
     def __init__(self, paths: Sequence[str | Path] = (), *, snapshots: Sequence[Snapshot] | None = None,
@@ -247,6 +249,9 @@ class ChainTriageApp(App[int]):
         self.ascii_only: bool = bool(self.settings.ascii_only)
         self.columns: list[str] = known_columns(self.settings.columns) or list(DEFAULT_COLUMNS)
         self.confidence: float = float(self.settings.confidence)
+        given = getattr(pipeline_settings, "confidence", None)
+        if given is not None and abs(given - CLI_DEFAULT_CONFIDENCE) > 1e-12:
+            self.confidence = float(given)  # `open --confidence C` starts there
         plot = self.settings.extra.get("plot", PLOT_AUTO)
         self.plot_pref: str = plot if plot in (PLOT_AUTO, PLOT_SHOWN, PLOT_HIDDEN) else PLOT_AUTO
         # What is loaded and shown.

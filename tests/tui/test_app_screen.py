@@ -257,3 +257,16 @@ def test_every_documented_screen_key_is_bound_and_every_binding_documented():
     assert bound == documented
     for action in set(bound.values()):
         assert hasattr(make_app(), f"action_{action}"), action
+
+
+def test_open_with_a_confidence_starts_the_range_there():
+    from chaintriage.core.pipeline import PipelineSettings
+
+    app = make_app(pipeline_settings=PipelineSettings(confidence=0.95))
+
+    async def scenario(pilot):
+        assert app.confidence == 0.95 and "95% range" in bar(app, "expirybar")
+        await pilot.press("plus")
+        assert "99% range" in bar(app, "expirybar")
+
+    run(app, scenario)
