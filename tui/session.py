@@ -10,7 +10,7 @@ probabilities as decimals, sigma distance in sigmas, time in years.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from typing import Any, Iterable, Sequence
 
 import numpy as np
@@ -345,11 +345,3 @@ def file_findings_without_underlying(findings: Sequence[Finding], sources: Seque
     """Loader findings from ``sources`` that name no underlying (e.g. a row whose underlying was blank)."""
     wanted = set(sources)
     return [f for f in findings if f.underlying is None and f.file in wanted]
-
-
-@dataclass
-class LoadedSet:
-    """Everything loaded so far, in the order it was opened, and the file errors met."""
-
-    views: list[SnapshotView] = field(default_factory=list)
-    errors: list[str] = field(default_factory=list)

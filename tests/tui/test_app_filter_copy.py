@@ -9,7 +9,6 @@ of the screen against core's figures.
 from __future__ import annotations
 
 import numpy as np
-import pandas as pd
 
 from chaintriage.tui import formatting as fm
 from chaintriage.tui.screens import FilterDialog

@@ -9,7 +9,6 @@ prove any figure right.
 
 from __future__ import annotations
 
-import math
 import re
 
 import numpy as np
