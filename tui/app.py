@@ -422,6 +422,7 @@ class ChainTriageApp(App[int]):
         if not 0 <= index < len(self.views):
             return
         before = self.current_expiry
+        before_underlying = self.view.snapshot.underlying if self.view is not None else None
         self.view_index = index
         view = self.views[index]
         if expiry is not None:
@@ -429,9 +430,10 @@ class ChainTriageApp(App[int]):
         elif index not in self._expiry_pos:
             self._expiry_pos[index] = view.nearest_expiry_index(before) if before is not None else 0
         self._show_body(True)
-        self.show_expiry()
+        # Strike levels of another underlying mean nothing here: start at its forward.
+        self.show_expiry(keep_highlight=view.snapshot.underlying == before_underlying)
 
-    def show_expiry(self) -> None:
+    def show_expiry(self, keep_highlight: bool = True) -> None:
         """Put the current expiry in the ladder, the header and the plot."""
         view = self.view
         grid = self.grid
@@ -441,7 +443,8 @@ class ChainTriageApp(App[int]):
         frame = view.frame(expiry)
         shown, hidden = self.strike_filter.apply(frame)
         info = view.info(self.expiry_pos, self.confidence)
-        grid.set_rows(shown, info.forward, expiry=expiry, underlying=view.snapshot.underlying, hidden=hidden)
+        grid.set_rows(shown, info.forward, expiry=expiry, underlying=view.snapshot.underlying, hidden=hidden,
+                      keep_highlight=keep_highlight)
         self._strike_total = len(grid.strikes) + hidden
         self._mark_grid()
         self.update_layout()

@@ -217,16 +217,17 @@ class StrikeGrid(ScrollView, can_focus=True):
         return tuple(specs)
 
     def set_rows(self, expiry_frame: pd.DataFrame, forward: float, *, expiry: Any = None,
-                 underlying: str | None = None, hidden: int = 0) -> None:
+                 underlying: str | None = None, hidden: int = 0, keep_highlight: bool = True) -> None:
         """Show these contracts (one expiry, both kinds, already filtered by the caller).
 
         ``forward`` in price units places the forward line (NaN: no line);
         ``hidden`` is how many strikes the caller's filter left out (shown in the title).
         The highlight stays on the nearest strike to the one highlighted before, or
-        goes to the strike nearest the forward.
+        goes to the strike nearest the forward (always, with ``keep_highlight=False``,
+        e.g. for another underlying).
         """
         before = self._highlight_key()
-        prev_strike = self.highlighted[0] if self.highlighted else None
+        prev_strike = self.highlighted[0] if (self.highlighted and keep_highlight) else None
         frame = expiry_frame
         self._frame = frame
         n = len(frame)

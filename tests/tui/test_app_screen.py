@@ -113,6 +113,9 @@ def test_snapshot_keys_switch_underlying_and_keep_the_nearest_expiry():
         assert "TSBH" in bar(app, "topbar") and "snapshot 2/2" in bar(app, "topbar")
         gaps = [abs((e - ospx_expiry).days) for e in app.view.expiries]
         assert app.current_expiry == app.view.expiries[int(np.argmin(gaps))]
+        # another underlying: the highlight starts at its forward, not at the old strike level
+        strikes = app.grid.strikes
+        assert app.grid.highlighted[0] == float(strikes[np.argmin(np.abs(strikes - app.grid.forward))])
         await pilot.press("left_curly_bracket")
         assert app.view.snapshot.underlying == "OSPX"
         assert app.current_expiry == ospx_expiry  # each snapshot remembers its expiry
