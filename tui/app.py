@@ -25,6 +25,7 @@ from rich.text import Text
 from textual.app import App, ComposeResult
 from textual.binding import Binding
 from textual.containers import Horizontal, Vertical
+from textual.css.scalar import Scalar
 from textual.screen import Screen
 from textual.widgets import Footer, LoadingIndicator, Static
 
@@ -465,8 +466,9 @@ class ChainTriageApp(App[int]):
         width = self.triage.size.width or self.size.width
         plan = plan_layout(width, self.columns, grid.strike_width, self.plot_pref)
         was_shown = plot.display
-        plot.display = plan.plot_width > 0
-        if plan.plot_width:
+        if plot.display != (plan.plot_width > 0):
+            plot.display = plan.plot_width > 0
+        if plan.plot_width and plot.styles.width != Scalar.from_number(plan.plot_width):
             plot.styles.width = plan.plot_width
         if grid.columns != plan.columns:
             grid.set_columns(plan.columns)
