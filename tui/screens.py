@@ -392,8 +392,11 @@ class PathPrompt(ModalScreen[str | None]):
         with Vertical(classes="dialog wide"):
             yield Static(Text(self._question, style="bold"))
             yield Input(value=self._value, placeholder="path", id="path-input", compact=True)
-            yield Static(Text((self._hint + "; " if self._hint else "") + "Enter accepts, Esc cancels",
-                              style="dim"))
+            hint = Text((self._hint + "\n" if self._hint else ""), style="dim")
+            hint.append("relative to ", style="dim")
+            hint.append(fm.clean_text(os.getcwd()), style="dim")
+            hint.append("; ~ is your home. Enter accepts, Esc cancels", style="dim")
+            yield Static(hint)
 
     def on_mount(self) -> None:
         self.query_one("#path-input", Input).focus()
