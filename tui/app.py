@@ -692,6 +692,10 @@ class ChainTriageApp(App[int]):
         from .screens import ConfirmDialog
 
         target = Path(os.path.expanduser(path))
+        if target.is_dir():
+            self.notify(f"{target} is a folder: give a file name, e.g. {target / 'shortlist.csv'}",
+                        title="not written", severity="warning", markup=False)
+            return
         markdown = target.suffix.lower() in (".md", ".markdown")
         try:
             if markdown:

@@ -126,6 +126,11 @@ def test_export_to_an_unwritable_place_says_why_and_keeps_going(tmp_path):
         await pilot.pause()
         assert any("cannot write" in n for n in notes(app))
         assert isinstance(app.screen, ShortlistScreen)
+        await pilot.press("w")
+        app.screen.query_one("#path-input").value = str(tmp_path)
+        await pilot.press("enter")
+        await pilot.pause()
+        assert any("is a folder" in n for n in notes(app)) and isinstance(app.screen, ShortlistScreen)
 
     run(app, scenario)
 
