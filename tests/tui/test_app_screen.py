@@ -272,3 +272,19 @@ def test_open_with_a_confidence_starts_the_range_there():
         assert "99% range" in bar(app, "expirybar")
 
     run(app, scenario)
+
+
+def test_q_closes_a_screen_and_then_quits():
+    app = make_app()
+
+    async def scenario(pilot):
+        for key in ("question_mark", "e", "s"):
+            await pilot.press(key)
+            assert app.screen is not app.triage
+            await pilot.press("q")  # q on a screen closes it, it does not quit
+            assert app.screen is app.triage
+        await pilot.press("q")
+        await pilot.pause()
+
+    run(app, scenario)
+    assert app.return_code == 0
