@@ -32,6 +32,7 @@ from typing import Any, Mapping, Sequence
 import numpy as np
 from rich.style import Style
 from rich.text import Text
+from textual.strip import Strip
 from textual.widget import Widget
 
 from . import formatting as fm
@@ -386,6 +387,8 @@ class DistributionPlot(Widget):
         self._inputs: dict[str, Any] | None = None
         self._empty_text = " no expiry selected"
         self.last_result: PlotResult | None = None
+        self._strips: list[Strip] | None = None
+        self._strips_size: tuple[int, int] = (0, 0)
 
     def update_plot(self, strikes: Any, density: Any, density_flat: Any, *, forward: float,
                     sigma_sqrt_t: float, highlight_strike: float | None = None,
@@ -415,13 +418,34 @@ class DistributionPlot(Widget):
         self._ascii = bool(ascii_only)
         self.refresh()
 
-    def render(self) -> Text:
+    def refresh(self, *args: Any, **kwargs: Any):  # type: ignore[override]
+        self._strips = None
+        return super().refresh(*args, **kwargs)
+
+    def _draw(self) -> PlotResult:
         width, height = self.size.width, self.size.height
         colors = PlotColors.from_theme(self._theme)
         if self._inputs is None:
-            result = _message(self._empty_text, width, height, colors)
-        else:
-            result = draw_distribution(**self._inputs, colors=colors, width=width, height=height,
-                                       ascii_only=self._ascii)
+            return _message(self._empty_text, width, height, colors)
+        return draw_distribution(**self._inputs, colors=colors, width=width, height=height,
+                                 ascii_only=self._ascii)
+
+    def render_line(self, y: int) -> Strip:
+        """One line of the plot, drawn straight to segments (no markup, no re-parsing of styles)."""
+        key = (self.size.width, self.size.height)
+        if self._strips is None or self._strips_size != key:
+            result = self._draw()
+            self.last_result = result
+            console = self.app.console
+            bg = Style(bgcolor=self._theme.colors["background"])
+            self._strips = [Strip(list(line.render(console)), line.cell_len).extend_cell_length(key[0], bg)
+                            for line in result.lines]
+            self._strips_size = key
+        if 0 <= y < len(self._strips):
+            return self._strips[y]
+        return Strip.blank(self.size.width)
+
+    def render(self) -> Text:
+        result = self._draw()
         self.last_result = result
         return Text("\n").join(result.lines)

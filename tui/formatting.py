@@ -138,6 +138,17 @@ def fmt_price(value: Any, width: int | None = None, ascii_only: bool = False) ->
     return fit(text, width)
 
 
+def fmt_level(value: Any, width: int | None = None, ascii_only: bool = False) -> str:
+    """A price level computed by a model (forward, range ends): 2 decimals, 4 below 1.00."""
+    x = as_finite(value)
+    if x is None:
+        return _missing(width, ascii_only)
+    text = f"{x:.{2 if abs(x) >= 1 else 4}f}"
+    if text.startswith("-") and float(text) == 0.0:
+        text = text[1:]
+    return fit(text, width)
+
+
 def strike_decimals(values: Any) -> int:
     """Fewest decimals (0..3) that show every strike in ``values`` exactly (ignoring non-finite)."""
     try:

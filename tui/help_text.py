@@ -43,10 +43,15 @@ KEYS: tuple[KeyHelp, ...] = (
     # The triage screen.
     KeyHelp(("]",), "screen", "next_expiry", "next expiry"),
     KeyHelp(("[",), "screen", "previous_expiry", "previous expiry"),
-    KeyHelp(("f",), "screen", "set_filter", "show only strikes at least N sigmas from the forward (asks for N)"),
+    KeyHelp(("}",), "screen", "next_snapshot",
+            "next loaded snapshot (another underlying, or the same one at another time)"),
+    KeyHelp(("{",), "screen", "previous_snapshot", "previous loaded snapshot"),
+    KeyHelp(("f",), "screen", "set_filter",
+            "show only strikes at least N sigmas out of the money, optionally with spread and "
+            "open-interest limits (asks for them)"),
     KeyHelp(("x",), "screen", "clear_filter", "show every strike again"),
     KeyHelp(("plus", "minus"), "screen", "confidence_up / confidence_down",
-            "widen / narrow the range's confidence (68.27%, 80%, 90%, 95%, 99%)"),
+            "widen / narrow the range's confidence (68.27%, 80%, 90%, 95%, 99%); = works as +"),
     KeyHelp(("c",), "screen", "copy_summary", "copy the highlighted contract's one-line summary"),
     KeyHelp(("m",), "screen", "toggle_mark", "put the highlighted contract on the shortlist, or take it off"),
     KeyHelp(("s",), "screen", "open_shortlist", "open the shortlist"),
@@ -55,15 +60,22 @@ KEYS: tuple[KeyHelp, ...] = (
     KeyHelp(("t",), "screen", "next_theme", "next colour theme (remembered)"),
     KeyHelp(("a",), "screen", "toggle_ascii", "draw with plain ASCII characters, or with Unicode"),
     KeyHelp(("e",), "screen", "show_findings", "what the loader and the pipeline said about the data"),
+    KeyHelp(("l",), "screen", "load_file", "open another snapshot file (asks for its path)"),
     KeyHelp(("question_mark",), "screen", "show_help", "this help"),
     KeyHelp(("q",), "screen", "quit", "quit"),
     # The shortlist.
     KeyHelp(("up", "k", "down", "j"), "shortlist", "cursor_up / cursor_down", "move through the shortlist"),
+    KeyHelp(("enter",), "shortlist", "go_to", "show the contract in the ladder"),
     KeyHelp(("d", "delete"), "shortlist", "remove_entry", "take the contract off the shortlist"),
-    KeyHelp(("w",), "shortlist", "export", "write the shortlist to a file: .csv or .md by the name given"),
+    KeyHelp(("w",), "shortlist", "export",
+            "write the shortlist to a file: .csv or .md by the name given (asks before replacing a file)"),
     KeyHelp(("c",), "shortlist", "copy_summary", "copy the contract's one-line summary"),
     # Any dialog or pane.
-    KeyHelp(("escape",), "dialog", "dismiss", "close the dialog or pane"),
+    KeyHelp(("escape",), "dialog", "dismiss", "close the dialog or pane (q too, where nothing is typed)"),
+    KeyHelp(("enter",), "dialog", "submit", "apply what was typed (filter, path)"),
+    KeyHelp(("tab",), "dialog", "focus_next", "next field of the filter dialog"),
+    KeyHelp(("space",), "dialog", "toggle", "show or hide a column in the column list"),
+    KeyHelp(("y", "n"), "dialog", "answer", "yes / no, e.g. to replacing an existing file"),
 )
 
 #: How a Textual key name is shown to the user.
@@ -71,6 +83,7 @@ KEY_LABELS: dict[str, str] = {
     "up": "↑", "down": "↓", "left": "←", "right": "→", "pageup": "PgUp", "pagedown": "PgDn",
     "home": "Home", "end": "End", "ctrl+pageup": "Ctrl+PgUp", "ctrl+pagedown": "Ctrl+PgDn",
     "plus": "+", "minus": "-", "question_mark": "?", "escape": "Esc", "delete": "Del",
+    "enter": "Enter", "tab": "Tab", "space": "Space", "equals_sign": "=",
 }
 KEY_LABELS_ASCII: dict[str, str] = {**KEY_LABELS, "up": "Up", "down": "Down", "left": "Left", "right": "Right"}
 
@@ -100,6 +113,21 @@ COLUMNS: tuple[ColumnHelp, ...] = (
     ColumnHelp("open_interest", "OI", "open interest: contracts outstanding"),
     ColumnHelp("volume", "volume", "contracts traded in the session"),
     ColumnHelp("flags", "flags", "short words about the quote: zero-bid, wide, no-iv, ..."),
+)
+
+#: The areas of the triage screen, top to bottom.
+AREAS: tuple[tuple[str, str], ...] = (
+    ("top line", "the snapshot shown (underlying, snapshot time, spot), which of the loaded snapshots "
+                 "it is, how many findings its data has, and the shortlist's size"),
+    ("expiry lines", "the expiry and its place in the list; trading and calendar days left; the forward "
+                     "(from put-call parity); the at-the-money IV; the range at the chosen confidence, "
+                     "plain F x exp(+/- z x ATM IV x sqrt(T)) and from the smile's quantiles; the smile "
+                     "fit's error in vol points and whether it is free of butterfly arbitrage; this "
+                     "expiry's findings"),
+    ("filter line", "the filter in force and how many strikes it leaves; on a narrow terminal, the "
+                    "columns and the plot left out for lack of width"),
+    ("ladder", "calls on the left, the strike in the middle, puts on the right; one row per strike"),
+    ("plot", "beside the ladder when there is room: the highlighted expiry's distribution at expiry"),
 )
 
 #: The ladder's other marks.
@@ -138,7 +166,10 @@ def key_label(key: str, ascii_only: bool = False) -> str:
 
 def help_text(ascii_only: bool = False) -> str:
     """The whole help as plain text (show it with rich Text, not markup)."""
-    out: list[str] = ["KEYS"]
+    out: list[str] = ["SCREEN"]
+    for name, meaning in AREAS:
+        out.append(f"  {name:<13} {meaning}")
+    out += ["", "KEYS"]
     titles = {"ladder": "In the ladder", "screen": "Anywhere on the triage screen",
               "shortlist": "In the shortlist", "dialog": "In a dialog"}
     for context, title in titles.items():
@@ -164,3 +195,23 @@ def help_text(ascii_only: bool = False) -> str:
         text = text.replace("●", "o").replace("←", "Left").replace("→", "Right").replace("σ", "s")
         text = text.encode("ascii", "replace").decode("ascii")
     return text
+
+
+def wrap_help(text: str, width: int) -> str:
+    """``text`` (as from help_text) wrapped to ``width`` cells with hanging indents, so a long
+    description continues under itself rather than under the key."""
+    import re
+    import textwrap
+
+    width = max(20, int(width))
+    out: list[str] = []
+    for line in text.splitlines():
+        if len(line) <= width:
+            out.append(line)
+            continue
+        m = re.match(r"^(\s*\S.*?\s{2,})(\S.*)$", line) or re.match(r"^(\s*- )(.*)$", line)
+        indent = len(m.group(1)) if m and len(m.group(1)) < width // 2 else len(line) - len(line.lstrip())
+        first, rest = (m.group(1), m.group(2)) if m and indent == len(m.group(1)) else (line[:indent], line[indent:])
+        out.extend(textwrap.wrap(rest, width, initial_indent=first, subsequent_indent=" " * indent,
+                                 break_on_hyphens=False) or [line])
+    return "\n".join(out) + ("\n" if text.endswith("\n") else "")

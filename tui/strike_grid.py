@@ -93,6 +93,7 @@ COLUMNS: dict[str, ColumnSpec] = {
 #: The compact set shown until the user picks others.
 DEFAULT_COLUMNS: tuple[str, ...] = ("bid", "ask", "iv", "sigma", "p_beyond", "p_touch")
 
+#: Header lines above the strike rows (title, side labels, column headings).
 HEADER_LINES = 3
 
 
@@ -121,7 +122,9 @@ class _Styles:
         self.cursor_strike = Style(color=c["highlight_text"], bgcolor=c["highlight"], bold=True)
         self.selected = Style(color=c["selected_text"], bgcolor=c["selected"], bold=True)
         self.mark = Style(color=c["marked"], bgcolor=bg, bold=True)
-        self.cursor_mark = Style(color=c["marked"], bgcolor=c["highlight"], bold=True)
+        # On the highlighted row the mark takes the row's text colour: the mark colour may not
+        # stand out from the highlight (the shape of the mark says it).
+        self.cursor_mark = Style(color=c["highlight_text"], bgcolor=c["highlight"], bold=True)
         self.forward = Style(color=c["forward_marker"], bgcolor=bg)
         self.forward_label = Style(color=c["forward_marker"], bgcolor=bg, bold=True)
 
@@ -169,9 +172,13 @@ class StrikeGrid(ScrollView, can_focus=True):
             return self.grid
 
     def __init__(self, *, theme: ChainTheme | None = None, columns: Sequence[str] | None = None,
-                 ascii_only: bool = False, name: str | None = None, id: str | None = None,
-                 classes: str | None = None) -> None:
+                 ascii_only: bool = False, title: bool = True, name: str | None = None,
+                 id: str | None = None, classes: str | None = None) -> None:
+        """``title=False`` leaves out the title line (underlying, expiry, forward, strike count)
+        when the screen shows those elsewhere: the header is then HEADER_LINES - 1 lines."""
         super().__init__(name=name, id=id, classes=classes)
+        self._title = bool(title)
+        self.header_lines = HEADER_LINES if self._title else HEADER_LINES - 1
         self._theme = theme or FALLBACK_THEME
         self._styles = _Styles(self._theme)
         self._ascii = ascii_only
@@ -210,16 +217,17 @@ class StrikeGrid(ScrollView, can_focus=True):
         return tuple(specs)
 
     def set_rows(self, expiry_frame: pd.DataFrame, forward: float, *, expiry: Any = None,
-                 underlying: str | None = None, hidden: int = 0) -> None:
+                 underlying: str | None = None, hidden: int = 0, keep_highlight: bool = True) -> None:
         """Show these contracts (one expiry, both kinds, already filtered by the caller).
 
         ``forward`` in price units places the forward line (NaN: no line);
         ``hidden`` is how many strikes the caller's filter left out (shown in the title).
         The highlight stays on the nearest strike to the one highlighted before, or
-        goes to the strike nearest the forward.
+        goes to the strike nearest the forward (always, with ``keep_highlight=False``,
+        e.g. for another underlying).
         """
         before = self._highlight_key()
-        prev_strike = self.highlighted[0] if self.highlighted else None
+        prev_strike = self.highlighted[0] if (self.highlighted and keep_highlight) else None
         frame = expiry_frame
         self._frame = frame
         n = len(frame)
@@ -344,6 +352,11 @@ class StrikeGrid(ScrollView, can_focus=True):
         return self._strikes
 
     @property
+    def strike_width(self) -> int:
+        """Cells of the strike column (grows with the longest strike shown)."""
+        return self._strike_width
+
+    @property
     def expiry(self) -> pd.Timestamp | None:
         return self._expiry
 
@@ -418,7 +431,7 @@ class StrikeGrid(ScrollView, can_focus=True):
         return self._fwd_pos if self._fwd_pos >= 0 and len(self._strikes) else None
 
     def _update_virtual_size(self) -> None:
-        self.virtual_size = Size(self._total_width(), self._display_count() + HEADER_LINES)
+        self.virtual_size = Size(self._total_width(), self._display_count() + self.header_lines)
 
     def _invalidate(self) -> None:
         self._row_cache.clear()
@@ -426,7 +439,7 @@ class StrikeGrid(ScrollView, can_focus=True):
         self.refresh()
 
     def _data_height(self) -> int:
-        return max(1, self.scrollable_content_region.height - HEADER_LINES)
+        return max(1, self.scrollable_content_region.height - self.header_lines)
 
     def _scroll_cursor_into_view(self, center: bool = False) -> None:
         if self._cursor < 0:
@@ -515,7 +528,7 @@ class StrikeGrid(ScrollView, can_focus=True):
         st = self._styles
         total = self._total_width()
         fill = "-" if self._ascii else "╌"
-        label = f" fwd {fm.fmt_price(self._forward)} "
+        label = f" fwd {fm.fmt_level(self._forward)} "
         centre = self._side_width() + 3 + self._strike_width // 2
         start = max(0, min(total - len(label), centre - len(label) // 2))
         left = fill * start
@@ -543,7 +556,7 @@ class StrikeGrid(ScrollView, can_focus=True):
             parts.append(self._underlying)
         parts.append(fm.fmt_date(self._expiry, self._ascii) if self._expiry is not None else "")
         title = " " + "  ".join(p for p in parts if p)
-        info = f"  fwd {fm.fmt_price(self._forward, ascii_only=self._ascii)}  {len(self._strikes)} strikes"
+        info = f"  fwd {fm.fmt_level(self._forward, ascii_only=self._ascii)}  {len(self._strikes)} strikes"
         if self._hidden:
             info += f", {self._hidden} hidden by the filter"
         line0 = Strip([Segment(title, st.header), Segment(info, st.header_dim)]).extend_cell_length(total, st.header_dim)
@@ -580,10 +593,10 @@ class StrikeGrid(ScrollView, can_focus=True):
     def render_line(self, y: int) -> Strip:
         scroll_x, scroll_y = self.scroll_offset
         width = self.scrollable_content_region.width
-        if y < HEADER_LINES:
-            strip = self._headers()[y]
+        if y < self.header_lines:
+            strip = self._headers()[y + (0 if self._title else 1)]
         else:
-            r = int(scroll_y) + y - HEADER_LINES
+            r = int(scroll_y) + y - self.header_lines
             if not len(self._strikes):
                 strip = self._empty_strip() if r == 0 else Strip.blank(0)
             elif 0 <= r < self._display_count():
@@ -644,9 +657,9 @@ class StrikeGrid(ScrollView, can_focus=True):
 
     def on_click(self, event: Click) -> None:
         y = event.y
-        if y < HEADER_LINES or not len(self._strikes):
+        if y < self.header_lines or not len(self._strikes):
             return
-        r = int(self.scroll_offset.y) + y - HEADER_LINES
+        r = int(self.scroll_offset.y) + y - self.header_lines
         if not 0 <= r < self._display_count():
             return
         i = self._strike_index(r)

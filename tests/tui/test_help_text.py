@@ -53,3 +53,16 @@ def test_help_text_in_both_modes():
     plain = ht.help_text(ascii_only=True)
     assert plain.isascii()
     assert "s dist" in plain and "Up / k" in plain
+
+
+def test_wrapped_help_keeps_every_word_and_fits_the_width():
+    text = ht.help_text()
+    for width in (40, 78, 120):
+        wrapped = ht.wrap_help(text, width)
+        assert max(len(line) for line in wrapped.splitlines()) <= width
+        assert wrapped.split() == text.split()
+    # a long description continues under itself, not under its key
+    lines = ht.wrap_help(text, 60).splitlines()
+    i = next(n for n, line in enumerate(lines) if line.strip().startswith("f ") and "show only" in line)
+    start = lines[i].index("show only")
+    assert lines[i + 1][:start].strip() == "" and lines[i + 1][start] != " "

@@ -157,3 +157,34 @@ def test_toml_string_escapes_are_read_back_by_tomllib():
     import tomllib
     for raw in ['plain', 'quote " and \\ back', 'ctl \x00\x1f\x7f', 'tab\tnl\ncr\r', 'ünï €']:
         assert tomllib.loads(f"k = {st.toml_string(raw)}")["k"] == raw
+
+
+def _luminance(colour: str) -> float:
+    # WCAG 2.1 relative luminance of an sRGB colour [M: W3C WCAG 2.1, definition "relative luminance"]
+    channels = [int(colour[i:i + 2], 16) / 255 for i in (1, 3, 5)]
+    lin = [c / 12.92 if c <= 0.03928 else ((c + 0.055) / 1.055) ** 2.4 for c in channels]
+    return 0.2126 * lin[0] + 0.7152 * lin[1] + 0.0722 * lin[2]
+
+
+def contrast(a: str, b: str) -> float:
+    la, lb = sorted((_luminance(a), _luminance(b)), reverse=True)
+    return (la + 0.05) / (lb + 0.05)
+
+
+def test_contrast_formula_matches_the_known_extremes():
+    # black on white is 21:1 and a colour on itself 1:1 [M: WCAG 2.1 SC 1.4.3 understanding document]
+    assert abs(contrast("#000000", "#ffffff") - 21.0) < 1e-9
+    assert contrast("#777777", "#777777") == 1.0
+
+
+def test_built_in_themes_keep_text_readable_where_the_screen_draws_it():
+    # WCAG 2.1 SC 1.4.3: at least 4.5:1 for normal-size text [M]
+    pairs = [("text", "background"), ("text", "surface"), ("dim", "background"), ("dim", "surface"),
+             ("otm_call", "background"), ("otm_put", "background"), ("itm", "itm_background"),
+             ("highlight_text", "highlight"), ("selected_text", "selected"), ("forward_marker", "background"),
+             ("marked", "background"), ("warning", "surface"), ("warning", "background"),
+             ("accent", "surface")]
+    for theme in th.load_themes(include_user=False).themes.values():
+        c = theme.colors
+        for fg, bg in pairs:
+            assert contrast(c[fg], c[bg]) >= 4.5, (theme.name, fg, bg, round(contrast(c[fg], c[bg]), 2))

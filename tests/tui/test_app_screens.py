@@ -1,0 +1,230 @@
+"""The shortlist, export, findings, help and column screens, through the pilot.
+
+Checks are about what the screens hold and write, against core's output and
+the shortlist module [D]; the exported CSV is read back with Python's csv module.
+"""
+
+from __future__ import annotations
+
+import csv
+
+import pandas as pd
+
+from chaintriage.tui import help_text as ht
+from chaintriage.tui.screens import (ColumnPicker, ConfirmDialog, FindingsScreen, HelpScreen, PathPrompt,
+                                     ShortlistScreen)
+from chaintriage.tui.settings import load_settings
+from chaintriage.tui.strike_grid import COLUMNS
+
+from .app_support import bar, demo_annotated, make_app, notes, run
+
+
+async def mark(pilot, *keys):
+    await pilot.press(*keys, "m")
+
+
+def test_marking_across_expiries_and_snapshots_fills_the_shortlist():
+    app = make_app()
+
+    async def scenario(pilot):
+        await mark(pilot)
+        k1 = app.grid.highlighted
+        assert any("●" in line for line in app.grid.render_lines_text())
+        await mark(pilot, "]", "right")
+        await mark(pilot, "right_curly_bracket")
+        assert len(app.shortlist) == 3
+        keys = [e.key for e in app.shortlist.entries]
+        assert [k.underlying for k in keys] == ["OSPX", "OSPX", "TSBH"]
+        assert keys[0].expiry != keys[1].expiry and (keys[0].strike, keys[0].kind) == k1
+        assert keys[1].kind == "put"
+        assert "shortlist 3" in bar(app, "topbar")
+        # m again takes it off
+        await pilot.press("m")
+        assert len(app.shortlist) == 2
+
+    run(app, scenario)
+
+
+def test_shortlist_screen_lists_removes_copies_and_goes_to():
+    app = make_app()
+
+    async def scenario(pilot):
+        await mark(pilot)
+        await mark(pilot, "]", "down")
+        await pilot.press("s")
+        screen = app.screen
+        assert isinstance(screen, ShortlistScreen)
+        table = screen.query_one("#shortlist-table")
+        assert table.row_count == 2
+        first = app.shortlist.entries[0]
+        row = [c.plain for c in table.get_row_at(0)]
+        assert row[0] == "OSPX" and row[1] == first.key.expiry and row[3] == first.key.kind
+        await pilot.press("c")
+        assert app.clipboard.startswith(f"OSPX {first.key.expiry} ")
+        await pilot.press("down", "d")
+        assert table.row_count == 1 and len(app.shortlist) == 1
+        await pilot.press("enter")  # go to the remaining (first) contract
+        assert app.screen is app.triage
+        assert app.grid.highlighted == (first.key.strike, first.key.kind)
+        assert pd.Timestamp(first.key.expiry) == app.current_expiry
+
+    run(app, scenario)
+
+
+def test_export_writes_csv_and_markdown_and_asks_before_replacing(tmp_path):
+    app = make_app()
+    target = tmp_path / "picks.csv"
+    md = tmp_path / "picks.md"
+
+    async def type_path(pilot, path):
+        await pilot.press("w")
+        prompt = app.screen
+        assert isinstance(prompt, PathPrompt)
+        prompt.query_one("#path-input").value = str(path)
+        await pilot.press("enter")
+        await pilot.pause()
+
+    async def scenario(pilot):
+        await mark(pilot)
+        await pilot.press("s")
+        await type_path(pilot, target)
+        rows = list(csv.DictReader(target.open(newline="", encoding="utf-8")))
+        assert len(rows) == 1 and rows[0]["underlying"] == "OSPX"
+        oracle = demo_annotated()[0].contracts
+        key = app.shortlist.entries[0].key
+        want = oracle[(oracle["expiry"] == pd.Timestamp(key.expiry)) & (oracle["strike"] == key.strike)
+                      & (oracle["kind"] == key.kind)].iloc[0]
+        assert float(rows[0]["p_beyond"]) == want["p_beyond"]
+        assert any(str(target) in n for n in notes(app))
+        before = target.read_bytes()
+        # a second contract, then the same path: a question, and "no" keeps the file
+        await pilot.press("escape", "down", "m", "s")
+        await type_path(pilot, target)
+        assert isinstance(app.screen, ConfirmDialog)
+        await pilot.press("n")
+        assert target.read_bytes() == before
+        await type_path(pilot, target)
+        assert isinstance(app.screen, ConfirmDialog)
+        await pilot.press("y")
+        await pilot.pause()
+        assert len(list(csv.DictReader(target.open(newline="", encoding="utf-8")))) == 2
+        await type_path(pilot, md)
+        text = md.read_text(encoding="utf-8")
+        assert text.startswith("| underlying |") and text.count("\n| OSPX |") == 2
+
+    run(app, scenario)
+
+
+def test_export_to_an_unwritable_place_says_why_and_keeps_going(tmp_path):
+    app = make_app()
+
+    async def scenario(pilot):
+        await mark(pilot)
+        await pilot.press("s", "w")
+        app.screen.query_one("#path-input").value = str(tmp_path / "no" / "such" / "dir" / "x.csv")
+        await pilot.press("enter")
+        await pilot.pause()
+        assert any("cannot write" in n for n in notes(app))
+        assert isinstance(app.screen, ShortlistScreen)
+        await pilot.press("w")
+        app.screen.query_one("#path-input").value = str(tmp_path)
+        await pilot.press("enter")
+        await pilot.pause()
+        assert any("is a folder" in n for n in notes(app)) and isinstance(app.screen, ShortlistScreen)
+
+    run(app, scenario)
+
+
+def test_findings_screen_lists_the_snapshots_findings():
+    app = make_app()
+
+    async def scenario(pilot):
+        view = app.view
+        findings = view.findings()
+        assert findings
+        assert f"{len(findings)} findings" in bar(app, "topbar")
+        await pilot.press("e")
+        screen = app.screen
+        assert isinstance(screen, FindingsScreen)
+        table = screen.query_one("#findings-table")
+        assert table.row_count == len(findings)
+        reasons = {table.get_row_at(i)[4].plain for i in range(table.row_count)}
+        assert {f.reason for f in findings} == reasons
+        severities = {table.get_row_at(i)[0].plain for i in range(table.row_count)}
+        assert severities <= {"left-out", "warning", "note"}
+        await pilot.press("escape")
+        assert app.screen is app.triage
+
+    run(app, scenario)
+
+
+def test_findings_of_a_file_show_file_line_and_column(tmp_path):
+    p = tmp_path / "chain.csv"
+    lines = ["underlying,as_of,spot,expiry,strike,kind,bid,ask"]
+    for k in range(90, 111, 5):
+        lines.append(f"QRTZ,2026-03-02T15:30:00-05:00,100,2026-03-20,{k},call,{max(0.05, 100.5 - k):.2f},"
+                     f"{max(0.10, 100.5 - k) + 0.2:.2f}")
+        lines.append(f"QRTZ,2026-03-02T15:30:00-05:00,100,2026-03-20,{k},put,{max(0.05, k - 99.5):.2f},"
+                     f"{max(0.10, k - 99.5) + 0.2:.2f}")
+    lines.append("QRTZ,2026-03-02T15:30:00-05:00,100,2026-03-20,100,call,abc,1.0")
+    p.write_text("\n".join(lines) + "\n", encoding="utf-8")
+    app = make_app(paths=[str(p)])
+
+    async def scenario(pilot):
+        await pilot.press("e")
+        table = app.screen.query_one("#findings-table")
+        rows = [[c.plain for c in table.get_row_at(i)] for i in range(table.row_count)]
+        bad = [i for i, r in enumerate(rows) if r[1] == f"chain.csv:{len(lines)}"]
+        assert bad and rows[bad[0]][0] == "left-out" and rows[bad[0]][2] == "bid"
+        table.move_cursor(row=bad[0])
+        await pilot.pause()
+        detail = str(app.screen.query_one("#finding-detail").render())
+        assert f"{p}:{len(lines)}" in detail and "left-out" in detail  # the full path in the detail pane
+
+    run(app, scenario)
+
+
+def test_help_lists_every_key_and_the_cautions():
+    app = make_app()
+
+    async def scenario(pilot):
+        await pilot.press("question_mark")
+        screen = app.screen
+        assert isinstance(screen, HelpScreen)
+        shown = str(screen.query_one("#help-body").render())
+        assert max(len(line) for line in shown.splitlines()) <= screen.size.width
+        text = " ".join(shown.split())  # wrapped to the screen: compare word runs
+        for k in ht.KEYS:
+            assert " ".join(k.description.split()) in text
+        for c in ht.COLUMNS:
+            assert " ".join(c.meaning.split()) in text
+        assert "not advice" in text and "European exercise" in text and "risk-neutral" in text
+        await pilot.press("escape")
+        assert app.screen is app.triage
+
+    run(app, scenario)
+
+
+def test_column_picker_changes_the_ladder_and_remembers(config_home):
+    app = make_app()
+
+    async def scenario(pilot):
+        await pilot.press("o")
+        picker = app.screen
+        assert isinstance(picker, ColumnPicker)
+        sl = picker.query_one("#column-list")
+        keys = list(COLUMNS)
+        sl.highlighted = keys.index("mid")
+        await pilot.press("space")
+        sl.highlighted = keys.index("bid")
+        await pilot.press("space")
+        await pilot.pause()
+        assert app.columns == ["ask", "mid", "iv", "sigma", "p_beyond", "p_touch"]
+        assert app.grid.columns == app.columns
+        heads = app.grid.render_lines_text()[1]
+        assert "mid" in heads and "bid" not in heads
+        await pilot.press("escape")
+        assert app.screen is app.triage
+        assert load_settings()[0].columns == app.columns
+
+    run(app, scenario)

@@ -1,0 +1,229 @@
+"""The information lines above the ladder: what is loaded, the current expiry's
+figures, and the filter. Pure functions build rich ``Text`` pieces (never
+markup); ``InfoBar`` packs the pieces into as many lines as its width needs.
+
+Pieces are kept whole: a line break falls between pieces, never inside one.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Sequence
+
+from rich.style import Style
+from rich.text import Text
+from textual.geometry import Size
+from textual.widget import Widget
+
+from chaintriage.core.findings import LEFT_OUT, WARNING, Finding
+
+from . import formatting as fm
+from .session import ExpiryInfo, StrikeFilter, fmt_confidence
+from .themes import FALLBACK_THEME, ChainTheme
+
+SEP = "  "
+
+#: How the forward was found, in words (core's ForwardEstimate.method).
+FORWARD_METHODS = {"parity": "put-call parity", "parity-single": "parity at one strike",
+                   "rates": "from rate and dividend", "spot": "spot: no parity, no rate"}
+
+
+def pack_pieces(pieces: Sequence[Text], width: int, sep: str = SEP, indent: str = " ") -> list[Text]:
+    """Lay pieces out left to right in lines of at most ``width`` cells.
+
+    A piece longer than a whole line is cut with "~". Always at least one line.
+    """
+    width = max(1, int(width))
+    lines: list[Text] = []
+    line = Text(indent)
+    has = False
+    for piece in pieces:
+        p = piece.copy()
+        if p.cell_len > width - len(indent):
+            p.truncate(max(1, width - len(indent) - 1))
+            p.append("~")
+        needed = p.cell_len + (len(sep) if has else 0)
+        if has and line.cell_len + needed > width:
+            lines.append(line)
+            line = Text(indent)
+            has = False
+        if has:
+            line.append(sep)
+        line.append_text(p)
+        has = True
+    lines.append(line)
+    return lines
+
+
+class InfoBar(Widget):
+    """One or more lines of pieces; its height follows the packed line count."""
+
+    DEFAULT_CSS = """
+    InfoBar {
+        height: auto;
+        width: 1fr;
+    }
+    """
+
+    def __init__(self, *, id: str | None = None, classes: str | None = None) -> None:
+        super().__init__(id=id, classes=classes)
+        self._pieces: list[Text] = []
+        self._right: Text | None = None
+
+    def set_pieces(self, pieces: Sequence[Text]) -> None:
+        new = list(pieces)
+        if [p.plain for p in new] == [p.plain for p in self._pieces] and \
+                [p.spans for p in new] == [p.spans for p in self._pieces]:
+            return
+        self._pieces = new
+        self.refresh(layout=True)
+
+    @property
+    def plain(self) -> str:
+        """The text currently shown, lines joined with newlines."""
+        return "\n".join(t.plain for t in self._lines(self.size.width or 80))
+
+    def _lines(self, width: int) -> list[Text]:
+        return pack_pieces(self._pieces, width)
+
+    def get_content_height(self, container: Size, viewport: Size, width: int) -> int:
+        return len(self._lines(width))
+
+    def render(self) -> Text:
+        return Text("\n").join(self._lines(self.size.width))
+
+
+# ---------------------------------------------------------------- styles from a theme
+
+
+class BarStyles:
+    """Styles for the bars, from a theme's colours."""
+
+    def __init__(self, theme: ChainTheme | None = None) -> None:
+        c = (theme or FALLBACK_THEME).colors
+        self.text = Style(color=c["text"])
+        self.strong = Style(color=c["text"], bold=True)
+        self.dim = Style(color=c["dim"])
+        self.accent = Style(color=c["accent"], bold=True)
+        self.brand = Style(color=c["background"], bgcolor=c["accent"], bold=True)
+        self.warning = Style(color=c["warning"], bold=True)
+        self.error = Style(color=c["error"], bold=True)
+        self.forward = Style(color=c["forward_marker"], bold=True)
+        self.marked = Style(color=c["marked"], bold=True)
+        self.call = Style(color=c["otm_call"])
+        self.put = Style(color=c["otm_put"])
+
+
+def _piece(*parts: tuple[str, Style | None]) -> Text:
+    t = Text(no_wrap=True, overflow="ellipsis")
+    for text, style in parts:
+        t.append(text, style=style)
+    return t
+
+
+def _dash(ascii_only: bool) -> str:
+    return "-" if ascii_only else "–"
+
+
+def _band(lo: float, hi: float, ascii_only: bool) -> str:
+    if not (math.isfinite(lo) and math.isfinite(hi)):
+        return fm.placeholder(ascii_only)
+    return f"{fm.fmt_level(lo)}{_dash(ascii_only)}{fm.fmt_level(hi)}"
+
+
+def finding_counts(findings: Sequence[Finding]) -> tuple[int, int, int]:
+    """(left out, warnings, notes)."""
+    lo = sum(1 for f in findings if f.severity == LEFT_OUT)
+    wa = sum(1 for f in findings if f.severity == WARNING)
+    return lo, wa, len(findings) - lo - wa
+
+
+def top_pieces(*, underlying: str, as_of_text: str, spot: float, index: int, count: int,
+               findings: int, shortlist: int, busy: str = "", st: BarStyles,
+               ascii_only: bool = False) -> list[Text]:
+    """The first line: the app, the snapshot shown (of how many), findings, shortlist, work in progress.
+
+    ``underlying`` and ``busy`` are plain text from data; they are cleaned, never parsed.
+    """
+    pieces = [_piece((" chaintriage ", st.brand))]
+    if underlying or as_of_text:
+        pieces.append(_piece((fm.clean_text(underlying), st.strong), ("  as of ", st.dim),
+                             (as_of_text, st.text), ("  spot ", st.dim),
+                             (fm.fmt_price(spot, ascii_only=ascii_only), st.text)))
+    if count > 1:
+        pieces.append(_piece(("snapshot ", st.dim), (f"{index + 1}/{count}", st.text), (" ({ })", st.dim)))
+    if findings:
+        mark = "!" if ascii_only else "⚠"
+        pieces.append(_piece((f"{mark} {findings:,} finding{'s' if findings != 1 else ''}", st.warning),
+                             (" (e)", st.dim)))
+    if shortlist:
+        pieces.append(_piece(("shortlist ", st.dim), (f"{shortlist}", st.marked), (" (s)", st.dim)))
+    if busy:
+        pieces.append(_piece((fm.clean_text(busy), st.accent)))
+    return pieces
+
+
+def expiry_pieces(info: ExpiryInfo | None, *, st: BarStyles, ascii_only: bool = False) -> list[Text]:
+    """The expiry header: date and position, days left, forward, ATM IV, ranges, fit, findings."""
+    if info is None:
+        return [_piece(("no expiry to show", st.dim))]
+    ph = fm.placeholder(ascii_only)
+    days_t = ph if info.trading_days is None else f"{info.trading_days}"
+    days_c = ph if info.calendar_days is None else f"{info.calendar_days}"
+    fwd = [("fwd ", st.dim), (fm.fmt_level(info.forward, ascii_only=ascii_only), st.forward)]
+    if info.forward_method not in ("", "parity"):
+        how = FORWARD_METHODS.get(info.forward_method, fm.clean_text(info.forward_method))
+        fwd.append((f" ({how})", st.warning if info.forward_method == "spot" else st.dim))
+    pieces = [
+        _piece(("expiry ", st.dim), (fm.fmt_date(info.expiry), st.strong),
+               (f"  {info.index + 1} of {info.count} ([ ])", st.dim)),
+        _piece((days_t, st.text), (" trading / ", st.dim), (days_c, st.text), (" calendar days", st.dim)),
+        _piece(*fwd),
+        _piece(("ATM IV ", st.dim), (fm.fmt_vol(info.atm_iv, ascii_only=ascii_only), st.text)),
+        _piece((f"{fmt_confidence(info.confidence)} range ", st.dim),
+               (_band(*info.range_plain, ascii_only), st.text),
+               ("  smile ", st.dim), (_band(*info.range_smile, ascii_only), st.text), ("  (+/-)", st.dim)),
+    ]
+    if info.fit_method:
+        rmse = fm.as_finite(info.fit_rmse)
+        fit = [("fit ", st.dim), (f"{100 * rmse:.2f}" if rmse is not None else ph, st.text), (" vol pts", st.dim)]
+        if info.fit_method != "svi":
+            fit.append((f", {info.fit_method} fallback", st.warning))
+        if info.arbitrage_free is False:
+            fit.append((", butterfly arbitrage", st.warning))
+        elif info.arbitrage_free:
+            fit.append((", arbitrage-free", st.dim))
+        pieces.append(_piece(*fit))
+    else:
+        pieces.append(_piece(("no smile fit", st.warning)))
+    lo, wa, no = finding_counts(info.findings)
+    if lo or wa or no:
+        words = []
+        if lo:
+            words.append(f"{lo} left out")
+        if wa:
+            words.append(f"{wa} warning{'s' if wa != 1 else ''}")
+        if no:
+            words.append(f"{no} note{'s' if no != 1 else ''}")
+        pieces.append(_piece(("this expiry: ", st.dim), (", ".join(words), st.warning if (lo or wa) else st.text),
+                             (" (e)", st.dim)))
+    return pieces
+
+
+def filter_pieces(flt: StrikeFilter, *, shown: int, total: int, hidden_columns: Sequence[str] = (),
+                  plot_note: str = "", st: BarStyles, ascii_only: bool = False) -> list[Text]:
+    """The filter line: the active filter (or "off"), strikes shown, and layout notes."""
+    if flt.active:
+        pieces = [_piece(("filter ", st.accent), (flt.describe(ascii_only), st.text)),
+                  _piece((f"{shown} of {total} strikes shown", st.strong if shown else st.warning),
+                         ("  (x clears)", st.dim))]
+    else:
+        pieces = [_piece(("filter off", st.dim), ("  (f sets one)", st.dim))]
+    notes = []
+    if hidden_columns:
+        notes.append(f"{', '.join(hidden_columns)} not shown")
+    if plot_note:
+        notes.append(plot_note)
+    if notes:
+        pieces.append(_piece(("narrow terminal: ", st.dim), ("; ".join(notes), st.dim)))
+    return pieces

@@ -1,0 +1,99 @@
+"""How the triage screen shares its width between the ladder and the plot.
+
+Pure functions (no Textual). The ladder needs ``2 * side + middle`` cells,
+where each side is the sum of its columns' widths plus one space each and the
+middle is the strike column plus six cells of marks and rules (see
+strike_grid). When the terminal is too narrow for every chosen column, the
+least important ones are left out of the drawing (not out of the settings)
+and named in the filter line.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Sequence
+
+from .strike_grid import COLUMNS
+
+#: Columns in the order they are kept when the width runs short (most important first).
+PRIORITY: tuple[str, ...] = (
+    "sigma", "p_beyond", "mid", "bid", "ask", "iv", "p_touch", "delta", "p_flat",
+    "breakeven", "p_breakeven", "spread", "open_interest", "volume", "flags",
+)
+
+#: The narrowest plot pane worth drawing (cells, with its left border).
+MIN_PLOT = 40
+#: Below this terminal width the plot is hidden unless the user asked for it.
+AUTO_PLOT_MIN_WIDTH = 120
+#: Cells the ladder's vertical scrollbar takes.
+SCROLLBAR = 1
+
+PLOT_AUTO = "auto"
+PLOT_SHOWN = "shown"
+PLOT_HIDDEN = "hidden"
+
+
+def side_width(keys: Sequence[str]) -> int:
+    """Cells one side of the ladder takes for these columns."""
+    return sum(COLUMNS[k].width + 1 for k in keys)
+
+
+def ladder_width(keys: Sequence[str], strike_width: int) -> int:
+    """Cells the whole ladder takes (both sides, marks, rules and the strike column)."""
+    return 2 * side_width(keys) + strike_width + 6
+
+
+def fit_columns(keys: Sequence[str], available: int, strike_width: int) -> tuple[list[str], list[str]]:
+    """(columns drawn, columns left out) so the ladder fits ``available`` cells.
+
+    Columns are taken by PRIORITY while they fit (a smaller, less important one
+    may still fit after a wider one did not); the drawn ones keep the order of
+    ``keys``. At least one column is always drawn.
+    """
+    keys = [k for k in keys if k in COLUMNS]
+    if not keys:
+        return [], []
+    if ladder_width(keys, strike_width) <= available:
+        return list(keys), []
+    budget = (available - strike_width - 6) // 2
+    rank = {k: (PRIORITY.index(k) if k in PRIORITY else len(PRIORITY)) for k in keys}
+    chosen: set[str] = set()
+    used = 0
+    for k in sorted(keys, key=lambda k: rank[k]):
+        w = COLUMNS[k].width + 1
+        if used + w <= budget:
+            chosen.add(k)
+            used += w
+    if not chosen:
+        chosen.add(min(keys, key=lambda k: rank[k]))
+    return [k for k in keys if k in chosen], [k for k in keys if k not in chosen]
+
+
+@dataclass(frozen=True)
+class Plan:
+    """The plot pane's width (0: hidden) and the ladder columns drawn / left out."""
+
+    plot_width: int
+    columns: list[str]
+    left_out: list[str]
+
+
+def plan_layout(term_width: int, keys: Sequence[str], strike_width: int, plot: str = PLOT_AUTO) -> Plan:
+    """Share ``term_width`` cells: the ladder gets what its columns need, the plot the rest.
+
+    ``plot``: "auto" (shown when at least MIN_PLOT cells are left beside the full
+    ladder, or the terminal is at least AUTO_PLOT_MIN_WIDTH wide), "shown" (always,
+    at least MIN_PLOT cells) or "hidden".
+    """
+    need = ladder_width([k for k in keys if k in COLUMNS], strike_width) + SCROLLBAR
+    spare = term_width - need
+    if plot == PLOT_HIDDEN:
+        plot_w = 0
+    elif spare >= MIN_PLOT:
+        plot_w = spare
+    elif plot == PLOT_SHOWN or term_width >= AUTO_PLOT_MIN_WIDTH:
+        plot_w = min(MIN_PLOT, max(0, term_width - 20))
+    else:
+        plot_w = 0
+    cols, left_out = fit_columns(keys, term_width - plot_w - SCROLLBAR, strike_width)
+    return Plan(plot_w, cols, left_out)

@@ -1,0 +1,347 @@
+"""What the triage screen shows, without Textual: loaded snapshots, per-expiry
+slices, the strike filter, the expiry header figures and the confidence levels.
+
+The numbers all come from ``chaintriage.core`` (the annotated tables, the
+distribution, ``range_flat`` / ``range_smile``); this module only slices,
+filters and caches them. Units: prices in price units, vols and
+probabilities as decimals, sigma distance in sigmas, time in years.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Any, Iterable, Sequence
+
+import numpy as np
+import pandas as pd
+
+from chaintriage.core.distribution import range_flat, range_smile
+from chaintriage.core.findings import ChainTriageError, Finding
+from chaintriage.core.pipeline import AnnotatedSnapshot
+
+from . import formatting as fm
+
+#: The confidence levels the range cycles through (two-sided, decimals).
+CONFIDENCE_LEVELS: tuple[float, ...] = (0.6827, 0.80, 0.90, 0.95, 0.99)
+
+
+def step_confidence(current: float, step: int) -> float:
+    """The level ``step`` places up (+1) or down (-1) from ``current`` in CONFIDENCE_LEVELS,
+    stopping at the ends. A level not in the list moves to its nearest neighbour that way."""
+    levels = CONFIDENCE_LEVELS
+    if step > 0:
+        higher = [c for c in levels if c > current + 1e-9]
+        return higher[0] if higher else levels[-1]
+    if step < 0:
+        lower = [c for c in levels if c < current - 1e-9]
+        return lower[-1] if lower else levels[0]
+    return current
+
+
+def fmt_confidence(c: float) -> str:
+    """0.6827 -> "68.27%", 0.9 -> "90%"."""
+    text = f"{100 * c:.2f}".rstrip("0").rstrip(".")
+    return text + "%"
+
+
+# ---------------------------------------------------------------- the strike filter
+
+
+@dataclass(frozen=True)
+class StrikeFilter:
+    """Which strikes the ladder shows.
+
+    ``sigma`` (sigmas, >= 0): a call qualifies when its sigma distance is >= sigma
+    (above the forward), a put when <= -sigma (below it), i.e. out of the money
+    by at least that many sigmas. ``max_spread`` (decimal of mid, e.g. 0.2) and
+    ``min_open_interest`` (contracts) are liquidity limits; a missing spread or
+    open interest fails a limit that is set. A strike row stays when either of
+    its contracts qualifies. ``None`` means "no limit".
+    """
+
+    sigma: float | None = None
+    max_spread: float | None = None
+    min_open_interest: float | None = None
+
+    @property
+    def active(self) -> bool:
+        return not (self.sigma is None and self.max_spread is None and self.min_open_interest is None)
+
+    def qualifies(self, frame: pd.DataFrame) -> np.ndarray:
+        """Boolean per contract (row of ``frame``): does it pass every limit that is set."""
+        n = len(frame)
+        ok = np.ones(n, dtype=bool)
+        if not n:
+            return ok
+        if self.sigma is not None:
+            z = frame["sigma_distance"].to_numpy(dtype=float)
+            is_call = (frame["kind"] == "call").to_numpy()
+            with np.errstate(invalid="ignore"):
+                ok &= np.where(is_call, z >= self.sigma, z <= -self.sigma)
+        if self.max_spread is not None:
+            s = frame["spread_pct"].to_numpy(dtype=float)
+            with np.errstate(invalid="ignore"):
+                ok &= s <= self.max_spread + 1e-12
+        if self.min_open_interest is not None:
+            oi = frame["open_interest"].to_numpy(dtype=float)
+            with np.errstate(invalid="ignore"):
+                ok &= oi >= self.min_open_interest
+        return ok
+
+    def apply(self, frame: pd.DataFrame) -> tuple[pd.DataFrame, int]:
+        """(the contracts of the strikes that stay, how many strikes were hidden)."""
+        if not self.active or frame.empty:
+            return frame, 0
+        strikes = frame["strike"].to_numpy(dtype=float)
+        keep_strikes = np.unique(strikes[self.qualifies(frame)])
+        keep = np.isin(strikes, keep_strikes)
+        hidden = int(np.unique(strikes).size - keep_strikes.size)
+        return frame[keep], hidden
+
+    def describe(self, ascii_only: bool = False) -> str:
+        """Plain words for the filter bar, e.g. "|σ| ≥ 1.5 out of the money · spread ≤ 20% · OI ≥ 100"."""
+        if not self.active:
+            return "off"
+        sig = fm.SIGMA_ASCII if ascii_only else fm.SIGMA
+        ge = ">=" if ascii_only else "≥"
+        le = "<=" if ascii_only else "≤"
+        parts = []
+        if self.sigma is not None:
+            parts.append(f"{_num(self.sigma)}{sig} or more out of the money")
+        if self.max_spread is not None:
+            parts.append(f"spread {le} {_num(100 * self.max_spread)}%")
+        if self.min_open_interest is not None:
+            parts.append(f"OI {ge} {fm.fmt_count(self.min_open_interest)}")
+        return " · ".join(parts) if not ascii_only else " / ".join(parts)
+
+    @classmethod
+    def parse(cls, sigma: str = "", max_spread: str = "", min_open_interest: str = "") -> "StrikeFilter":
+        """A filter from what the user typed (blank = no limit; the spread in percent, "%" allowed).
+
+        Raises ChainTriageError with a message naming the field when a value is unusable.
+        """
+        return cls(
+            sigma=_parse_number(sigma, "sigmas", allow_zero=True),
+            max_spread=None if (v := _parse_number(max_spread.rstrip().rstrip("%"), "max spread",
+                                                   allow_zero=True)) is None else v / 100.0,
+            min_open_interest=_parse_number(min_open_interest, "min open interest", allow_zero=True),
+        )
+
+
+def _num(x: float) -> str:
+    return f"{x:.2f}".rstrip("0").rstrip(".")
+
+
+def _parse_number(text: str, what: str, *, allow_zero: bool) -> float | None:
+    text = (text or "").strip().replace(",", "")
+    if not text:
+        return None
+    try:
+        value = float(text)
+    except ValueError:
+        raise ChainTriageError(f"{what}: {fm.clean_text(text)!r} is not a number") from None
+    if not math.isfinite(value) or value < 0 or (value == 0 and not allow_zero):
+        raise ChainTriageError(f"{what}: give a number of zero or more")
+    return value
+
+
+# ---------------------------------------------------------------- one expiry's header
+
+
+@dataclass(frozen=True)
+class ExpiryInfo:
+    """The figures of the expiry header (NaN where core had none).
+
+    ``range_plain`` and ``range_smile`` are (low, high) in price units at ``confidence``;
+    ``fit_rmse`` in decimal vol (0.01 = 1 vol point); ``sigma_sqrt_t`` = atm_iv*sqrt(t_years).
+    """
+
+    expiry: pd.Timestamp
+    index: int
+    count: int
+    t_years: float
+    trading_days: int | None
+    calendar_days: int | None
+    forward: float
+    forward_method: str
+    atm_iv: float
+    confidence: float
+    range_plain: tuple[float, float]
+    range_smile: tuple[float, float]
+    fit_rmse: float
+    fit_method: str
+    arbitrage_free: bool | None
+    findings: tuple[Finding, ...] = ()
+
+    @property
+    def sigma_sqrt_t(self) -> float:
+        if math.isfinite(self.atm_iv) and math.isfinite(self.t_years) and self.t_years > 0:
+            return self.atm_iv * math.sqrt(self.t_years)
+        return math.nan
+
+
+def _int_or_none(value: Any) -> int | None:
+    x = fm.as_finite(value)
+    return None if x is None else int(round(x))
+
+
+def _float(value: Any) -> float:
+    x = fm.as_finite(value)
+    return math.nan if x is None else x
+
+
+# ---------------------------------------------------------------- one loaded snapshot
+
+
+class SnapshotView:
+    """One annotated snapshot, sliced per expiry, with caches for what the screen asks again.
+
+    ``file_findings`` are loader findings about this snapshot's files that name no
+    underlying (they still belong on its findings list).
+    """
+
+    def __init__(self, annotated: AnnotatedSnapshot, file_findings: Iterable[Finding] = ()) -> None:
+        self.annotated = annotated
+        self.snapshot = annotated.snapshot
+        contracts = annotated.contracts
+        exp_table = annotated.expiries.reset_index(drop=True)
+        self.expiry_table = exp_table
+        self.expiries: list[pd.Timestamp] = [pd.Timestamp(e) for e in exp_table["expiry"]]
+        # The contracts table is sorted by expiry: one contiguous slice per expiry.
+        values = contracts["expiry"].to_numpy(dtype="datetime64[ns]")
+        self._bounds: dict[pd.Timestamp, tuple[int, int]] = {}
+        for e in self.expiries:
+            v = np.datetime64(e.to_datetime64(), "ns")
+            lo = int(np.searchsorted(values, v, side="left"))
+            hi = int(np.searchsorted(values, v, side="right"))
+            self._bounds[e] = (lo, hi)
+        if len(values) > 1 and np.any(values[1:] < values[:-1]):  # not sorted: slice by mask instead
+            self._bounds = {}
+        self._frames: dict[pd.Timestamp, pd.DataFrame] = {}
+        self._dists: dict[pd.Timestamp, Any] = {}
+        self._ranges: dict[tuple[pd.Timestamp, float], tuple[tuple[float, float], tuple[float, float]]] = {}
+        self._file_findings = list(file_findings)
+
+    # --- labels
+
+    @property
+    def underlying(self) -> str:
+        return fm.clean_text(self.snapshot.underlying)
+
+    @property
+    def label(self) -> str:
+        """e.g. "QRTZ 2026-12-01 14:30 -05:00" (control characters removed)."""
+        return f"{self.underlying} {fm.fmt_timestamp(self.snapshot.as_of)}"
+
+    def __len__(self) -> int:
+        return len(self.annotated.contracts)
+
+    # --- per expiry
+
+    def frame(self, expiry: pd.Timestamp) -> pd.DataFrame:
+        """The contracts of one expiry (both kinds, sorted by strike)."""
+        expiry = pd.Timestamp(expiry)
+        cached = self._frames.get(expiry)
+        if cached is not None:
+            return cached
+        contracts = self.annotated.contracts
+        if expiry in self._bounds:
+            lo, hi = self._bounds[expiry]
+            out = contracts.iloc[lo:hi]
+        else:
+            out = contracts[contracts["expiry"] == expiry]
+        self._frames[expiry] = out
+        return out
+
+    def expiry_index(self, expiry: Any) -> int | None:
+        try:
+            return self.expiries.index(pd.Timestamp(expiry))
+        except (ValueError, TypeError):
+            return None
+
+    def nearest_expiry_index(self, expiry: Any) -> int:
+        """Index of ``expiry``, else of the nearest expiry in time, else 0."""
+        if not self.expiries:
+            return 0
+        try:
+            target = pd.Timestamp(expiry)
+        except (TypeError, ValueError):
+            return 0
+        gaps = [abs((e - target).total_seconds()) for e in self.expiries]
+        return int(np.argmin(gaps))
+
+    def distribution(self, expiry: pd.Timestamp):
+        """core's terminal Distribution of one expiry (None when there is none); cached."""
+        expiry = pd.Timestamp(expiry)
+        if expiry not in self._dists:
+            try:
+                self._dists[expiry] = self.annotated.distribution(expiry)
+            except (ChainTriageError, ValueError, FloatingPointError):
+                self._dists[expiry] = None
+        return self._dists[expiry]
+
+    def ranges(self, expiry: pd.Timestamp, confidence: float) -> tuple[tuple[float, float], tuple[float, float]]:
+        """((plain low, high), (smile low, high)) at ``confidence``, price units; NaN when unknown."""
+        expiry = pd.Timestamp(expiry)
+        key = (expiry, round(float(confidence), 6))
+        if key in self._ranges:
+            return self._ranges[key]
+        nan2 = (math.nan, math.nan)
+        plain, smile_band = nan2, nan2
+        res = self.annotated.results.get(expiry)
+        if res is not None:
+            f, iv, t = _float(res.forward), _float(res.atm_iv), _float(res.t_years)
+            if f > 0 and iv > 0 and t > 0:
+                lo, hi = range_flat(f, iv, t, confidence)
+                plain = (_float(lo), _float(hi))
+            if res.smile is not None and f > 0:
+                try:
+                    lo, hi = range_smile(res.smile, f, confidence)
+                    smile_band = (_float(lo), _float(hi))
+                except (ChainTriageError, ValueError, FloatingPointError):
+                    smile_band = nan2
+        self._ranges[key] = (plain, smile_band)
+        return plain, smile_band
+
+    def info(self, index: int, confidence: float) -> ExpiryInfo:
+        """The header figures of expiry number ``index`` (0-based) at ``confidence``."""
+        row = self.expiry_table.iloc[index]
+        expiry = self.expiries[index]
+        res = self.annotated.results.get(expiry)
+        plain, smile_band = self.ranges(expiry, confidence)
+        arb = row.get("arbitrage_free")
+        fit_method = str(row.get("fit_method") or "")
+        return ExpiryInfo(
+            expiry=expiry, index=index, count=len(self.expiries),
+            t_years=_float(row.get("t_years")),
+            trading_days=_int_or_none(row.get("trading_days")),
+            calendar_days=_int_or_none(row.get("calendar_days")),
+            forward=_float(row.get("forward")),
+            forward_method=str(row.get("forward_method") or ""),
+            atm_iv=_float(row.get("atm_iv")),
+            confidence=float(confidence),
+            range_plain=plain, range_smile=smile_band,
+            fit_rmse=_float(row.get("fit_rmse")),
+            fit_method=fit_method,
+            arbitrage_free=bool(arb) if fit_method else None,
+            findings=tuple(res.findings) if res is not None else (),
+        )
+
+    # --- findings
+
+    def findings(self) -> list[Finding]:
+        """The loader's findings about this snapshot, then the pipeline's, without repeats."""
+        seen: set[Finding] = set()
+        out: list[Finding] = []
+        for f in list(self.snapshot.findings) + self._file_findings + list(self.annotated.findings):
+            if f not in seen:
+                seen.add(f)
+                out.append(f)
+        return out
+
+
+def file_findings_without_underlying(findings: Sequence[Finding], sources: Sequence[str]) -> list[Finding]:
+    """Loader findings from ``sources`` that name no underlying (e.g. a row whose underlying was blank)."""
+    wanted = set(sources)
+    return [f for f in findings if f.underlying is None and f.file in wanted]
