@@ -62,13 +62,16 @@ class HelpScreen(Screen):
     def on_mount(self) -> None:
         self.query_one("#help-scroll").focus()
         self._wrap()
+        self.call_after_refresh(self._wrap)
 
     def on_resize(self) -> None:
-        self._wrap()
+        self.call_after_refresh(self._wrap)
 
     def _wrap(self) -> None:
-        width = (self.size.width or 80) - 5  # padding and the scrollbar
-        self.query_one("#help-body", Static).update(Text(wrap_help(help_text(self._ascii), width)))
+        body = self.query_one("#help-body", Static)
+        # The body's own content width once laid out (padding and scrollbar excluded).
+        width = body.content_region.width or (self.size.width or 80) - 6
+        body.update(Text(wrap_help(help_text(self._ascii), width)))
 
     def action_close(self) -> None:
         self.dismiss()
