@@ -14,85 +14,89 @@ import math
 import pandas as pd
 
 from chaintriage.tui.cli_common import plain
+from chaintriage.tui.formatting import (
+    as_finite,
+    fmt_count,
+    fmt_date,
+    fmt_delta,
+    fmt_level,
+    fmt_price,
+    fmt_prob,
+    fmt_spread,
+    fmt_strike,
+    fmt_vol,
+    placeholder,
+)
 
 #: How plain output shows each known column: (heading, formatter name).
 _PLAIN = {
     "underlying": ("underlying", "text"),
+    "as_of": ("as of", "text"),
     "expiry": ("expiry", "date"),
-    "strike": ("strike", "price"),
+    "strike": ("strike", "strike"),
     "kind": ("kind", "text"),
     "bid": ("bid", "price"),
     "ask": ("ask", "price"),
     "mid": ("mid", "price"),
-    "iv": ("iv", "pct"),
+    "iv": ("iv", "vol"),
     "sigma_distance": ("sigma", "signed"),
-    "p_beyond": ("P(beyond)", "pct"),
-    "p_beyond_flat": ("P(beyond) flat", "pct"),
-    "p_touch": ("P(touch)", "pct"),
-    "delta": ("delta", "signed3"),
+    "p_beyond": ("P(beyond)", "prob"),
+    "p_beyond_flat": ("P(beyond) flat", "prob"),
+    "p_touch": ("P(touch)", "prob"),
+    "delta": ("delta", "delta"),
     "breakeven": ("breakeven", "price"),
-    "p_breakeven": ("P(breakeven)", "pct"),
-    "spread_pct": ("spread", "pct"),
+    "p_breakeven": ("P(breakeven)", "prob"),
+    "spread_pct": ("spread", "spread"),
     "flags": ("flags", "text"),
-    "volume": ("volume", "int"),
-    "open_interest": ("open int", "int"),
+    "volume": ("volume", "count"),
+    "open_interest": ("open int", "count"),
     "t_years": ("years", "f4"),
-    "trading_days": ("tdays", "int"),
-    "calendar_days": ("cdays", "int"),
-    "forward": ("forward", "price"),
+    "trading_days": ("tdays", "count"),
+    "calendar_days": ("cdays", "count"),
+    "forward": ("forward", "level"),
     "discount": ("discount", "f6"),
     "forward_method": ("fwd from", "text"),
-    "atm_iv": ("atm iv", "pct"),
-    "range_low": ("range low", "price"),
-    "range_high": ("range high", "price"),
-    "range_low_smile": ("smile low", "price"),
-    "range_high_smile": ("smile high", "price"),
-    "fit_rmse": ("fit rmse", "pct2"),
+    "atm_iv": ("atm iv", "vol"),
+    "range_low": ("range low", "level"),
+    "range_high": ("range high", "level"),
+    "range_low_smile": ("smile low", "level"),
+    "range_high_smile": ("smile high", "level"),
+    "fit_rmse": ("fit rmse", "points"),
     "fit_method": ("fit", "text"),
     "arbitrage_free": ("arb-free", "bool"),
-    "contracts": ("contracts", "int"),
-    "findings": ("findings", "int"),
+    "contracts": ("contracts", "count"),
+    "findings": ("findings", "count"),
     "days": ("days", "g"),
-    "as_of": ("as of", "text"),
 }
 
-MISSING = "--"
+#: Formatters shared with the app (tui.formatting), in ASCII mode for plain terminals.
+_FORMATTERS = {
+    "price": fmt_price, "level": fmt_level, "strike": fmt_strike, "vol": fmt_vol, "prob": fmt_prob,
+    "spread": fmt_spread, "delta": fmt_delta, "count": fmt_count,
+}
 
 
 def _fmt(value: object, kind: str) -> str:
-    if value is None or (isinstance(value, float) and not math.isfinite(value)):
-        return MISSING
     if kind == "text":
-        return plain(value) if value != "" else ""
+        return plain(value)
     if kind == "date":
-        return f"{pd.Timestamp(value):%Y-%m-%d}"
+        return fmt_date(value, ascii_only=True)
     if kind == "bool":
         return "yes" if bool(value) else "no"
-    try:
-        x = float(value)
-    except (TypeError, ValueError):
-        return plain(value)
-    if not math.isfinite(x):
-        return MISSING
-    if kind == "price":
-        return f"{x:,.4f}" if 0 < abs(x) < 0.01 else f"{x:,.2f}"
-    if kind == "pct":
-        return f"{100 * x:.1f}%"
-    if kind == "pct2":
-        return f"{100 * x:.2f}"
+    if kind in _FORMATTERS:
+        return _FORMATTERS[kind](value, ascii_only=True)
+    x = as_finite(value)
+    if x is None:
+        return placeholder(ascii_only=True)
     if kind == "signed":
         return f"{x:+.2f}"
-    if kind == "signed3":
-        return f"{x:+.3f}"
-    if kind == "int":
-        return f"{x:,.0f}"
+    if kind == "points":
+        return f"{100 * x:.2f}"
     if kind == "g":
         return f"{x:g}"
     if kind == "f4":
         return f"{x:.4f}"
-    if kind == "f6":
-        return f"{x:.6f}"
-    return plain(value)
+    return f"{x:.6f}"
 
 
 def to_plain(frame: pd.DataFrame) -> str:
