@@ -179,6 +179,12 @@ def _report_findings(args, result: LoadResult, annotated: list[AnnotatedSnapshot
     print(f"{line}; {len(core)} model findings", file=sys.stderr)
 
 
+def _nothing_usable(args, result: LoadResult) -> int:
+    _report_findings(args, result, [])
+    error("no usable snapshot")
+    return EXIT_UNUSABLE
+
+
 def _with_as_of(frame: pd.DataFrame, a: AnnotatedSnapshot, fmt: str) -> pd.DataFrame:
     if fmt != "plain":
         frame.insert(1, "as_of", a.snapshot.as_of.isoformat())
@@ -188,9 +194,7 @@ def _with_as_of(frame: pd.DataFrame, a: AnnotatedSnapshot, fmt: str) -> pd.DataF
 def run_table(args: argparse.Namespace) -> int:
     result, annotated = _load_and_annotate(args)
     if not annotated:
-        _report_findings(args, result, annotated)
-        error("no usable snapshot")
-        return EXIT_UNUSABLE
+        return _nothing_usable(args, result)
     wanted = []
     for text in args.expiry:
         try:
@@ -224,9 +228,7 @@ def run_table(args: argparse.Namespace) -> int:
 def run_expiries(args: argparse.Namespace) -> int:
     result, annotated = _load_and_annotate(args)
     if not annotated:
-        _report_findings(args, result, annotated)
-        error("no usable snapshot")
-        return EXIT_UNUSABLE
+        return _nothing_usable(args, result)
     if args.days:
         rows = []
         for a in annotated:
