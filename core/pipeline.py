@@ -283,10 +283,15 @@ def annotate(snapshot: Snapshot, settings: PipelineSettings | None = None) -> An
     forwards = np.array([e.forward for e in estimates], dtype=float)
     discounts = np.array([e.discount for e in estimates], dtype=float)
     expiry_findings: list[list[Finding]] = [[] for _ in expiries]
+    open_days = calendar.is_trading_day(expiries)
     for i, est in enumerate(estimates):
         for fnd in est.findings:
             expiry_findings[i].append(Finding(fnd.severity, f"forward: {fnd.reason}", underlying=underlying,
                                               expiry=labels[i]))
+        if not open_days[i]:
+            expiry_findings[i].append(Finding(WARNING, "expiry date is not an exchange trading day (weekend "
+                                              "or holiday); trading time counts to the last session before it",
+                                              underlying=underlying, expiry=labels[i]))
         if not t_exp[i] > 0:
             expiry_findings[i].append(Finding(WARNING, "expiry has no time left at the snapshot time; "
                                               "no vols or probabilities", underlying=underlying,

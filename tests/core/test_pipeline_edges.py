@@ -153,3 +153,11 @@ def test_rates_accrue_in_calendar_time_on_a_trading_day_basis():
     assert row["discount"] == pytest.approx(np.exp(-0.05 * t365), rel=1e-14)
     assert row["forward"] == pytest.approx(SPOT * np.exp(0.04 * t365), rel=1e-14)
     assert row["t_years"] != pytest.approx(t365, rel=1e-3)  # the variance clock differs
+
+
+def test_expiry_on_an_exchange_holiday_gets_a_finding():
+    """Fri 2027-01-01 is a NYSE holiday (NYSE holiday calendar 2027, REFERENCE.md §8 [V])."""
+    snap = _priced(["2027-01-01", "2027-01-15"], np.arange(90, 111, 5.0))
+    ann = annotate(snap, PipelineSettings(basis="252"))
+    hits = [f for f in ann.findings if "not an exchange trading day" in f.reason]
+    assert [f.expiry for f in hits] == ["2027-01-01"]
