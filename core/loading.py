@@ -992,11 +992,11 @@ class _FileValidator:
         self.warn_rows(ok & ~has_b & has_a, self.lab("bid"), "no bid")
         self.warn_rows(ok & has_b & ~has_a, self.lab("ask"), lambda i: f"no ask (bid {_fmt(bid[i])})")
         spread = ask - bid
-        mid = (ask + bid) / 2
+        mid = 0.5 * ask + 0.5 * bid  # not (ask + bid) / 2: that overflows for prices near 1e308
         with np.errstate(invalid="ignore"):
             wide = ok & has_b & has_a & (bid > 0) & (spread > WIDE_SPREAD_FRACTION * mid) & (spread > WIDE_SPREAD_MIN)
         self.warn_rows(wide, None, lambda i: (
-            f"wide spread: bid {_fmt(bid[i])}, ask {_fmt(ask[i])} (spread {100 * spread[i] / mid[i]:.0f}% of mid)"))
+            f"wide spread: bid {_fmt(bid[i])}, ask {_fmt(ask[i])} (spread {spread[i] / mid[i] * 100:.0f}% of mid)"))
 
     # -- output -----------------------------------------------------------
     def row_finding(self, severity: str, i: int, reason: str, column: str | None) -> Finding:
