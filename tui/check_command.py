@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import re
 import sys
 from collections.abc import Sequence
 from typing import Any, TextIO
@@ -16,7 +17,7 @@ from chaintriage.tui.cli_common import (
     EXIT_UNUSABLE,
     add_snapshot_options,
     error,
-    plain,
+    one_line,
     snapshot_options,
 )
 
@@ -59,7 +60,7 @@ _SEVERITY_TITLES = ((LEFT_OUT, "left out"), (WARNING, "warnings"), (NOTE, "notes
 
 def _finding_line(f: Finding, *, with_file: bool = False) -> str:
     where = f.location(with_file=with_file)
-    return plain(f"{where}: {f.reason}" if where else f.reason)
+    return one_line(f"{where}: {f.reason}" if where else f.reason)
 
 
 def _ordered_outcomes(paths: Sequence[str], result: LoadResult) -> list[FileLoad | SnapshotFileError]:
@@ -115,7 +116,7 @@ def write_plain_report(paths: Sequence[str], result: LoadResult, out: TextIO) ->
             head = (f"{item.path}: {item.rows_read} rows read, {item.rows_accepted} accepted, "
                     f"{item.rows_left_out} left out")
             findings = item.findings
-        print(plain(head), file=out)
+        print(one_line(head), file=out)
         for severity, title in _SEVERITY_TITLES:
             group = [f for f in findings if f.severity == severity]
             if group:
@@ -159,14 +160,24 @@ def json_report(paths: Sequence[str], result: LoadResult) -> dict[str, Any]:
     }
 
 
+#: Characters json.dumps(ensure_ascii=False) leaves raw that a terminal may act on or that hide text:
+#: C1 controls (U+009B is a one-byte CSI), invisible and bidirectional marks, line separators.
+_UNSAFE_IN_JSON = re.compile("[\x7f-\x9f\u200b-\u200f\u2028\u2029\u202a-\u202e\u2066-\u2069\ufeff]")
+
+
+def json_text(report: dict[str, Any]) -> str:
+    """The JSON report as text: readable non-ASCII kept, but every character a terminal could act on escaped."""
+    text = json.dumps(report, indent=2, ensure_ascii=False)
+    return _UNSAFE_IN_JSON.sub(lambda m: f"\\u{ord(m.group()):04x}", text) + "\n"
+
+
 def run_check(args: argparse.Namespace) -> int:
     overrides, column_map = snapshot_options(args)
     result = load_files(args.files, overrides=overrides, column_map=column_map)
     for exc in result.errors:
         error(str(exc))
     if args.format == "json":
-        json.dump(json_report(args.files, result), sys.stdout, indent=2, ensure_ascii=False)
-        sys.stdout.write("\n")
+        sys.stdout.write(json_text(json_report(args.files, result)))
     else:
         write_plain_report(args.files, result, sys.stdout)
     return check_status(result)

@@ -26,14 +26,27 @@ EXIT_UNUSABLE = 2
 _CONTROL = re.compile("[\x00-\x08\x0b-\x1f\x7f-\x9f\u200b-\u200f\u202a-\u202e\u2066-\u2069\ufeff]")
 
 
+_LINE_CONTROL = re.compile("[\x00-\x1f\x7f-\x9f\u2028\u2029\u200b-\u200f\u202a-\u202e\u2066-\u2069\ufeff]")
+
+
+def _escape(match: re.Match) -> str:
+    return match.group().encode("unicode_escape").decode("ascii")
+
+
 def plain(text: object) -> str:
-    """Text safe to print on a terminal: control and invisible characters escaped."""
-    return _CONTROL.sub(lambda m: m.group().encode("unicode_escape").decode("ascii"), str(text))
+    """Text safe to print on a terminal: control and invisible characters escaped (tab and newline kept)."""
+    return _CONTROL.sub(_escape, str(text))
+
+
+def one_line(text: object) -> str:
+    """Like ``plain``, but tab, newline and line separators escaped too: for one table cell or report line,
+    so text from a file cannot break the layout or forge a line of its own."""
+    return _LINE_CONTROL.sub(_escape, str(text))
 
 
 def error(message: str, stream: TextIO | None = None) -> None:
     """Print a message for the user on stderr."""
-    print(f"{PROG}: {plain(message)}", file=stream or sys.stderr)
+    print(f"{PROG}: {one_line(message)}", file=stream or sys.stderr)
 
 
 def add_snapshot_options(parser: argparse.ArgumentParser) -> None:

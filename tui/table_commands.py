@@ -16,7 +16,7 @@ from chaintriage.core.findings import ChainTriageError, Finding
 from chaintriage.core.loading import LoadResult, load_files
 from chaintriage.core.pipeline import AnnotatedSnapshot, PipelineSettings, annotate
 from chaintriage.tui.check_command import check_status, summary_line, _summary
-from chaintriage.tui.cli_common import EXIT_UNUSABLE, add_snapshot_options, error, plain, snapshot_options
+from chaintriage.tui.cli_common import EXIT_UNUSABLE, add_snapshot_options, error, one_line, snapshot_options
 from chaintriage.tui.table_output import render
 
 #: Columns of `table`, in order (csv/json add as_of after underlying).
@@ -174,7 +174,7 @@ def _report_findings(args, result: LoadResult, annotated: list[AnnotatedSnapshot
     core: list[Finding] = [f for a in annotated for f in a.findings]
     if not args.quiet:
         for f in [*result.findings, *core]:
-            print(plain(str(f)), file=sys.stderr)
+            print(one_line(str(f)), file=sys.stderr)
     line = summary_line(_summary(result))
     print(f"{line}; {len(core)} model findings", file=sys.stderr)
 

@@ -2,7 +2,12 @@
 
 csv and json carry raw decimals (probabilities 0..1, vols as decimals);
 plain is a fixed-width table for reading, with percentages. Text from files
-is printed as text: control characters are replaced, nothing is markup.
+is printed as text: control characters are replaced, nothing is markup. In
+csv, text cells also have control characters escaped, and a text cell that
+starts with = + - @ tab, carriage return or NUL gets a leading single quote
+so a spreadsheet does not run it as a formula (OWASP CSV injection guidance,
+``shortlist.neutralise_formula``); numbers stay numbers. json escapes every
+non-ASCII and control character.
 """
 
 from __future__ import annotations
@@ -13,7 +18,8 @@ import math
 
 import pandas as pd
 
-from chaintriage.tui.cli_common import plain
+from chaintriage.tui.cli_common import one_line, plain
+from chaintriage.tui.shortlist import neutralise_formula
 from chaintriage.tui.formatting import (
     as_finite,
     fmt_count,
@@ -78,7 +84,7 @@ _FORMATTERS = {
 
 def _fmt(value: object, kind: str) -> str:
     if kind == "text":
-        return plain(value)
+        return one_line(value)
     if kind == "date":
         return fmt_date(value, ascii_only=True)
     if kind == "bool":
@@ -139,8 +145,21 @@ def to_json(frame: pd.DataFrame) -> str:
     return json.dumps(_jsonable(frame), indent=1) + "\n"
 
 
+def _safe_text_cells(frame: pd.DataFrame) -> pd.DataFrame:
+    """A copy whose text cells are safe for a terminal and a spreadsheet (numbers untouched)."""
+    out = frame.copy()
+    for col in out.columns:
+        if out[col].dtype == object or isinstance(out[col].dtype, pd.StringDtype):
+            out[col] = [neutralise_formula(plain(v)) if isinstance(v, str) else v for v in out[col]]
+    return out
+
+
 def to_csv(frame: pd.DataFrame) -> str:
-    """CSV with decimals at full precision, missing values empty, dates as YYYY-MM-DD."""
+    """CSV with decimals at full precision, missing values empty, dates as YYYY-MM-DD.
+
+    Text cells are escaped and neutralised (``_safe_text_cells``).
+    """
+    frame = _safe_text_cells(frame)
     buf = io.StringIO()
     frame.to_csv(buf, index=False, date_format="%Y-%m-%d", float_format="%.10g", lineterminator="\n")
     return buf.getvalue()
