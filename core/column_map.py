@@ -26,6 +26,8 @@ import tomllib
 from dataclasses import dataclass, field
 from pathlib import Path
 
+import pandas as pd
+
 from .findings import ChainTriageError
 
 #: Columns every snapshot file must have.
@@ -163,9 +165,29 @@ def parse_column_map(data: dict, source: str = "<mapping>") -> ColumnMap:
             raise _fail(source, f"[formats] only 'expiry' can be set, found {key!r}")
         if not isinstance(value, str) or "%" not in value:
             raise _fail(source, f"[formats] expiry must be a strftime format such as \"%m/%d/%Y\", found {value!r}")
+        check_expiry_format(value, source)
         expiry_format = value
 
     return ColumnMap(columns=columns, kind_values=kind_values, expiry_format=expiry_format, source=source)
+
+
+_TZ_DIRECTIVE = re.compile(r"(?:^|[^%])(?:%%)*%[zZ]")
+
+
+def check_expiry_format(fmt: str, source: str = "<mapping>") -> None:
+    """Raise ChainTriageError naming ``source`` unless ``fmt`` is a date format the loader can use.
+
+    Refused: directives the date parser does not know (``%Q``, a stray ``%``,
+    a directive given twice, ``%U`` without a weekday) and time zones
+    (``%z``/``%Z``: an expiry is a calendar date; a zone would move it).
+    """
+    if _TZ_DIRECTIVE.search(fmt):
+        raise _fail(source, f"[formats] expiry {fmt!r} holds a time zone (%z or %Z); an expiry is a date, "
+                            "write the format without it")
+    try:
+        pd.to_datetime(pd.Series(["2000-01-01"], dtype=object), format=fmt, errors="coerce")
+    except Exception as exc:  # ValueError for a bad directive, re.error for a repeated one
+        raise _fail(source, f"[formats] expiry {fmt!r} is not a usable date format ({exc})") from None
 
 
 def load_column_map(path: str | Path) -> ColumnMap:

@@ -55,6 +55,7 @@ from .column_map import (
     KNOWN_COLUMNS,
     REQUIRED_COLUMNS,
     ColumnMap,
+    check_expiry_format,
     header_key,
     load_column_map,
 )
@@ -416,7 +417,34 @@ def _read_csv_table(path: str, data: bytes) -> _Table:
 
 
 def _parquet_to_str(s: pd.Series) -> pd.Series:
-    """One Parquet column as text, the way it would appear in a CSV export."""
+    """One Parquet column as text, the way it would appear in a CSV export.
+
+    A column the vectorised conversion cannot turn into text (bytes that are
+    not UTF-8, times outside the years the standard library can format) is
+    converted value by value instead, so its rows are checked like any other.
+    """
+    try:
+        return _parquet_to_str_fast(s)
+    except Exception:  # rare: pandas/pyarrow raise several types here
+        missing = s.isna().to_numpy()
+        out = pd.Series([_cell_text(v) for v in s], dtype=str, index=s.index)
+        out[missing] = ""
+        return out
+
+
+def _cell_text(value: object) -> str:
+    if isinstance(value, (bytes, bytearray)):
+        return bytes(value).decode("utf-8", "backslashreplace")
+    if isinstance(value, pd.Timestamp):
+        try:
+            return value.isoformat()
+        except (NotImplementedError, ValueError, OverflowError):  # outside years 1-9999: left out by year anyway
+            return (f"{value.year:04d}-{value.month:02d}-{value.day:02d}T{value.hour:02d}:{value.minute:02d}:"
+                    f"{value.second:02d}" + ("Z" if value.tzinfo is not None else ""))
+    return str(value)
+
+
+def _parquet_to_str_fast(s: pd.Series) -> pd.Series:
     missing = s.isna().to_numpy()
     if isinstance(s.dtype, pd.DatetimeTZDtype):
         out = s.dt.strftime("%Y-%m-%dT%H:%M:%S.%f%z")
@@ -517,7 +545,7 @@ def _dates_unique(s: pd.Series, fmt: str | None) -> tuple[np.ndarray, np.ndarray
         status[shaped & ~in_range] = 4
         status[in_range & ~good] = 3
     else:
-        parsed = pd.to_datetime(s.where(~empty, ""), format=fmt, errors="coerce")
+        parsed = pd.to_datetime(s.where(~empty, ""), format=fmt, errors="coerce").dt.normalize()
         ok = parsed.notna().to_numpy()
         years = parsed.dt.year.to_numpy(dtype=float, na_value=np.nan)
         good = ok & (years >= YEAR_MIN) & (years <= YEAR_MAX)
@@ -1116,6 +1144,8 @@ def _as_column_map(column_map: ColumnMap | str | Path | None) -> ColumnMap:
     if column_map is None:
         return ColumnMap()
     if isinstance(column_map, ColumnMap):
+        if column_map.expiry_format is not None:  # built in code, not read from a file: check it here
+            check_expiry_format(column_map.expiry_format, column_map.source or "<mapping>")
         return column_map
     return load_column_map(column_map)
 

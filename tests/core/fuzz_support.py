@@ -40,13 +40,13 @@ SMALL_VALID = (
 )
 
 
-def check_load(path: Path) -> FileLoad | ChainTriageError:
-    """Load ``path``; fail the test unless the outcome keeps every invariant.
+def check_load(path: Path, column_map=None) -> FileLoad | ChainTriageError:
+    """Load ``path`` (with an optional column map); fail the test unless the outcome keeps every invariant.
 
     Any exception other than a ChainTriageError with a non-empty message fails.
     """
     try:
-        load = load_file(path)
+        load = load_file(path, column_map=column_map)
     except SnapshotFileError as exc:
         assert exc.reason and str(exc).startswith(str(path) + ": ")
         lo = [f for f in exc.findings if f.severity == LEFT_OUT]
