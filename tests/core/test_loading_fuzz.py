@@ -1,6 +1,6 @@
 """Loader fuzzing: hostile and broken files never crash it and never lose a row.
 
-About 10,500 generated inputs (files) in the default run (see ``examples``); set
+About 10,200 loader inputs in the default run (see ``examples``); set
 CHAINTRIAGE_HYPOTHESIS_EXAMPLES (default 200) higher to scale every test up,
 e.g. 2000 for ten times as many. Oracle: the accounting rule of DESIGN.md
 "Snapshot file" [D], checked by ``fuzz_support.check_load``; the encodings
