@@ -13,7 +13,7 @@ import sys
 import pandas as pd
 
 from chaintriage.core.findings import ChainTriageError, Finding
-from chaintriage.core.loading import LoadResult, load_files
+from chaintriage.core.loading import YEAR_MAX, YEAR_MIN, LoadResult, load_files
 from chaintriage.core.pipeline import AnnotatedSnapshot, PipelineSettings, annotate
 from chaintriage.tui.check_command import check_status, summary_line, _summary
 from chaintriage.tui.cli_common import EXIT_UNUSABLE, add_snapshot_options, error, one_line, snapshot_options
@@ -111,14 +111,23 @@ def add_pipeline_options(parser: argparse.ArgumentParser) -> None:
                        help="an extra exchange-closed date, YYYY-MM-DD (repeatable)")
 
 
+def _day(text: str) -> pd.Timestamp | None:
+    """The date in an option's text (midnight), or None when it is not a date (empty text and 'NaT' included)."""
+    try:
+        ts = pd.Timestamp(text)
+    except (ValueError, TypeError, OverflowError):
+        return None
+    return None if ts is pd.NaT else ts.normalize()
+
+
 def pipeline_settings(args: argparse.Namespace) -> PipelineSettings:
     """PipelineSettings from parsed options. Raises ChainTriageError on a bad date."""
     closed = []
     for text in args.closed:
-        try:
-            closed.append(pd.Timestamp(text).normalize())
-        except (ValueError, TypeError):
-            raise ChainTriageError(f"--closed {text!r} is not a date (YYYY-MM-DD)") from None
+        day = _day(text)
+        if day is None:
+            raise ChainTriageError(f"--closed {text!r} is not a date (YYYY-MM-DD)")
+        closed.append(day)
     return PipelineSettings(basis=args.basis, confidence=args.confidence,
                             use_file_iv=args.use_file_iv, extra_closed=tuple(closed))
 
@@ -197,11 +206,12 @@ def run_table(args: argparse.Namespace) -> int:
         return _nothing_usable(args, result)
     wanted = []
     for text in args.expiry:
-        try:
-            wanted.append(pd.Timestamp(text).normalize())
-        except (ValueError, TypeError):
+        day = _day(text)
+        # a date the loader could hold: naive, inside its years (year 1 is outside pandas' ns range)
+        if day is None or day.tzinfo is not None or not YEAR_MIN <= day.year <= YEAR_MAX:
             error(f"--expiry {text!r} is not a date (YYYY-MM-DD)")
             return EXIT_UNUSABLE
+        wanted.append(day)
     frames = []
     for a in annotated:
         c = a.contracts

@@ -153,3 +153,24 @@ def test_expired_expiry_has_blank_figures_and_says_why(chain_files, capsys):
     assert "expiry has no time left" in err
     # What can be computed still is: the mid and breakeven are prices, not model outputs.
     assert all(r["mid"] is not None and r["breakeven"] is not None for r in records)
+
+
+@pytest.mark.parametrize("option, value", [
+    ("--expiry", "0001-01-01"),  # once: OutOfBoundsDatetime traceback
+    ("--expiry", ""),  # once: AttributeError on NaT
+    ("--expiry", "NaT"),
+    ("--expiry", "2027-01-15T00:00+01:00"),
+    ("--expiry", "2300-01-01"),
+    ("--closed", ""),  # once: AttributeError on NaT
+    ("--closed", "NaT"),
+    ("--closed", "not-a-date"),
+])
+def test_unusable_date_options_exit_2_with_a_message(chain_files, capsys, option, value):
+    code, out, err = _run(capsys, "table", chain_files["single_strike"], option, value)
+    assert code == 2 and out == ""
+    assert f"{option} {value!r} is not a date" in err
+
+
+def test_empty_closed_date_exits_2_for_expiries_too(chain_files, capsys):
+    code, _, err = _run(capsys, "expiries", chain_files["single_strike"], "--closed", "")
+    assert code == 2 and "--closed '' is not a date" in err
