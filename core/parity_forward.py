@@ -106,7 +106,10 @@ def _clean(x) -> float | None:
 
 
 def _fmt(x: float) -> str:
-    return f"{x:.6g}"
+    """A number for a message: 6 significant digits; 'undefined' when not finite; never '-0'."""
+    if not np.isfinite(x):
+        return "undefined"
+    return f"{x + 0.0:.6g}"
 
 
 def _repeated_median(k: np.ndarray, y: np.ndarray) -> tuple[float, float]:

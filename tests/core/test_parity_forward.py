@@ -398,3 +398,17 @@ def test_parity_recovers_forward_for_any_smile(spot, r, q, t, atm_vol, skew):
     assert est.method == "parity"
     assert est.forward == pytest.approx(f, rel=1e-9)
     assert est.discount == pytest.approx(df, rel=1e-9)
+
+
+def test_messages_never_show_nan_or_negative_zero():
+    # [C] A locked market (bid = ask) on every strike gives a zero spread and a degenerate
+    # fit; prices near the float limit overflow. Messages must read as words, not 'nan'/'-0'.
+    from chaintriage.core.parity_forward import _fmt
+
+    assert _fmt(float("nan")) == "undefined" and _fmt(float("inf")) == "undefined"
+    assert _fmt(-0.0) == "0"
+    k = np.array([1e308, 9e307])
+    est = implied_forward(k, np.array([1e306, 5e307]), np.array([1e306, 5e307]),
+                          np.array([1e306, 1e306]), np.array([1e306, 1e306]), spot=1e308, t=0.5)
+    text = " ".join(f.reason for f in est.findings) + est.reason
+    assert "nan" not in text.lower() and "-0 " not in text
