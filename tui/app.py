@@ -296,6 +296,13 @@ class ChainTriageApp(App[int]):
         self._start_load(self._paths, snapshots=self._given_snapshots, initial=True,
                          overrides=self._overrides)
 
+    def notify(self, message: str, *, title: str = "", severity: Any = "information",
+               timeout: float | None = None, markup: bool = False) -> None:
+        """Every notice is plain text: file names, paths and messages that quote files are data,
+        so escape sequences and control characters are removed and nothing is read as markup."""
+        super().notify(fm.clean_text(message, keep_newlines=True), title=fm.clean_text(title),
+                       severity=severity, timeout=timeout, markup=False)
+
     # ------------------------------------------------------------ widgets
 
     @property
