@@ -60,6 +60,9 @@ def binding_keys(*classes) -> list[str]:
 
 NAVIGATION = ["enter", "escape", "tab", "shift+tab", "up", "down", "left", "right", "pageup", "pagedown",
               "home", "end", "space", "backspace", "delete"]
+#: Paths typed into the open-file prompt: folders, devices, missing files, the run's own exports.
+OPEN_ATTEMPTS = [".", "/", "/dev/zero", "/dev/null", "missing.csv", "shortlist.csv", "shortlist.md", "",
+                 "~", "[bold]x[/].csv", "\x1b[31m.csv"]
 PRINTABLE = [c for c in string.ascii_letters + string.digits + string.punctuation]
 
 
@@ -73,6 +76,7 @@ class Driver:
     pressed: int = 0
     pressed_while_loading: int = 0
     resizes: int = 0
+    opened: int = 0
     screens_seen: set[str] = field(default_factory=set)
     slowest_key: tuple[float, str] = (0.0, "")
 
@@ -84,6 +88,8 @@ class Driver:
         r = self.rng.random()
         if r < 0.03:
             return ("resize", self.rng.randint(80, 200), self.rng.randint(24, 50))
+        if r < 0.045:  # open something that is not a usable chain, or the files this run wrote
+            return ("open", self.rng.choice(OPEN_ATTEMPTS), 0)
         if r < 0.08:  # walks that reach the deeper states: export (twice: the replace question), marks
             return self.rng.choice([["m", "s", "w", "enter"], ["s", "w", "enter", "y"], ["m", "down", "m"],
                                     ["f", "1", "enter"], ["e", "down", "down"], ["o", "space", "down", "enter"]])
@@ -109,9 +115,21 @@ async def drive(app, pilot, driver: Driver, n_keys: int) -> None:
     triage = app.triage
     while driver.pressed < n_keys:
         move = driver.draw()
-        if isinstance(move, tuple):
+        if isinstance(move, tuple) and move[0] == "resize":
             await pilot.resize_terminal(move[1], move[2])
             driver.resizes += 1
+            continue
+        if isinstance(move, tuple):  # ("open", path, 0): the open-file key, the path, Enter
+            await pilot.pause()
+            if app.screen is not triage:
+                continue
+            await pilot.press("l")
+            await pilot.pause()
+            if type(app.screen).__name__ == "PathPrompt":
+                app.screen.query_one("#path-input").value = move[1]
+                await pilot.press("enter")
+                driver.opened += 1
+            driver.pressed += 2
             continue
         for key in move:
             if key == "q":

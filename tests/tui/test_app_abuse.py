@@ -136,8 +136,8 @@ def test_the_seeds_together_reach_every_screen_and_enough_keys():
     total = sum(d.pressed for d in FIGURES.values())
     if "CHAINTRIAGE_ABUSE_KEYS" not in os.environ and "CHAINTRIAGE_ABUSE_SEEDS" not in os.environ:
         assert total >= 2000
-    assert sum(d.resizes for d in FIGURES.values()) > 0
+    assert sum(d.resizes for d in FIGURES.values()) > 0 and sum(d.opened for d in FIGURES.values()) > 0
     for seed, d in sorted(FIGURES.items()):
-        print(f"seed {seed}: {d.pressed} keys ({d.pressed_while_loading} while loading), {d.resizes} resizes, "
+        print(f"seed {seed}: {d.pressed} keys ({d.pressed_while_loading} while loading), {d.resizes} resizes, {d.opened} files opened, "
               f"slowest key {d.slowest_key[1]!r} {1000 * d.slowest_key[0]:.0f} ms")
     print(f"total: {total} keys")
