@@ -14,6 +14,8 @@ import csv
 import io
 import re
 
+from rich.cells import cell_len
+
 from chaintriage.core.loading import load_files
 from chaintriage.tui import formatting as fm
 from chaintriage.tui.shortlist import FORMULA_PREFIXES, ContractKey, Shortlist
@@ -124,3 +126,22 @@ def test_exports_neutralise_formulas_in_every_text_column(tmp_path):
         for cell in (underlying, flags):
             assert cell and not cell.startswith(FORMULA_PREFIXES), line
         clean([line], "markdown")
+
+
+def test_a_very_long_wide_name_fits_every_screen(tmp_path):
+    name = "株式" * 400 + "e\u0301" * 50 + "👍🏽\u200d" * 20 + "[/]" * 30
+    path = evil_chain(tmp_path / "long.csv", underlying=name, bad_cell="x" * 5000 + "\x1b[2J")
+    result = load_files([path])
+    assert result.snapshots, [str(e) for e in result.errors]
+    app = make_app(snapshots=result.snapshots)
+
+    async def scenario(pilot):
+        for size in ((80, 24), (200, 50), (80, 24)):
+            await pilot.resize_terminal(*size)
+            await pilot.press("c", "m", "s", "c", "escape", "e", "down", "escape", "down", "c")
+            top = bar(app, "topbar").splitlines()
+            assert all(cell_len(line) <= size[0] for line in top)  # the name is cut to the line, not wrapped
+            clean(top + notes(app) + [app.clipboard], "long name")
+        assert app.is_running
+
+    run(app, scenario)
