@@ -145,3 +145,11 @@ def test_a_very_long_wide_name_fits_every_screen(tmp_path):
         assert app.is_running
 
     run(app, scenario)
+
+
+def test_every_bidi_control_and_unicode_line_break_is_removed():
+    # The Unicode bidirectional controls (UAX #9, "Explicit Directional ..." and the marks) [V: Unicode
+    # Standard Annex #9, table 4], a byte-order mark, and the line/paragraph separators U+2028/U+2029.
+    bidi = "\u061c\u200e\u200f\u202a\u202b\u202c\u202d\u202e\u2066\u2067\u2068\u2069\ufeff"
+    assert fm.clean_text(f"A{bidi}B") == "AB"
+    assert fm.clean_text("A\u2028B\u2029C") == "A B C"
