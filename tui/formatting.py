@@ -247,8 +247,8 @@ _CONTROL_RE = re.compile(
 
 def clean_text(value: Any, *, keep_newlines: bool = False) -> str:
     """Text from data made safe to show or copy: escape sequences and control
-    characters (C0, C1, DEL, every bidi control, a stray byte-order mark) removed; tabs and newlines become spaces
-    unless ``keep_newlines``. None and NaN give ""."""
+    characters (C0, C1, DEL, every bidi control, a stray byte-order mark) removed;
+    tabs and newlines become spaces unless ``keep_newlines``. None and NaN give ""."""
     if value is None:
         return ""
     if isinstance(value, float) and not math.isfinite(value):
