@@ -77,6 +77,8 @@ class Driver:
     pressed_while_loading: int = 0
     resizes: int = 0
     opened: int = 0
+    clicks: int = 0
+    bursts: int = 0
     screens_seen: set[str] = field(default_factory=set)
     slowest_key: tuple[float, str] = (0.0, "")
 
@@ -88,7 +90,14 @@ class Driver:
         r = self.rng.random()
         if r < 0.03:
             return ("resize", self.rng.randint(80, 200), self.rng.randint(24, 50))
-        if r < 0.045:  # open something that is not a usable chain, or the files this run wrote
+        if r < 0.037:  # a click somewhere on the screen (x, y as fractions of its size)
+            return ("click", self.rng.random(), self.rng.random())
+        if r < 0.042:  # a burst: keys faster than the app handles them (a held or double-struck key)
+            pool = [k for k in self.binding_pool + NAVIGATION if k != "q"]
+            key = self.rng.choice(pool)
+            return ("burst", [key] * self.rng.randint(2, 3) if self.rng.random() < 0.6 else
+                    [self.rng.choice(pool) for _ in range(self.rng.randint(2, 4))], 0)
+        if r < 0.047:  # open something that is not a usable chain, or the files this run wrote
             return ("open", self.rng.choice(OPEN_ATTEMPTS), 0)
         if r < 0.08:  # walks that reach the deeper states: export (twice: the replace question), marks
             return self.rng.choice([["m", "s", "w", "enter"], ["s", "w", "enter", "y"], ["m", "down", "m"],
@@ -118,6 +127,19 @@ async def drive(app, pilot, driver: Driver, n_keys: int) -> None:
         if isinstance(move, tuple) and move[0] == "resize":
             await pilot.resize_terminal(move[1], move[2])
             driver.resizes += 1
+            continue
+        if isinstance(move, tuple) and move[0] == "click":
+            await pilot.pause()
+            width, height = app.size
+            rows = height - 1 if app.screen is triage else height  # the main footer's "q quit" ends the app
+            await pilot.click(offset=(int(move[1] * (width - 1)), int(move[2] * (rows - 1))))
+            driver.clicks += 1
+            continue
+        if isinstance(move, tuple) and move[0] == "burst":  # no wait between these keys
+            await pilot.press(*move[1])
+            driver.pressed += len(move[1])
+            driver.bursts += 1
+            assert app.is_running and app.return_code is None, f"seed {driver.seed}: the app ended at {move}"
             continue
         if isinstance(move, tuple):  # ("open", path, 0): the open-file key, the path, Enter
             await pilot.pause()

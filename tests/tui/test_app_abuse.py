@@ -2,7 +2,7 @@
 
 Keys are drawn from the app's real bindings (main screen, ladder, every other
 screen and dialog), printable characters, Enter, Escape, Tab, arrows and
-PgUp/PgDn, with terminal resizes between 80x24 and 200x50 and a
+PgUp/PgDn, with mouse clicks, terminal resizes between 80x24 and 200x50 and a
 20,000-contract file opened (and keys pressed) while it loads. Nothing may
 escape: Textual's pilot re-raises any exception from the app, and the app must
 still be running at the end with no "nan"/"inf" or traceback on screen.
@@ -138,6 +138,59 @@ def test_the_seeds_together_reach_every_screen_and_enough_keys():
         assert total >= 2000
     assert sum(d.resizes for d in FIGURES.values()) > 0 and sum(d.opened for d in FIGURES.values()) > 0
     for seed, d in sorted(FIGURES.items()):
-        print(f"seed {seed}: {d.pressed} keys ({d.pressed_while_loading} while loading), {d.resizes} resizes, {d.opened} files opened, "
+        print(f"seed {seed}: {d.pressed} keys ({d.pressed_while_loading} while loading), {d.resizes} resizes, {d.opened} files opened, {d.clicks} clicks, {d.bursts} bursts, "
               f"slowest key {d.slowest_key[1]!r} {1000 * d.slowest_key[0]:.0f} ms")
     print(f"total: {total} keys")
+
+
+def test_tiny_and_odd_terminal_sizes(monkeypatch):
+    monkeypatch.setattr(textual.app, "wait_for_idle", quick_idle)
+    app = ChainTriageApp(views=demo_views(), system_clipboard=Clipboard())
+    keys = ["down", "]", "question_mark", "escape", "e", "down", "escape", "s", "escape", "f", "escape", "o",
+            "escape", "c", "m", "v", "a", "t", "pagedown", "end", "l", "escape", "t", "t", "a"]
+
+    async def main() -> None:
+        async with app.run_test(size=(80, 24)) as pilot:
+            await wait_ready(app, pilot)
+            for size in ((1, 1), (10, 5), (30, 8), (2, 40), (300, 3), (80, 24)):
+                await pilot.resize_terminal(*size)
+                for key in keys:
+                    await pilot.press(key)
+                assert app.is_running, size
+            for text in screen_text(app):
+                assert not BAD_TEXT.search(text), text
+
+    asyncio.run(main())
+    assert app.return_code is None
+
+
+@pytest.mark.parametrize("opener, burst, left", [
+    (("question_mark",), ("escape", "escape"), 1), (("e",), ("escape", "escape"), 1),
+    (("s",), ("escape", "escape"), 1), (("o",), ("escape", "escape"), 1), (("f",), ("escape", "escape"), 1),
+    (("f",), ("enter", "enter"), 1), (("l",), ("escape", "escape"), 1), (("l",), ("enter", "enter"), 1),
+    (("m", "s"), ("enter", "enter"), 1), (("m", "s", "w"), ("escape", "escape", "escape"), 1),
+    (("m", "s", "w", "enter", "w", "enter"), ("y", "y"), 2), (("m", "s", "w", "enter", "w", "enter"), ("n", "n"), 2),
+    (("s",), ("s", "s"), 2), (("question_mark",), ("question_mark", "question_mark"), 2),
+    (("o",), ("o", "o", "o"), 1), (("e",), ("e", "e", "escape"), 1),
+])
+def test_keys_faster_than_a_screen_closes_close_only_that_screen(opener, burst, left, monkeypatch, tmp_path):
+    # Found by the random keys (keys pressed in one burst): a second Escape or Enter reached the
+    # closing screen and dismissed the screen under it too, down to an empty screen stack.
+    monkeypatch.chdir(tmp_path)
+    monkeypatch.setattr(textual.app, "wait_for_idle", quick_idle)
+    app = ChainTriageApp(views=demo_views(), system_clipboard=Clipboard())
+
+    async def main() -> None:
+        async with app.run_test(size=(120, 40)) as pilot:
+            await wait_ready(app, pilot)
+            for key in opener:
+                await pilot.press(key)
+                await pilot.pause()
+            assert len(app.screen_stack) >= 2
+            await pilot.press(*burst)  # one burst: no wait between the keys
+            await pilot.pause()
+            assert app.is_running and app.return_code is None
+            assert len(app.screen_stack) == left, app.screen_stack
+            assert app.screen_stack[0] is app.triage
+
+    asyncio.run(main())
