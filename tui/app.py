@@ -246,6 +246,10 @@ class ChainTriageApp(App[int]):
             self.register_theme(to_textual_theme(theme))
         self.register_theme(to_textual_theme(FALLBACK_THEME))
         self.chain_theme: ChainTheme = self.themes.get(self.settings.theme)
+        if self.settings.theme != self.chain_theme.name:
+            wanted = self.settings.theme if len(self.settings.theme) <= 40 else self.settings.theme[:39] + "~"
+            self._startup_notices.append(f"theme {wanted!r} was not found; using {self.chain_theme.name!r} "
+                                         "(t picks another)")
         self.theme = self.chain_theme.textual_name
         self.ascii_only: bool = bool(self.settings.ascii_only)
         self.columns: list[str] = known_columns(self.settings.columns) or list(DEFAULT_COLUMNS)
@@ -269,6 +273,7 @@ class ChainTriageApp(App[int]):
         self._findings_count: dict[int, int] = {}
         self._strike_total = 0
         self._screen_up = False
+        self._settings_unsaved = False
         self.triage = TriageScreen(id="triage")
 
     # ------------------------------------------------------------ Textual hooks
@@ -295,6 +300,13 @@ class ChainTriageApp(App[int]):
         self.set_timer(SPINNER_DELAY, self._show_spinner)
         self._start_load(self._paths, snapshots=self._given_snapshots, initial=True,
                          overrides=self._overrides)
+
+    def notify(self, message: str, *, title: str = "", severity: Any = "information",
+               timeout: float | None = None, markup: bool = False) -> None:
+        """Every notice is plain text: file names, paths and messages that quote files are data,
+        so escape sequences and control characters are removed and nothing is read as markup."""
+        super().notify(fm.clean_text(message, keep_newlines=True), title=fm.clean_text(title),
+                       severity=severity, timeout=timeout, markup=False)
 
     # ------------------------------------------------------------ widgets
 
@@ -548,7 +560,12 @@ class ChainTriageApp(App[int]):
         try:
             save_settings(s)
         except ChainTriageError as exc:
-            self.notify(f"settings not saved: {exc}", severity="warning", markup=False)
+            if not self._settings_unsaved:  # once a session: every look change would say it again
+                self.notify(f"settings not saved: {exc}; changes last until you quit", severity="warning",
+                            timeout=8)
+            self._settings_unsaved = True
+        else:
+            self._settings_unsaved = False
 
     # ------------------------------------------------------------ actions: moving around
 

@@ -241,14 +241,14 @@ _ESCAPE_RE = re.compile(
     re.DOTALL,
 )
 _CONTROL_RE = re.compile(
-    "[\x00-\x08\x0b-\x1f\x7f-\x9f\u200e\u200f\u202a-\u202e\u2066-\u2069]"
+    "[\x00-\x08\x0b-\x1f\x7f-\x9f\u061c\u200e\u200f\u202a-\u202e\u2066-\u2069\ufeff]"
 )
 
 
 def clean_text(value: Any, *, keep_newlines: bool = False) -> str:
     """Text from data made safe to show or copy: escape sequences and control
-    characters (C0, C1, DEL, bidi overrides) removed; tabs and newlines become spaces
-    unless ``keep_newlines``. None and NaN give ""."""
+    characters (C0, C1, DEL, every bidi control, a stray byte-order mark) removed;
+    tabs and newlines become spaces unless ``keep_newlines``. None and NaN give ""."""
     if value is None:
         return ""
     if isinstance(value, float) and not math.isfinite(value):
@@ -257,5 +257,6 @@ def clean_text(value: Any, *, keep_newlines: bool = False) -> str:
     text = _ESCAPE_RE.sub("", text)
     if not keep_newlines:
         text = text.replace("\r\n", " ").replace("\n", " ").replace("\r", " ")
+        text = text.replace("\u2028", " ").replace("\u2029", " ")  # Unicode line and paragraph separators
     text = text.replace("\t", " ")
     return _CONTROL_RE.sub("", text)

@@ -37,6 +37,20 @@ def plain(text: Any) -> Text:
     return Text(fm.clean_text(text))
 
 
+def close(screen: Screen, result: Any = None) -> bool:
+    """Dismiss ``screen`` with ``result`` once, and only while it is the top screen; True if it did.
+
+    Keys typed faster than a screen closes (Escape twice, Enter twice in a dialog) all reach the
+    closing screen: without this the second one would close the screen under it as well, down to
+    an empty screen stack.
+    """
+    if getattr(screen, "_dismissed_once", False) or not screen.is_active:
+        return False
+    screen._dismissed_once = True  # type: ignore[attr-defined]
+    screen.dismiss(result)
+    return True
+
+
 
 # ---------------------------------------------------------------- help
 
@@ -74,7 +88,7 @@ class HelpScreen(Screen):
         body.update(Text(wrap_help(help_text(self._ascii), width)))
 
     def action_close(self) -> None:
-        self.dismiss()
+        close(self)
 
 
 # ---------------------------------------------------------------- findings
@@ -158,7 +172,7 @@ class FindingsScreen(Screen):
             detail.update(Text(""))
 
     def action_close(self) -> None:
-        self.dismiss()
+        close(self)
 
 
 # ---------------------------------------------------------------- shortlist
@@ -243,7 +257,7 @@ class ShortlistScreen(Screen):
         return entries[table.cursor_row]
 
     def action_close(self) -> None:
-        self.dismiss()
+        close(self)
 
     def action_remove_entry(self) -> None:
         entry = self._current()
@@ -264,11 +278,15 @@ class ShortlistScreen(Screen):
         self.action_go_to()
 
     def action_go_to(self) -> None:
+        if getattr(self, "_dismissed_once", False):
+            return
         entry = self._current()
         if entry is not None and self.main.go_to_contract(entry.key):
-            self.dismiss()
+            close(self)
 
     def action_export(self) -> None:
+        if getattr(self, "_dismissed_once", False):
+            return
         if not len(self.main.shortlist):
             self.notify("the shortlist is empty: nothing to write", severity="warning", markup=False)
             return
@@ -318,7 +336,7 @@ class ColumnPicker(ModalScreen[None]):
         self._on_change(keys)
 
     def action_close(self) -> None:
-        self.dismiss(None)
+        close(self, None)
 
 
 # ---------------------------------------------------------------- filter
@@ -371,10 +389,10 @@ class FilterDialog(ModalScreen[StrikeFilter | None]):
         except ChainTriageError as exc:
             self.query_one("#f-error", Static).update(Text(str(exc), style="bold"))
             return
-        self.dismiss(flt)
+        close(self, flt)
 
     def action_cancel(self) -> None:
-        self.dismiss(None)
+        close(self, None)
 
 
 # ---------------------------------------------------------------- small prompts
@@ -407,10 +425,10 @@ class PathPrompt(ModalScreen[str | None]):
     def on_input_submitted(self, event: Input.Submitted) -> None:
         event.stop()
         value = event.value.strip()
-        self.dismiss(value or None)
+        close(self, value or None)
 
     def action_cancel(self) -> None:
-        self.dismiss(None)
+        close(self, None)
 
 
 class ConfirmDialog(ModalScreen[bool]):
@@ -431,4 +449,4 @@ class ConfirmDialog(ModalScreen[bool]):
             yield Static(Text("y: yes    n or Esc: no", style="bold"))
 
     def action_answer(self, yes: bool) -> None:
-        self.dismiss(bool(yes))
+        close(self, bool(yes))

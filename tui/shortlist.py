@@ -13,7 +13,9 @@ OWASP ASVS 5.0 requirement 1.2.10 ("'=', '+', '-', '@', '\\t' (tab), and '\\0'
 first character in a field value") [V]; carriage return added per the OWASP
 CSV Injection page [M]. NUL characters are dropped from text cells. Numbers
 are written as plain numbers (so "-1.48" stays a number); missing numbers as
-empty cells. Markdown cells have pipes escaped and line breaks removed.
+empty cells. Markdown cells have pipes escaped and line breaks removed, and their text
+cells get the same formula guard (a Markdown table pasted into a spreadsheet
+becomes cells too).
 """
 
 from __future__ import annotations
@@ -181,7 +183,8 @@ class Shortlist:
                                 ("underlying", "as_of", "expiry", "kind") else "---" for f in fields) + "|"]
         for e in self._entries.values():
             k = e.key
-            cells = [k.underlying, k.as_of, k.expiry, fm.fmt_strike(k.strike), k.kind]
+            cells = [markdown_text(k.underlying), markdown_text(k.as_of), markdown_text(k.expiry),
+                     fm.fmt_strike(k.strike), markdown_text(k.kind)]
             cells += [markdown_figure(name, e.figures.get(name), ascii_only) for name in FIGURES]
             lines.append("| " + " | ".join(escape_markdown(c) for c in cells) + " |")
         return "\n".join(lines) + "\n"
@@ -218,7 +221,7 @@ def _csv_number(value: Any) -> str:
 def markdown_figure(name: str, value: Any, ascii_only: bool = False) -> str:
     """A figure formatted for reading in the Markdown export."""
     if name in TEXT_FIGURES:
-        return fm.clean_text(value)
+        return markdown_text(value)
     if name in ("bid", "ask", "mid", "breakeven"):
         return fm.fmt_price(value, ascii_only=True)
     if name == "iv":
@@ -235,6 +238,12 @@ def markdown_figure(name: str, value: Any, ascii_only: bool = False) -> str:
         return fm.fmt_count(value, ascii_only=True)
     x = fm.as_finite(value)
     return "--" if x is None else repr(x)
+
+
+def markdown_text(value: Any) -> str:
+    """A text cell for the Markdown export: control characters removed, outer spaces trimmed
+    (a table cell is trimmed when read), and a formula prefix neutralised as in the CSV."""
+    return neutralise_formula(fm.clean_text(value).strip())
 
 
 def escape_markdown(text: Any) -> str:
