@@ -12,6 +12,7 @@ from __future__ import annotations
 import argparse
 import os
 import sys
+import warnings
 from collections.abc import Callable, Sequence
 
 from chaintriage.core.findings import ChainTriageError
@@ -80,13 +81,19 @@ def main(argv: Sequence[str] | None = None) -> int:
         if not argv:
             from chaintriage.tui.app import open_app  # lazy: textual loads only for the app
 
-            return open_app([])
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore", RuntimeWarning)
+                return open_app([])
         parser = build_parser()
         args = parser.parse_args(argv)
         if getattr(args, "func", None) is None:
             parser.print_help(sys.stderr)
             return EXIT_UNUSABLE
-        return args.func(args)
+        # Overflow and invalid-value warnings from numpy at absurd magnitudes are
+        # not for the user: core reports such rows as NaN plus a finding.
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", RuntimeWarning)
+            return args.func(args)
     except ChainTriageError as exc:
         error(str(exc))
         return EXIT_UNUSABLE

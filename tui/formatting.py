@@ -127,11 +127,22 @@ def price_decimals(value: float) -> int:
     return 4
 
 
+#: From this size on, prices, levels and strikes are shown in scientific notation
+#: (no real underlying trades there; a 300-digit number helps nobody).
+HUGE = 1e12
+
+
+def _huge(x: float) -> str:
+    return f"{x:.4g}"
+
+
 def fmt_price(value: Any, width: int | None = None, ascii_only: bool = False) -> str:
     """A price in price units: two decimals, more when it has sub-penny digits (1.225, 0.0035)."""
     x = as_finite(value)
     if x is None:
         return _missing(width, ascii_only)
+    if abs(x) >= HUGE:
+        return fit(_huge(x), width)
     text = f"{x:.{price_decimals(x)}f}"
     if text.startswith("-") and float(text) == 0.0:
         text = text[1:]
@@ -143,6 +154,8 @@ def fmt_level(value: Any, width: int | None = None, ascii_only: bool = False) ->
     x = as_finite(value)
     if x is None:
         return _missing(width, ascii_only)
+    if abs(x) >= HUGE:
+        return fit(_huge(x), width)
     text = f"{x:.{2 if abs(x) >= 1 else 4}f}"
     if text.startswith("-") and float(text) == 0.0:
         text = text[1:]
@@ -167,6 +180,8 @@ def fmt_strike(value: Any, decimals: int | None = None, width: int | None = None
     x = as_finite(value)
     if x is None:
         return _missing(width, ascii_only)
+    if abs(x) >= HUGE:
+        return fit(_huge(x), width)
     d = strike_decimals([x]) if decimals is None else decimals
     return fit(f"{x:.{d}f}", width)
 

@@ -108,3 +108,13 @@ def test_clean_text_strips_escapes_and_controls():
     assert fm.clean_text("one\ntwo\tthree") == "one two three"
     assert fm.clean_text("[bold]kept[/bold]") == "[bold]kept[/bold]"  # markup is just text
     assert fm.clean_text(float("nan")) == ""
+
+
+def test_absurdly_large_prices_use_scientific_notation():
+    # [C] No real underlying trades at 1e12; a 300-digit number helps nobody.
+    from chaintriage.tui.formatting import fmt_level, fmt_price, fmt_strike
+
+    assert fmt_price(1.05e307) == "1.05e+307"
+    assert fmt_level(-2e15) == "-2e+15"
+    assert fmt_strike(9e307) == "9e+307"
+    assert fmt_price(999_999.5) == "999999.50"
