@@ -69,10 +69,15 @@ def main() -> None:
             df.to_csv(path, index=False, quoting=quoting)
             res = load_file(path)
             assert res.rows_read == n, (res.rows_read, n)
+            # Nothing dropped silently: every row accepted or left out with a finding of its own.
+            left_out_lines = {f.line for f in res.findings if f.severity == "left-out"}
+            assert res.rows_accepted + res.rows_left_out == n
+            assert len(left_out_lines) == res.rows_left_out, (len(left_out_lines), res.rows_left_out)
             t_load = best_of(lambda: load_file(path))
             t_pd = best_of(lambda: pd.read_csv(path, dtype=str, keep_default_na=False))
             size = path.stat().st_size / 1e6
             print(f"{label}: {n} rows ({size:.1f} MB), accepted {res.rows_accepted}, "
+                  f"left out {res.rows_left_out} (each named), "
                   f"{len(res.findings)} findings, {len(res.snapshots)} snapshots")
             print(f"  load_file        best of 3: {t_load:.3f} s = {n / t_load:,.0f} rows/s")
             print(f"  pandas.read_csv  best of 3: {t_pd:.3f} s = {n / t_pd:,.0f} rows/s"
