@@ -65,6 +65,19 @@ def fit(text: str, width: int | None, *, numeric: bool = True, align: str = "rig
     return text.rjust(width)
 
 
+def tidy_zero(text: str, keep_sign: bool = False) -> str:
+    """A rounded number that reads as zero never shows a minus: "-0.00" -> "0.00" ("+0.00" when
+    ``keep_sign``), "-0.0%" -> "0.0%"."""
+    if text.startswith("-") and float(text.rstrip("%")) == 0.0:
+        return ("+" if keep_sign else "") + text[1:]
+    return text
+
+
+def signed(x: float, decimals: int = 2) -> str:
+    """A number with its sign and fixed decimals, zero as "+0.00"."""
+    return tidy_zero(f"{x:+.{decimals}f}", keep_sign=True)
+
+
 def _missing(width: int | None, ascii_only: bool) -> str:
     return fit(placeholder(ascii_only), width)
 
@@ -76,10 +89,7 @@ def fmt_pct(value: Any, decimals: int = 1, width: int | None = None, ascii_only:
         return _missing(width, ascii_only)
     if not math.isfinite(x * 100):
         return fit("####", width) if width is None else "#" * width
-    text = f"{x * 100:.{decimals}f}%"
-    if text.startswith("-") and float(text[:-1]) == 0.0:
-        text = text[1:]
-    return fit(text, width)
+    return fit(tidy_zero(f"{x * 100:.{decimals}f}%"), width)
 
 
 def fmt_vol(value: Any, width: int | None = None, ascii_only: bool = False) -> str:
@@ -103,9 +113,7 @@ def fmt_prob(value: Any, width: int | None = None, ascii_only: bool = False) -> 
     elif not math.isfinite(x * 100):
         text = "####"
     else:
-        text = f"{x * 100:.1f}%"
-        if text == "-0.0%":
-            text = "0.0%"
+        text = tidy_zero(f"{x * 100:.1f}%")
     return fit(text, width)
 
 
@@ -143,10 +151,7 @@ def fmt_price(value: Any, width: int | None = None, ascii_only: bool = False) ->
         return _missing(width, ascii_only)
     if abs(x) >= HUGE:
         return fit(_huge(x), width)
-    text = f"{x:.{price_decimals(x)}f}"
-    if text.startswith("-") and float(text) == 0.0:
-        text = text[1:]
-    return fit(text, width)
+    return fit(tidy_zero(f"{x:.{price_decimals(x)}f}"), width)
 
 
 def fmt_level(value: Any, width: int | None = None, ascii_only: bool = False) -> str:
@@ -156,10 +161,7 @@ def fmt_level(value: Any, width: int | None = None, ascii_only: bool = False) ->
         return _missing(width, ascii_only)
     if abs(x) >= HUGE:
         return fit(_huge(x), width)
-    text = f"{x:.{2 if abs(x) >= 1 else 4}f}"
-    if text.startswith("-") and float(text) == 0.0:
-        text = text[1:]
-    return fit(text, width)
+    return fit(tidy_zero(f"{x:.{2 if abs(x) >= 1 else 4}f}"), width)
 
 
 def strike_decimals(values: Any) -> int:
@@ -191,10 +193,7 @@ def fmt_sigma(value: Any, width: int | None = None, ascii_only: bool = False) ->
     x = as_finite(value)
     if x is None:
         return _missing(width, ascii_only)
-    text = f"{x:+.2f}"
-    if text == "-0.00":
-        text = "+0.00"
-    return fit(text + (SIGMA_ASCII if ascii_only else SIGMA), width)
+    return fit(signed(x) + (SIGMA_ASCII if ascii_only else SIGMA), width)
 
 
 def fmt_delta(value: Any, width: int | None = None, ascii_only: bool = False) -> str:
@@ -202,10 +201,7 @@ def fmt_delta(value: Any, width: int | None = None, ascii_only: bool = False) ->
     x = as_finite(value)
     if x is None:
         return _missing(width, ascii_only)
-    text = f"{x:+.2f}"
-    if text == "-0.00":
-        text = "+0.00"
-    return fit(text, width)
+    return fit(signed(x), width)
 
 
 def fmt_count(value: Any, width: int | None = None, ascii_only: bool = False) -> str:

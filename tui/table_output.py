@@ -32,6 +32,7 @@ from chaintriage.tui.formatting import (
     fmt_strike,
     fmt_vol,
     placeholder,
+    signed,
 )
 
 #: How plain output shows each known column: (heading, formatter name).
@@ -95,7 +96,7 @@ def _fmt(value: object, kind: str) -> str:
     if x is None:
         return placeholder(ascii_only=True)
     if kind == "signed":
-        return f"{x:+.2f}"
+        return signed(x)
     if kind == "points":
         return f"{100 * x:.2f}"
     if kind == "g":
