@@ -148,3 +148,15 @@ def save_settings(settings: Settings, path: str | os.PathLike[str] | None = None
     except OSError as exc:
         raise ChainTriageError(f"cannot create {p.parent}: {exc.strerror or exc}") from exc
     return write_text_atomic(p, dumps_settings(settings), overwrite=True)
+
+
+def save_preferences(settings: Settings, *, theme: str, ascii_only: bool, columns: list[str], confidence: float,
+                     plot: str, path: str | os.PathLike[str] | None = None) -> Path:
+    """Put the app's current looks into ``settings`` and write them (``save_settings``);
+    ChainTriageError if they cannot be written (``settings`` holds them all the same)."""
+    settings.theme = theme
+    settings.ascii_only = bool(ascii_only)
+    settings.columns = list(columns)
+    settings.confidence = float(confidence)
+    settings.extra["plot"] = plot
+    return save_settings(settings, path)

@@ -36,7 +36,7 @@ HERE = os.path.dirname(os.path.abspath(__file__))
 
 CHILD = r"""
 import sys, time
-import chaintriage.tui.cli  # the entry point's own imports
+import chaintriage.tui.cli.main  # the entry point's own imports
 from chaintriage.tui.app import ChainTriageApp
 
 paths = sys.argv[1:]
@@ -45,7 +45,7 @@ add_view = app._add_view
 shown = []
 
 def ready():
-    lines = app.grid.render_lines_text()
+    lines = app.triage.grid.render_lines_text()
     assert any("│" in l for l in lines), lines
     print("READY", flush=True)
     app.exit()
@@ -94,7 +94,7 @@ def bench_cold_start(env: dict[str, str], repeats: int) -> None:
     print("== cold start to the first screen with the demo chains")
     summary("python -c pass", [spawn("pass", env) for _ in range(repeats)])
     summary("import textual + app + core pipeline", [spawn(
-        "import chaintriage.tui.cli, chaintriage.tui.app, chaintriage.core.pipeline", env)
+        "import chaintriage.tui.cli.main, chaintriage.tui.app, chaintriage.core.pipeline", env)
         for _ in range(repeats)])
     summary("chaintriage (demo) to first data frame", [spawn_until_ready([], env) for _ in range(repeats)], 1200)
 
@@ -104,7 +104,7 @@ def synthetic_view(n_contracts: int, n_expiries: int):
     from bench_pipeline import synthetic_snapshot
 
     from chaintriage.core.pipeline import PipelineSettings
-    from chaintriage.tui.app import annotate_view
+    from chaintriage.tui.snapshot_loading import annotate_view
 
     snap = synthetic_snapshot(n_contracts, n_expiries)
     return annotate_view(snap, PipelineSettings(), (), 0.6827)
@@ -119,7 +119,7 @@ async def _expiry_switch(size: tuple[int, int], repeats: int) -> None:
     async with app.run_test(size=size) as pilot:
         await pilot.pause()
         n = len(view.expiries)
-        strikes = len(app.grid.strikes)
+        strikes = len(app.triage.grid.strikes)
         screen = app.screen
         for i in range(repeats):
             step = app.action_next_expiry if (i // (n - 1)) % 2 == 0 else app.action_previous_expiry
@@ -136,8 +136,8 @@ async def _expiry_switch(size: tuple[int, int], repeats: int) -> None:
             step()
             await pilot.pause()
             piloted.append(time.perf_counter() - t0)
-        print(f"-- {size[0]}x{size[1]}: {strikes} strikes per expiry, plot {'shown' if app.plot.display else 'hidden'}"
-              f" ({app.plot.size.width}x{app.plot.size.height})")
+        print(f"-- {size[0]}x{size[1]}: {strikes} strikes per expiry, plot {'shown' if app.triage.plot.display else 'hidden'}"
+              f" ({app.triage.plot.size.width}x{app.triage.plot.size.height})")
     summary("  ] action (ladder, header, plot inputs)", actions)
     summary("  ] action + composed frame", composed, 30)
     summary("  ] action + pilot frame (incl. idle wait)", piloted)

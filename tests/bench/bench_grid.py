@@ -30,7 +30,7 @@ import pandas as pd
 from textual.app import App, ComposeResult
 from textual.widgets import DataTable
 
-from chaintriage.tui.strike_grid import StrikeGrid
+from chaintriage.tui.widgets.strike_grid import StrikeGrid
 from chaintriage.tui.themes import load_themes
 
 N_STRIKES = 400

@@ -158,11 +158,11 @@ async def drive(app, pilot, driver: Driver, n_keys: int) -> None:
                 await pilot.pause()  # let the screen settle: q on the main screen would end the app
                 if app.screen is triage:
                     continue  # the only key that ends the app; every other is fair game
-            loading = bool(app._loads_running)
+            loading = bool(app.state.loads_running)
             t0 = time.perf_counter()
             await pilot.press(key)
             driver.timed(time.perf_counter() - t0, key)
             driver.pressed += 1
-            driver.pressed_while_loading += loading or bool(app._loads_running)
+            driver.pressed_while_loading += loading or bool(app.state.loads_running)
             driver.screens_seen.add(type(app.screen).__name__)
             assert app.is_running and app.return_code is None, f"seed {driver.seed}: the app ended at {key!r}"

@@ -71,7 +71,7 @@ async def wait_ready(app: ChainTriageApp, pilot, timeout: float = 20.0) -> None:
     while loop.time() < end:
         if app.return_code is not None:
             return
-        if app.views and not app._loads_running:
+        if app.state.views and not app.state.loads_running:
             await pilot.pause()
             return
         await pilot.pause(0.02)
@@ -93,4 +93,4 @@ def notes(app: ChainTriageApp) -> list[str]:
 
 
 def bar(app: ChainTriageApp, name: str) -> str:
-    return app._bar(name).plain
+    return app.triage.bar(name).plain

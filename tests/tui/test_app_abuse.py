@@ -21,11 +21,17 @@ import time
 import pytest
 import textual.app
 
-from chaintriage.tui import app as app_module
-from chaintriage.tui.app import ChainTriageApp, TriageScreen
-from chaintriage.tui.screens import (ColumnPicker, ConfirmDialog, FilterDialog, FindingsScreen, HelpScreen,
-                                     PathPrompt, ShortlistScreen)
-from chaintriage.tui.strike_grid import StrikeGrid
+from chaintriage.tui import snapshot_loading
+from chaintriage.tui.app import ChainTriageApp
+from chaintriage.tui.screens.triage import TriageScreen
+from chaintriage.tui.screens.column_picker import ColumnPicker
+from chaintriage.tui.screens.confirm_dialog import ConfirmDialog
+from chaintriage.tui.screens.filter_dialog import FilterDialog
+from chaintriage.tui.screens.findings import FindingsScreen
+from chaintriage.tui.screens.help import HelpScreen
+from chaintriage.tui.screens.path_prompt import PathPrompt
+from chaintriage.tui.screens.shortlist import ShortlistScreen
+from chaintriage.tui.widgets.strike_grid import StrikeGrid
 
 from .abuse_support import Driver, binding_keys, drive, quick_idle, write_big_chain
 from .app_support import Clipboard, bar, demo_views, wait_ready
@@ -49,10 +55,10 @@ def big_chain(tmp_path_factory):
 
 def screen_text(app: ChainTriageApp) -> list[str]:
     texts = [bar(app, n) for n in ("topbar", "expirybar", "filterbar")]
-    if app.views:
-        texts += app.grid.render_lines_text()
-        if app.plot.display and app.plot.last_result is not None:
-            texts += list(app.plot.last_result.plain)
+    if app.state.views:
+        texts += app.triage.grid.render_lines_text()
+        if app.triage.plot.display and app.triage.plot.last_result is not None:
+            texts += list(app.triage.plot.last_result.plain)
     texts += [str(n.message) for n in app._notifications]
     return texts
 
@@ -76,13 +82,13 @@ def abuse(seed: int, tmp_path, big_chain: str, monkeypatch, *, start_loading: bo
     work.mkdir()
     monkeypatch.chdir(work)  # exports and typed paths land here
     monkeypatch.setattr(textual.app, "wait_for_idle", quick_idle)
-    real_load = app_module.load_for_app
+    real_load = snapshot_loading.load_for_app
 
     def slower_load(*args, **kwargs):
         time.sleep(0.5)  # a slower disk: keys surely land while the file loads
         return real_load(*args, **kwargs)
 
-    monkeypatch.setattr(app_module, "load_for_app", slower_load)
+    monkeypatch.setattr(snapshot_loading, "load_for_app", slower_load)
     if start_loading:
         app = ChainTriageApp([big_chain], system_clipboard=Clipboard())
     else:
@@ -114,7 +120,7 @@ def abuse(seed: int, tmp_path, big_chain: str, monkeypatch, *, start_loading: bo
 
     asyncio.run(main())
     assert app.return_code in (None, 0)
-    assert any(v.snapshot.underlying == "BIGQ" for v in app.views), app.file_errors
+    assert any(v.snapshot.underlying == "BIGQ" for v in app.state.views), app.state.file_errors
     FIGURES[seed] = driver
     return driver
 

@@ -53,21 +53,21 @@ def test_bad_files_say_so_and_leave_the_app_as_it_was(tmp_path):
 
     async def scenario(pilot):
         await pilot.press("right_square_bracket", "down", "down")
-        before = (app.view_index, app.view.snapshot.underlying, app.current_expiry, app.grid.highlighted)
+        before = (app.state.view_index, app.state.view.snapshot.underlying, app.state.current_expiry, app.triage.grid.highlighted)
         for what, path in bad.items():
             shown_before = len(app._notifications)
             await _open(app, pilot, path)
             assert app.screen is app.triage, what
-            assert (app.view_index, app.view.snapshot.underlying, app.current_expiry,
-                    app.grid.highlighted) == before, what
-            assert len(app.views) == 2, what
+            assert (app.state.view_index, app.state.view.snapshot.underlying, app.state.current_expiry,
+                    app.triage.grid.highlighted) == before, what
+            assert len(app.state.views) == 2, what
             new = notes(app)[shown_before:] if len(notes(app)) > shown_before else notes(app)
             assert any(os.path.basename(path) in n for n in new), (what, new)
             assert not any("Traceback" in n for n in notes(app))
         await pilot.press("right_square_bracket")  # the keys still work
-        assert app.current_expiry != before[2]
+        assert app.state.current_expiry != before[2]
         await pilot.press("down")
-        assert app.grid.highlighted != before[3]
+        assert app.triage.grid.highlighted != before[3]
         await pilot.press("e")
         assert type(app.screen).__name__ == "FindingsScreen"
         await pilot.press("escape")
@@ -87,9 +87,9 @@ def test_a_file_without_read_permission(tmp_path):
         app = make_app()
 
         async def scenario(pilot):
-            before = (app.view_index, app.current_expiry)
+            before = (app.state.view_index, app.state.current_expiry)
             await _open(app, pilot, str(locked))
-            assert (app.view_index, app.current_expiry) == before and len(app.views) == 2
+            assert (app.state.view_index, app.state.current_expiry) == before and len(app.state.views) == 2
             assert any("locked.csv" in n for n in notes(app))
 
         run(app, scenario)

@@ -66,16 +66,16 @@ def screen_words(app) -> str:
 async def walk(app, pilot) -> int:
     """Every expiry of every snapshot, on the main screen and the screens over it; returns screens read."""
     read = 0
-    for v in range(len(app.views)):
-        app.show_view(v)
-        for i in range(len(app.view.expiries)):
-            app._expiry_pos[v] = i
-            app.show_expiry()
+    for v in range(len(app.state.views)):
+        app.triage.show_view(v)
+        for i in range(len(app.state.view.expiries)):
+            app.state.expiry_positions[v] = i
+            app.triage.show_expiry()
             await pilot.pause()
             for keys in ((), ("end", "right"), ("home", "plus", "plus", "plus", "plus")):
                 await pilot.press(*keys)
                 words = screen_words(app)
-                assert not BAD.search(words), (app.view.label, app.current_expiry, BAD.search(words), words)
+                assert not BAD.search(words), (app.state.view.label, app.state.current_expiry, BAD.search(words), words)
                 read += 1
             await pilot.press("minus", "minus", "minus", "minus", "m", "c")
     for keys in (("s",), ("e",), ("question_mark",)):
@@ -95,9 +95,9 @@ def test_every_expiry_of_the_edge_chains_reads_cleanly(tmp_path, monkeypatch):
     app = make_app(snapshots=result.snapshots)
 
     async def scenario(pilot):
-        assert [v.snapshot.underlying for v in app.views] == ["CALQ", "EDGQ"] or \
-            [v.snapshot.underlying for v in app.views] == ["EDGQ", "CALQ"], app.file_errors
-        assert sum(len(v.expiries) for v in app.views) >= 6
+        assert [v.snapshot.underlying for v in app.state.views] == ["CALQ", "EDGQ"] or \
+            [v.snapshot.underlying for v in app.state.views] == ["EDGQ", "CALQ"], app.state.file_errors
+        assert sum(len(v.expiries) for v in app.state.views) >= 6
         assert await walk(app, pilot) > 15
 
     run(app, scenario, size=(120, 40))

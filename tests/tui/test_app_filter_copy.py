@@ -11,7 +11,7 @@ from __future__ import annotations
 import numpy as np
 
 from chaintriage.tui import formatting as fm
-from chaintriage.tui.screens import FilterDialog
+from chaintriage.tui.screens.filter_dialog import FilterDialog
 from chaintriage.tui.strike_summary import summarize
 
 from .app_support import bar, demo_annotated, make_app, notes, run
@@ -50,24 +50,24 @@ def test_filter_at_one_and_two_sigma_then_clear():
 
     async def scenario(pilot):
         await pilot.press("]", "]", "]")  # a 30-day expiry: plenty of strikes both sides
-        expiry = app.current_expiry
-        all_strikes = app.grid.strikes.copy()
+        expiry = app.state.current_expiry
+        all_strikes = app.triage.grid.strikes.copy()
         await type_filter(pilot, sigma="1")
         want1 = expected_strikes(expiry, z=1.0)
         assert 0 < len(want1) < len(all_strikes)
-        assert np.array_equal(app.grid.strikes, want1)
+        assert np.array_equal(app.triage.grid.strikes, want1)
         line = bar(app, "filterbar")
         assert "1σ or more out of the money" in line
         assert f"{len(want1)} of {len(all_strikes)} strikes shown" in line
         await type_filter(pilot, sigma="2")
         want2 = expected_strikes(expiry, z=2.0)
-        assert np.array_equal(app.grid.strikes, want2) and len(want2) < len(want1)
+        assert np.array_equal(app.triage.grid.strikes, want2) and len(want2) < len(want1)
         # the filter holds across expiries
         await pilot.press("]")
-        assert np.array_equal(app.grid.strikes, expected_strikes(app.current_expiry, z=2.0))
+        assert np.array_equal(app.triage.grid.strikes, expected_strikes(app.state.current_expiry, z=2.0))
         await pilot.press("x")
-        assert len(app.grid.strikes) == len(np.unique(demo_annotated()[0].contracts.query(
-            "expiry == @app.current_expiry")["strike"]))
+        assert len(app.triage.grid.strikes) == len(np.unique(demo_annotated()[0].contracts.query(
+            "expiry == @app.state.current_expiry")["strike"]))
         assert "filter off" in bar(app, "filterbar")
 
     run(app, scenario)
@@ -78,13 +78,13 @@ def test_liquidity_limits_with_and_without_a_sigma():
 
     async def scenario(pilot):
         await pilot.press("]", "]", "]")
-        expiry = app.current_expiry
+        expiry = app.state.current_expiry
         await type_filter(pilot, spread="10", oi="500")
         want = expected_strikes(expiry, max_spread=0.10, min_oi=500)
-        assert 0 < len(want) and np.array_equal(app.grid.strikes, want)
+        assert 0 < len(want) and np.array_equal(app.triage.grid.strikes, want)
         assert "spread ≤ 10%" in bar(app, "filterbar") and "OI ≥ 500" in bar(app, "filterbar")
         await type_filter(pilot, sigma="1.5", spread="10", oi="500")
-        assert np.array_equal(app.grid.strikes, expected_strikes(expiry, 1.5, 0.10, 500))
+        assert np.array_equal(app.triage.grid.strikes, expected_strikes(expiry, 1.5, 0.10, 500))
 
     run(app, scenario)
 
@@ -94,9 +94,9 @@ def test_a_filter_that_leaves_nothing_says_so():
 
     async def scenario(pilot):
         await type_filter(pilot, sigma="50")
-        assert len(app.grid.strikes) == 0
+        assert len(app.triage.grid.strikes) == 0
         assert "0 of" in bar(app, "filterbar")
-        assert any("no strikes to show" in line for line in app.grid.render_lines_text())
+        assert any("no strikes to show" in line for line in app.triage.grid.render_lines_text())
         await pilot.press("c")  # nothing highlighted: a notice, not a crash
         assert any("nothing to copy" in n for n in notes(app))
 
@@ -114,7 +114,7 @@ def test_bad_filter_input_keeps_the_dialog_open_and_escape_keeps_the_old_filter(
         assert "not a number" in str(dialog.query_one("#f-error").render())
         await pilot.press("escape")
         assert app.screen is app.triage
-        assert not app.strike_filter.active
+        assert not app.state.strike_filter.active
 
     run(app, scenario)
 
@@ -126,8 +126,8 @@ def test_copy_puts_the_summary_on_both_clipboards_and_shows_it():
     async def scenario(pilot):
         await pilot.press("down", "right", "c")
         await pilot.app.workers.wait_for_complete()
-        strike, kind = app.grid.highlighted
-        row = oracle.contracts[(oracle.contracts["expiry"] == app.current_expiry)
+        strike, kind = app.triage.grid.highlighted
+        row = oracle.contracts[(oracle.contracts["expiry"] == app.state.current_expiry)
                                & (oracle.contracts["strike"] == strike) & (oracle.contracts["kind"] == kind)]
         expected = summarize(row.iloc[0], as_of=oracle.snapshot.as_of, underlying="OSPX")
         assert app.clipboard == expected

@@ -68,7 +68,7 @@ def test_file_text_is_literal_or_stripped_everywhere(tmp_path):
         top = bar(app, "topbar")
         assert "[bold]Q[/]" in top
         clean([bar(app, n) for n in ("topbar", "expirybar", "filterbar")], "header lines")
-        clean(app.grid.render_lines_text(), "ladder")
+        clean(app.triage.grid.render_lines_text(), "ladder")
         await pilot.press("c")
         await pilot.pause(0.1)
         assert app.clipboard.startswith(shown.strip()), app.clipboard

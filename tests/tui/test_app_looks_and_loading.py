@@ -12,8 +12,9 @@ import threading
 import pytest
 
 from chaintriage.core.loading import load_files
-from chaintriage.tui import app as app_module
-from chaintriage.tui.app import demo_files, open_app
+from chaintriage.tui import snapshot_loading
+from chaintriage.tui.app import open_app
+from chaintriage.tui.snapshot_loading import demo_files
 from chaintriage.tui.layout import SCROLLBAR, ladder_width
 from chaintriage.tui.settings import load_settings, settings_path
 from chaintriage.tui.themes import load_themes
@@ -46,21 +47,21 @@ def test_theme_key_cycles_and_the_choice_survives_a_restart(config_home):
     first = make_app()
 
     async def switch(pilot):
-        assert first.chain_theme.name == "harbour"
+        assert first.state.theme.name == "harbour"
         await pilot.press("t")
-        assert first.chain_theme.name == names[(names.index("harbour") + 1) % len(names)]
-        assert first.theme == first.chain_theme.textual_name
-        assert first.grid._theme is first.chain_theme and first.plot._theme is first.chain_theme
-        assert f"theme: {first.chain_theme.name}" in notes(first)
+        assert first.state.theme.name == names[(names.index("harbour") + 1) % len(names)]
+        assert first.theme == first.state.theme.textual_name
+        assert first.triage.grid._theme is first.state.theme and first.triage.plot._theme is first.state.theme
+        assert f"theme: {first.state.theme.name}" in notes(first)
 
     run(first, switch)
     assert settings_path().is_file()
-    assert load_settings()[0].theme == first.chain_theme.name
+    assert load_settings()[0].theme == first.state.theme.name
     second = make_app()
 
     async def check(pilot):
-        assert second.chain_theme.name == first.chain_theme.name
-        assert second.theme == second.chain_theme.textual_name
+        assert second.state.theme.name == first.state.theme.name
+        assert second.theme == second.state.theme.textual_name
 
     run(second, check)
 
@@ -78,10 +79,10 @@ def test_a_users_own_theme_joins_the_cycle(config_home):
         assert "night desk" in app.themes.names()
         assert any("broken.toml" in n for n in notes(app))  # a bad file is named, not fatal
         for _ in range(len(app.themes.names())):
-            if app.chain_theme.name == "night desk":
+            if app.state.theme.name == "night desk":
                 break
             await pilot.press("t")
-        assert app.chain_theme.name == "night desk"
+        assert app.state.theme.name == "night desk"
 
     run(app, scenario)
 
@@ -92,13 +93,13 @@ def test_ascii_mode_draws_plain_characters_and_is_remembered(config_home):
     async def scenario(pilot):
         await pilot.press("a")
         await pilot.pause()
-        lines = app.grid.render_lines_text() + app.plot.last_result.plain
+        lines = app.triage.grid.render_lines_text() + app.triage.plot.last_result.plain
         lines += [bar(app, n) for n in ("topbar", "expirybar", "filterbar")]
         for line in lines:
             assert line.isascii(), line
         assert load_settings()[0].ascii_only is True
         await pilot.press("a")
-        assert any("σ" in line for line in app.grid.render_lines_text())
+        assert any("σ" in line for line in app.triage.grid.render_lines_text())
 
     run(app, scenario)
 
@@ -107,12 +108,12 @@ def test_plot_key_hides_and_shows_the_pane():
     app = make_app()
 
     async def scenario(pilot):
-        assert app.plot.display
+        assert app.triage.plot.display
         await pilot.press("v")
-        assert not app.plot.display
+        assert not app.triage.plot.display
         await pilot.press("v")
         await pilot.pause()
-        assert app.plot.display and app.plot.last_result is not None
+        assert app.triage.plot.display and app.triage.plot.last_result is not None
 
     run(app, scenario)
 
@@ -123,24 +124,24 @@ def test_small_and_large_terminals_are_usable(size):
 
     async def scenario(pilot):
         width, height = size
-        grid = app.grid
+        grid = app.triage.grid
         assert grid.size.width > 0 and grid.size.height >= 8
         lines = grid.render_lines_text()
         assert "strike" in lines[1] and "calls" in lines[0] and "puts" in lines[0]
         assert sum(1 for line in lines if line.count("│") == 2) >= 5  # strike rows visible
         assert max(len(line.rstrip()) for line in lines) <= grid.size.width
         if width == 80:
-            assert not app.plot.display
+            assert not app.triage.plot.display
             assert "σ dist" in lines[1] and "beyond" in lines[1]  # the key columns stay
             assert "not shown" in bar(app, "filterbar") and "plot hidden" in bar(app, "filterbar")
             await pilot.press("v")
             await pilot.pause()
-            assert app.plot.display and app.plot.size.width >= 20
+            assert app.triage.plot.display and app.triage.plot.size.width >= 20
         else:
-            need = ladder_width(app.columns, grid.strike_width) + SCROLLBAR
-            assert app.grid.columns == app.columns
-            assert app.plot.display and app.plot.outer_size.width == width - need
-            assert len(app.plot.last_result.lines) == app.plot.size.height
+            need = ladder_width(app.state.columns, grid.strike_width) + SCROLLBAR
+            assert app.triage.grid.columns == app.state.columns
+            assert app.triage.plot.display and app.triage.plot.outer_size.width == width - need
+            assert len(app.triage.plot.last_result.lines) == app.triage.plot.size.height
         await pilot.press("]", "f", "1", "enter", "c")
         assert app.clipboard
 
@@ -151,13 +152,13 @@ def test_resizing_reflows_the_screen():
     app = make_app()
 
     async def scenario(pilot):
-        assert app.plot.display
+        assert app.triage.plot.display
         await pilot.resize_terminal(80, 24)
         await pilot.pause()
-        assert not app.plot.display and app.left_out_columns
+        assert not app.triage.plot.display and app.state.left_out_columns
         await pilot.resize_terminal(200, 50)
         await pilot.pause()
-        assert app.plot.display and not app.left_out_columns
+        assert app.triage.plot.display and not app.state.left_out_columns
 
     run(app, scenario)
 
@@ -191,13 +192,13 @@ def test_markup_and_control_characters_in_a_name_show_literally(tmp_path):
 
 def test_loading_shows_progress_instead_of_a_frozen_screen(monkeypatch):
     release = threading.Event()
-    real = app_module.annotate_view
+    real = snapshot_loading.annotate_view
 
     def slow(*args, **kwargs):
         release.wait(10)
         return real(*args, **kwargs)
 
-    monkeypatch.setattr(app_module, "annotate_view", slow)
+    monkeypatch.setattr(snapshot_loading, "annotate_view", slow)
     app = make_app(paths=())
 
     async def main():
@@ -217,7 +218,7 @@ def test_loading_shows_progress_instead_of_a_frozen_screen(monkeypatch):
             if app.screen is not app.triage:
                 await pilot.press("escape")
             assert app.triage.query_one("#loading").has_class("-hidden")
-            assert len(app.views) == 2
+            assert len(app.state.views) == 2
             assert "computing" not in bar(app, "topbar")
 
     asyncio.run(main())
@@ -239,15 +240,15 @@ def test_opening_another_file_from_inside_the_app(tmp_path):
 
     async def scenario(pilot):
         await open_path(pilot, bad)
-        assert len(app.views) == 2 and app.view.snapshot.underlying == "OSPX"
+        assert len(app.state.views) == 2 and app.state.view.snapshot.underlying == "OSPX"
         assert any(str(bad) in n for n in notes(app))
         await open_path(pilot, tmp_path / "missing.csv")
-        assert len(app.views) == 2 and any("missing.csv" in n for n in notes(app))
+        assert len(app.state.views) == 2 and any("missing.csv" in n for n in notes(app))
         await open_path(pilot, good)
-        assert len(app.views) == 3
+        assert len(app.state.views) == 3
         await pilot.press("right_curly_bracket")
-        assert app.view.snapshot.underlying in ("QRTZ", "OSPX", "TSBH")
-        assert [v.snapshot.underlying for v in app.views] == ["OSPX", "TSBH", "QRTZ"]
+        assert app.state.view.snapshot.underlying in ("QRTZ", "OSPX", "TSBH")
+        assert [v.snapshot.underlying for v in app.state.views] == ["OSPX", "TSBH", "QRTZ"]
         await pilot.press("e")  # the file errors are listed with the findings
         table = app.screen.query_one("#findings-table")
         assert any(table.get_row_at(i)[0].plain == "unusable file" for i in range(table.row_count))
@@ -278,7 +279,7 @@ def test_open_app_reports_missing_files_without_starting(tmp_path, capsys):
 
 
 def test_no_demo_chains_gives_a_clear_message(monkeypatch, capsys):
-    monkeypatch.setattr(app_module, "demo_files", lambda: [])
+    monkeypatch.setattr(snapshot_loading, "demo_files", lambda: [])
     assert open_app([]) == 2
     assert "no demo chains are bundled" in capsys.readouterr().err
 

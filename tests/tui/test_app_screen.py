@@ -16,7 +16,7 @@ import pandas as pd
 
 from chaintriage.core.distribution import range_flat, range_smile
 from chaintriage.tui import formatting as fm
-from chaintriage.tui.app import TriageScreen
+from chaintriage.tui.screens.triage import TriageScreen
 from chaintriage.tui.help_text import KEYS
 from chaintriage.tui.strike_summary import summarize
 
@@ -27,7 +27,7 @@ BAR = "│"
 
 def grid_row(app, strike: float) -> str:
     """The rendered ladder line of ``strike`` (the grid must show it)."""
-    for line in app.grid.render_lines_text():
+    for line in app.triage.grid.render_lines_text():
         parts = line.split(BAR)
         if len(parts) == 3 and parts[1].strip() and _num(parts[1]) == strike:
             return line
@@ -53,9 +53,9 @@ def contract(annotated, expiry: str, strike: float, kind: str) -> pd.Series:
 
 
 def goto_expiry(app, expiry: str) -> None:
-    view = app.view
-    app._expiry_pos[app.view_index] = view.expiry_index(expiry)
-    app.show_expiry()
+    view = app.state.view
+    app.state.expiry_positions[app.state.view_index] = view.expiry_index(expiry)
+    app.triage.show_expiry()
 
 
 # ---------------------------------------------------------------- opening
@@ -65,13 +65,13 @@ def test_demo_opens_on_the_first_expiry_with_the_strike_nearest_the_forward():
     app = make_app(paths=())  # the real path: the bundled demo, loaded and annotated in a worker
 
     async def scenario(pilot):
-        assert [v.snapshot.underlying for v in app.views] == ["OSPX", "TSBH"]
+        assert [v.snapshot.underlying for v in app.state.views] == ["OSPX", "TSBH"]
         oracle = demo_annotated()[0]
         first = oracle.expiries.iloc[0]
-        assert app.current_expiry == pd.Timestamp(first["expiry"])
-        strikes = app.grid.strikes
+        assert app.state.current_expiry == pd.Timestamp(first["expiry"])
+        strikes = app.triage.grid.strikes
         nearest = float(strikes[np.argmin(np.abs(strikes - first["forward"]))])
-        assert app.grid.highlighted == (nearest, "call")
+        assert app.triage.grid.highlighted == (nearest, "call")
         top = bar(app, "topbar")
         assert "OSPX" in top and "snapshot 1/2" in top and "2026-12-01 14:30 -05:00" in top
         assert f"1 of {len(oracle.expiries)}" in bar(app, "expirybar")
@@ -85,19 +85,19 @@ def test_expiry_keys_step_through_every_expiry_and_stop_at_the_ends():
     app = make_app()
 
     async def scenario(pilot):
-        expiries = app.view.expiries
-        seen = [app.current_expiry]
+        expiries = app.state.view.expiries
+        seen = [app.state.current_expiry]
         for _ in range(len(expiries) - 1):
             await pilot.press("]")
-            seen.append(app.current_expiry)
-            assert fm.fmt_date(app.current_expiry) in bar(app, "expirybar")
-            assert app.grid.expiry == app.current_expiry
+            seen.append(app.state.current_expiry)
+            assert fm.fmt_date(app.state.current_expiry) in bar(app, "expirybar")
+            assert app.triage.grid.expiry == app.state.current_expiry
         assert seen == expiries
         await pilot.press("]")
-        assert app.current_expiry == expiries[-1]
+        assert app.state.current_expiry == expiries[-1]
         assert "this is the last expiry" in notes(app)
         await pilot.press("[")
-        assert app.current_expiry == expiries[-2]
+        assert app.state.current_expiry == expiries[-2]
 
     run(app, scenario)
 
@@ -107,18 +107,18 @@ def test_snapshot_keys_switch_underlying_and_keep_the_nearest_expiry():
 
     async def scenario(pilot):
         await pilot.press("]", "]")
-        ospx_expiry = app.current_expiry
+        ospx_expiry = app.state.current_expiry
         await pilot.press("right_curly_bracket")
-        assert app.view.snapshot.underlying == "TSBH"
+        assert app.state.view.snapshot.underlying == "TSBH"
         assert "TSBH" in bar(app, "topbar") and "snapshot 2/2" in bar(app, "topbar")
-        gaps = [abs((e - ospx_expiry).days) for e in app.view.expiries]
-        assert app.current_expiry == app.view.expiries[int(np.argmin(gaps))]
+        gaps = [abs((e - ospx_expiry).days) for e in app.state.view.expiries]
+        assert app.state.current_expiry == app.state.view.expiries[int(np.argmin(gaps))]
         # another underlying: the highlight starts at its forward, not at the old strike level
-        strikes = app.grid.strikes
-        assert app.grid.highlighted[0] == float(strikes[np.argmin(np.abs(strikes - app.grid.forward))])
+        strikes = app.triage.grid.strikes
+        assert app.triage.grid.highlighted[0] == float(strikes[np.argmin(np.abs(strikes - app.triage.grid.forward))])
         await pilot.press("left_curly_bracket")
-        assert app.view.snapshot.underlying == "OSPX"
-        assert app.current_expiry == ospx_expiry  # each snapshot remembers its expiry
+        assert app.state.view.snapshot.underlying == "OSPX"
+        assert app.state.current_expiry == ospx_expiry  # each snapshot remembers its expiry
 
     run(app, scenario)
 
@@ -127,7 +127,7 @@ def test_ladder_keys_move_the_highlight_and_the_plot_follows():
     app = make_app()
 
     async def scenario(pilot):
-        grid = app.grid
+        grid = app.triage.grid
         strikes = list(grid.strikes)
         start = strikes.index(grid.highlighted[0])
         await pilot.press("down")
@@ -148,9 +148,9 @@ def test_ladder_keys_move_the_highlight_and_the_plot_follows():
         assert grid.highlighted[0] == strikes[-1]
         await pilot.press("up", "left")
         await pilot.pause()
-        title = app.plot.last_result.plain[0]
+        title = app.triage.plot.last_result.plain[0]
         k = fm.fmt_strike(strikes[-2])
-        p = contract(demo_annotated()[0], fm.fmt_date(app.current_expiry), strikes[-2], "call")["p_beyond"]
+        p = contract(demo_annotated()[0], fm.fmt_date(app.state.current_expiry), strikes[-2], "call")["p_beyond"]
         assert f"{k} call" in title and f"P(beyond) {fm.fmt_prob(p)}" in title
 
     run(app, scenario)
@@ -167,11 +167,11 @@ def test_one_known_contract_reads_as_core_computed_it():
 
     async def scenario(pilot):
         goto_expiry(app, "2026-12-18")
-        app.grid.cursor_to_strike(305.0, "put")
+        app.triage.grid.cursor_to_strike(305.0, "put")
         await pilot.pause()
         line = grid_row(app, 305.0)
         left, _, right = line.split(BAR)
-        assert app.grid.columns == ["bid", "ask", "iv", "sigma", "p_beyond", "p_touch"]
+        assert app.triage.grid.columns == ["bid", "ask", "iv", "sigma", "p_beyond", "p_touch"]
         for side, row in ((cells(left), call), (cells(right), put)):
             assert side == [fm.fmt_price(row["bid"]), fm.fmt_price(row["ask"]), fm.fmt_vol(row["iv"]),
                             fm.fmt_sigma(row["sigma_distance"]), fm.fmt_prob(row["p_beyond"]),
@@ -185,8 +185,8 @@ def test_one_known_contract_reads_as_core_computed_it():
         # the header: forward, ATM IV and ranges as core gives them
         res = oracle.results[pd.Timestamp("2026-12-18")]
         head = bar(app, "expirybar")
-        lo, hi = range_flat(res.forward, res.atm_iv, res.t_years, app.confidence)
-        slo, shi = range_smile(res.smile, res.forward, app.confidence)
+        lo, hi = range_flat(res.forward, res.atm_iv, res.t_years, app.state.confidence)
+        slo, shi = range_smile(res.smile, res.forward, app.state.confidence)
         assert f"fwd {fm.fmt_level(res.forward)}" in head
         assert f"ATM IV {fm.fmt_vol(res.atm_iv)}" in head
         assert f"range {fm.fmt_level(lo)}–{fm.fmt_level(hi)}" in head
@@ -203,13 +203,13 @@ def test_no_nan_inf_anywhere_on_any_expiry():
     bad = re.compile(r"\b(nan|inf|NaN|Inf|None)\b")
 
     async def scenario(pilot):
-        for v in range(len(app.views)):
-            app.show_view(v)
-            for i in range(len(app.view.expiries)):
-                app._expiry_pos[v] = i
-                app.show_expiry()
+        for v in range(len(app.state.views)):
+            app.triage.show_view(v)
+            for i in range(len(app.state.view.expiries)):
+                app.state.expiry_positions[v] = i
+                app.triage.show_expiry()
                 await pilot.pause()
-                texts = app.grid.render_lines_text() + app.plot.last_result.plain
+                texts = app.triage.grid.render_lines_text() + app.triage.plot.last_result.plain
                 texts += [bar(app, n) for n in ("topbar", "expirybar", "filterbar")]
                 for t in texts:
                     assert not bad.search(t), t
@@ -222,7 +222,7 @@ def test_confidence_keys_cycle_the_levels_and_the_ranges_follow():
     app = make_app()
 
     async def scenario(pilot):
-        res = oracle.results[app.current_expiry]
+        res = oracle.results[app.state.current_expiry]
         assert "68.27% range" in bar(app, "expirybar")
         for key, level in (("plus", "80%"), ("equals_sign", "90%"), ("plus", "95%"), ("plus", "99%")):
             await pilot.press(key)
@@ -235,7 +235,7 @@ def test_confidence_keys_cycle_the_levels_and_the_ranges_follow():
             await pilot.press("minus")
             assert f"{level} range" in bar(app, "expirybar")
         await pilot.press("minus")
-        assert app.confidence == 0.6827
+        assert app.state.confidence == 0.6827
 
     run(app, scenario)
 
@@ -267,7 +267,7 @@ def test_open_with_a_confidence_starts_the_range_there():
     app = make_app(pipeline_settings=PipelineSettings(confidence=0.95))
 
     async def scenario(pilot):
-        assert app.confidence == 0.95 and "95% range" in bar(app, "expirybar")
+        assert app.state.confidence == 0.95 and "95% range" in bar(app, "expirybar")
         await pilot.press("plus")
         assert "99% range" in bar(app, "expirybar")
 

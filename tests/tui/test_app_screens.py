@@ -11,10 +11,14 @@ import csv
 import pandas as pd
 
 from chaintriage.tui import help_text as ht
-from chaintriage.tui.screens import (ColumnPicker, ConfirmDialog, FindingsScreen, HelpScreen, PathPrompt,
-                                     ShortlistScreen)
+from chaintriage.tui.screens.column_picker import ColumnPicker
+from chaintriage.tui.screens.confirm_dialog import ConfirmDialog
+from chaintriage.tui.screens.findings import FindingsScreen
+from chaintriage.tui.screens.help import HelpScreen
+from chaintriage.tui.screens.path_prompt import PathPrompt
+from chaintriage.tui.screens.shortlist import ShortlistScreen
 from chaintriage.tui.settings import load_settings
-from chaintriage.tui.strike_grid import COLUMNS
+from chaintriage.tui.widgets.strike_grid import COLUMNS
 
 from .app_support import bar, demo_annotated, make_app, notes, run
 
@@ -28,19 +32,19 @@ def test_marking_across_expiries_and_snapshots_fills_the_shortlist():
 
     async def scenario(pilot):
         await mark(pilot)
-        k1 = app.grid.highlighted
-        assert any("●" in line for line in app.grid.render_lines_text())
+        k1 = app.triage.grid.highlighted
+        assert any("●" in line for line in app.triage.grid.render_lines_text())
         await mark(pilot, "]", "right")
         await mark(pilot, "right_curly_bracket")
-        assert len(app.shortlist) == 3
-        keys = [e.key for e in app.shortlist.entries]
+        assert len(app.state.shortlist) == 3
+        keys = [e.key for e in app.state.shortlist.entries]
         assert [k.underlying for k in keys] == ["OSPX", "OSPX", "TSBH"]
         assert keys[0].expiry != keys[1].expiry and (keys[0].strike, keys[0].kind) == k1
         assert keys[1].kind == "put"
         assert "shortlist 3" in bar(app, "topbar")
         # m again takes it off
         await pilot.press("m")
-        assert len(app.shortlist) == 2
+        assert len(app.state.shortlist) == 2
 
     run(app, scenario)
 
@@ -56,17 +60,17 @@ def test_shortlist_screen_lists_removes_copies_and_goes_to():
         assert isinstance(screen, ShortlistScreen)
         table = screen.query_one("#shortlist-table")
         assert table.row_count == 2
-        first = app.shortlist.entries[0]
+        first = app.state.shortlist.entries[0]
         row = [c.plain for c in table.get_row_at(0)]
         assert row[0] == "OSPX" and row[1] == first.key.expiry and row[3] == first.key.kind
         await pilot.press("c")
         assert app.clipboard.startswith(f"OSPX {first.key.expiry} ")
         await pilot.press("down", "d")
-        assert table.row_count == 1 and len(app.shortlist) == 1
+        assert table.row_count == 1 and len(app.state.shortlist) == 1
         await pilot.press("enter")  # go to the remaining (first) contract
         assert app.screen is app.triage
-        assert app.grid.highlighted == (first.key.strike, first.key.kind)
-        assert pd.Timestamp(first.key.expiry) == app.current_expiry
+        assert app.triage.grid.highlighted == (first.key.strike, first.key.kind)
+        assert pd.Timestamp(first.key.expiry) == app.state.current_expiry
 
     run(app, scenario)
 
@@ -91,7 +95,7 @@ def test_export_writes_csv_and_markdown_and_asks_before_replacing(tmp_path):
         rows = list(csv.DictReader(target.open(newline="", encoding="utf-8")))
         assert len(rows) == 1 and rows[0]["underlying"] == "OSPX"
         oracle = demo_annotated()[0].contracts
-        key = app.shortlist.entries[0].key
+        key = app.state.shortlist.entries[0].key
         want = oracle[(oracle["expiry"] == pd.Timestamp(key.expiry)) & (oracle["strike"] == key.strike)
                       & (oracle["kind"] == key.kind)].iloc[0]
         assert float(rows[0]["p_beyond"]) == want["p_beyond"]
@@ -139,7 +143,7 @@ def test_findings_screen_lists_the_snapshots_findings():
     app = make_app()
 
     async def scenario(pilot):
-        view = app.view
+        view = app.state.view
         findings = view.findings()
         assert findings
         assert f"{len(findings)} findings" in bar(app, "topbar")
@@ -219,12 +223,12 @@ def test_column_picker_changes_the_ladder_and_remembers(config_home):
         sl.highlighted = keys.index("bid")
         await pilot.press("space")
         await pilot.pause()
-        assert app.columns == ["ask", "mid", "iv", "sigma", "p_beyond", "p_touch"]
-        assert app.grid.columns == app.columns
-        heads = app.grid.render_lines_text()[1]
+        assert app.state.columns == ["ask", "mid", "iv", "sigma", "p_beyond", "p_touch"]
+        assert app.triage.grid.columns == app.state.columns
+        heads = app.triage.grid.render_lines_text()[1]
         assert "mid" in heads and "bid" not in heads
         await pilot.press("escape")
         assert app.screen is app.triage
-        assert load_settings()[0].columns == app.columns
+        assert load_settings()[0].columns == app.state.columns
 
     run(app, scenario)

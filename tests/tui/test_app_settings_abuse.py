@@ -37,7 +37,7 @@ CORRUPT = {
 
 
 def _screen_clean(app) -> None:
-    texts = [bar(app, n) for n in ("topbar", "expirybar", "filterbar")] + app.grid.render_lines_text()
+    texts = [bar(app, n) for n in ("topbar", "expirybar", "filterbar")] + app.triage.grid.render_lines_text()
     for t in texts:
         assert not BAD_TEXT.search(t), t
 
@@ -50,8 +50,8 @@ def test_a_corrupt_settings_file_gives_defaults_and_a_notice(case):
     app = make_app()
 
     async def scenario(pilot):
-        assert app.chain_theme.name in app.themes.names()
-        assert 0 < app.confidence < 1 and app.columns
+        assert app.state.theme.name in app.themes.names()
+        assert 0 < app.state.confidence < 1 and app.state.columns
         if case not in ("tiny confidence", "near-one confidence", "unknown columns"):
             assert notes(app), case  # something said the file was not used as it was
         _screen_clean(app)
@@ -71,7 +71,7 @@ def test_an_unknown_theme_name_is_named_in_a_notice():
     app = make_app()
 
     async def scenario(pilot):
-        assert app.chain_theme.name == DEFAULT_THEME
+        assert app.state.theme.name == DEFAULT_THEME
         assert any("no such theme" in n for n in notes(app)), notes(app)
 
     run(app, scenario)

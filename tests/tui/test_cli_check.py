@@ -12,7 +12,7 @@ from pathlib import Path
 
 import pytest
 
-from chaintriage.tui import cli
+from chaintriage.tui.cli import main as cli
 
 HEADER = "underlying,as_of,spot,expiry,strike,kind,bid,ask"
 AS_OF = "2026-03-02T15:30:00-05:00"
@@ -164,11 +164,19 @@ def test_help_has_examples(capsys, argv):
     assert "examples:" in out and "chaintriage check" in out
 
 
-def test_subcommands_registered_through_add_commands():
+def test_subcommands_registered_through_the_command_list():
     parser = cli.build_parser()
     sub = next(a for a in parser._actions if a.dest == "command")
     assert set(sub.choices) == {"open", "check", "table", "expiries"}
-    assert cli.add_check_command in cli.COMMANDS
+    assert [c.name for c in cli.COMMANDS] == list(sub.choices)
+    # only the wanted command gets its options: `check --format` exists, `table --side` not yet
+    wanted = cli.build_parser("check")
+    sub = next(a for a in wanted._actions if a.dest == "command")
+    assert "--format" in sub.choices["check"].format_help()
+    assert "--side" not in sub.choices["table"].format_help()
+    everything = cli.build_parser("*")
+    sub = next(a for a in everything._actions if a.dest == "command")
+    assert "--side" in sub.choices["table"].format_help()
 
 
 def test_no_arguments_opens_the_app(monkeypatch):

@@ -21,7 +21,7 @@ import pandas as pd
 import pytest
 import QuantLib as ql
 
-from chaintriage.tui import cli
+from chaintriage.tui.cli import main as cli
 
 HEADER = "underlying,as_of,spot,expiry,strike,kind,bid,ask\n"
 AS_OF = "2026-12-01T15:55:00-05:00"  # a Tuesday, five minutes before the close

@@ -20,8 +20,8 @@ import re
 import pytest
 import QuantLib as ql
 
-from chaintriage.tui import cli
-from chaintriage.tui.check_command import json_text
+from chaintriage.tui.cli import main as cli
+from chaintriage.tui.cli.check import json_text
 
 AS_OF = "2026-12-01T15:55:00-05:00"
 HOSTILE = [

@@ -17,7 +17,7 @@ import pandas as pd
 import pytest
 from scipy.stats import norm
 
-from chaintriage.tui import cli
+from chaintriage.tui.cli import main as cli
 from tests.core.chain_builders import AS_OF, build_snapshot, ql_black, year_fractions
 
 VOL = 0.3

@@ -18,7 +18,7 @@ import pytest
 from scipy.stats import lognorm
 from textual.app import App, ComposeResult
 
-from chaintriage.tui.distribution_plot import NEGATIVE_NOTE, DistributionPlot, draw_distribution
+from chaintriage.tui.widgets.distribution_plot import NEGATIVE_NOTE, DistributionPlot, draw_distribution
 from chaintriage.tui.themes import load_themes
 
 THEME = load_themes(include_user=False).get("harbour")

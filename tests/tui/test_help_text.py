@@ -7,7 +7,7 @@ that DESIGN.md asks the help to state [C].
 from __future__ import annotations
 
 from chaintriage.tui import help_text as ht
-from chaintriage.tui.strike_grid import COLUMNS, StrikeGrid
+from chaintriage.tui.widgets.strike_grid import COLUMNS, StrikeGrid
 
 
 def test_every_grid_column_is_explained_with_its_heading():

@@ -13,10 +13,10 @@ import pytest
 from rich.text import Text
 
 from chaintriage.core.findings import ChainTriageError
-from chaintriage.tui.bars import pack_pieces
+from chaintriage.tui.widgets.info_bars import pack_pieces
 from chaintriage.tui.layout import MIN_PLOT, PLOT_HIDDEN, PLOT_SHOWN, fit_columns, ladder_width, plan_layout
 from chaintriage.tui.session import CONFIDENCE_LEVELS, StrikeFilter, fmt_confidence, step_confidence
-from chaintriage.tui.strike_grid import DEFAULT_COLUMNS
+from chaintriage.tui.widgets.strike_grid import DEFAULT_COLUMNS
 
 
 def fixture_frame() -> pd.DataFrame:

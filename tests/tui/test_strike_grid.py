@@ -16,7 +16,7 @@ import numpy as np
 import pandas as pd
 from textual.app import App, ComposeResult
 
-from chaintriage.tui.strike_grid import COLUMNS, DEFAULT_COLUMNS, HEADER_LINES, StrikeGrid
+from chaintriage.tui.widgets.strike_grid import COLUMNS, DEFAULT_COLUMNS, HEADER_LINES, StrikeGrid
 from chaintriage.tui.themes import load_themes
 
 THEME = load_themes(include_user=False).get("harbour")
@@ -392,7 +392,7 @@ def test_clicking_a_side_highlights_that_contract():
 
 
 def test_known_columns_drops_unknown_names():
-    from chaintriage.tui.strike_grid import known_columns
+    from chaintriage.tui.widgets.strike_grid import known_columns
     assert known_columns(["bid", "gamma", "p_touch"]) == ["bid", "p_touch"]
 
 

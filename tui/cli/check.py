@@ -11,7 +11,7 @@ from typing import Any, TextIO
 
 from chaintriage.core.findings import LEFT_OUT, NOTE, WARNING, Finding
 from chaintriage.core.loading import FileLoad, LoadResult, SnapshotFileError, load_files
-from chaintriage.tui.cli_common import (
+from chaintriage.tui.cli.common import (
     EXIT_OK,
     EXIT_ROWS_LEFT_OUT,
     EXIT_UNUSABLE,
@@ -39,15 +39,11 @@ exit status:
 """
 
 
-def add_check_command(subparsers: argparse._SubParsersAction) -> None:
-    p = subparsers.add_parser(
-        "check",
-        help="validate snapshot files and report every finding",
-        description="Validate snapshot files: report the rows accepted, accepted with a\n"
-                    "warning, and left out (with the reason), by file and severity.",
-        epilog=CHECK_EPILOG,
-        formatter_class=argparse.RawDescriptionHelpFormatter,
-    )
+def configure(p: argparse.ArgumentParser) -> None:
+    """Add `check`'s description, options and ``func`` to its parser."""
+    p.description = ("Validate snapshot files: report the rows accepted, accepted with a\n"
+                     "warning, and left out (with the reason), by file and severity.")
+    p.epilog = CHECK_EPILOG
     p.add_argument("files", nargs="+", metavar="FILE", help="snapshot files (CSV, or Parquet with pyarrow)")
     add_snapshot_options(p)
     p.add_argument("--format", choices=("plain", "json"), default="plain",

@@ -10,9 +10,10 @@ from __future__ import annotations
 import argparse
 import re
 import sys
-from typing import TextIO
+from typing import TYPE_CHECKING, TextIO
 
-from chaintriage.core.loading import ColumnMap, SnapshotOverrides, load_column_map
+if TYPE_CHECKING:  # pragma: no cover
+    from chaintriage.core.loading import ColumnMap, SnapshotOverrides
 
 PROG = "chaintriage"
 
@@ -75,6 +76,8 @@ def _spot_arg(text: str) -> float:
 
 def snapshot_options(args: argparse.Namespace) -> tuple[SnapshotOverrides, ColumnMap | None]:
     """The overrides and column map from parsed options. Raises ChainTriageError when one is bad."""
+    from chaintriage.core.loading import SnapshotOverrides, load_column_map
+
     overrides = SnapshotOverrides(underlying=args.underlying, as_of=args.as_of, spot=args.spot).resolved()
     column_map = load_column_map(args.columns) if args.columns else None
     return overrides, column_map

@@ -1,39 +1,49 @@
-"""The `chaintriage` command line.
+"""The `chaintriage` command line: the parser and the dispatcher.
 
 ``chaintriage`` with no arguments opens the app on the bundled demo chains.
-Subcommands are registered by the functions in ``COMMANDS`` (see
-``add_commands``); each one adds its parser and sets ``func`` to a function
-``(args) -> exit status``. Shared options and printing live in
-``cli_common``; each command in its own module.
+Subcommands are listed in ``COMMANDS`` with the module that implements each;
+a module is imported only when its subcommand runs (or its ``--help`` is
+asked for), so ``chaintriage --help`` imports no more than argparse. Each
+subcommand module has ``configure(parser)``, which adds its description,
+options and ``func`` (a function ``(args) -> exit status``). Shared options
+and printing live in ``common``.
 """
 
 from __future__ import annotations
 
 import argparse
+import importlib
 import os
 import sys
 import warnings
-from collections.abc import Callable, Sequence
+from collections.abc import Sequence
+from dataclasses import dataclass
 
-from chaintriage.core.findings import ChainTriageError
-from chaintriage.tui.check_command import add_check_command
-from chaintriage.tui.cli_common import EXIT_OK, EXIT_UNUSABLE, PROG, error
-from chaintriage.tui.open_command import add_open_command
-from chaintriage.tui.table_commands import add_expiries_command, add_table_command
-
-# --------------------------------------------------------------------------- parser and main
-
-#: Functions that each register one subcommand on the subparsers object
-#: (each as ``add_<name>_command(subparsers)`` setting ``func``).
-COMMANDS: list[Callable[[argparse._SubParsersAction], None]] = [
-    add_open_command, add_check_command, add_table_command, add_expiries_command,
-]
+from chaintriage.tui.cli.common import EXIT_OK, EXIT_UNUSABLE, PROG, error
 
 
-def add_commands(subparsers: argparse._SubParsersAction) -> None:
-    """Register every subcommand in ``COMMANDS``."""
-    for add in COMMANDS:
-        add(subparsers)
+@dataclass(frozen=True)
+class Command:
+    """One subcommand: its name, the line ``chaintriage --help`` shows, and the module that runs it.
+
+    ``interactive`` commands open the Textual app; every other one must run without importing it.
+    """
+
+    name: str
+    summary: str
+    module: str
+    interactive: bool = False
+
+
+#: Every subcommand, in the order ``--help`` lists them.
+COMMANDS: tuple[Command, ...] = (
+    Command("open", "open the triage app on snapshot files", "chaintriage.tui.cli.open", interactive=True),
+    Command("check", "validate snapshot files and report every finding", "chaintriage.tui.cli.check"),
+    Command("table", "one row per contract: vols, sigma distance, finish-beyond and touch odds",
+            "chaintriage.tui.cli.table"),
+    Command("expiries", "one row per expiry: forward, discount, atm iv, ranges, fit quality",
+            "chaintriage.tui.cli.expiries"),
+)
 
 
 MAIN_EPILOG = """\
@@ -52,7 +62,11 @@ it is not advice.
 """
 
 
-def build_parser() -> argparse.ArgumentParser:
+def build_parser(wanted: str | None = None) -> argparse.ArgumentParser:
+    """The parser; only the subcommand named ``wanted`` gets its options (its module is imported).
+
+    ``wanted="*"`` configures every subcommand (for tools that want the whole parser).
+    """
     parser = argparse.ArgumentParser(
         prog=PROG,
         description="Option chain triage from the keyboard.",
@@ -61,7 +75,11 @@ def build_parser() -> argparse.ArgumentParser:
     )
     parser.add_argument("--version", action="version", version=f"%(prog)s {_version()}")
     subparsers = parser.add_subparsers(dest="command", metavar="COMMAND", title="commands")
-    add_commands(subparsers)
+    for command in COMMANDS:
+        sub = subparsers.add_parser(command.name, help=command.summary, description=command.summary,
+                                    formatter_class=argparse.RawDescriptionHelpFormatter)
+        if wanted in (command.name, "*"):
+            importlib.import_module(command.module).configure(sub)
     return parser
 
 
@@ -77,14 +95,16 @@ def _version() -> str:
 def main(argv: Sequence[str] | None = None) -> int:
     """Entry point: returns the exit status."""
     argv = list(sys.argv[1:] if argv is None else argv)
+    from chaintriage.core.findings import ChainTriageError  # light: dataclasses only
+
     try:
         if not argv:
-            from chaintriage.tui.app import open_app  # lazy: textual loads only for the app
+            from chaintriage.tui.app import open_app  # textual loads only for the app
 
             with warnings.catch_warnings():
                 warnings.simplefilter("ignore", RuntimeWarning)
                 return open_app([])
-        parser = build_parser()
+        parser = build_parser(wanted=argv[0])
         args = parser.parse_args(argv)
         if getattr(args, "func", None) is None:
             parser.print_help(sys.stderr)

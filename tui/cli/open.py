@@ -4,7 +4,8 @@ from __future__ import annotations
 
 import argparse
 
-from chaintriage.tui.cli_common import add_snapshot_options, snapshot_options
+from chaintriage.tui.cli.common import add_snapshot_options, snapshot_options
+from chaintriage.tui.cli.model_options import add_pipeline_options, pipeline_settings
 
 OPEN_EPILOG = """\
 examples:
@@ -18,13 +19,10 @@ it is not advice. Press ? in the app for keys and cautions.
 """
 
 
-def add_open_command(subparsers: argparse._SubParsersAction) -> None:
-    from chaintriage.tui.table_commands import add_pipeline_options
-
-    p = subparsers.add_parser(
-        "open", help="open the triage app on snapshot files",
-        description="Open the triage app on one or more snapshot files.",
-        epilog=OPEN_EPILOG, formatter_class=argparse.RawDescriptionHelpFormatter)
+def configure(p: argparse.ArgumentParser) -> None:
+    """Add `open`'s description, options and ``func`` to its parser."""
+    p.description = "Open the triage app on one or more snapshot files."
+    p.epilog = OPEN_EPILOG
     p.add_argument("files", nargs="*", metavar="FILE", help="snapshot files; none opens the bundled demo")
     add_snapshot_options(p)
     add_pipeline_options(p)
@@ -33,7 +31,6 @@ def add_open_command(subparsers: argparse._SubParsersAction) -> None:
 
 def run_open(args: argparse.Namespace) -> int:
     from chaintriage.tui.app import open_app  # lazy: textual loads only for the app
-    from chaintriage.tui.table_commands import pipeline_settings
 
     overrides, column_map = snapshot_options(args)
     return open_app(args.files, overrides=overrides, column_map=column_map, settings=pipeline_settings(args))

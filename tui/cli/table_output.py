@@ -18,7 +18,7 @@ import math
 
 import pandas as pd
 
-from chaintriage.tui.cli_common import one_line, plain
+from chaintriage.tui.cli.common import one_line, plain
 from chaintriage.tui.shortlist import neutralise_formula
 from chaintriage.tui.formatting import (
     as_finite,

@@ -35,8 +35,8 @@ from rich.text import Text
 from textual.strip import Strip
 from textual.widget import Widget
 
-from . import formatting as fm
-from .themes import FALLBACK_THEME, ChainTheme
+from chaintriage.tui import formatting as fm
+from chaintriage.tui.themes import FALLBACK_THEME, ChainTheme
 
 #: Half-width of the default x domain, in multiples of sigma*sqrt(T).
 DOMAIN_SIGMAS = 3.0

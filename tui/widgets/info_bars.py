@@ -17,9 +17,9 @@ from textual.widget import Widget
 
 from chaintriage.core.findings import LEFT_OUT, WARNING, Finding
 
-from . import formatting as fm
-from .session import ExpiryInfo, StrikeFilter, fmt_confidence
-from .themes import FALLBACK_THEME, ChainTheme
+from chaintriage.tui import formatting as fm
+from chaintriage.tui.session import ExpiryInfo, StrikeFilter, fmt_confidence
+from chaintriage.tui.themes import FALLBACK_THEME, ChainTheme
 
 SEP = "  "
 

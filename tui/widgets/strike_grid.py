@@ -35,8 +35,8 @@ from textual.message import Message
 from textual.scroll_view import ScrollView
 from textual.strip import Strip
 
-from . import formatting as fm
-from .themes import FALLBACK_THEME, ChainTheme
+from chaintriage.tui import formatting as fm
+from chaintriage.tui.themes import FALLBACK_THEME, ChainTheme
 
 CALL = "call"
 PUT = "put"

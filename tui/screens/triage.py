@@ -1,0 +1,264 @@
+"""The triage screen: the strike ladder of one expiry, its header lines and the distribution pane.
+
+Layout, top to bottom: a line naming the snapshot shown (and findings,
+shortlist, work in progress); the current expiry's header (days left,
+forward, ATM IV, the range at the chosen confidence, fit quality, findings);
+the filter line; then the strike ladder (StrikeGrid) with the distribution
+pane (DistributionPlot) beside it; the key line at the bottom. Until the
+first snapshot is ready, a loading message stands in for the ladder.
+
+The screen draws a ``TriageState``; its keys call the app's actions, which
+change the state and ask the screen to draw it again. Text from files is
+shown as rich Text, never markup.
+"""
+
+from __future__ import annotations
+
+import contextlib
+
+from rich.text import Text
+from textual.app import ComposeResult
+from textual.binding import Binding
+from textual.containers import Horizontal, Vertical
+from textual.css.scalar import Scalar
+from textual.screen import Screen
+from textual.widgets import Footer, LoadingIndicator, Static
+
+from chaintriage.tui import formatting as fm
+from chaintriage.tui.layout import PLOT_HIDDEN, plan_layout
+from chaintriage.tui.themes import ChainTheme
+from chaintriage.tui.triage_state import TriageState
+from chaintriage.tui.widgets.distribution_plot import DistributionPlot
+from chaintriage.tui.widgets.info_bars import BarStyles, InfoBar, expiry_pieces, filter_pieces, top_pieces
+from chaintriage.tui.widgets.strike_grid import COLUMNS, StrikeGrid
+
+
+class TriageScreen(Screen):
+    """The main screen: draws ``state``; its keys call the app's actions."""
+
+    BINDINGS = [
+        Binding("question_mark", "app.show_help", "help", key_display="?"),
+        Binding("]", "app.next_expiry", "next expiry", key_display="]"),
+        Binding("[", "app.previous_expiry", "prev expiry", key_display="["),
+        Binding("}", "app.next_snapshot", "next snapshot", show=False),
+        Binding("{", "app.previous_snapshot", "prev snapshot", show=False),
+        Binding("f", "app.set_filter", "filter"),
+        Binding("x", "app.clear_filter", "clear filter", show=False),
+        Binding("plus,equals_sign", "app.confidence_up", "wider range", show=False),
+        Binding("minus", "app.confidence_down", "narrower range", show=False),
+        Binding("c", "app.copy_summary", "copy"),
+        Binding("m", "app.toggle_mark", "mark"),
+        Binding("s", "app.open_shortlist", "shortlist"),
+        Binding("o", "app.choose_columns", "columns", show=False),
+        Binding("v", "app.toggle_plot", "plot", show=False),
+        Binding("t", "app.next_theme", "theme", show=False),
+        Binding("a", "app.toggle_ascii", "ascii", show=False),
+        Binding("e", "app.show_findings", "findings"),
+        Binding("l", "app.load_file", "open file", show=False),
+        Binding("q", "app.quit", "quit"),
+    ]
+
+    def __init__(self, state: TriageState, *, id: str | None = None) -> None:
+        super().__init__(id=id)
+        self.state = state
+        self.is_up = False
+        self._bar_styles = BarStyles(state.theme)
+
+    def compose(self) -> ComposeResult:
+        st = self.state
+        yield InfoBar(id="topbar")
+        yield InfoBar(id="expirybar")
+        yield InfoBar(id="filterbar")
+        with Horizontal(id="body"):
+            yield StrikeGrid(id="grid", theme=st.theme, columns=st.columns, ascii_only=st.ascii_only, title=False)
+            yield DistributionPlot(id="plot", theme=st.theme, ascii_only=st.ascii_only)
+        with Vertical(id="loading"):
+            yield Static(Text("starting"), id="loading-msg")
+        yield Footer(show_command_palette=False)
+
+    def on_mount(self) -> None:
+        self.is_up = True
+        self.set_class(self.state.ascii_only, "-ascii")
+        self.show_body(False)
+        self.refresh_bars()
+        ready = getattr(self.app, "screen_ready", None)
+        if ready is not None:
+            ready()
+
+    def on_resize(self) -> None:
+        self.update_layout()
+
+    def on_strike_grid_strike_highlighted(self, message: StrikeGrid.StrikeHighlighted) -> None:
+        self.highlight_moved()
+
+    # ------------------------------------------------------------ widgets
+
+    @property
+    def grid(self) -> StrikeGrid:
+        return self.query_one("#grid", StrikeGrid)
+
+    @property
+    def plot(self) -> DistributionPlot:
+        return self.query_one("#plot", DistributionPlot)
+
+    def bar(self, name: str) -> InfoBar:
+        return self.query_one(f"#{name}", InfoBar)
+
+    def show_body(self, ready: bool) -> None:
+        """The ladder and plot when a snapshot is ready, else the loading message."""
+        self.query_one("#body").set_class(not ready, "-hidden")
+        self.query_one("#loading").set_class(ready, "-hidden")
+        if ready:
+            self.grid.focus()
+
+    # ------------------------------------------------------------ loading
+
+    def show_spinner(self) -> None:
+        """A moving indicator under the loading message (only while nothing is shown yet)."""
+        if not self.state.views:
+            self.query_one("#loading").mount(LoadingIndicator(), before=0)
+
+    def set_busy(self, text: str) -> None:
+        """Say what the background work is doing ("" when idle)."""
+        self.state.busy = text
+        if not self.state.views and self.is_up:
+            with contextlib.suppress(Exception):
+                self.query_one("#loading-msg", Static).update(Text(fm.clean_text(text) + " ..."))
+        self.refresh_bars()
+
+    # ------------------------------------------------------------ what is shown
+
+    def show_view(self, index: int, expiry=None) -> None:
+        """Show snapshot number ``index`` (see ``TriageState.choose_view``)."""
+        same_underlying = self.state.choose_view(index, expiry)
+        if same_underlying is None:
+            return
+        self.show_body(True)
+        # Strike levels of another underlying mean nothing here: start at its forward.
+        self.show_expiry(keep_highlight=same_underlying)
+
+    def show_expiry(self, keep_highlight: bool = True) -> None:
+        """Put the current expiry in the ladder, the header and the plot."""
+        st = self.state
+        view = st.view
+        grid = self.grid
+        if view is None or not view.expiries:
+            return
+        expiry = st.current_expiry
+        frame = view.frame(expiry)
+        shown, hidden = st.strike_filter.apply(frame)
+        info = view.info(st.expiry_pos, st.confidence)
+        grid.set_rows(shown, info.forward, expiry=expiry, underlying=view.snapshot.underlying, hidden=hidden,
+                      keep_highlight=keep_highlight)
+        st.strike_total = len(grid.strikes) + hidden
+        self.mark_grid()
+        self.update_layout()
+        self.refresh_bars()
+        self.update_plot()
+
+    def mark_grid(self) -> None:
+        """Mark the shortlisted contracts of the current expiry in the ladder."""
+        st = self.state
+        view, expiry = st.view, st.current_expiry
+        if view is None or expiry is None:
+            return
+        self.grid.set_marked(st.shortlist.marked_in(view.snapshot.underlying, view.snapshot.as_of, expiry))
+
+    def update_layout(self) -> None:
+        """Share the width between ladder and plot for the current terminal size."""
+        if not self.is_up:
+            return
+        st = self.state
+        grid, plot = self.grid, self.plot
+        width = self.size.width or self.app.size.width
+        plan = plan_layout(width, st.columns, grid.strike_width, st.plot_pref)
+        was_shown = plot.display
+        if plot.display != (plan.plot_width > 0):
+            plot.display = plan.plot_width > 0
+        if plan.plot_width and plot.styles.width != Scalar.from_number(plan.plot_width):
+            plot.styles.width = plan.plot_width
+        if grid.columns != plan.columns:
+            grid.set_columns(plan.columns)
+        if plan.left_out != st.left_out_columns:
+            st.left_out_columns = plan.left_out
+            self.refresh_bars()
+        if plot.display and not was_shown:
+            self.update_plot()
+
+    def refresh_bars(self) -> None:
+        """Redraw the three information lines from the state."""
+        if not self.is_up:
+            return
+        st = self.state
+        styles, ascii_only = self._bar_styles, st.ascii_only
+        view = st.view
+        if view is None:
+            top = top_pieces(underlying="", as_of_text="", spot=float("nan"), index=0, count=0, findings=0,
+                             shortlist=len(st.shortlist), busy=st.busy, st=styles, ascii_only=ascii_only)
+            self.bar("topbar").set_pieces(top)
+            self.bar("expirybar").set_pieces([])
+            self.bar("filterbar").set_pieces([])
+            return
+        top = top_pieces(underlying=view.snapshot.underlying,
+                         as_of_text=fm.fmt_timestamp(view.snapshot.as_of, ascii_only),
+                         spot=view.snapshot.spot, index=st.view_index, count=len(st.views),
+                         findings=st.findings_count(), shortlist=len(st.shortlist),
+                         busy=st.busy, st=styles, ascii_only=ascii_only)
+        self.bar("topbar").set_pieces(top)
+        info = view.info(st.expiry_pos, st.confidence) if view.expiries else None
+        self.bar("expirybar").set_pieces(expiry_pieces(info, st=styles, ascii_only=ascii_only))
+        hidden_names = [COLUMNS[k].heading_ascii if ascii_only else COLUMNS[k].heading
+                        for k in st.left_out_columns]
+        plot_note = ""
+        if not self.plot.display and st.plot_pref != PLOT_HIDDEN:
+            plot_note = "plot hidden (v shows it)"
+        self.bar("filterbar").set_pieces(filter_pieces(
+            st.strike_filter, shown=len(self.grid.strikes), total=st.strike_total,
+            hidden_columns=hidden_names, plot_note=plot_note, st=styles, ascii_only=ascii_only))
+
+    def update_plot(self) -> None:
+        """Draw the current expiry's distribution in the side pane (when it is shown)."""
+        st = self.state
+        view, expiry, plot = st.view, st.current_expiry, self.plot
+        if view is None or expiry is None or not plot.display:
+            return
+        dist = view.distribution(expiry)
+        if dist is None:
+            plot.clear(" no distribution: this expiry has no smile fit")
+            return
+        info = view.info(st.expiry_pos, st.confidence)
+        strike, kind, p_beyond = self._highlight()
+        plot.update_plot(dist.strikes, dist.density, dist.density_flat, forward=info.forward,
+                         sigma_sqrt_t=info.sigma_sqrt_t, highlight_strike=strike, highlight_kind=kind,
+                         p_beyond=p_beyond)
+
+    def _highlight(self) -> tuple[float | None, str, float | None]:
+        hl = self.grid.highlighted
+        if hl is None:
+            return None, "call", None
+        contract = self.grid.highlighted_contract()
+        p = fm.as_finite(contract.get("p_beyond")) if contract else None
+        return hl[0], hl[1], p
+
+    def highlight_moved(self) -> None:
+        if self.plot.display:
+            strike, kind, p_beyond = self._highlight()
+            self.plot.set_highlight(strike, kind, p_beyond)
+
+    # ------------------------------------------------------------ looks
+
+    def apply_theme(self, theme: ChainTheme) -> None:
+        """Draw with ``theme`` (the state's theme is already set)."""
+        self._bar_styles = BarStyles(theme)
+        if self.is_up:
+            self.grid.set_theme(theme)
+            self.plot.set_theme(theme)
+            self.refresh_bars()
+
+    def apply_ascii(self) -> None:
+        """Draw with plain ASCII or Unicode, as the state says."""
+        ascii_only = self.state.ascii_only
+        self.set_class(ascii_only, "-ascii")
+        self.grid.set_ascii(ascii_only)
+        self.plot.set_ascii(ascii_only)
+        self.refresh_bars()

@@ -1,0 +1,132 @@
+"""Loading for the app, without Textual: the bundled demo chains, reading files, and
+annotating each snapshot into a ``SnapshotView`` (heavy: run it off the UI thread).
+
+``load_views`` is the whole background job; it reports through callbacks, so the
+app decides how they reach its thread.
+"""
+
+from __future__ import annotations
+
+import contextlib
+from collections.abc import Callable, Sequence
+from importlib import resources
+from pathlib import Path
+from typing import TYPE_CHECKING, Any
+
+from chaintriage.core.findings import ChainTriageError
+from chaintriage.tui import formatting as fm
+
+if TYPE_CHECKING:  # pragma: no cover
+    from chaintriage.core.loading import ColumnMap, LoadResult, SnapshotOverrides
+    from chaintriage.core.snapshot import Snapshot
+    from chaintriage.tui.session import SnapshotView
+
+DEMO_PACKAGE = "chaintriage.demo_chains"
+
+
+def demo_files(root=None) -> list[str]:
+    """Names of the bundled demo chains (CSV files, except the deliberately messy ones), sorted.
+
+    ``root`` is the folder to look in (a Traversable); default: the chaintriage.demo_chains package.
+    """
+    try:
+        root = resources.files(DEMO_PACKAGE) if root is None else root
+        names = [p.name for p in root.iterdir() if p.name.lower().endswith(".csv")]
+    except (ModuleNotFoundError, FileNotFoundError, NotADirectoryError):
+        return []
+    return sorted(n for n in names if "messy" not in n.lower())
+
+
+def load_for_app(paths: Sequence[str | Path], *, overrides: SnapshotOverrides | None = None,
+                 column_map: ColumnMap | None = None) -> LoadResult:
+    """Load the given files, or the bundled demo chains when ``paths`` is empty.
+
+    Raises ChainTriageError when there is nothing to load.
+    """
+    from chaintriage.core.loading import load_files
+
+    if paths:
+        return load_files(paths, overrides=overrides, column_map=column_map)
+    names = demo_files()
+    if not names:
+        raise ChainTriageError(
+            "no demo chains are bundled with this installation; give snapshot files to open")
+    root = resources.files(DEMO_PACKAGE)
+    with contextlib.ExitStack() as stack:
+        real = [str(stack.enter_context(resources.as_file(root / n))) for n in names]
+        return load_files(real, overrides=overrides, column_map=column_map)
+
+
+def annotate_view(snapshot: Snapshot, pipeline_settings: Any, load_findings: Sequence = (),
+                  confidence: float | None = None, precompute: int | None = None) -> SnapshotView:
+    """Run core's pipeline on one snapshot and wrap it for the screen (heavy: call off the UI thread).
+
+    The distributions, and the ranges at ``confidence``, of the first ``precompute``
+    expiries (all when None) are computed here too, so paging through them costs no
+    model work; ``precompute_view`` does the rest later.
+    """
+    from chaintriage.core.pipeline import annotate
+    from chaintriage.tui.session import SnapshotView, file_findings_without_underlying
+
+    annotated = annotate(snapshot, pipeline_settings)
+    view = SnapshotView(annotated, file_findings_without_underlying(load_findings, snapshot.sources))
+    precompute_view(view, confidence, stop=precompute)
+    return view
+
+
+def precompute_view(view: SnapshotView, confidence: float | None, start: int = 0, stop: int | None = None) -> None:
+    """Compute (and cache) the distributions and ranges of expiries ``start:stop``."""
+    for e in view.expiries[start:stop]:
+        view.distribution(e)
+        if confidence is not None:
+            view.ranges(e, confidence)
+
+
+def load_views(paths: Sequence[str], *, snapshots: Sequence[Snapshot] | None = None,
+               overrides: SnapshotOverrides | None = None, column_map: ColumnMap | None = None,
+               pipeline_settings: Any = None, confidence: Callable[[], float] | None = None,
+               on_busy: Callable[[str], None] = lambda text: None,
+               on_view: Callable[[SnapshotView, bool], None] = lambda view, first: None) -> tuple[list[str], int]:
+    """The background job: read ``paths`` (the demo when empty; or take ``snapshots`` already read),
+    annotate each snapshot and hand each view to ``on_view(view, first)`` as soon as it is ready.
+
+    ``confidence()`` gives the range confidence to precompute at (asked each time: the user
+    may change it meanwhile). ``on_busy`` says what is being done. ``on_view`` may block until the view is drawn: the
+    rest of the expiries' distributions are computed after it returns. Returns (messages
+    about what could not be loaded, how many views were handed over). Never raises.
+    """
+    errors: list[str] = []
+    added = 0
+
+    def level() -> float | None:
+        return None if confidence is None else confidence()
+
+    try:
+        if snapshots is None:
+            result = load_for_app(paths, overrides=overrides, column_map=column_map)
+            snapshots = result.snapshots
+            load_findings = result.findings
+            errors.extend(str(e) for e in result.errors)
+        else:
+            load_findings = []
+        settings = pipeline_settings
+        if settings is None:
+            from chaintriage.core.pipeline import PipelineSettings
+
+            settings = PipelineSettings()
+        for n, snap in enumerate(snapshots):
+            on_busy(f"computing {fm.clean_text(snap.underlying)} "
+                    f"({len(snap.contracts):,} contracts, {n + 1} of {len(snapshots)})")
+            try:
+                view = annotate_view(snap, settings, load_findings, level(), precompute=1)
+            except ChainTriageError as exc:
+                errors.append(f"{snap.label}: {exc}")
+                continue
+            on_view(view, added == 0)
+            added += 1
+            precompute_view(view, level(), start=1)
+    except ChainTriageError as exc:
+        errors.append(str(exc))
+    except Exception as exc:  # never a traceback on screen: say what failed and go on
+        errors.append(f"could not load: {type(exc).__name__}: {exc}")
+    return errors, added
