@@ -13,6 +13,7 @@ writes, by default into this package folder:
   expiry).
 - ``messy_export.csv``: a small export of a third invented name, Mirewood
   Cold Storage (MWCS), carrying typical export problems for trying ``check``.
+- ``demo_events.csv``: the events file with OSPX's fictional earnings date.
 
 All three companies, their names and their tickers are invented.
 
@@ -514,6 +515,22 @@ def messy_text() -> str:
 # --- writing ------------------------------------------------------------------------
 
 
+# --- events --------------------------------------------------------------------------
+
+#: The demo's scheduled events (the earnings dates the chains were priced with).
+EVENTS_FILE = "demo_events.csv"
+
+
+def events_text() -> str:
+    """The events file: one row per underlying with an earnings date (after the close)."""
+    lines = ["underlying,date,timing,label"]
+    for u in UNDERLYINGS:
+        if u.earnings is not None:
+            timing = "after_close" if u.earnings.hour >= 16 else "before_open"
+            lines.append(f"{u.ticker},{u.earnings:%Y-%m-%d},{timing},quarterly results")
+    return "\n".join(lines) + "\n"
+
+
 def write_demo(out_dir: Path | str) -> list[Path]:
     """Write all demo files into ``out_dir`` (created if needed); return their paths."""
     out = Path(out_dir)
@@ -525,6 +542,9 @@ def write_demo(out_dir: Path | str) -> list[Path]:
         written.append(p)
     p = out / MESSY_FILE
     p.write_bytes(b"\xef\xbb\xbf" + messy_text().encode("utf-8"))
+    written.append(p)
+    p = out / EVENTS_FILE
+    p.write_bytes(events_text().encode("utf-8"))
     written.append(p)
     return written
 

@@ -25,7 +25,7 @@ DEMO_PACKAGE = "chaintriage.demo_chains"
 
 
 def demo_files(root=None) -> list[str]:
-    """Names of the bundled demo chains (CSV files, except the deliberately messy ones), sorted.
+    """Names of the bundled demo chains (snapshot CSV files, not the messy, events or history ones), sorted.
 
     ``root`` is the folder to look in (a Traversable); default: the chaintriage.demo_chains package.
     """
@@ -34,7 +34,7 @@ def demo_files(root=None) -> list[str]:
         names = [p.name for p in root.iterdir() if p.name.lower().endswith(".csv")]
     except (ModuleNotFoundError, FileNotFoundError, NotADirectoryError):
         return []
-    return sorted(n for n in names if "messy" not in n.lower())
+    return sorted(n for n in names if not any(w in n.lower() for w in ("messy", "events", "history")))
 
 
 def load_for_app(paths: Sequence[str | Path], *, overrides: SnapshotOverrides | None = None,

@@ -24,7 +24,7 @@ from chaintriage.demo_chains import make_demo as md
 
 DEMO_DIR = Path(str(files("chaintriage.demo_chains")))
 CHAIN_FILES = {u.ticker: DEMO_DIR / md.file_name(u) for u in md.UNDERLYINGS}
-ALL_FILES = [*CHAIN_FILES.values(), DEMO_DIR / md.MESSY_FILE]
+ALL_FILES = [*CHAIN_FILES.values(), DEMO_DIR / md.MESSY_FILE, DEMO_DIR / md.EVENTS_FILE]
 NEW_YORK = ZoneInfo("America/New_York")
 
 # US exchange full-day holidays, REFERENCE.md section 8 (NYSE press releases) [V].
