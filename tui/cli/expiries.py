@@ -7,6 +7,7 @@ import sys
 
 import pandas as pd
 
+from chaintriage.core.term_structure import snapshot_term_structure
 from chaintriage.tui.cli.annotated_tables import (
     COMMON_NOTES,
     add_table_options,
@@ -16,6 +17,8 @@ from chaintriage.tui.cli.annotated_tables import (
     with_as_of,
 )
 from chaintriage.tui.cli.check import check_status
+from chaintriage.tui.cli.common import EXIT_UNUSABLE, one_line
+from chaintriage.tui.cli.events import add_event_options, gather_events
 from chaintriage.tui.cli.model_options import positive
 from chaintriage.tui.cli.table_output import render
 
@@ -23,7 +26,7 @@ from chaintriage.tui.cli.table_output import render
 EXPIRY_COLUMNS = [
     "underlying", "expiry", "t_years", "trading_days", "calendar_days", "forward", "discount",
     "forward_method", "atm_iv", "range_low", "range_high", "range_low_smile", "range_high_smile", "fit_rmse",
-    "arbitrage_free", "contracts", "findings",
+    "arbitrage_free", "contracts", "findings", "forward_vol", "event_variance", "ex_event_vol", "events",
 ]
 
 #: Columns of `expiries --days`.
@@ -34,6 +37,12 @@ examples:
   chaintriage expiries chain.csv
   chaintriage expiries chain.csv --confidence 0.95 --format json
   chaintriage expiries chain.csv --days 10 --days 30
+  chaintriage expiries chain.csv --events events.csv
+
+forward_vol is the at-the-money vol between the previous expiry and this
+one; with events (--events FILE, --event UNDERLYING:DATE[:amc|bmo]),
+event_variance is the events' total variance the expiry carries and
+ex_event_vol the vol of its ordinary days (see `chaintriage events --help`).
 
 With --days, prints instead the range N days ahead (trading days on the
 252/250 bases, calendar days on 365), interpolating at-the-money total
@@ -48,15 +57,20 @@ def configure(p: argparse.ArgumentParser) -> None:
                      "vol, the range at a confidence (plain and from the smile), smile fit quality.")
     p.epilog = EXPIRIES_EPILOG
     add_table_options(p)
+    add_event_options(p)
     p.add_argument("--days", type=positive, action="append", default=[], metavar="N",
                    help="print the range N days ahead instead (repeatable)")
     p.set_defaults(func=run_expiries)
 
 
 def run_expiries(args: argparse.Namespace) -> int:
+    events, bad, left_out = gather_events(args)
+    if bad:
+        return EXIT_UNUSABLE
     result, annotated = load_and_annotate(args)
     if not annotated:
         return nothing_usable(args, result)
+    extra = []
     if args.days:
         rows = []
         for a in annotated:
@@ -66,8 +80,20 @@ def run_expiries(args: argparse.Namespace) -> int:
                              "forward": f, "range_low": lo, "range_high": hi})
         frame = pd.DataFrame(rows, columns=HORIZON_COLUMNS)
     else:
-        frame = pd.concat([with_as_of(a.expiries[EXPIRY_COLUMNS].copy(), a, args.format) for a in annotated],
-                          ignore_index=True)
+        frames = []
+        for a in annotated:
+            ts = snapshot_term_structure(a, events)
+            extra.extend(ts.findings)
+            term = ts.table.set_index("expiry")
+            table = a.expiries.copy()
+            for name in ("forward_vol", "event_variance", "ex_event_vol", "events"):
+                table[name] = term[name].reindex(pd.DatetimeIndex(table["expiry"])).to_numpy()
+            frames.append(with_as_of(table[EXPIRY_COLUMNS], a, args.format))
+        frame = pd.concat(frames, ignore_index=True)
     sys.stdout.write(render(frame, args.format))
     report_findings(args, result, annotated)
-    return check_status(result)
+    if not args.quiet:
+        for f in extra:
+            print(one_line(str(f)), file=sys.stderr)
+    status = check_status(result)
+    return max(status, 1) if left_out else status

@@ -43,6 +43,8 @@ COMMANDS: tuple[Command, ...] = (
             "chaintriage.tui.cli.table"),
     Command("expiries", "one row per expiry: forward, discount, atm iv, ranges, fit quality",
             "chaintriage.tui.cli.expiries"),
+    Command("events", "the move the options price for each scheduled event (earnings and the like)",
+            "chaintriage.tui.cli.events"),
 )
 
 
@@ -55,6 +57,7 @@ examples:
   chaintriage check chain.csv
   chaintriage table chain.csv --beyond 1.5 --side puts
   chaintriage expiries chain.csv --confidence 0.95
+  chaintriage events chain.csv --events events.csv
   chaintriage COMMAND --help
 
 Every figure is a model output from market quotes under stated assumptions;

@@ -74,6 +74,20 @@ _PLAIN = {
     "contracts": ("contracts", "count"),
     "findings": ("findings", "count"),
     "days": ("days", "g"),
+    "forward_vol": ("fwd vol", "vol"),
+    "event_variance": ("event var", "f6"),
+    "ex_event_vol": ("ex-event vol", "vol"),
+    "events": ("events", "text"),
+    "event": ("event", "text"),
+    "date": ("date", "date"),
+    "timing": ("timing", "text"),
+    "first_expiry": ("first expiry", "date"),
+    "move": ("1-sd move", "vol"),
+    "expected_abs_move": ("mean |move|", "vol"),
+    "move_price": ("1-sd price", "price"),
+    "expected_abs_price": ("mean |price|", "price"),
+    "ordinary_vol": ("ordinary vol", "vol"),
+    "method": ("method", "text"),
 }
 
 #: Formatters shared with the app (tui.formatting), in ASCII mode for plain terminals.

@@ -1,0 +1,121 @@
+"""`chaintriage events`: the move the market prices for each scheduled event, for scripts."""
+
+from __future__ import annotations
+
+import argparse
+import sys
+
+import pandas as pd
+
+from chaintriage.core.event_file import read_events_files
+from chaintriage.core.events import Event, parse_event_option
+from chaintriage.core.findings import ChainTriageError
+from chaintriage.core.term_structure import snapshot_term_structure
+from chaintriage.tui.cli.annotated_tables import (
+    COMMON_NOTES,
+    add_table_options,
+    load_and_annotate,
+    nothing_usable,
+    report_findings,
+    with_as_of,
+)
+from chaintriage.tui.cli.check import check_status
+from chaintriage.tui.cli.common import EXIT_UNUSABLE, error, one_line
+from chaintriage.tui.cli.table_output import render
+
+#: Columns of `events`, in order.
+EVENT_COLUMNS = [
+    "underlying", "event", "date", "timing", "first_expiry", "event_variance", "move", "expected_abs_move",
+    "move_price", "expected_abs_price", "ordinary_vol", "method", "fit_rmse",
+]
+
+EVENTS_EPILOG = """\
+examples:
+  chaintriage events chain.csv --events events.csv
+  chaintriage events chain.csv --event OSPX:2027-01-12:amc --format json
+  chaintriage expiries chain.csv --events events.csv
+
+An events file is a CSV with the columns underlying, date (YYYY-MM-DD),
+timing (after_close or before_open, also amc / bmo; empty = after the
+close) and label. --event UNDERLYING:DATE[:amc|bmo] adds one on the
+command line.
+
+The event's variance is the jump in at-the-money total variance across it
+beyond the ordinary (ex-event) vol: w(T) = sigma_ex^2 T + e^2 for expiries
+after the event, fitted over the expiries around it. move = e (one standard
+deviation of the price, as a fraction); expected_abs_move = sqrt(2/pi) e;
+move_price and expected_abs_price are those at the spot. An implied move is
+the market's price of the event, not a prediction; event dates in files can
+be wrong or move.
+
+""" + COMMON_NOTES
+
+
+def add_event_options(p: argparse.ArgumentParser) -> None:
+    """--events FILE and --event UNDERLYING:DATE[:amc|bmo] (both repeatable)."""
+    p.add_argument("--events", action="append", default=[], metavar="FILE",
+                   help="events file (CSV: underlying, date, timing, label); repeatable")
+    p.add_argument("--event", action="append", default=[], metavar="UNDERLYING:DATE[:amc|bmo]",
+                   help="one event, after the close unless :bmo; repeatable")
+
+
+def gather_events(args: argparse.Namespace) -> tuple[list[Event], bool, bool]:
+    """(events, a file or value was unusable, rows were left out); errors and findings go to stderr."""
+    events: list[Event] = []
+    bad = False
+    for text in args.event:
+        try:
+            events.append(parse_event_option(text))
+        except ChainTriageError as exc:
+            error(str(exc))
+            bad = True
+    got, findings, errors = read_events_files(args.events)
+    for exc in errors:
+        error(str(exc))
+    if not args.quiet:
+        for f in findings:
+            print(one_line(str(f)), file=sys.stderr)
+    left_out = any(f.severity == "left-out" for f in findings)
+    return events + got, bad or bool(errors), left_out
+
+
+def configure(p: argparse.ArgumentParser) -> None:
+    """Add `events`'s description, options and ``func`` to its parser."""
+    p.description = ("For each scheduled event, the move the options price: the event's variance\n"
+                     "separated from the ordinary vol, as one standard deviation and as the\n"
+                     "expected absolute move, in percent and in price.")
+    p.epilog = EVENTS_EPILOG
+    add_table_options(p)
+    add_event_options(p)
+    p.set_defaults(func=run_events)
+
+
+def run_events(args: argparse.Namespace) -> int:
+    events, bad, left_out = gather_events(args)
+    if bad:
+        return EXIT_UNUSABLE
+    result, annotated = load_and_annotate(args)
+    if not annotated:
+        return nothing_usable(args, result)
+    frames = []
+    extra = []
+    for a in annotated:
+        ts = snapshot_term_structure(a, events)
+        extra.extend(ts.findings)
+        spot = a.snapshot.spot
+        rows = [{
+            "underlying": a.snapshot.underlying, "event": est.name,
+            "date": pd.Timestamp(est.events[0].date), "timing": est.events[0].timing,
+            "first_expiry": est.first_expiry, "event_variance": est.variance, "move": est.move,
+            "expected_abs_move": est.expected_abs_move, "move_price": spot * est.move,
+            "expected_abs_price": spot * est.expected_abs_move, "ordinary_vol": ts.ordinary_vol,
+            "method": est.method, "fit_rmse": ts.fit_rmse / 100.0,
+        } for est in ts.events]
+        frames.append(with_as_of(pd.DataFrame(rows, columns=EVENT_COLUMNS), a, args.format))
+    sys.stdout.write(render(pd.concat(frames, ignore_index=True), args.format))
+    report_findings(args, result, annotated)
+    if not args.quiet:
+        for f in extra:
+            print(one_line(str(f)), file=sys.stderr)
+    status = check_status(result)
+    return max(status, 1) if left_out else status
