@@ -114,8 +114,11 @@ class ChainTriageApp(App[int]):
                  views: Sequence[SnapshotView] | None = None,
                  overrides: SnapshotOverrides | None = None, column_map: ColumnMap | None = None,
                  pipeline_settings: Any = None,
-                 system_clipboard: Callable[[str], bool] | None = copy_to_system_clipboard) -> None:
+                 system_clipboard: Callable[[str], bool] | None = copy_to_system_clipboard,
+                 events: Sequence[Any] | None = None) -> None:
         super().__init__()
+        #: Scheduled events (core.events.Event) of every underlying; None: the demo's when showing the demo.
+        self._events = list(events) if events is not None else None
         self._paths = [str(p) for p in paths]
         self._given_snapshots = list(snapshots) if snapshots is not None else None
         self._given_views = list(views) if views is not None else None
@@ -426,6 +429,33 @@ class ChainTriageApp(App[int]):
             return
         self.push_screen(FindingsScreen(view.label, view.findings(), self.state.file_errors))
 
+    @property
+    def events(self) -> list:
+        """The scheduled events in use: those given, else the demo's when the demo is shown."""
+        if self._events is None:
+            self._events = snapshot_loading.demo_events() if not self._paths and \
+                self._given_snapshots is None and self._given_views is None else []
+        return self._events
+
+    def action_show_terms(self) -> None:
+        from chaintriage.core.term_structure import snapshot_term_structure
+        from chaintriage.tui.screens.term_structure import TermStructureScreen
+
+        view = self.state.view
+        if view is None:
+            return
+        ts = snapshot_term_structure(view.annotated, self.events)
+        days = view.annotated.expiries["trading_days"].tolist()
+        index = self.state.view_index
+
+        def choose(expiry) -> None:
+            if self.state.view_index == index and view.expiries:
+                self.state.expiry_positions[index] = view.nearest_expiry_index(expiry)
+                self.triage.show_expiry()
+
+        self.push_screen(TermStructureScreen(view.label, ts, view.snapshot.spot, days, self.state.current_expiry,
+                                             choose, theme=self.state.theme, ascii_only=self.state.ascii_only))
+
     def action_load_file(self) -> None:
         from chaintriage.tui.screens.path_prompt import PathPrompt
 
@@ -438,7 +468,7 @@ class ChainTriageApp(App[int]):
 
 
 def open_app(paths: Sequence[str | Path], *, overrides: SnapshotOverrides | None = None,
-             column_map: ColumnMap | None = None, settings=None) -> int:
+             column_map: ColumnMap | None = None, settings=None, events: Sequence[Any] | None = None) -> int:
     """Run the app on snapshot files (the demo chains when ``paths`` is empty). Returns an exit status.
 
     Files that do not exist are reported at once; loading runs inside the app.
@@ -455,7 +485,8 @@ def open_app(paths: Sequence[str | Path], *, overrides: SnapshotOverrides | None
     if paths and not usable:
         error("nothing to show: no file gave a usable snapshot")
         return EXIT_NOTHING
-    app = ChainTriageApp(usable, overrides=overrides, column_map=column_map, pipeline_settings=settings)
+    app = ChainTriageApp(usable, overrides=overrides, column_map=column_map, pipeline_settings=settings,
+                         events=events)
     app.run()
     for message in app.exit_messages:
         error(message)

@@ -60,6 +60,9 @@ KEYS: tuple[KeyHelp, ...] = (
     KeyHelp(("t",), "screen", "next_theme", "next colour theme (remembered)"),
     KeyHelp(("a",), "screen", "toggle_ascii", "draw with plain ASCII characters, or with Unicode"),
     KeyHelp(("e",), "screen", "show_findings", "what the loader and the pipeline said about the data"),
+    KeyHelp(("y",), "screen", "show_terms",
+            "vols by expiry: ATM, ex-event and forward vol, scheduled events and the move each is priced "
+            "at (Enter opens an expiry)"),
     KeyHelp(("l",), "screen", "load_file", "open another snapshot file (asks for its path)"),
     KeyHelp(("question_mark",), "screen", "show_help", "this help"),
     KeyHelp(("q",), "screen", "quit", "quit"),
@@ -154,6 +157,8 @@ CAUTIONS: tuple[str, ...] = (
     "Assumptions: European exercise; no jumps beyond what the smile already prices; "
     "volatility as quoted now, at the snapshot time.",
     "Stale, wide or one-sided quotes give unreliable figures: check the spread and the flags.",
+    "An event's implied move is the market's price of the event, not a prediction; event dates "
+    "in files can be wrong or move.",
     "This is not advice. Decide for yourself.",
 )
 

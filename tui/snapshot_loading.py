@@ -37,6 +37,22 @@ def demo_files(root=None) -> list[str]:
     return sorted(n for n in names if not any(w in n.lower() for w in ("messy", "events", "history")))
 
 
+#: The bundled demo's events file (OSPX's fictional earnings date).
+DEMO_EVENTS = "demo_events.csv"
+
+
+def demo_events() -> list:
+    """The events of the bundled demo chains (empty when the file is not shipped or unusable)."""
+    from chaintriage.core.event_file import read_events_file
+    from chaintriage.core.findings import ChainTriageError
+
+    try:
+        with resources.as_file(resources.files(DEMO_PACKAGE) / DEMO_EVENTS) as path:
+            return read_events_file(path)[0]
+    except (ChainTriageError, ModuleNotFoundError, FileNotFoundError, OSError):
+        return []
+
+
 def load_for_app(paths: Sequence[str | Path], *, overrides: SnapshotOverrides | None = None,
                  column_map: ColumnMap | None = None) -> LoadResult:
     """Load the given files, or the bundled demo chains when ``paths`` is empty.

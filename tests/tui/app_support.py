@@ -9,7 +9,6 @@ from __future__ import annotations
 
 import asyncio
 import functools
-import glob
 import os
 from collections.abc import Awaitable, Callable
 
@@ -17,6 +16,7 @@ from chaintriage.core.loading import load_files
 from chaintriage.core.pipeline import PipelineSettings, annotate
 from chaintriage.tui.app import ChainTriageApp
 from chaintriage.tui.session import SnapshotView, file_findings_without_underlying
+from chaintriage.tui.snapshot_loading import demo_files
 
 ROOT = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
 DEMO_DIR = os.path.join(ROOT, "demo_chains")
@@ -24,7 +24,7 @@ SIZE = (160, 50)
 
 
 def demo_paths() -> list[str]:
-    return sorted(p for p in glob.glob(os.path.join(DEMO_DIR, "*.csv")) if "messy" not in os.path.basename(p))
+    return [os.path.join(DEMO_DIR, name) for name in demo_files()]
 
 
 @functools.lru_cache(maxsize=1)

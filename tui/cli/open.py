@@ -13,6 +13,7 @@ examples:
   chaintriage open chain.csv
   chaintriage open morning.csv afternoon.csv --basis 365
   chaintriage open export.csv --columns columns.toml
+  chaintriage open chain.csv --events events.csv     (y: vols by expiry, events marked)
 
 Every figure is a model output from market quotes under stated assumptions;
 it is not advice. Press ? in the app for keys and cautions.
@@ -26,11 +27,38 @@ def configure(p: argparse.ArgumentParser) -> None:
     p.add_argument("files", nargs="*", metavar="FILE", help="snapshot files; none opens the bundled demo")
     add_snapshot_options(p)
     add_pipeline_options(p)
+    p.add_argument("--events", action="append", default=[], metavar="FILE",
+                   help="events file (CSV: underlying, date, timing, label); repeatable")
+    p.add_argument("--event", action="append", default=[], metavar="UNDERLYING:DATE[:amc|bmo]",
+                   help="one event, after the close unless :bmo; repeatable")
     p.set_defaults(func=run_open)
 
 
 def run_open(args: argparse.Namespace) -> int:
     from chaintriage.tui.app import open_app  # lazy: textual loads only for the app
 
+    from chaintriage.core.event_file import read_events_files
+    from chaintriage.core.events import parse_event_option
+    from chaintriage.core.findings import ChainTriageError
+    from chaintriage.tui.cli.common import EXIT_UNUSABLE, error, one_line
+
     overrides, column_map = snapshot_options(args)
-    return open_app(args.files, overrides=overrides, column_map=column_map, settings=pipeline_settings(args))
+    events = None
+    if args.events or args.event:
+        events = []
+        for text in args.event:
+            try:
+                events.append(parse_event_option(text))
+            except ChainTriageError as exc:
+                error(str(exc))
+                return EXIT_UNUSABLE
+        got, findings, errors = read_events_files(args.events)
+        for exc in errors:
+            error(str(exc))
+        if errors:
+            return EXIT_UNUSABLE
+        for f in findings:
+            error(one_line(str(f)))
+        events.extend(got)
+    return open_app(args.files, overrides=overrides, column_map=column_map, settings=pipeline_settings(args),
+                    events=events)

@@ -54,6 +54,7 @@ class TriageScreen(Screen):
         Binding("t", "app.next_theme", "theme", show=False),
         Binding("a", "app.toggle_ascii", "ascii", show=False),
         Binding("e", "app.show_findings", "findings"),
+        Binding("y", "app.show_terms", "vols by expiry", show=False),
         Binding("l", "app.load_file", "open file", show=False),
         Binding("q", "app.quit", "quit"),
     ]
