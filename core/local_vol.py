@@ -28,6 +28,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from .svi import SviParams, SviSlices
+
 #: Smallest local variance used (1% vol squared, per year).
 VAR_FLOOR = 1e-4
 #: Largest local variance used (500% vol squared, per year).
@@ -48,6 +50,8 @@ class LocalVolSurface:
     log_forward: np.ndarray
     log_spot: float
     smiles: tuple
+    #: The smiles' raw SVI parameters stacked, with a zero slice first (T = 0), when every smile has them.
+    stack: SviSlices | None = None
 
     @classmethod
     def build(cls, t, forward, spot: float, smiles) -> "LocalVolSurface":
@@ -63,7 +67,12 @@ class LocalVolSurface:
             while keep and not t[i] > t[keep[-1]]:
                 keep.pop()
             keep.append(i)
-        return cls(t[keep], np.log(f[keep]), float(np.log(spot)), tuple(smiles[i] for i in keep))
+        kept = tuple(smiles[i] for i in keep)
+        params = [getattr(sm, "params", None) for sm in kept]
+        stack = None
+        if all(isinstance(p, SviParams) and np.ndim(p.a) == 0 for p in params):
+            stack = SviSlices.stack([SviParams(0.0, 0.0, 0.0, 0.0, 1.0), *params])
+        return cls(t[keep], np.log(f[keep]), float(np.log(spot)), kept, stack)
 
     def log_forward_at(self, tau: float) -> float:
         """ln F(tau), log-linear between expiries from ln S at 0; the last segment's slope beyond."""
@@ -123,6 +132,18 @@ class LocalVolSurface:
         slope = (lf[seg] - lf[seg - 1]) / (ts[seg] - ts[seg - 1])
         log_f = lf[seg - 1] + slope * (taus - ts[seg - 1])
         y = x[None, :] + (self.log_spot - log_f)[:, None]
+        lam = ((taus - ts[seg - 1]) / (ts[seg] - ts[seg - 1]))[:, None]
+        if self.stack is not None:
+            # Slice seg-1 and seg of the stack (a zero slice at T = 0 first): one vectorised evaluation.
+            a = self.stack.take((seg - 1, None))
+            b = self.stack.take((seg, None))
+            wa, wb = a.total_variance(y), b.total_variance(y)
+            w = wa + lam * (wb - wa)
+            wt = (wb - wa) / (ts[seg] - ts[seg - 1])[:, None]
+            w1 = (1 - lam) * a.dw_dk(y) + lam * b.dw_dk(y)
+            w2 = (1 - lam) * a.d2w_dk2(y) + lam * b.d2w_dk2(y)
+            var, guarded = dupire_local_variance(y, w, wt, w1, w2)
+            return var, guarded, slope
         w = np.empty_like(y)
         wt = np.empty_like(y)
         w1 = np.empty_like(y)
@@ -141,13 +162,13 @@ class LocalVolSurface:
                 continue
             a, b = self.smiles[i - 2], self.smiles[i - 1]
             span = ts[i] - ts[i - 1]
-            lam = ((taus[rows] - ts[i - 1]) / span)[:, None]
+            lr = lam[rows]
             wa = np.asarray(a.total_variance(yy), float)
             wb = np.asarray(b.total_variance(yy), float)
-            w[rows] = wa + lam * (wb - wa)
+            w[rows] = wa + lr * (wb - wa)
             wt[rows] = (wb - wa) / span
-            w1[rows] = (1 - lam) * np.asarray(a.dw_dk(yy), float) + lam * np.asarray(b.dw_dk(yy), float)
-            w2[rows] = (1 - lam) * np.asarray(a.d2w_dk2(yy), float) + lam * np.asarray(b.d2w_dk2(yy), float)
+            w1[rows] = (1 - lr) * np.asarray(a.dw_dk(yy), float) + lr * np.asarray(b.dw_dk(yy), float)
+            w2[rows] = (1 - lr) * np.asarray(a.d2w_dk2(yy), float) + lr * np.asarray(b.d2w_dk2(yy), float)
         var, guarded = dupire_local_variance(y, w, wt, w1, w2)
         return var, guarded, slope
 

@@ -86,12 +86,15 @@ def _grid(levels_x: np.ndarray, lo: float, hi: float, n_space: int, alpha: float
 
 def _time_grid(surface: LocalVolSurface, t_end: float, n_time: int) -> np.ndarray:
     """Times to expiry from 0 to t_end: t_end (k/M)^2 (small steps next to the absorbing corner at
-    expiry), every earlier expiry of the surface as a node, and at least 3 steps between two expiries
-    (the local vol changes its time slope there)."""
+    expiry) with every earlier expiry of the surface added as a node (the local vol changes its time
+    slope there, so no step straddles one)."""
     s = t_end * (np.arange(n_time + 1) / n_time) ** 2
-    knots = np.concatenate([[0.0], surface.t[surface.t < t_end], [t_end]])
-    extra = [np.linspace(a, b, 4) for a, b in zip(knots[:-1], knots[1:])]
-    return np.unique(np.concatenate([s, t_end - np.concatenate(extra)]).clip(0.0, t_end))
+    knots = t_end - surface.t[surface.t < t_end]
+    if knots.size:
+        step = 2.0 * np.sqrt(s * t_end) / n_time + t_end / n_time ** 2  # local spacing of the s grid
+        near = np.abs(s[:, None] - knots[None, :]).min(axis=1) < 0.35 * step
+        s = s[~near | (s == 0.0) | (s == t_end)]
+    return np.unique(np.concatenate([s, knots]).clip(0.0, t_end))
 
 
 def _solve_levels(surface: LocalVolSurface, t_end: float, lv: np.ndarray, lo: float, hi: float,
