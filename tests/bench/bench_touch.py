@@ -103,7 +103,7 @@ def heston_cases(paths: int) -> None:
             stats["old"][side].append(old[below == side] - mc.p_touch[below == side])
         out_lv += int(np.sum((lv < lo - 1e-12) | (lv > hi + 1e-12)))
         out_old += int(np.sum((old < lo - 1e-9) | (old > hi + 1e-9)))
-        slack = 4 * mc.p_touch_se
+        slack = 4 * mc.p_touch_se + 3.0 / paths  # 3/N: no hits in N paths still allows p up to ~3/N
         out_mc += int(np.sum((mc.p_touch < lo - slack) | (mc.p_touch > hi + slack)))
         total += strikes.size
         rows_all.append(strikes.size)
@@ -114,7 +114,7 @@ def heston_cases(paths: int) -> None:
             print(f"  {label:17s} {word}: error vs Heston MC max {np.abs(d).max():.4f} mean {np.abs(d).mean():.4f} "
                   f"(mean signed {d.mean():+.4f})")
     print(f"  outside the bounds: local vol {out_lv}/{total}, one-vol (before) {out_old}/{total}, "
-          f"Heston MC truth {out_mc}/{total} (4 SE slack)")
+          f"Heston MC truth {out_mc}/{total} (4 SE + 3/paths slack)")
     print(f"  clipped into the bounds by the numerics: {clipped} of {n_all} contract rows, by at most {max_cross:.1e}")
 
 
