@@ -67,3 +67,4 @@ def test_pipeline_reports_calendar_arbitrage_of_a_chain():
     assert got is not None
     ok = np.isfinite(got.p_touch)
     assert np.all((got.p_touch[ok] >= got.low[ok] - 1e-12) & (got.p_touch[ok] <= got.high[ok] + 1e-12))
+
