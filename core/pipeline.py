@@ -128,6 +128,7 @@ class AnnotatedSnapshot:
     results: dict[pd.Timestamp, ExpiryResult]
     findings: list[Finding]
     touched: dict[pd.Timestamp, ExpiryTouch] = field(default_factory=dict)
+    _touch_cache: tuple | None = field(default=None, repr=False)
 
     def touch(self, expiry) -> ExpiryTouch | None:
         """Touch figures of one expiry (local vol with model-free bounds), computed once and written to ``contracts``.
@@ -143,7 +144,12 @@ class AnnotatedSnapshot:
             return None
         order = list(self.results)
         index = order.index(expiry)
-        values = self.contracts["expiry"].to_numpy(dtype="datetime64[ns]")
+        if self._touch_cache is None:  # once: each expiry's rows (contracts are sorted by expiry) and the columns
+            values = self.contracts["expiry"].to_numpy(dtype="datetime64[ns]")
+            cols = {name: self.contracts[name].to_numpy(dtype=float, copy=True)
+                    for name in ("p_touch", "p_touch_low", "p_touch_high")}
+            self._touch_cache = (values, cols)
+        values, cols = self._touch_cache
         target = np.datetime64(expiry.to_datetime64(), "ns")
         lo = int(np.searchsorted(values, target, side="left"))
         hi = int(np.searchsorted(values, target, side="right"))
@@ -159,9 +165,8 @@ class AnnotatedSnapshot:
                            [r.smile for r in self.results.values()], index, vol,
                            underlying=self.snapshot.underlying, label=f"{expiry:%Y-%m-%d}")
         for name, arr in (("p_touch", got.p_touch), ("p_touch_low", got.low), ("p_touch_high", got.high)):
-            column = self.contracts[name].to_numpy(dtype=float, copy=True)
-            column[rows] = arr
-            self.contracts[name] = column  # a whole-column swap is much cheaper than a row-wise write
+            cols[name][rows] = arr
+            self.contracts[name] = cols[name].copy()  # a whole-column swap is much cheaper than a row-wise write
         if got.findings:
             res.findings.extend(got.findings)
             self.findings.extend(got.findings)

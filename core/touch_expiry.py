@@ -37,6 +37,9 @@ CROSS_TOLERANCE = 1e-9
 #: Crossings larger than this get a note on the expiry (smaller ones are grid noise in the far wings).
 CROSS_NOTE = 1e-4
 
+#: Smile methods that are fallbacks (no shape to build local vol from).
+FALLBACK_SMILES = ("flat",)
+
 LOCAL_VOL = "local vol"
 ONE_VOL = "one-vol"
 
@@ -80,7 +83,7 @@ def expiry_touch(strikes, spot: float, t: np.ndarray, forwards: np.ndarray, smil
         p = prob_touch_smile(spot, float(forwards[index]), strikes, t_e, smile_vol, low)
         return ExpiryTouch(np.asarray(p, dtype=float), low, high, ONE_VOL, findings=findings)
 
-    if getattr(smile, "method", "svi") != "svi":
+    if getattr(smile, "method", "") in FALLBACK_SMILES:
         return one_vol("this expiry's smile is a fallback, so no local volatility is built from it")
     use = [i for i in range(len(smiles)) if smiles[i] is not None and np.isfinite(t[i]) and 0 < t[i] <= t_e
            and np.isfinite(forwards[i]) and forwards[i] > 0]

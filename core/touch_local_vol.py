@@ -9,15 +9,24 @@ fitted smiles). For a level H below spot, u(T, x) = P(min of S over [T, T_end]
 
 and symmetrically for a level above spot; P(touch) is u(0, 0).
 
-Numerics: one grid in x = ln(S/S_0) shared by all levels (a uniform grid with
-spot and every level inserted as nodes, so each level is exactly a node),
-Crank-Nicolson in time after two fully implicit (Rannacher) steps, time steps
-shrinking towards expiry (where the absorbing corner is). Each level's
-equation lives on its own part of the grid (from the level to the far edge);
-all of them are stacked into one block-diagonal tridiagonal system and solved
-together by LAPACK's ``dgtsv`` at every time step, so the Python loop runs over
-time steps only. The far edge, ``SPAN_SD`` standard deviations from spot, has
-u = 0.
+Numerics: one grid in x = ln(S/S_0) shared by the solved levels (a sinh
+grid dense around spot, with spot and each solved level exactly on a node
+and the spacing changing smoothly between them); Crank-Nicolson in time after
+two fully implicit (Rannacher) steps, time steps shrinking towards expiry
+(where the absorbing corner is) and every earlier expiry a time node. Each
+level's equation lives on its own part of the grid (from the level to the far
+edge); all of them are stacked into one block-diagonal tridiagonal system and
+solved together by LAPACK's ``dgtsv`` at every time step, so the Python loop
+runs over time steps only. The far edge, ``SPAN_SD`` standard deviations from
+spot, has u = 0.
+
+Not every strike gets its own equation: at most ``SOLVED_PER_SIDE`` levels on
+each side of spot (spread in sqrt-distance from spot, nearest and furthest
+included) are solved, and the rest are interpolated (monotone cubic in
+ln(H/S_0)) in the ratio P(touch) / P(finish beyond on the far side), which is
+smooth (about 2 for a diffusion) and known exactly from the surface for the
+denominator. Measured on a skewed SSVI surface: within 1e-3 of solving every
+level on a fine grid.
 
 Units: levels and spot in price units; times in years on the surface's clock;
 probabilities in [0, 1]. A level outside the grid (further than the span from
@@ -118,10 +127,6 @@ def _solve_levels(surface: LocalVolSurface, t_end: float, lv: np.ndarray, lo: fl
     left_bc = np.where(below, 1.0, 0.0)   # value left of a block's first unknown
     right_bc = np.where(below, 0.0, 1.0)  # value right of its last unknown
     read = starts + (i0 - first)          # where x = 0 sits in each block
-    not_first = np.ones(total, dtype=bool)
-    not_first[starts] = False
-    not_last = np.ones(total, dtype=bool)
-    not_last[ends] = False
 
     s = _time_grid(surface, t_end, n_time)
     n_time = s.size - 1
