@@ -45,12 +45,13 @@ from .time_to_expiry import (
     trading_days_to_expiry,
     year_fraction,
 )
-from .touch import prob_touch_smile
+from .calendar_arbitrage import calendar_findings
+from .touch_expiry import ExpiryTouch, expiry_touch
 
 #: Columns of the annotated contract table, in display order.
 CONTRACT_TABLE_COLUMNS = [
     "underlying", "expiry", "strike", "kind", "bid", "ask", "mid", "iv",
-    "sigma_distance", "p_beyond", "p_beyond_flat", "p_touch", "delta",
+    "sigma_distance", "p_beyond", "p_beyond_flat", "p_touch", "p_touch_low", "p_touch_high", "delta",
     "breakeven", "p_breakeven", "spread_pct", "flags",
     "volume", "open_interest", "otm", "source_line",
 ]
@@ -111,7 +112,14 @@ class ExpiryResult:
 
 @dataclass
 class AnnotatedSnapshot:
-    """The pipeline's output for one snapshot: contract and expiry tables."""
+    """The pipeline's output for one snapshot: contract and expiry tables.
+
+    Touch figures (``p_touch``, ``p_touch_low``, ``p_touch_high``) are computed
+    per expiry on demand: ``annotate`` leaves them NaN, ``touch(expiry)``
+    computes one expiry (once; later calls return the kept result) and writes
+    its rows of ``contracts``, ``fill_touch()`` does every expiry. Findings of
+    the touch step are added to ``findings`` and the expiry's result when it runs.
+    """
 
     snapshot: Snapshot
     settings: PipelineSettings
@@ -119,6 +127,59 @@ class AnnotatedSnapshot:
     expiries: pd.DataFrame
     results: dict[pd.Timestamp, ExpiryResult]
     findings: list[Finding]
+    touched: dict[pd.Timestamp, ExpiryTouch] = field(default_factory=dict)
+    _touch_cache: tuple | None = field(default=None, repr=False)
+
+    def touch(self, expiry) -> ExpiryTouch | None:
+        """Touch figures of one expiry (local vol with model-free bounds), computed once and written to ``contracts``.
+
+        None when the expiry is unknown, has no smile or no time left (its
+        touch columns stay NaN).
+        """
+        expiry = pd.Timestamp(expiry)
+        if expiry in self.touched:
+            return self.touched[expiry]
+        res = self.results.get(expiry)
+        if res is None or res.smile is None or not res.t_years > 0:
+            return None
+        order = list(self.results)
+        index = order.index(expiry)
+        if self._touch_cache is None:  # once: each expiry's rows (contracts are sorted by expiry) and the columns
+            values = self.contracts["expiry"].to_numpy(dtype="datetime64[ns]")
+            cols = {name: self.contracts[name].to_numpy(dtype=float, copy=True)
+                    for name in ("p_touch", "p_touch_low", "p_touch_high")}
+            self._touch_cache = (values, cols)
+        values, cols = self._touch_cache
+        target = np.datetime64(expiry.to_datetime64(), "ns")
+        lo = int(np.searchsorted(values, target, side="left"))
+        hi = int(np.searchsorted(values, target, side="right"))
+        rows = np.arange(lo, hi) if (lo < hi and values[lo] == target) else np.flatnonzero(values == target)
+        strikes = self.contracts["strike"].to_numpy(float)[rows]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            k = np.log(strikes / res.forward)
+            w = np.asarray(res.smile.total_variance(k), dtype=float)
+            vol = np.sqrt(np.where(w > 0, w, np.nan) / res.t_years)
+        got = expiry_touch(strikes, self.snapshot.spot,
+                           np.array([r.t_years for r in self.results.values()]),
+                           np.array([r.forward for r in self.results.values()]),
+                           [r.smile for r in self.results.values()], index, vol,
+                           underlying=self.snapshot.underlying, label=f"{expiry:%Y-%m-%d}")
+        for name, arr in (("p_touch", got.p_touch), ("p_touch_low", got.low), ("p_touch_high", got.high)):
+            cols[name][rows] = arr
+            self.contracts[name] = cols[name].copy()  # a whole-column swap is much cheaper than a row-wise write
+        if got.findings:
+            res.findings.extend(got.findings)
+            self.findings.extend(got.findings)
+            where = np.flatnonzero(self.expiries["expiry"].to_numpy(dtype="datetime64[ns]") == target)
+            self.expiries.loc[self.expiries.index[where], "findings"] = len(res.findings)
+        self.touched[expiry] = got
+        return got
+
+    def fill_touch(self) -> "AnnotatedSnapshot":
+        """Compute the touch figures of every expiry (``touch`` for each); returns self."""
+        for expiry in self.results:
+            self.touch(expiry)
+        return self
 
     def distribution(self, expiry, n: int = 401) -> Distribution | None:
         """Terminal distribution of one expiry on a strike grid (None when no smile)."""
@@ -218,8 +279,12 @@ def _text_per_expiry(column: pd.Series, order: np.ndarray, starts: np.ndarray, e
     return np.where(found, values, default).astype(object)
 
 
-def annotate(snapshot: Snapshot, settings: PipelineSettings | None = None) -> AnnotatedSnapshot:
-    """Run the whole per-expiry pipeline over a snapshot."""
+def annotate(snapshot: Snapshot, settings: PipelineSettings | None = None, touch: bool = False) -> AnnotatedSnapshot:
+    """Run the whole per-expiry pipeline over a snapshot.
+
+    The touch columns are left NaN for ``AnnotatedSnapshot.touch`` to fill per
+    expiry on demand; ``touch=True`` fills every expiry now.
+    """
     settings = settings or PipelineSettings()
     calendar = _calendar(settings.extra_closed)
     contracts = snapshot.contracts
@@ -363,6 +428,9 @@ def annotate(snapshot: Snapshot, settings: PipelineSettings | None = None) -> An
             fit_method[i] = smile.method
             arb_free[i] = bool(smile.arbitrage_free)
     slices = SviSlices(SviParams(*params.T))
+    for fnd in calendar_findings([smiles[i] if have_smile[i] else None for i in range(n_exp)], t_exp, labels,
+                                 underlying):
+        expiry_findings[labels.index(fnd.expiry)].append(fnd)
     atm_ivs[have_smile] = _atm_vols(slices, t_exp)[have_smile]
     results: dict[pd.Timestamp, ExpiryResult] = {}
     for i, expiry in enumerate(expiries):
@@ -373,7 +441,7 @@ def annotate(snapshot: Snapshot, settings: PipelineSettings | None = None) -> An
     sigma_distance = np.full(n, np.nan)
     p_above = np.full(n, np.nan)
     p_above_flat = np.full(n, np.nan)
-    p_touch = np.full(n, np.nan)
+    p_touch = np.full(n, np.nan)  # touch figures: per expiry on demand (AnnotatedSnapshot.touch)
     smile_vol = np.full(n, np.nan)
     p_above_be = np.full(n, np.nan)
     breakeven = np.where(is_call, strike + mid, strike - mid)
@@ -405,14 +473,6 @@ def annotate(snapshot: Snapshot, settings: PipelineSettings | None = None) -> An
     p_beyond_flat = np.where(is_call, p_above_flat, 1.0 - p_above_flat)
     p_breakeven = np.where(is_call, p_above_be, 1.0 - p_above_be)
 
-    # Touch probability from spot, at each strike's smile vol, floored by finishing past it.
-    have = np.isfinite(smile_vol) & (t_row > 0)
-    if have.any():
-        p_touch[have] = prob_touch_smile(
-            snapshot.spot, f_row[have], strike[have], t_row[have], smile_vol[have], p_beyond[have],
-            is_call=is_call[have],
-        )
-
     # Delta on the spot (dV/dS = DF * F/S * dV/dF), at the contract's own vol, else the smile's.
     vol_for_greeks = np.where(np.isfinite(iv), iv, smile_vol)
     with np.errstate(invalid="ignore", divide="ignore"):
@@ -436,6 +496,8 @@ def annotate(snapshot: Snapshot, settings: PipelineSettings | None = None) -> An
         "p_beyond": p_beyond,
         "p_beyond_flat": p_beyond_flat,
         "p_touch": p_touch,
+        "p_touch_low": p_touch.copy(),
+        "p_touch_high": p_touch.copy(),
         "delta": delta,
         "breakeven": breakeven,
         "p_breakeven": p_breakeven,
@@ -470,7 +532,8 @@ def annotate(snapshot: Snapshot, settings: PipelineSettings | None = None) -> An
     })
     for fs in expiry_findings:
         findings.extend(fs)
-    return AnnotatedSnapshot(snapshot, settings, out, exp_table, results, findings)
+    annotated = AnnotatedSnapshot(snapshot, settings, out, exp_table, results, findings)
+    return annotated.fill_touch() if touch else annotated
 
 
 def _no_vol_findings(status, contracts, order, exp_code, is_call, strike, mid, otm, underlying, labels,

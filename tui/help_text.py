@@ -106,7 +106,13 @@ COLUMNS: tuple[ColumnHelp, ...] = (
                "a gap to 'beyond' is the skew's say"),
     ColumnHelp("p_touch", "touch",
                "P(touch): chance the underlying trades at the strike at some time before expiry, "
-               "starting from spot now"),
+               "starting from spot now, from one path model that reprices the whole smile (local volatility)"),
+    ColumnHelp("p_touch_low", "t.low",
+               "touch bound, low: no model that reprices the quoted options can give a smaller touch chance "
+               "(the chance of finishing past the strike, away from spot)"),
+    ColumnHelp("p_touch_high", "t.high",
+               "touch bound, high: no model that reprices the quoted options can give a larger touch chance; "
+               "a wide gap between the bounds means the touch figure depends on the model"),
     ColumnHelp("delta", "delta", "change in option price per unit change in the underlying (Black-76)"),
     ColumnHelp("breakeven", "BE", "price at expiry where a buyer at mid breaks even: strike + mid for a call, "
                "strike - mid for a put"),

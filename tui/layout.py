@@ -18,6 +18,7 @@ from chaintriage.tui.widgets.strike_grid import COLUMNS
 #: Columns in the order they are kept when the width runs short (most important first).
 PRIORITY: tuple[str, ...] = (
     "sigma", "p_beyond", "mid", "bid", "ask", "iv", "p_touch", "delta", "p_flat",
+    "p_touch_low", "p_touch_high",
     "breakeven", "p_breakeven", "spread", "open_interest", "volume", "flags",
 )
 

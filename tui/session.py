@@ -245,6 +245,7 @@ class SnapshotView:
         cached = self._frames.get(expiry)
         if cached is not None:
             return cached
+        self.annotated.touch(expiry)  # touch figures are computed per expiry on demand, once
         contracts = self.annotated.contracts
         if expiry in self._bounds:
             lo, hi = self._bounds[expiry]

@@ -24,7 +24,7 @@ def summarize(contract: Mapping[str, Any], *, as_of: Any = None, underlying: str
     """One line for the clipboard from a contracts-table row (dict or pandas Series).
 
     Reads ``underlying, expiry, strike, kind, mid, iv, sigma_distance, p_beyond,
-    p_touch, breakeven``; ``as_of`` (the snapshot time) and ``underlying`` override
+    p_touch (with p_touch_low / p_touch_high when present), breakeven``; ``as_of`` (the snapshot time) and ``underlying`` override
     the row's. A missing figure shows as "--". ``ascii_only`` writes "s" for sigma.
     """
     def get(key: str) -> Any:
@@ -46,11 +46,19 @@ def summarize(contract: Mapping[str, Any], *, as_of: Any = None, underlying: str
         f"IV {fm.fmt_vol(get('iv'), ascii_only=True)}",
         _sigma_part(get("sigma_distance"), ascii_only),
         f"P(beyond) {fm.fmt_prob(get('p_beyond'), ascii_only=True)}",
-        f"P(touch) {fm.fmt_prob(get('p_touch'), ascii_only=True)}",
+        f"P(touch) {fm.fmt_prob(get('p_touch'), ascii_only=True)}" + _touch_bounds_part(get),
         f"BE {fm.fmt_price(get('breakeven'), ascii_only=True)}",
         f"as of {fm.fmt_timestamp(when, ascii_only=True)}",
     ]
     return fm.clean_text(SEPARATOR.join(parts))
+
+
+def _touch_bounds_part(get) -> str:
+    """" (bounds 9.0%-21.0%)" after P(touch) when both touch bounds are numbers, else nothing."""
+    low, high = fm.as_finite(get("p_touch_low")), fm.as_finite(get("p_touch_high"))
+    if low is None or high is None:
+        return ""
+    return f" (bounds {fm.fmt_prob(low, ascii_only=True)}-{fm.fmt_prob(high, ascii_only=True)})"
 
 
 def _sigma_part(value: Any, ascii_only: bool) -> str:

@@ -61,7 +61,7 @@ def flat_world():
         return ql_black(fwd[i], k, FLAT_VOL, ts[i], dfs[i], False)
 
     snap = build_snapshot(EXPIRIES, strikes, call, put, spot=SPOT)
-    return annotate(snap, SETTINGS), ts, fwd, dfs
+    return annotate(snap, SETTINGS, touch=True), ts, fwd, dfs
 
 
 def test_tables_have_the_documented_columns(flat_world):
@@ -155,7 +155,8 @@ def test_flat_world_p_touch_against_monte_carlo(flat_world):
 
 
 def test_flat_world_touch_is_reflection_formula(flat_world):
-    """REFERENCE.md §3 closed form (reflection principle with drift, Shreve [M section])."""
+    """REFERENCE.md §3 closed form (reflection principle with drift, Shreve [M section]); the local-vol
+    equation on the fitted (flat) surface, within its tolerance of 2e-3."""
     ann, ts, fwd, _ = flat_world
     c = ann.contracts
     i = 2
@@ -166,7 +167,7 @@ def test_flat_world_touch_is_reflection_formula(flat_world):
     b = np.log(h / SPOT)
     s = FLAT_VOL * np.sqrt(t)
     expected = ndtr((-b + nu * t) / s) + np.exp(2 * nu * b / FLAT_VOL**2) * ndtr((-b - nu * t) / s)
-    np.testing.assert_allclose(c.loc[sel, "p_touch"], expected, atol=1e-6)
+    np.testing.assert_allclose(c.loc[sel, "p_touch"], expected, atol=2e-3)
 
 
 def test_flat_world_breakeven(flat_world):

@@ -24,8 +24,8 @@ from chaintriage.tui.cli.table_output import render
 #: Columns of `table`, in order (csv/json add as_of after underlying).
 TABLE_COLUMNS = [
     "underlying", "expiry", "strike", "kind", "bid", "ask", "mid", "iv", "sigma_distance",
-    "p_beyond", "p_beyond_flat", "p_touch", "delta", "breakeven", "p_breakeven", "spread_pct",
-    "open_interest", "flags",
+    "p_beyond", "p_beyond_flat", "p_touch", "p_touch_low", "p_touch_high", "delta", "breakeven", "p_breakeven",
+    "spread_pct", "open_interest", "flags",
 ]
 
 TABLE_EPILOG = """\
@@ -68,6 +68,9 @@ def run_table(args: argparse.Namespace) -> int:
         wanted.append(day)
     frames = []
     for a in annotated:
+        for expiry in a.results:  # touch figures are computed per expiry on demand
+            if not wanted or expiry in wanted:
+                a.touch(expiry)
         c = a.contracts
         keep = pd.Series(True, index=c.index)
         if wanted:

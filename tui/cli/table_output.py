@@ -50,6 +50,8 @@ _PLAIN = {
     "p_beyond": ("P(beyond)", "prob"),
     "p_beyond_flat": ("P(beyond) flat", "prob"),
     "p_touch": ("P(touch)", "prob"),
+    "p_touch_low": ("touch low", "prob"),
+    "p_touch_high": ("touch high", "prob"),
     "delta": ("delta", "delta"),
     "breakeven": ("breakeven", "price"),
     "p_breakeven": ("P(breakeven)", "prob"),

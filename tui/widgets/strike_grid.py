@@ -80,6 +80,8 @@ COLUMNS: dict[str, ColumnSpec] = {
         ColumnSpec("p_beyond", "beyond", "beyond", 6, "p_beyond", fm.fmt_prob),
         ColumnSpec("p_flat", "1-vol", "1-vol", 6, "p_beyond_flat", fm.fmt_prob),
         ColumnSpec("p_touch", "touch", "touch", 6, "p_touch", fm.fmt_prob),
+        ColumnSpec("p_touch_low", "t.low", "t.low", 6, "p_touch_low", fm.fmt_prob),
+        ColumnSpec("p_touch_high", "t.high", "t.high", 6, "p_touch_high", fm.fmt_prob),
         ColumnSpec("delta", "delta", "delta", 6, "delta", fm.fmt_delta),
         ColumnSpec("breakeven", "BE", "BE", 8, "breakeven", fm.fmt_price),
         ColumnSpec("p_breakeven", "P(BE)", "P(BE)", 6, "p_breakeven", fm.fmt_prob),
