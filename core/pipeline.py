@@ -23,6 +23,7 @@ import numpy as np
 import pandas as pd
 
 from . import black76
+from .confidence import DEFAULT_CONFIDENCE
 from .distribution import (
     Distribution,
     prob_above,
@@ -69,14 +70,15 @@ class PipelineSettings:
     """Choices that change the numbers.
 
     ``basis``: '252', '250' (trading days) or '365' (calendar ACT/365).
-    ``confidence``: two-sided level of the ranges, in (0, 1).
+    ``confidence``: two-sided level of the ranges, in (0, 1); default the one-sigma
+    level 0.682689... (``confidence.DEFAULT_CONFIDENCE``, shown as 68.27%).
     ``use_file_iv``: take the file's ``iv`` column instead of solving from mids.
     ``wide_spread``: spread / mid above which a contract is flagged 'wide'.
     ``thin_open_interest``: open interest below which a contract is flagged 'thin'.
     """
 
     basis: str = "252"
-    confidence: float = 0.68
+    confidence: float = DEFAULT_CONFIDENCE
     use_file_iv: bool = False
     wide_spread: float = 0.25
     thin_open_interest: float = 10.0

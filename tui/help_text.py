@@ -124,7 +124,8 @@ AREAS: tuple[tuple[str, str], ...] = (
                  "it is, how many findings its data has, and the shortlist's size"),
     ("expiry lines", "the expiry and its place in the list; trading and calendar days left; the forward "
                      "(from put-call parity); the at-the-money IV; the range at the chosen confidence, "
-                     "plain F x exp(+/- z x ATM IV x sqrt(T)) and from the smile's quantiles; the smile "
+                     "plain F x exp(-ATM IV^2 x T/2 +/- z x ATM IV x sqrt(T)) (the central interval of the "
+                     "one-vol lognormal) and from the smile's quantiles; the smile "
                      "fit's error in vol points and whether it is free of butterfly arbitrage; this "
                      "expiry's findings"),
     ("filter line", "the filter in force and how many strikes it leaves; on a narrow terminal, the "
