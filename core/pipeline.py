@@ -37,7 +37,7 @@ from .findings import NOTE, WARNING, ChainTriageError, Finding
 from .implied_vol import ABOVE_UPPER_BOUND, BELOW_INTRINSIC, STATUS_REASONS, implied_vol
 from .parity_forward import ForwardEstimate, implied_forwards
 from .smile_batch import fit_smiles
-from .quote_bands import band_vols, distance_outside
+from .quote_bands import vol_outside
 from .smile_fit import PRICE_UNCERTAINTY_FLOOR, Smile
 from .snapshot import Snapshot
 from .svi import SviParams, SviSlices
@@ -514,8 +514,9 @@ def _fit_smiles_in_bands(fit_sel, bound_sel, k_row, iv, t_row, t_exp, f_row, df_
     in price (tight quotes count by their vega) and at 0.1 vol point. An expiry whose smile lies above
     the ask of some zero-bid quotes is fitted once more with those quotes held at their ask vol, with a
     note; zero-bid quotes the smile still prices above their ask get a note. The error counted per
-    two-sided quote is the distance of the fitted vol outside its bid-ask band (0 inside); quotes
-    left out as far off the curve and zero-bid quotes (bounds, not fitted) do not count.
+    two-sided quote is the distance of the smile's vol outside its bid-ask band, to first order
+    (|smile vol - mid vol| less the half spread over the vega, decimal vol, 0 inside); quotes left
+    out as far off the curve and zero-bid quotes (bounds, not fitted) do not count.
     """
     n_exp = t_exp.size
     tf = t_row[fit_sel]
@@ -526,33 +527,47 @@ def _fit_smiles_in_bands(fit_sel, bound_sel, k_row, iv, t_row, t_exp, f_row, df_
                         price_floor=floor)
     smiles = [fitted[i] if has_quotes[i] else None for i in range(n_exp)]
     rows = np.concatenate([fit_sel, bound_sel])
-    iv_bid, iv_ask = band_vols(f_row[rows], strike[rows], t_row[rows], df_row[rows], is_call[rows], bid[rows],
-                               ask[rows])
 
     def fitted_vol(sel):
-        out = np.full(sel.size, np.nan)
-        ok = np.array([isinstance(smiles[e], Smile) for e in range(n_exp)], dtype=bool)[exp_code[sel]]
-        if ok.any():
-            p = np.array([smiles[e].params.as_tuple() if isinstance(smiles[e], Smile) else (np.nan,) * 5
-                          for e in range(n_exp)])[exp_code[sel[ok]]]
-            w = np.asarray(SviSlices(SviParams(*p.T)).total_variance(k_row[sel[ok]]), dtype=float)
-            with np.errstate(invalid="ignore"):
-                out[ok] = np.sqrt(np.where(w > 0, w, np.nan) / t_row[sel[ok]])
-        return out
+        """The smile's vol at each row of ``sel`` (NaN where its expiry has no smile or w <= 0)."""
+        params = np.full((n_exp, 5), np.nan)
+        for e in range(n_exp):
+            if isinstance(smiles[e], Smile):
+                params[e] = smiles[e].params.as_tuple()
+        w = np.asarray(SviSlices(SviParams(*params[exp_code[sel]].T)).total_variance(k_row[sel]), dtype=float)
+        with np.errstate(invalid="ignore"):
+            return np.sqrt(np.where(w > 0, w, np.nan) / t_row[sel])
+
+    def outside(sel):
+        """Distance of the smile's price outside each quote's band, in vol (price distance / vega)."""
+        vol = fitted_vol(sel)
+        price = black76.price(f_row[sel], strike[sel], vol, t_row[sel], df_row[sel], is_call[sel])
+        vg = black76.vega(f_row[sel], strike[sel], vol, t_row[sel], df_row[sel])
+        return vol_outside(price, vg, bid[sel], ask[sel])
+
+    def outside_fitted():
+        """:func:`outside` for the two-sided quotes, to first order from their mid vol and its vega:
+        max(|smile vol - mid vol| - (spread/2)/vega, 0) (no Black price per quote)."""
+        with np.errstate(invalid="ignore", divide="ignore"):
+            half = 0.5 * spread / np.where(vega > 0, vega, np.nan)
+            return np.maximum(np.abs(fitted_vol(fit_sel) - iv[fit_sel]) - half, 0.0)
 
     nf = fit_sel.size
     if bound_sel.size:
-        vol_b = fitted_vol(bound_sel)
         with np.errstate(invalid="ignore"):
-            above = vol_b > iv_ask[nf:] + 1e-9
+            above = outside(bound_sel) > 1e-6
         redo = np.unique(exp_code[bound_sel[above]])
         redo = redo[[isinstance(smiles[e], Smile) and smiles[e].method == "svi" for e in redo]] if redo.size else redo
         if redo.size:
-            extra = bound_sel[above & np.isin(exp_code[bound_sel], redo)]
-            extra_iv = iv_ask[nf:][above & np.isin(exp_code[bound_sel], redo)]
-            sel = np.concatenate([fit_sel[np.isin(exp_code[fit_sel], redo)], extra])
-            target = np.concatenate([iv[fit_sel][np.isin(exp_code[fit_sel], redo)], extra_iv])
-            spr = np.concatenate([spread[np.isin(exp_code[fit_sel], redo)], np.zeros(extra.size)])
+            held = above & np.isin(exp_code[bound_sel], redo)
+            extra = bound_sel[held]
+            extra_iv = implied_vol(ask[extra], f_row[extra], strike[extra], t_row[extra], df_row[extra],
+                                   is_call[extra]).sigma
+            extra, extra_iv = extra[np.isfinite(extra_iv)], extra_iv[np.isfinite(extra_iv)]
+            mine = np.isin(exp_code[fit_sel], redo)
+            sel = np.concatenate([fit_sel[mine], extra])
+            target = np.concatenate([iv[fit_sel][mine], extra_iv])
+            spr = np.concatenate([spread[mine], np.zeros(extra.size)])
             order = np.lexsort((k_row[sel], exp_code[sel]))
             sel, target, spr = sel[order], target[order], spr[order]
             t_s = t_row[sel]
@@ -562,14 +577,13 @@ def _fit_smiles_in_bands(fit_sel, bound_sel, k_row, iv, t_row, t_exp, f_row, df_
                                price_floor=PRICE_UNCERTAINTY_FLOOR * df_row[sel] * f_row[sel] * np.sqrt(t_s))
             for j, e in enumerate(redo):
                 n_up = int(np.count_nonzero(exp_code[extra] == e))
-                if isinstance(refit[j], Smile):
+                if isinstance(refit[j], Smile) and n_up:
                     smiles[e] = refit[j]
                     expiry_findings[e].append(Finding(
                         NOTE, f"smile: the fit to the two-sided quotes priced {n_up} zero-bid quote(s) above "
                               "their ask; fitted again with those held at their ask", underlying=underlying,
                         expiry=labels[e]))
-    vol_all = fitted_vol(rows)
-    dist = distance_outside(vol_all, iv_bid, iv_ask)
+    dist = np.concatenate([outside_fitted(), outside(bound_sel)])
     if bound_sel.size:  # zero-bid quotes still priced above their ask: said, not counted in the fit error
         over = dist[nf:]
         with np.errstate(invalid="ignore"):

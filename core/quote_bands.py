@@ -1,13 +1,15 @@
-"""Each quote's bid-ask band in vol terms, and how far a fitted smile sits outside it.
+"""How far a fitted smile's prices sit outside each quote's bid-ask band, in vol terms.
 
-A quote with a bid above zero gives the band [iv(bid), iv(ask)] of implied vols
-(Black-76 on the forward, as ``implied_vol``). A zero or missing bid gives an
-upper bound only, iv(ask): the price lies somewhere between 0 and the ask, so
-the quote can say a smile is too high, never that it is too low, and its mid
-(half the ask) is not a price to fit. A bid below the no-arbitrage lower bound
-leaves the band open below; an ask above the upper bound leaves it open above.
+A quote with a bid above zero gives the band [bid, ask]. A zero or missing
+bid gives an upper bound only, the ask: the price lies somewhere between 0 and
+the ask, so the quote can say a smile is too high, never that it is too low,
+and its mid (half the ask) is not a price to fit.
 
-Units: prices and strikes in price units, ``t`` in years, vols decimal
+The distance is measured in price and turned into vol by the smile's vega at
+the quote (first order: exact for a band edge within a small move of the
+smile's vol, which is where a fit error is worth reading).
+
+Units: prices in price units, vega per 1.00 of vol, distances in decimal vol
 (0.01 = 1 vol point).
 """
 
@@ -15,29 +17,21 @@ from __future__ import annotations
 
 import numpy as np
 
-from .implied_vol import implied_vol
 
-
-def band_vols(forward, strike, t, discount, is_call, bid, ask) -> tuple[np.ndarray, np.ndarray]:
-    """(iv_bid, iv_ask) per quote, decimal vol.
-
-    ``iv_bid`` is 0 where the bid is zero, missing or below the lower bound
-    (no lower edge); ``iv_ask`` is +inf where the ask is missing or above the
-    upper bound (no upper edge). Arrays broadcast together.
-    """
+def price_outside(price, bid, ask) -> np.ndarray:
+    """How far ``price`` lies outside [bid, ask] (price units): 0 inside; a zero/missing bid is no lower edge,
+    a missing ask no upper edge; NaN where price is NaN."""
+    price = np.asarray(price, dtype=float)
     bid = np.asarray(bid, dtype=float)
     ask = np.asarray(ask, dtype=float)
     with np.errstate(invalid="ignore"):
-        has_bid = np.isfinite(bid) & (bid > 0)
-        has_ask = np.isfinite(ask) & (ask > 0)
-    lo = implied_vol(np.where(has_bid, bid, np.nan), forward, strike, t, discount, is_call).sigma
-    hi = implied_vol(np.where(has_ask, ask, np.nan), forward, strike, t, discount, is_call).sigma
-    return np.where(np.isfinite(lo), lo, 0.0), np.where(np.isfinite(hi), hi, np.inf)
+        below = np.where(np.isfinite(bid) & (bid > 0), bid - price, 0.0)
+        above = np.where(np.isfinite(ask), price - ask, 0.0)
+        return np.maximum(np.maximum(below, above), 0.0) + 0.0 * price
 
 
-def distance_outside(vol, iv_bid, iv_ask) -> np.ndarray:
-    """How far ``vol`` lies outside [iv_bid, iv_ask] (decimal vol): 0 inside, NaN where vol is NaN."""
-    vol = np.asarray(vol, dtype=float)
-    with np.errstate(invalid="ignore"):
-        return np.maximum(np.maximum(np.asarray(iv_bid, dtype=float) - vol, vol - np.asarray(iv_ask, dtype=float)),
-                          0.0) + 0.0 * vol
+def vol_outside(price, vega, bid, ask) -> np.ndarray:
+    """:func:`price_outside` over the vega at the quote (decimal vol); NaN where vega is not positive."""
+    vega = np.asarray(vega, dtype=float)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return price_outside(price, bid, ask) / np.where(vega > 0, vega, np.nan)

@@ -16,7 +16,7 @@ quotes of all expiries sit in one flat array grouped by expiry, and
   expiries at once.
 
 An expiry that needs one of the rarer branches - fewer than 5 usable quotes,
-quotes not in increasing k, a non-finite or rejected fit (flat fallback), a
+quotes not in non-decreasing k, a non-finite or rejected fit (flat fallback), a
 failed outlier re-fit, butterfly arbitrage (with its penalised re-fit), or
 a polish still moving after ``MAX_ITER`` steps (an optimum at the edge of
 the box, approached ever more slowly) - is handed whole to ``fit_smile``, so
@@ -414,7 +414,8 @@ def _vol_errors(p_q: np.ndarray, k, w, t_q):
 
 
 def _atm_levels(k, w, starts, ends) -> np.ndarray:
-    """smile_fit._atm_level per group (k ascending within each group)."""
+    """smile_fit._atm_level per group (k non-decreasing within each group; with repeated k the last
+    one at or below 0 is used, as np.interp does)."""
     n_le = _segsum((k <= 0.0).astype(np.int64), starts)
     j = starts + n_le - 1
     inside = (k[starts] <= 0.0) & (k[ends - 1] >= 0.0)
@@ -571,10 +572,11 @@ def fit_smiles(k, total_var, t, group, *, vega=None, spread=None, weights=None, 
         ok = np.isfinite(k) & np.isfinite(w) & (w > 0) & np.isfinite(wt) & (wt > 0)
     n_all = np.diff(bounds)
     n_ok = np.bincount(group[ok], minlength=n_exp)
-    # ascending, distinct k within each expiry keeps the batched checks simple; anything else -> fit_smile
+    # k in non-decreasing order within each expiry keeps the batched checks simple (repeated strikes are
+    # fine: a big chain often lists one strike twice); anything else -> fit_smile
     kk_ok = k[ok]
     same_group = group[ok][1:] == group[ok][:-1]
-    not_ascending = np.bincount(group[ok][1:][same_group & ~(kk_ok[1:] > kk_ok[:-1])], minlength=n_exp) > 0
+    not_ascending = np.bincount(group[ok][1:][same_group & ~(kk_ok[1:] >= kk_ok[:-1])], minlength=n_exp) > 0
     fast = t_ok & (n_ok >= MIN_QUOTES_SVI) & ~not_ascending
     for i in np.flatnonzero(~fast):
         reference(int(i))
