@@ -1,15 +1,18 @@
 """Fit one expiry's smile: raw SVI on total variance, with a checked fallback.
 
 Input is the out-of-the-money side of one expiry (puts below the forward,
-calls above): log-moneyness ``k = ln(K/F)``, market total variance
+calls above; the pipeline passes only quotes with a bid - a zero bid is an
+upper bound, see ``quote_bands``): log-moneyness ``k = ln(K/F)``, market total variance
 ``w = iv**2 * t`` (iv decimal, t in years on the basis of iv) and weights.
 
 Weights multiply squared total-variance residuals (only their ratios
 matter). The recommended weights, built by :func:`quote_weights` when you
 pass ``vega`` and ``spread`` instead of ``weights``, make the fit measure each
 residual in units of the quote's own vol uncertainty:
-``dvol_i = (ask - bid)/2 / vega_i`` (the half spread in vol terms, floored at
-0.1 vol point) and, since ``dw = 2*iv*t*dvol``,
+``dvol_i = max((ask - bid)/2, price_floor) / vega_i`` (the half spread in vol
+terms, the half spread floored at ``price_floor`` in price - the pipeline
+passes PRICE_UNCERTAINTY_FLOOR * DF * F * sqrt(t), so tight quotes count by
+their vega - and dvol floored at 0.1 vol point) and, since ``dw = 2*iv*t*dvol``,
 ``weight_i = 1 / (iv_i**2 * t * dvol_i**2)``. With no vega or spread the
 weights are ``1/iv_i**2``: every quote counts the same in vol terms.
 

@@ -93,12 +93,27 @@ def true_atm_vol(p: HestonParams, t: float) -> float:
     return ql.blackFormulaImpliedStdDev(ql.Option.Call, f, f, c, df) / np.sqrt(t)
 
 
+def true_vols(p: HestonParams, t: float, strikes) -> np.ndarray:
+    """Black implied vols of the Heston out-of-the-money prices at ``strikes`` (QuantLib)."""
+    f = float(p.forward(t))
+    df = float(p.discount(t))
+    ks = np.asarray(strikes, float)
+    out = []
+    for k in ks:
+        is_call = k >= f
+        price = float(heston_price(p, t, [k], is_call)[0])
+        kind = ql.Option.Call if is_call else ql.Option.Put
+        out.append(ql.blackFormulaImpliedStdDev(kind, float(k), f, price, df) / np.sqrt(t))
+    return np.array(out)
+
+
 def score(annotated, p: HestonParams, expiry: str, t: float, near_sd: float = 1.0):
     """Errors of one expiry's out-of-the-money P(beyond) and ATM IV against the truth.
 
     Returns dict: near / wing = largest |P(beyond) - truth| over out-of-the-money contracts with
     |sigma distance| <= ``near_sd`` / beyond it (within the quoted strikes); atm = |ATM IV - truth|
-    in vol points; skew_sign = sign of the fitted SVI rho (the model's rho < 0 skews the smile down:
+    in vol points; wiggle = largest |fitted vol - Heston implied vol| within ``near_sd`` sds, vol
+    points; skew_sign = sign of the fitted SVI rho (the model's rho < 0 skews the smile down:
     the left wing steeper than the right).
     """
     c = annotated.contracts
@@ -111,12 +126,18 @@ def score(annotated, p: HestonParams, expiry: str, t: float, near_sd: float = 1.
     z = np.abs(sub["sigma_distance"].to_numpy(float))
     res = annotated.results[pd.Timestamp(expiry)]
     atm = abs(res.atm_iv - true_atm_vol(p, t)) * 100.0
+    near = z <= near_sd
+    wiggle = float("nan")
+    if res.smile is not None and near.any():
+        true_iv = true_vols(p, t, ks[near])
+        wiggle = float(np.max(np.abs(res.smile.vol(np.log(ks[near] / res.forward)) - true_iv))) * 100.0
     slope = float(res.smile.params.rho) if res.smile is not None else float("nan")
     return {
         "near": float(err[z <= near_sd].max(initial=0.0)),
         "wing": float(err[z > near_sd].max(initial=0.0)),
         "atm": atm,
         "skew_sign": float(np.sign(slope)),
+        "wiggle": wiggle,
         "rmse": float(annotated.expiries.set_index("expiry").loc[pd.Timestamp(expiry), "fit_rmse"]) * 100.0,
         "n": int(len(sub)),
     }
