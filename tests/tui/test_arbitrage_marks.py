@@ -20,8 +20,8 @@ from chaintriage.core import svi
 from chaintriage.core.loading import load_files
 from chaintriage.core.pipeline import PipelineSettings, annotate
 from chaintriage.core.svi import SviParams
-from chaintriage.tui.bars import BarStyles, expiry_pieces
-from chaintriage.tui.distribution_plot import NEGATIVE_NOTE, draw_distribution
+from chaintriage.tui.widgets.info_bars import BarStyles, expiry_pieces
+from chaintriage.tui.widgets.distribution_plot import NEGATIVE_NOTE, draw_distribution
 from chaintriage.tui.session import SnapshotView
 from tests.core.chain_builders import build_snapshot, ql_black, year_fractions
 from tests.tui.app_support import DEMO_DIR
@@ -74,7 +74,7 @@ def test_arbitrage_slice_is_marked_with_the_reason_everywhere(vogt_chain):
 
 
 def test_expiries_command_shows_the_mark_and_the_reason(vogt_chain, tmp_path, capsys):
-    from chaintriage.tui.cli import main
+    from chaintriage.tui.cli.main import main
 
     snap, _ = vogt_chain
     frame = snap.contracts.drop(columns=["source_file", "source_line", "iv", "iv_basis"]).copy()
