@@ -39,6 +39,7 @@ from scipy.special import ndtr, ndtri
 # also do, but importing it costs about 0.3 s at start-up.)
 trapezoid = getattr(np, "trapezoid", None) or np.trapz
 
+from .confidence import DEFAULT_CONFIDENCE
 from .findings import ChainTriageError
 from .svi import g_from_w
 
@@ -171,16 +172,22 @@ def quantile(smile, forward, p, tol: float = 1e-13):
     return out
 
 
-def range_flat(forward, sigma, t, confidence, centre: str = "forward"):
-    """Plain band (low, high) at a two-sided confidence, z = ndtri((1 + c)/2).
+def range_flat(forward, sigma, t, confidence=None, centre: str = "median"):
+    """Plain range (low, high) at a two-sided confidence: the central interval of the one-vol lognormal.
 
-    centre='forward' (the product's band): F*exp(-/+ z sigma sqrt(t)).
-    centre='median': the risk-neutral lognormal quantiles,
-    F*exp(-sigma^2 t/2 -/+ z sigma sqrt(t)). Broadcasts; NaN for a
-    confidence outside [0, 1).
+    centre='median' (the default, the product's plain range): the risk-neutral
+    lognormal whose mean is the forward, F*exp(-sigma^2 t/2 -/+ z sigma sqrt(t))
+    with z = ndtri((1 + c)/2): exactly (1 - c)/2 of that lognormal lies below
+    low and (1 - c)/2 above high. centre='forward': the band
+    F*exp(-/+ z sigma sqrt(t)) symmetric in log around the forward (the sigma
+    marks; it does NOT hold probability c under that lognormal). ``confidence``
+    defaults to :data:`DEFAULT_CONFIDENCE`. Broadcasts; NaN for a confidence
+    outside [0, 1).
     """
     if centre not in ("forward", "median"):
         raise ChainTriageError(f"range centre must be 'forward' or 'median', got {centre!r}")
+    if confidence is None:
+        confidence = DEFAULT_CONFIDENCE
     forward = np.asarray(forward, dtype=float)
     s = np.asarray(sigma, dtype=float) * np.sqrt(np.asarray(t, dtype=float))
     c = np.asarray(confidence, dtype=float)
@@ -190,9 +197,9 @@ def range_flat(forward, sigma, t, confidence, centre: str = "forward"):
     return mid * np.exp(-z * s), mid * np.exp(z * s)
 
 
-def range_smile(smile, forward, confidence):
+def range_smile(smile, forward, confidence=None):
     """Band (low, high) between the (1-c)/2 and (1+c)/2 quantiles of the smile's distribution."""
-    c = np.asarray(confidence, dtype=float)
+    c = np.asarray(DEFAULT_CONFIDENCE if confidence is None else confidence, dtype=float)
     with np.errstate(invalid="ignore"):
         c = np.where((c > 0) & (c < 1), c, np.nan)
     q = quantile(smile, forward, np.stack([0.5 * (1.0 - c), 0.5 * (1.0 + c)]))

@@ -23,6 +23,7 @@ import numpy as np
 import pandas as pd
 
 from . import black76
+from .confidence import DEFAULT_CONFIDENCE
 from .distribution import (
     Distribution,
     prob_above,
@@ -36,7 +37,8 @@ from .findings import NOTE, WARNING, ChainTriageError, Finding
 from .implied_vol import ABOVE_UPPER_BOUND, BELOW_INTRINSIC, STATUS_REASONS, implied_vol
 from .parity_forward import ForwardEstimate, implied_forwards
 from .smile_batch import fit_smiles
-from .smile_fit import Smile
+from .quote_bands import vol_outside
+from .smile_fit import PRICE_UNCERTAINTY_FLOOR, Smile
 from .snapshot import Snapshot
 from .svi import SviParams, SviSlices
 from .time_to_expiry import (
@@ -61,7 +63,7 @@ EXPIRY_TABLE_COLUMNS = [
     "underlying", "expiry", "t_years", "trading_days", "calendar_days",
     "forward", "discount", "forward_method", "atm_iv",
     "range_low", "range_high", "range_low_smile", "range_high_smile",
-    "fit_rmse", "fit_method", "arbitrage_free", "contracts", "findings",
+    "fit_rmse", "fit_method", "arbitrage_free", "arbitrage_note", "contracts", "findings",
 ]
 
 
@@ -70,14 +72,15 @@ class PipelineSettings:
     """Choices that change the numbers.
 
     ``basis``: '252', '250' (trading days) or '365' (calendar ACT/365).
-    ``confidence``: two-sided level of the ranges, in (0, 1).
+    ``confidence``: two-sided level of the ranges, in (0, 1); default the one-sigma
+    level 0.682689... (``confidence.DEFAULT_CONFIDENCE``, shown as 68.27%).
     ``use_file_iv``: take the file's ``iv`` column instead of solving from mids.
     ``wide_spread``: spread / mid above which a contract is flagged 'wide'.
     ``thin_open_interest``: open interest below which a contract is flagged 'thin'.
     """
 
     basis: str = "252"
-    confidence: float = 0.68
+    confidence: float = DEFAULT_CONFIDENCE
     use_file_iv: bool = False
     wide_spread: float = 0.25
     thin_open_interest: float = 10.0
@@ -387,22 +390,26 @@ def annotate(snapshot: Snapshot, settings: PipelineSettings | None = None, touch
                          underlying, labels, expiry_findings)
     iv_status_ok = np.isfinite(iv)
 
-    # 4. One smile per expiry, all expiries fitted together.
+    # 4. One smile per expiry, all expiries fitted together, on the out-of-the-money quotes with a
+    # bid (a zero bid is an upper bound only: checked after the fit, never a point to fit).
     k_row = np.log(strike / f_row)
     live = t_exp > 0
-    fit_sel = np.flatnonzero(otm & iv_status_ok & live[exp_code])
+    with np.errstate(invalid="ignore"):
+        two_sided = np.isfinite(bid) & (bid > 0)
+    otm_live = otm & live[exp_code]
+    fit_sel = np.flatnonzero(otm_live & iv_status_ok & two_sided)
+    bound_sel = np.flatnonzero(otm_live & ~two_sided & np.isfinite(ask) & (ask > 0))
     has_quotes = np.bincount(exp_code[fit_sel], minlength=n_exp) > 0
     smiles: list = [None] * n_exp
+    band_err = np.full(n, np.nan)
     if fit_sel.size:
-        tf = t_row[fit_sel]
-        vega = black76.vega(f_row[fit_sel], strike[fit_sel], iv[fit_sel], tf, df_row[fit_sel])
-        spread = ask[fit_sel] - np.where(np.isfinite(bid[fit_sel]), bid[fit_sel], 0.0)
-        fitted = fit_smiles(k_row[fit_sel], iv[fit_sel] ** 2 * tf, t_exp,
-                            exp_code[fit_sel], vega=vega, spread=spread)
-        smiles = [fitted[i] if has_quotes[i] else None for i in range(n_exp)]
+        smiles = _fit_smiles_in_bands(fit_sel, bound_sel, k_row, iv, t_row, t_exp, f_row, df_row, strike, bid, ask,
+                                      is_call, exp_code, has_quotes, band_err, expiry_findings, underlying, labels)
 
+    band_rms = _rms_per_expiry(band_err, exp_code, n_exp)
     atm_ivs = np.full(n_exp, np.nan)
     fit_rmse = np.full(n_exp, np.nan)
+    arb_note = np.full(n_exp, "", dtype=object)
     fit_method = np.full(n_exp, "", dtype=object)
     arb_free = np.zeros(n_exp, dtype=bool)
     params = np.full((n_exp, 5), np.nan)
@@ -415,7 +422,7 @@ def annotate(snapshot: Snapshot, settings: PipelineSettings | None = None, touch
                 expiry_findings[i].append(Finding(WARNING, f"no smile for this expiry: {got}",
                                                   underlying=underlying, expiry=labels[i]))
             elif got is None:
-                expiry_findings[i].append(Finding(WARNING, "no out-of-the-money quote with an implied vol; "
+                expiry_findings[i].append(Finding(WARNING, "no out-of-the-money quote with a bid and an implied vol; "
                                                   "no smile for this expiry", underlying=underlying,
                                                   expiry=labels[i]))
             else:
@@ -425,8 +432,11 @@ def annotate(snapshot: Snapshot, settings: PipelineSettings | None = None, touch
             params[i] = smile.params.as_tuple()
             have_smile[i] = True
             fit_rmse[i] = smile.rmse_vol
+            if has_quotes[i] and np.isfinite(band_rms[i]):
+                fit_rmse[i] = band_rms[i]
             fit_method[i] = smile.method
             arb_free[i] = bool(smile.arbitrage_free)
+            arb_note[i] = _arbitrage_note(smile, forwards[i])
     slices = SviSlices(SviParams(*params.T))
     for fnd in calendar_findings([smiles[i] if have_smile[i] else None for i in range(n_exp)], t_exp, labels,
                                  underlying):
@@ -527,6 +537,7 @@ def annotate(snapshot: Snapshot, settings: PipelineSettings | None = None, touch
         "fit_rmse": fit_rmse,
         "fit_method": fit_method,
         "arbitrage_free": arb_free,
+        "arbitrage_note": arb_note,
         "contracts": counts,
         "findings": [len(f) for f in expiry_findings],
     })
@@ -555,6 +566,128 @@ def _no_vol_findings(status, contracts, order, exp_code, is_call, strike, mid, o
         expiry_findings[exp_code[j]].append(Finding(
             severity, f"{kind} {strike[j]:g}: no implied vol: {STATUS_REASONS[int(status[j])]} (mid {mid[j]:.4g})",
             file=str(file), line=int(line), underlying=underlying, expiry=labels[exp_code[j]]))
+
+
+def _fit_smiles_in_bands(fit_sel, bound_sel, k_row, iv, t_row, t_exp, f_row, df_row, strike, bid, ask, is_call,
+                         exp_code, has_quotes, band_err, expiry_findings, underlying, labels) -> list:
+    """The smile of every expiry fitted to its two-sided out-of-the-money quotes, then checked against the
+    zero-bid ones (upper bounds); fills ``band_err`` (decimal vol outside each quote's band) per row.
+
+    Weights: the quote's half spread in vol terms, floored at PRICE_UNCERTAINTY_FLOOR * DF * F * sqrt(t)
+    in price (tight quotes count by their vega) and at 0.1 vol point. An expiry whose smile lies above
+    the ask of some zero-bid quotes is fitted once more with those quotes held at their ask vol, with a
+    note; zero-bid quotes the smile still prices above their ask get a note. The error counted per
+    two-sided quote is the distance of the smile's vol outside its bid-ask band, to first order
+    (|smile vol - mid vol| less the half spread over the vega, decimal vol, 0 inside); quotes left
+    out as far off the curve and zero-bid quotes (bounds, not fitted) do not count.
+    """
+    n_exp = t_exp.size
+    tf = t_row[fit_sel]
+    vega = black76.vega(f_row[fit_sel], strike[fit_sel], iv[fit_sel], tf, df_row[fit_sel])
+    spread = ask[fit_sel] - bid[fit_sel]
+    floor = PRICE_UNCERTAINTY_FLOOR * df_row[fit_sel] * f_row[fit_sel] * np.sqrt(tf)
+    fitted = fit_smiles(k_row[fit_sel], iv[fit_sel] ** 2 * tf, t_exp, exp_code[fit_sel], vega=vega, spread=spread,
+                        price_floor=floor)
+    smiles = [fitted[i] if has_quotes[i] else None for i in range(n_exp)]
+    rows = np.concatenate([fit_sel, bound_sel])
+
+    def fitted_vol(sel):
+        """The smile's vol at each row of ``sel`` (NaN where its expiry has no smile or w <= 0)."""
+        params = np.full((n_exp, 5), np.nan)
+        for e in range(n_exp):
+            if isinstance(smiles[e], Smile):
+                params[e] = smiles[e].params.as_tuple()
+        w = np.asarray(SviSlices(SviParams(*params[exp_code[sel]].T)).total_variance(k_row[sel]), dtype=float)
+        with np.errstate(invalid="ignore"):
+            return np.sqrt(np.where(w > 0, w, np.nan) / t_row[sel])
+
+    def outside(sel):
+        """Distance of the smile's price outside each quote's band, in vol (price distance / vega)."""
+        vol = fitted_vol(sel)
+        price = black76.price(f_row[sel], strike[sel], vol, t_row[sel], df_row[sel], is_call[sel])
+        vg = black76.vega(f_row[sel], strike[sel], vol, t_row[sel], df_row[sel])
+        return vol_outside(price, vg, bid[sel], ask[sel])
+
+    def outside_fitted():
+        """:func:`outside` for the two-sided quotes, to first order from their mid vol and its vega:
+        max(|smile vol - mid vol| - (spread/2)/vega, 0) (no Black price per quote)."""
+        with np.errstate(invalid="ignore", divide="ignore"):
+            half = 0.5 * spread / np.where(vega > 0, vega, np.nan)
+            return np.maximum(np.abs(fitted_vol(fit_sel) - iv[fit_sel]) - half, 0.0)
+
+    nf = fit_sel.size
+    if bound_sel.size:
+        with np.errstate(invalid="ignore"):
+            above = outside(bound_sel) > 1e-6
+        redo = np.unique(exp_code[bound_sel[above]])
+        redo = redo[[isinstance(smiles[e], Smile) and smiles[e].method == "svi" for e in redo]] if redo.size else redo
+        if redo.size:
+            held = above & np.isin(exp_code[bound_sel], redo)
+            extra = bound_sel[held]
+            extra_iv = implied_vol(ask[extra], f_row[extra], strike[extra], t_row[extra], df_row[extra],
+                                   is_call[extra]).sigma
+            extra, extra_iv = extra[np.isfinite(extra_iv)], extra_iv[np.isfinite(extra_iv)]
+            mine = np.isin(exp_code[fit_sel], redo)
+            sel = np.concatenate([fit_sel[mine], extra])
+            target = np.concatenate([iv[fit_sel][mine], extra_iv])
+            spr = np.concatenate([spread[mine], np.zeros(extra.size)])
+            order = np.lexsort((k_row[sel], exp_code[sel]))
+            sel, target, spr = sel[order], target[order], spr[order]
+            t_s = t_row[sel]
+            local = np.searchsorted(redo, exp_code[sel])
+            refit = fit_smiles(k_row[sel], target ** 2 * t_s, t_exp[redo], local,
+                               vega=black76.vega(f_row[sel], strike[sel], target, t_s, df_row[sel]), spread=spr,
+                               price_floor=PRICE_UNCERTAINTY_FLOOR * df_row[sel] * f_row[sel] * np.sqrt(t_s))
+            for j, e in enumerate(redo):
+                n_up = int(np.count_nonzero(exp_code[extra] == e))
+                if isinstance(refit[j], Smile) and n_up:
+                    smiles[e] = refit[j]
+                    expiry_findings[e].append(Finding(
+                        NOTE, f"smile: the fit to the two-sided quotes priced {n_up} zero-bid quote(s) above "
+                              "their ask; fitted again with those held at their ask", underlying=underlying,
+                        expiry=labels[e]))
+    dist = np.concatenate([outside_fitted(), outside(bound_sel)])
+    if bound_sel.size:  # zero-bid quotes still priced above their ask: said, not counted in the fit error
+        over = dist[nf:]
+        with np.errstate(invalid="ignore"):
+            bad = over > 1e-4
+        for e in np.unique(exp_code[bound_sel[bad]]):
+            mine = bad & (exp_code[bound_sel] == e)
+            expiry_findings[e].append(Finding(
+                NOTE, f"smile: {int(mine.sum())} zero-bid quote(s) lie below the smile (their ask is under the "
+                      f"smile's price, by up to {100 * float(over[mine].max()):.2f} vol points); a zero bid is "
+                      "an upper bound only, not fitted", underlying=underlying, expiry=labels[e]))
+    counts = np.zeros(rows.size, dtype=bool)
+    counts[:nf] = True
+    for e in np.unique(exp_code[fit_sel]):
+        sm = smiles[e]
+        if isinstance(sm, Smile) and sm.left_out_k:
+            counts[:nf] &= ~((exp_code[fit_sel] == e) & np.isin(k_row[fit_sel], np.asarray(sm.left_out_k)))
+    band_err[rows[counts]] = dist[counts]
+    return smiles
+
+
+def _rms_per_expiry(err: np.ndarray, exp_code: np.ndarray, n_exp: int) -> np.ndarray:
+    """Root mean square of the finite values of ``err`` per expiry (NaN where there is none)."""
+    ok = np.isfinite(err)
+    n = np.bincount(exp_code[ok], minlength=n_exp)
+    ss = np.bincount(exp_code[ok], weights=err[ok] ** 2, minlength=n_exp)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.where(n > 0, np.sqrt(ss / np.maximum(n, 1)), np.nan)
+
+
+def _arbitrage_note(smile: Smile, forward: float) -> str:
+    """'' for a smile free of butterfly arbitrage, else where its density is negative and what that means."""
+    if smile.arbitrage_free:
+        return ""
+    if smile.negative_intervals:
+        lo = min(a for a, _ in smile.negative_intervals)
+        hi = max(b for _, b in smile.negative_intervals)
+        where = f"strikes {forward * np.exp(lo):.6g} to {forward * np.exp(hi):.6g}"
+    else:
+        where = "part of the range"
+    return (f"butterfly arbitrage: negative density and P(beyond) not monotone between {where} "
+            f"(minimum g {smile.min_g:.3g})")
 
 
 def _atm_vols(slices: SviSlices, t: np.ndarray) -> np.ndarray:

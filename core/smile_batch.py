@@ -16,7 +16,7 @@ quotes of all expiries sit in one flat array grouped by expiry, and
   expiries at once.
 
 An expiry that needs one of the rarer branches - fewer than 5 usable quotes,
-quotes not in increasing k, a non-finite or rejected fit (flat fallback), a
+quotes not in non-decreasing k, a non-finite or rejected fit (flat fallback), a
 failed outlier re-fit, butterfly arbitrage (with its penalised re-fit), or
 a polish still moving after ``MAX_ITER`` steps (an optimum at the edge of
 the box, approached ever more slowly) - is handed whole to ``fit_smile``, so
@@ -39,6 +39,7 @@ import numpy as np
 from . import svi
 from .findings import ChainTriageError
 from .smile_fit import (
+    CHECK_REACH_SD,
     _LEE_RATIO_MAX,
     _RHO_MAX,
     MIN_QUOTES_SVI,
@@ -49,6 +50,7 @@ from .smile_fit import (
     _note_summary,
     _note_too_many_outliers,
     _note_unusable,
+    _sigma_floor,
     fit_smile,
 )
 from .svi import SviParams
@@ -198,8 +200,10 @@ def box_bounds(k, w, starts):
     """(lo, hi), each (E, 5), of (v, s, rho, m, sigma) per expiry, as ``smile_fit._bounds``."""
     kmin, kmax = _segmin(k, starts), _segmax(k, starts)
     span = np.maximum(kmax - kmin, 1e-3)
+    ends = np.append(np.asarray(starts)[1:], k.size)
+    floor = _sigma_floor(span, _atm_levels(k, w, np.asarray(starts), ends))
     lo = np.stack([1e-4 * _segmin(w, starts), np.zeros_like(span), np.full_like(span, -_RHO_MAX),
-                   kmin - span, np.maximum(2e-3 * span, 1e-5)], axis=1)
+                   kmin - span, floor], axis=1)
     hi = np.stack([2.0 * _segmax(w, starts), np.full_like(span, _LEE_RATIO_MAX), np.full_like(span, _RHO_MAX),
                    kmax + span, 10.0 * span], axis=1)
     return lo, hi
@@ -410,7 +414,8 @@ def _vol_errors(p_q: np.ndarray, k, w, t_q):
 
 
 def _atm_levels(k, w, starts, ends) -> np.ndarray:
-    """smile_fit._atm_level per group (k ascending within each group)."""
+    """smile_fit._atm_level per group (k non-decreasing within each group; with repeated k the last
+    one at or below 0 is used, as np.interp does)."""
     n_le = _segsum((k <= 0.0).astype(np.int64), starts)
     j = starts + n_le - 1
     inside = (k[starts] <= 0.0) & (k[ends - 1] >= 0.0)
@@ -452,15 +457,16 @@ def _butterfly_batch(p, kmin, kmax, w0):
     fit_smile, which reports the intervals).
     """
     n = p.shape[0]
-    reach = 8.0 * np.sqrt(np.maximum(w0, 1e-12))
+    reach = CHECK_REACH_SD * np.sqrt(np.maximum(w0, 1e-12))
     lo = np.minimum(kmin, -reach)
     hi = np.maximum(kmax, reach)
     span = hi - lo
     lo, hi = lo - 0.1 * span, hi + 0.1 * span
     base = np.linspace(lo, hi, 801, axis=1)
+    quoted = np.linspace(kmin, kmax, 201, axis=1)
     vert = p[:, 3, None] + p[:, 4, None] * np.linspace(-8.0, 8.0, 161)[None, :]
     keep = (vert > lo[:, None]) & (vert < hi[:, None]) & (p[:, 1] > 0)[:, None]
-    grid = np.sort(np.concatenate([base, np.where(keep, vert, np.nan)], axis=1), axis=1)
+    grid = np.sort(np.concatenate([base, quoted, np.where(keep, vert, np.nan)], axis=1), axis=1)
     dup = np.zeros(grid.shape, dtype=bool)
     dup[:, 1:] = grid[:, 1:] == grid[:, :-1]
     if dup.any():
@@ -502,11 +508,11 @@ def _butterfly_batch(p, kmin, kmax, w0):
 # the batched fit
 
 
-def fit_smiles(k, total_var, t, group, *, vega=None, spread=None, weights=None,
+def fit_smiles(k, total_var, t, group, *, vega=None, spread=None, weights=None, price_floor=None,
                arbitrage_refit: bool = True, outlier_check: bool = True) -> list[Smile | ChainTriageError]:
     """:func:`smile_fit.fit_smile` for many expiries at once; one result per expiry.
 
-    ``k``, ``total_var`` (and ``vega``, ``spread`` or ``weights``): quotes of
+    ``k``, ``total_var`` (and ``vega``, ``spread``, ``price_floor`` or ``weights``): quotes of
     all expiries in one flat array, with ``group`` the expiry index of each
     quote (0..E-1, non-decreasing); ``t``: years per expiry, length E. The
     result for expiry i is what ``fit_smile`` returns for that expiry's quotes,
@@ -527,6 +533,7 @@ def fit_smiles(k, total_var, t, group, *, vega=None, spread=None, weights=None,
     vega_a = None if vega is None else np.broadcast_to(np.asarray(vega, dtype=float), k.shape)
     spread_a = None if spread is None else np.broadcast_to(np.asarray(spread, dtype=float), k.shape)
     weights_a = None if weights is None else np.broadcast_to(np.asarray(weights, dtype=float), k.shape)
+    floor_a = None if price_floor is None else np.broadcast_to(np.asarray(price_floor, dtype=float), k.shape)
 
     results: list[Smile | ChainTriageError | None] = [None] * n_exp
 
@@ -536,6 +543,7 @@ def fit_smiles(k, total_var, t, group, *, vega=None, spread=None, weights=None,
             results[i] = fit_smile(
                 k[sl], w[sl], None if weights_a is None else weights_a[sl], float(t[i]),
                 vega=None if vega_a is None else vega_a[sl], spread=None if spread_a is None else spread_a[sl],
+                price_floor=None if floor_a is None else floor_a[sl],
                 arbitrage_refit=arbitrage_refit, outlier_check=outlier_check)
         except ChainTriageError as exc:
             results[i] = exc
@@ -552,7 +560,8 @@ def fit_smiles(k, total_var, t, group, *, vega=None, spread=None, weights=None,
             else:
                 okw = (np.isfinite(iv) & (iv > 0) & np.isfinite(vega_a) & (vega_a > 0)
                        & np.isfinite(spread_a) & (spread_a >= 0))
-                unc = np.maximum(0.5 * spread_a / vega_a, VOL_UNCERTAINTY_FLOOR)
+                half = 0.5 * spread_a if floor_a is None else np.maximum(0.5 * spread_a, floor_a)
+                unc = np.maximum(half / vega_a, VOL_UNCERTAINTY_FLOOR)
             wt = np.where(okw, 1.0 / (iv * iv * t_q * unc * unc), 0.0)
             pos = wt > 0
             n_pos = np.bincount(group, weights=pos, minlength=n_exp)
@@ -563,10 +572,11 @@ def fit_smiles(k, total_var, t, group, *, vega=None, spread=None, weights=None,
         ok = np.isfinite(k) & np.isfinite(w) & (w > 0) & np.isfinite(wt) & (wt > 0)
     n_all = np.diff(bounds)
     n_ok = np.bincount(group[ok], minlength=n_exp)
-    # ascending, distinct k within each expiry keeps the batched checks simple; anything else -> fit_smile
+    # k in non-decreasing order within each expiry keeps the batched checks simple (repeated strikes are
+    # fine: a big chain often lists one strike twice); anything else -> fit_smile
     kk_ok = k[ok]
     same_group = group[ok][1:] == group[ok][:-1]
-    not_ascending = np.bincount(group[ok][1:][same_group & ~(kk_ok[1:] > kk_ok[:-1])], minlength=n_exp) > 0
+    not_ascending = np.bincount(group[ok][1:][same_group & ~(kk_ok[1:] >= kk_ok[:-1])], minlength=n_exp) > 0
     fast = t_ok & (n_ok >= MIN_QUOTES_SVI) & ~not_ascending
     for i in np.flatnonzero(~fast):
         reference(int(i))

@@ -1,15 +1,18 @@
 """Fit one expiry's smile: raw SVI on total variance, with a checked fallback.
 
 Input is the out-of-the-money side of one expiry (puts below the forward,
-calls above): log-moneyness ``k = ln(K/F)``, market total variance
+calls above; the pipeline passes only quotes with a bid - a zero bid is an
+upper bound, see ``quote_bands``): log-moneyness ``k = ln(K/F)``, market total variance
 ``w = iv**2 * t`` (iv decimal, t in years on the basis of iv) and weights.
 
 Weights multiply squared total-variance residuals (only their ratios
 matter). The recommended weights, built by :func:`quote_weights` when you
 pass ``vega`` and ``spread`` instead of ``weights``, make the fit measure each
 residual in units of the quote's own vol uncertainty:
-``dvol_i = (ask - bid)/2 / vega_i`` (the half spread in vol terms, floored at
-0.1 vol point) and, since ``dw = 2*iv*t*dvol``,
+``dvol_i = max((ask - bid)/2, price_floor) / vega_i`` (the half spread in vol
+terms, the half spread floored at ``price_floor`` in price - the pipeline
+passes PRICE_UNCERTAINTY_FLOOR * DF * F * sqrt(t), so tight quotes count by
+their vega - and dvol floored at 0.1 vol point) and, since ``dw = 2*iv*t*dvol``,
 ``weight_i = 1 / (iv_i**2 * t * dvol_i**2)``. With no vega or spread the
 weights are ``1/iv_i**2``: every quote counts the same in vol terms.
 
@@ -21,8 +24,9 @@ Jacobian) polishes all five parameters in a reparametrisation where every
 constraint is a box bound, each box mapped onto the real line by a logistic
 function: minimum total variance ``v`` in [1e-4 min w, 2 max w], Lee ratio
 ``s = b*(1+|rho|)/2`` in [0, 0.999] (wing slopes below 2),
-``|rho| <= 0.999``, m within one quoted k span of the quotes, sigma in
-[0.002, 10] quoted k spans. Every fitted slice is therefore a valid raw SVI
+``|rho| <= 0.999``, m within one quoted k span of the quotes, sigma from
+max(0.002 quoted k spans, 0.2 at-the-money sds sqrt(w(0))) (no kinked vertex)
+to 10 quoted k spans. Every fitted slice is therefore a valid raw SVI
 within Lee's bound.
 
 After the fit: one pass of outlier handling (a quote more than
@@ -63,6 +67,18 @@ OUTLIER_MIN_VOL = 0.01
 #: A penalised (arbitrage-free) re-fit is kept only if its RMSE is at most
 #: max(this, the plain RMSE) above the plain fit's (decimal vol).
 ARBITRAGE_REFIT_MAX_COST = 0.01
+#: Half-width of the butterfly check in standard deviations sqrt(w(0)): it covers every k where
+#: the distribution is drawn (``distribution.terminal_distribution`` spans at most 4 x 6 of them),
+#: so a smile called arbitrage-free never shows a negative density or a falling P(beyond).
+CHECK_REACH_SD = 24.0
+#: Floor on the SVI sigma (the rounding of the vertex) in at-the-money standard deviations
+#: sqrt(w(0)): without it a fit to few or noisy quotes can put a kink (sigma -> 0) between two
+#: strikes, a jump in w'(k) and so in P(beyond). Smooth stochastic-volatility smiles fit with
+#: sigma of 0.35 to 2 of these (Heston chains, tests/bench/bench_smile_accuracy.py).
+SIGMA_FLOOR_SD = 0.2
+#: Smallest price uncertainty of a quote in the pipeline's weights, as a fraction of DF * F * sqrt(t)
+#: (about 0.3% of the at-the-money straddle at 20% vol): tight quotes then count by their vega.
+PRICE_UNCERTAINTY_FLOOR = 5e-4
 _RHO_MAX = 0.999
 _LEE_RATIO_MAX = 0.999
 
@@ -170,15 +186,19 @@ class Smile:
 # weights
 
 
-def quote_weights(iv, t, vega=None, spread=None, vol_floor: float = VOL_UNCERTAINTY_FLOOR):
+def quote_weights(iv, t, vega=None, spread=None, vol_floor: float = VOL_UNCERTAINTY_FLOOR, price_floor=None):
     """Recommended fit weights (relative, mean 1 over the positive ones).
 
     ``iv``: implied vol, decimal; ``t``: years; ``vega``: dPrice/dvol per 1.00
-    of vol (as black76.vega); ``spread``: ask - bid in price units. The
-    quote's vol uncertainty is max(spread/2/vega, vol_floor), or 1 when vega
-    or spread is not given; weight = 1/(iv^2 * t * uncertainty^2). A quote
-    with a non-finite or non-positive iv or vega, or a negative or non-finite
-    spread, gets weight 0 (``fit_smile`` leaves it out and says so).
+    of vol (as black76.vega); ``spread``: ask - bid in price units;
+    ``price_floor``: the smallest price uncertainty of a quote (price units,
+    scalar or per quote; None = 0). The quote's vol uncertainty is
+    max(max(spread/2, price_floor)/vega, vol_floor), or 1 when vega or spread
+    is not given; weight = 1/(iv^2 * t * uncertainty^2). With a price floor
+    a tight quote counts by its vega (its price error), so the quotes near
+    the money, which fix the at-the-money level and slope, count most. A
+    quote with a non-finite or non-positive iv or vega, or a negative or
+    non-finite spread, gets weight 0 (``fit_smile`` leaves it out and says so).
     """
     iv = np.asarray(iv, dtype=float)
     if vega is None or spread is None:
@@ -188,8 +208,9 @@ def quote_weights(iv, t, vega=None, spread=None, vol_floor: float = VOL_UNCERTAI
         vega = np.broadcast_to(np.asarray(vega, dtype=float), iv.shape)
         spread = np.broadcast_to(np.asarray(spread, dtype=float), iv.shape)
         ok = np.isfinite(iv) & (iv > 0) & np.isfinite(vega) & (vega > 0) & np.isfinite(spread) & (spread >= 0)
+        half = 0.5 * spread if price_floor is None else np.maximum(0.5 * spread, price_floor)
         with np.errstate(divide="ignore", invalid="ignore"):
-            unc = np.maximum(0.5 * spread / vega, vol_floor)
+            unc = np.maximum(half / vega, vol_floor)
     with np.errstate(divide="ignore", invalid="ignore"):
         wt = np.where(ok, 1.0 / (iv * iv * float(t) * unc * unc), 0.0)
     pos = wt > 0
@@ -232,10 +253,17 @@ def _model_and_jac(x, k):
     return w, jac
 
 
+def _sigma_floor(span, w0):
+    """Lowest SVI sigma allowed: SIGMA_FLOOR_SD at-the-money sds sqrt(w0), at least 0.002 quoted k spans
+    (and 1e-5), at most 5 spans (half the upper bound)."""
+    floor = np.maximum(2e-3 * span, np.minimum(SIGMA_FLOOR_SD * np.sqrt(np.maximum(w0, 0.0)), 5.0 * span))
+    return np.maximum(floor, 1e-5)
+
+
 def _bounds(k, w):
     kmin, kmax = float(k.min()), float(k.max())
     span = max(kmax - kmin, 1e-3)
-    lo = np.array([1e-4 * float(w.min()), 0.0, -_RHO_MAX, kmin - span, max(2e-3 * span, 1e-5)])
+    lo = np.array([1e-4 * float(w.min()), 0.0, -_RHO_MAX, kmin - span, float(_sigma_floor(span, _atm_level(k, w)))])
     hi = np.array([2.0 * float(w.max()), _LEE_RATIO_MAX, _RHO_MAX, kmax + span, 10.0 * span])
     return lo, hi
 
@@ -365,12 +393,13 @@ def _atm_level(k, w) -> float:
 
 
 def _check_grid(k, w0, p: SviParams) -> np.ndarray:
-    reach = 8.0 * np.sqrt(max(w0, 1e-12))
+    """k grid of the butterfly check: the quoted range and +/- CHECK_REACH_SD sds of w0, a dense patch on the quotes and the vertex."""
+    reach = CHECK_REACH_SD * np.sqrt(max(w0, 1e-12))
     lo = min(float(k.min()), -reach)
     hi = max(float(k.max()), reach)
     span = hi - lo
     lo, hi = lo - 0.1 * span, hi + 0.1 * span
-    parts = [np.linspace(lo, hi, 801)]
+    parts = [np.linspace(lo, hi, 801), np.linspace(float(k.min()), float(k.max()), 201)]
     if p.b > 0:
         vert = p.m + p.sigma * np.linspace(-8.0, 8.0, 161)
         parts.append(vert[(vert > lo) & (vert < hi)])
@@ -433,14 +462,15 @@ def _note_summary(k, rmse: float, max_err: float) -> str:
             f"RMSE {100 * rmse:.3f} vol points, largest error {100 * max_err:.3f}.")
 
 
-def fit_smile(k, total_var, weights=None, t=None, *, vega=None, spread=None,
+def fit_smile(k, total_var, weights=None, t=None, *, vega=None, spread=None, price_floor=None,
               arbitrage_refit: bool = True, outlier_check: bool = True) -> Smile:
     """Fit raw SVI to one expiry's out-of-the-money quotes.
 
     ``k``: ln(K/F) per quote; ``total_var``: market iv**2 * t per quote
     (dimensionless); ``weights``: relative weights on squared total-variance
     residuals, or None to build them with :func:`quote_weights` from ``vega``
-    (per 1.00 vol) and ``spread`` (ask - bid), or 1/iv^2 without them;
+    (per 1.00 vol), ``spread`` (ask - bid) and ``price_floor`` (smallest price
+    uncertainty, price units), or 1/iv^2 without them;
     ``t``: years (> 0). ``arbitrage_refit``: try a penalised re-fit when the
     plain fit has g < 0. ``outlier_check``: leave out at most one in ten
     quotes that sit far off the curve, with a note.
@@ -464,7 +494,7 @@ def fit_smile(k, total_var, weights=None, t=None, *, vega=None, spread=None,
     if weights is None:
         with np.errstate(invalid="ignore"):
             iv = np.sqrt(np.where(w > 0, w, np.nan) / t)
-        wt = quote_weights(iv, t, vega, spread)
+        wt = quote_weights(iv, t, vega, spread, price_floor=price_floor)
     else:
         wt = np.broadcast_to(np.asarray(weights, dtype=float), k.shape).copy()
     notes: list[str] = []
@@ -520,7 +550,8 @@ def fit_smile(k, total_var, weights=None, t=None, *, vega=None, spread=None,
     min_g_plain = min_g
     if not free and arbitrage_refit:
         where = ", ".join(f"[{lo:.4f}, {hi:.4f}]" for lo, hi in intervals)
-        pen_k = np.linspace(grid[0], grid[-1], 241)
+        pen_k = np.unique(np.concatenate([np.linspace(grid[0], grid[-1], 241),
+                                          np.linspace(float(k.min()), float(k.max()), 121)]))
         base = float(np.median(w)) * np.sqrt(k.size / pen_k.size)
         starts = [p]
         safe = _grid_start(k, w, wt, g_check_k=pen_k)

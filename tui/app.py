@@ -19,6 +19,7 @@ from typing import TYPE_CHECKING, Any
 from textual.app import App
 from textual.screen import Screen
 
+from chaintriage.core.confidence import DEFAULT_CONFIDENCE
 from chaintriage.core.findings import ChainTriageError
 from chaintriage.tui import formatting as fm
 from chaintriage.tui import snapshot_loading
@@ -40,8 +41,9 @@ if TYPE_CHECKING:  # pragma: no cover
 
 #: Exit status when nothing could be shown.
 EXIT_NOTHING = 2
-#: The command line's --confidence default: any other value given there is where the range starts.
-CLI_DEFAULT_CONFIDENCE = 0.68
+#: The command line's --confidence default (the same constant as core's and the app's): any
+#: other value given there is where the range starts.
+CLI_DEFAULT_CONFIDENCE = DEFAULT_CONFIDENCE
 #: Seconds of loading before the moving loading indicator appears (the message is there at once).
 SPINNER_DELAY = 0.4
 

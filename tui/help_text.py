@@ -130,9 +130,13 @@ AREAS: tuple[tuple[str, str], ...] = (
                  "it is, how many findings its data has, and the shortlist's size"),
     ("expiry lines", "the expiry and its place in the list; trading and calendar days left; the forward "
                      "(from put-call parity); the at-the-money IV; the range at the chosen confidence, "
-                     "plain F x exp(+/- z x ATM IV x sqrt(T)) and from the smile's quantiles; the smile "
-                     "fit's error in vol points and whether it is free of butterfly arbitrage; this "
-                     "expiry's findings"),
+                     "plain F x exp(-ATM IV^2 x T/2 +/- z x ATM IV x sqrt(T)) (the central interval of the "
+                     "one-vol lognormal) and from the smile's quantiles; the smile "
+                     "fit's error in vol points (root mean square distance outside the bid-ask bands of "
+                     "the quotes with a bid; 0 when it runs inside every band; zero-bid quotes are upper "
+                     "bounds, not fitted) and whether it is free of butterfly arbitrage (if not, the "
+                     "density is negative and P(beyond) not monotone somewhere; the plot says so too); "
+                     "this expiry's findings"),
     ("filter line", "the filter in force and how many strikes it leaves; on a narrow terminal, the "
                     "columns and the plot left out for lack of width"),
     ("ladder", "calls on the left, the strike in the middle, puts on the right; one row per strike"),

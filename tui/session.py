@@ -16,6 +16,7 @@ from typing import Any, Iterable, Sequence
 import numpy as np
 import pandas as pd
 
+from chaintriage.core.confidence import DEFAULT_CONFIDENCE
 from chaintriage.core.distribution import range_flat, range_smile
 from chaintriage.core.findings import ChainTriageError, Finding
 from chaintriage.core.pipeline import AnnotatedSnapshot
@@ -23,7 +24,7 @@ from chaintriage.core.pipeline import AnnotatedSnapshot
 from . import formatting as fm
 
 #: The confidence levels the range cycles through (two-sided, decimals).
-CONFIDENCE_LEVELS: tuple[float, ...] = (0.6827, 0.80, 0.90, 0.95, 0.99)
+CONFIDENCE_LEVELS: tuple[float, ...] = (DEFAULT_CONFIDENCE, 0.80, 0.90, 0.95, 0.99)
 
 
 def step_confidence(current: float, step: int) -> float:
@@ -40,7 +41,7 @@ def step_confidence(current: float, step: int) -> float:
 
 
 def fmt_confidence(c: float) -> str:
-    """0.6827 -> "68.27%", 0.9 -> "90%"."""
+    """0.682689 -> "68.27%", 0.9 -> "90%"."""
     text = f"{100 * c:.2f}".rstrip("0").rstrip(".")
     return text + "%"
 

@@ -17,6 +17,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
+from chaintriage.core.confidence import DEFAULT_CONFIDENCE
 from chaintriage.core.findings import ChainTriageError
 
 from .files import write_text_atomic
@@ -30,12 +31,12 @@ _BARE_KEY = re.compile(r"^[A-Za-z0-9_-]+$")
 class Settings:
     """Preferences: ``theme`` (name), ``ascii_only`` (no Unicode drawing), ``columns``
     (grid column keys per side, empty = the grid's default), ``confidence`` (range
-    confidence as a decimal, e.g. 0.6827), and ``extra`` keys from newer versions."""
+    confidence as a decimal, e.g. 0.9; default the one-sigma level 0.682689...), and ``extra`` keys from newer versions."""
 
     theme: str = DEFAULT_THEME
     ascii_only: bool = False
     columns: list[str] = field(default_factory=list)
-    confidence: float = 0.6827
+    confidence: float = DEFAULT_CONFIDENCE
     extra: dict[str, Any] = field(default_factory=dict)
 
 
@@ -121,7 +122,8 @@ def parse_settings(text: str, source: str = SETTINGS_FILE) -> tuple[Settings, li
         notices.append(f"{source}: 'columns' should be a list of names; using the default columns")
     conf = data.pop("confidence", defaults.confidence)
     if isinstance(conf, (int, float)) and not isinstance(conf, bool) and 0.0 < float(conf) < 1.0:
-        s.confidence = float(conf)
+        # 0.6827 saved by older versions means the one-sigma level
+        s.confidence = DEFAULT_CONFIDENCE if abs(float(conf) - DEFAULT_CONFIDENCE) < 5e-5 else float(conf)
     else:
         notices.append(f"{source}: 'confidence' should be a decimal between 0 and 1; using {defaults.confidence}")
     s.extra = {k: v for k, v in data.items() if _toml_value(v) is not None}

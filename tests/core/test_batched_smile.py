@@ -294,3 +294,24 @@ def test_given_weights_and_switches_are_passed_through():
         assert cost[0] <= cost[1] * (1.0 + 1e-12)
     assert got[-1].arbitrage_free is False and not got[-1].penalised  # Vogt slice kept as fitted [V]
     assert got[-1].min_g == pytest.approx(-0.032864, abs=1e-6)
+
+
+def test_repeated_strikes_stay_on_the_batched_path(monkeypatch):
+    """A big expiry that lists some strikes twice (k non-decreasing, not increasing) is fitted by the
+    batched polish, not handed to the single-expiry fit, and lands on the same smile as that fit [D]."""
+    from chaintriage.core import smile_batch
+
+    p = SviParams(a=0.01, b=0.1, rho=-0.4, m=0.02, sigma=0.15)
+    k = np.round(np.linspace(-0.4, 0.3, 3000), 3)  # rounding repeats many k
+    assert np.any(np.diff(k) == 0)
+    w = svi.total_variance(p, k)
+    ref = fit_smile(k, w, None, 0.5)
+
+    def refuse(*args, **kwargs):
+        raise AssertionError("handed to fit_smile")
+
+    monkeypatch.setattr(smile_batch, "fit_smile", refuse)
+    got = smile_batch.fit_smiles(k, w, np.array([0.5]), np.zeros(k.size, dtype=np.int64))[0]
+    assert got.method == "svi" and got.arbitrage_free
+    kk = np.linspace(-0.4, 0.3, 50)
+    np.testing.assert_allclose(got.total_variance(kk), ref.total_variance(kk), rtol=1e-8)

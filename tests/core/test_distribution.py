@@ -17,7 +17,7 @@ import QuantLib as ql
 from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
 from scipy.integrate import quad
-from scipy.stats import norm
+from scipy.stats import lognorm, norm
 from vollib.black import black as vollib_black
 
 from chaintriage.core import distribution as dist
@@ -363,21 +363,46 @@ def test_quantile_cdf_round_trip():
 def test_range_flat_median_centred_matches_reference_section9():
     # [C] REFERENCE §9: F=100, sigma=.25, T=.25 -> [87.5627, 112.4333] at 68.27% and [77.6617, 126.7673] at 95%
     # (the 68.27% row uses c = 0.6827, z = 1.000022 of REFERENCE §2; with z exactly 1 the low end is 87.5629)
-    lo, hi = dist.range_flat(100.0, 0.25, 0.25, 0.6827, centre="median")
+    lo, hi = dist.range_flat(100.0, 0.25, 0.25, 0.6827)  # the default centre is this central interval
     assert (float(lo), float(hi)) == pytest.approx((87.5627, 112.4333), abs=5e-5)
     lo, hi = dist.range_flat(100.0, 0.25, 0.25, 0.95, centre="median")
     assert (float(lo), float(hi)) == pytest.approx((77.6617, 126.7673), abs=5e-5)
+    # the default confidence is the one-sigma level, z = 1 exactly [L] REFERENCE §2 (0.682689492 -> z 1)
+    lo, hi = dist.range_flat(100.0, 0.25, 0.25)
+    assert (float(lo), float(hi)) == pytest.approx((100 * np.exp(-0.0078125 - 0.125), 100 * np.exp(-0.0078125 + 0.125)),
+                                                   rel=1e-12)
+    assert float(lo) == pytest.approx(87.5629, abs=5e-5)
+
+
+def test_default_confidence_is_the_one_sigma_level():
+    # [L] REFERENCE §2: N(1) - N(-1) = 0.6826895 (scipy); the app's label 68.27%
+    from chaintriage.core.confidence import DEFAULT_CONFIDENCE
+
+    assert DEFAULT_CONFIDENCE == pytest.approx(norm.cdf(1.0) - norm.cdf(-1.0), abs=1e-15)
+    assert DEFAULT_CONFIDENCE == pytest.approx(0.6826895, abs=1e-7)
+
+
+@pytest.mark.parametrize("f, vol, t, conf", [(100.0, 0.45, 1.0, 0.6827), (285.0, 0.3, 0.5, 0.95), (50.0, 0.8, 2.0, 0.9)])
+def test_plain_range_holds_its_confidence_under_the_lognormal_with_mean_f(f, vol, t, conf):
+    # [L] scipy.stats.lognorm: the one-vol risk-neutral lognormal (mean F, log-sd vol sqrt T) puts (1 - c)/2
+    # below the plain range and (1 - c)/2 above it. The old band F exp(-/+ z s) left 22% / 11% for 45% vol, 1 year.
+    s = vol * np.sqrt(t)
+    ln = lognorm(s, scale=f * np.exp(-0.5 * s * s))
+    assert ln.mean() == pytest.approx(f, rel=1e-12)
+    lo, hi = dist.range_flat(f, vol, t, conf)
+    assert ln.cdf(float(lo)) == pytest.approx(0.5 * (1 - conf), abs=1e-12)
+    assert ln.sf(float(hi)) == pytest.approx(0.5 * (1 - conf), abs=1e-12)
 
 
 @pytest.mark.parametrize("conf, z", [(0.6827, 1.000022), (0.80, 1.281552), (0.90, 1.644854), (0.95, 1.959964), (0.99, 2.575829)])
-def test_range_flat_forward_centred_uses_two_sided_z(conf, z):
-    # [L] REFERENCE §2 two-sided z (scipy); forward-centred band F exp(-/+ z sigma sqrt T) of the product spec
+def test_range_flat_uses_two_sided_z(conf, z):
+    # [L] REFERENCE §2 two-sided z (scipy); centre='forward' is the band F exp(-/+ z sigma sqrt T) (the sigma marks)
     f, vol, t = 100.0, 0.25, 0.25
-    lo, hi = dist.range_flat(f, vol, t, conf)
+    lo, hi = dist.range_flat(f, vol, t, conf, centre="forward")
     assert np.log(hi / f) / (vol * np.sqrt(t)) == pytest.approx(z, abs=1e-6)
     assert np.log(f / lo) / (vol * np.sqrt(t)) == pytest.approx(z, abs=1e-6)
-    # [D] the median-centred band is the same band shifted by exp(-sigma^2 T/2)
-    mlo, mhi = dist.range_flat(f, vol, t, conf, centre="median")
+    # [D] the default (median-centred) band is the same band shifted by exp(-sigma^2 T/2)
+    mlo, mhi = dist.range_flat(f, vol, t, conf)
     assert float(mlo) == pytest.approx(float(lo) * np.exp(-0.5 * vol * vol * t), rel=1e-14)
     assert float(mhi) == pytest.approx(float(hi) * np.exp(-0.5 * vol * vol * t), rel=1e-14)
 

@@ -3,8 +3,10 @@
 Values: REFERENCE.md §2 (scipy 1.17.1 norm.cdf/ppf, QuantLib's
 CumulativeNormalDistribution agreeing to 1e-15 [L]); the empirical
 68-95-99.7 rule (any statistics text, e.g. Hull's normal tables [C]).
-The flat digital P(S_T > K) = N(d2) and the plain range F exp(-/+ z sigma sqrt T)
-must reproduce them when the strike or confidence is chosen to hit a table entry.
+The flat digital P(S_T > K) = N(d2) and the plain range
+F exp(-sigma^2 T/2 -/+ z sigma sqrt T) (REFERENCE.md §9, the lognormal's central
+interval) must reproduce them when the strike or confidence is chosen to hit a
+table entry: ln(M/low)/S = ln(high/M)/S = z about the median M = F exp(-S^2/2).
 """
 
 from __future__ import annotations
@@ -16,6 +18,7 @@ from chaintriage.core.distribution import prob_above_flat, range_flat
 
 F, SIGMA, T = 100.0, 0.2, 0.25
 S = SIGMA * np.sqrt(T)
+M = F * np.exp(-0.5 * S * S)  # the lognormal's median, centre of the plain range
 
 # x -> N(x), REFERENCE.md §2 (tol 1e-6 against the exact values).
 TABLE = {1.0: 0.841345, 1.28: 0.899727, 1.645: 0.950015, 1.96: 0.975002, 2.0: 0.977250,
@@ -35,8 +38,8 @@ def test_flat_digital_reproduces_the_normal_table(x, nx):
 def test_empirical_rule_confidence_gives_whole_sigmas(confidence, z):
     """68.27% / 95.45% / 99.73% are +/- 1, 2, 3 sigmas (the 68-95-99.7 rule [C], REFERENCE.md §2)."""
     low, high = range_flat(F, SIGMA, T, confidence)
-    assert np.log(F / low) / S == pytest.approx(z, abs=1e-6)
-    assert np.log(high / F) / S == pytest.approx(z, abs=1e-6)
+    assert np.log(M / low) / S == pytest.approx(z, abs=1e-6)
+    assert np.log(high / M) / S == pytest.approx(z, abs=1e-6)
 
 
 @pytest.mark.parametrize("confidence, z", [(0.80, 1.281552), (0.90, 1.644854), (0.95, 1.959964),
@@ -44,4 +47,4 @@ def test_empirical_rule_confidence_gives_whole_sigmas(confidence, z):
 def test_two_sided_z_for_common_levels(confidence, z):
     """Two-sided z per level, REFERENCE.md §2 (scipy norm.ppf [L])."""
     low, high = range_flat(F, SIGMA, T, confidence)
-    assert np.log(high / F) / S == pytest.approx(z, abs=1e-6)
+    assert np.log(high / M) / S == pytest.approx(z, abs=1e-6)

@@ -185,14 +185,14 @@ def test_flat_world_breakeven(flat_world):
 
 
 def test_flat_world_ranges(flat_world):
-    """Plain range F exp(-/+ z sigma sqrt T), z = N^{-1}((1+c)/2) (scipy [L]); the smile range is the
-    lognormal quantile range F exp(-sigma^2 T/2 -/+ z sigma sqrt T) (REFERENCE.md §9 [C])."""
+    """Plain range F exp(-sigma^2 T/2 -/+ z sigma sqrt T), z = N^{-1}((1+c)/2) (REFERENCE.md §9 [C], scipy [L]);
+    on a flat smile the smile range (the smile's quantiles) is the same band."""
     ann, ts, fwd, _ = flat_world
     e = ann.expiries
     z = norm.ppf(0.84)
     s = FLAT_VOL * np.sqrt(ts)
-    np.testing.assert_allclose(e["range_low"], fwd * np.exp(-z * s), rtol=1e-6)
-    np.testing.assert_allclose(e["range_high"], fwd * np.exp(z * s), rtol=1e-6)
+    np.testing.assert_allclose(e["range_low"], fwd * np.exp(-0.5 * s**2 - z * s), rtol=1e-6)
+    np.testing.assert_allclose(e["range_high"], fwd * np.exp(-0.5 * s**2 + z * s), rtol=1e-6)
     np.testing.assert_allclose(e["range_low_smile"], fwd * np.exp(-0.5 * s**2 - z * s), rtol=1e-5)
     np.testing.assert_allclose(e["range_high_smile"], fwd * np.exp(-0.5 * s**2 + z * s), rtol=1e-5)
 
@@ -216,7 +216,8 @@ def test_horizon_range_interpolates_total_variance(flat_world):
     f, lo, hi = ann.horizon_range(mid_days)
     z = norm.ppf(0.84)
     t = mid_days / 365.0
-    assert hi / f == pytest.approx(np.exp(z * FLAT_VOL * np.sqrt(t)), rel=1e-5)
+    s = FLAT_VOL * np.sqrt(t)
+    assert hi / f == pytest.approx(np.exp(-0.5 * s * s + z * s), rel=1e-5)  # REFERENCE.md §9 [C]
 
 
 def test_probability_properties(flat_world):

@@ -106,7 +106,7 @@ def test_plain_output_never_shows_nan(chain_csv, capsys):
 
 
 def test_expiries_and_horizon(chain_csv, capsys):
-    """Plain range F exp(-/+ z sigma sqrt T) with z = N^{-1}(0.975) at 95% (scipy [L])."""
+    """Plain range F exp(-sigma^2 T/2 -/+ z sigma sqrt T) (REFERENCE.md §9 [C]) with z = N^{-1}(0.975) at 95% (scipy [L])."""
     path, ts, fwd = chain_csv
     code, out, _ = run(capsys, "expiries", str(path), "--format", "json", "--basis", "365",
                        "--confidence", "95%", "--quiet")
@@ -116,13 +116,29 @@ def test_expiries_and_horizon(chain_csv, capsys):
     z = norm.ppf(0.975)
     for r, t, f in zip(rows, ts, fwd):
         assert r["forward"] == pytest.approx(f, rel=1e-9)
-        assert r["range_low"] == pytest.approx(f * np.exp(-z * VOL * np.sqrt(t)), rel=1e-6)
+        s = VOL * np.sqrt(t)
+        assert r["range_low"] == pytest.approx(f * np.exp(-0.5 * s * s - z * s), rel=1e-6)
+        assert r["range_high"] == pytest.approx(f * np.exp(-0.5 * s * s + z * s), rel=1e-6)
         assert r["arbitrage_free"] is True
     code, out, _ = run(capsys, "expiries", str(path), "--format", "csv", "--days", "30", "--basis", "365",
                        "--quiet")
     frame = pd.read_csv(io.StringIO(out))
     assert list(frame.columns) == ["underlying", "days", "forward", "range_low", "range_high"]
     assert frame["range_low"].iloc[0] < frame["forward"].iloc[0] < frame["range_high"].iloc[0]
+
+
+def test_command_line_and_app_default_to_the_same_one_sigma_confidence(chain_csv, capsys):
+    """No --confidence: the one-sigma level N(1) - N(-1) (REFERENCE.md §2 [L]), z = 1, the app's default too."""
+    from chaintriage.tui.settings import Settings
+
+    path, ts, fwd = chain_csv
+    code, out, _ = run(capsys, "expiries", str(path), "--format", "json", "--basis", "365", "--quiet")
+    assert code == 0
+    for r, t, f in zip(json.loads(out), ts, fwd):
+        s = VOL * np.sqrt(t)
+        assert r["range_low"] == pytest.approx(f * np.exp(-0.5 * s * s - s), rel=1e-6)
+        assert r["range_high"] == pytest.approx(f * np.exp(-0.5 * s * s + s), rel=1e-6)
+    assert Settings().confidence == pytest.approx(norm.cdf(1) - norm.cdf(-1), abs=1e-15)
 
 
 def test_rows_left_out_give_exit_status_1(chain_csv, tmp_path, capsys):

@@ -70,6 +70,18 @@ def test_forward_and_sigma_marks_at_the_computed_columns(ascii_only):
     assert sorted(ch for ch in axis if ch.isdigit()) == ["1", "1", "2", "2"]
 
 
+def test_sigma_marks_print_their_own_values_and_are_named():
+    # [D] the label under each "2" is F exp(+/-2 s) (not the domain edge); the legend names the sigma marks
+    r = draw(highlight_strike=None)
+    labels = r.plain[H - 1]
+    for n in (-2, 2):
+        value = f"{F * math.exp(n * S):.0f}"  # whole units: the domain spans more than 50
+        col = expected_col(F * math.exp(n * S))
+        start = labels.find(value)
+        assert start >= 0 and start <= col < start + len(value), (value, labels)
+    assert "σ marks" in r.plain[0]
+
+
 @pytest.mark.parametrize("kind", ["put", "call"])
 def test_highlighted_strike_and_the_area_beyond_it(kind):
     strike = 90.0 if kind == "put" else 112.0

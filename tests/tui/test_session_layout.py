@@ -66,12 +66,13 @@ def test_filter_parsing_and_description():
 
 
 def test_confidence_steps_stop_at_the_ends():
-    assert CONFIDENCE_LEVELS == (0.6827, 0.80, 0.90, 0.95, 0.99)
+    one_sigma = 0.6826894921370859  # N(1) - N(-1) [L] REFERENCE §2
+    assert CONFIDENCE_LEVELS == (one_sigma, 0.80, 0.90, 0.95, 0.99)
     seq = [CONFIDENCE_LEVELS[0]]
     for _ in range(6):
         seq.append(step_confidence(seq[-1], +1))
-    assert seq == [0.6827, 0.8, 0.9, 0.95, 0.99, 0.99, 0.99]
-    assert step_confidence(0.6827, -1) == 0.6827
+    assert seq == [one_sigma, 0.8, 0.9, 0.95, 0.99, 0.99, 0.99]
+    assert step_confidence(one_sigma, -1) == one_sigma
     assert step_confidence(0.85, +1) == 0.9 and step_confidence(0.85, -1) == 0.8
     assert [fmt_confidence(c) for c in CONFIDENCE_LEVELS] == ["68.27%", "80%", "90%", "95%", "99%"]
 

@@ -26,7 +26,8 @@ from chaintriage.tui.cli.table_output import render
 EXPIRY_COLUMNS = [
     "underlying", "expiry", "t_years", "trading_days", "calendar_days", "forward", "discount",
     "forward_method", "atm_iv", "range_low", "range_high", "range_low_smile", "range_high_smile", "fit_rmse",
-    "arbitrage_free", "contracts", "findings", "forward_vol", "event_variance", "ex_event_vol", "events",
+    "arbitrage_free", "arbitrage_note", "contracts", "findings", "forward_vol", "event_variance", "ex_event_vol",
+    "events",
 ]
 
 #: Columns of `expiries --days`.

@@ -6,6 +6,7 @@ from __future__ import annotations
 import argparse
 from typing import TYPE_CHECKING
 
+from chaintriage.core.confidence import DEFAULT_CONFIDENCE
 from chaintriage.core.findings import ChainTriageError
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -46,8 +47,9 @@ def add_pipeline_options(parser: argparse.ArgumentParser) -> None:
     group = parser.add_argument_group("model options")
     group.add_argument("--basis", choices=("252", "250", "365"), default="252",
                        help="time basis: trading days per year (252, 250) or calendar ACT/365 (default 252)")
-    group.add_argument("--confidence", type=_confidence, default=0.68, metavar="C",
-                       help="two-sided confidence of the ranges, e.g. 0.68 or 95%% (default 0.68)")
+    group.add_argument("--confidence", type=_confidence, default=DEFAULT_CONFIDENCE, metavar="C",
+                       help="two-sided confidence of the ranges, e.g. 0.9 or 95%% "
+                            "(default 68.27%%, one sigma: 0.682689...)")
     group.add_argument("--use-file-iv", action="store_true",
                        help="use the file's iv column (converted to --basis) instead of solving from mids")
     group.add_argument("--closed", action="append", default=[], metavar="DATE",

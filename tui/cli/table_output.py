@@ -73,6 +73,7 @@ _PLAIN = {
     "fit_rmse": ("fit rmse", "points"),
     "fit_method": ("fit", "text"),
     "arbitrage_free": ("arb-free", "bool"),
+    "arbitrage_note": ("arbitrage", "text"),
     "contracts": ("contracts", "count"),
     "findings": ("findings", "count"),
     "days": ("days", "g"),

@@ -12,8 +12,13 @@ Layout, top to bottom:
                   highlighted strike in another fill and colour; a vertical
                   line at the highlighted strike, a dotted one at the forward;
   axis row        "F" under the forward, "1" at F*exp(+/-1 sigma*sqrt(T)),
-                  "2" at F*exp(+/-2 sigma*sqrt(T)), "^"/"▲" at the strike;
-  label row       a few strike values under their columns.
+                  "2" at F*exp(+/-2 sigma*sqrt(T)) (sigma marks: sigma distance
+                  +/-1 and +/-2, named in the legend when it fits; not the
+                  range, which is the lognormal's central interval),
+                  "^"/"▲" at the strike;
+  label row       a few strike values under their columns: the strike, the
+                  forward, the sigma marks' values, then the domain edges
+                  where room is left.
 
 X axis (price units, linear): the domain is [F*exp(-3s), F*exp(+3s)] with
 s = sigma_sqrt_t (= atm_iv*sqrt(T), log space), cut to the range of the
@@ -311,11 +316,12 @@ def draw_distribution(
         place(hl, strike_col, "centre", exact=True)
     if "forward" in marks:
         place(forward, marks["forward"], "centre")
-    place(lo, 0, "left")
-    place(hi, width - 1, "right")
+    # the sigma marks' own values first, so a "2" on the axis never has a domain edge printed beside it
     for key in ("-2", "+2", "-1", "+1"):
         if key in marks:
             place(forward * math.exp(int(key) * s), marks[key], "centre")
+    place(lo, 0, "left")
+    place(hi, width - 1, "right")
 
     # Title row.
     legend = f"{g['bar']} market  {g['flat']} 1-vol"
@@ -325,6 +331,10 @@ def draw_distribution(
         title = f" {fm.fmt_strike(hl)} {kind}  P(beyond) {pb}"
     else:
         title = " market-implied vs one-vol"
+    if any(key in marks for key in ("-2", "+2", "-1", "+1")):
+        with_marks = legend + ("  1 2 sigma marks" if ascii_only else "  1 2 σ marks")
+        if width - len(title) - len(with_marks) - 1 >= 2:
+            legend = with_marks
     lines: list[Text] = []
     head = Text(title, style=Style(color=colors.text, bgcolor=bg, bold=True))
     gap = width - len(title) - len(legend) - 1
