@@ -17,7 +17,7 @@ from chaintriage.tui.cli.annotated_tables import (
     with_as_of,
 )
 from chaintriage.tui.cli.check import check_status
-from chaintriage.tui.cli.common import EXIT_UNUSABLE, one_line
+from chaintriage.tui.cli.common import EXIT_UNUSABLE, one_line, write_out
 from chaintriage.tui.cli.events import add_event_options, gather_events
 from chaintriage.tui.cli.model_options import positive
 from chaintriage.tui.cli.table_output import render
@@ -90,7 +90,7 @@ def run_expiries(args: argparse.Namespace) -> int:
                 table[name] = term[name].reindex(pd.DatetimeIndex(table["expiry"])).to_numpy()
             frames.append(with_as_of(table[EXPIRY_COLUMNS], a, args.format))
         frame = pd.concat(frames, ignore_index=True)
-    sys.stdout.write(render(frame, args.format))
+    write_out(render(frame, args.format))
     report_findings(args, result, annotated)
     if not args.quiet:
         for f in extra:

@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import argparse
-import sys
 
 import pandas as pd
 
@@ -17,7 +16,7 @@ from chaintriage.tui.cli.annotated_tables import (
     with_as_of,
 )
 from chaintriage.tui.cli.check import check_status
-from chaintriage.tui.cli.common import EXIT_UNUSABLE, error
+from chaintriage.tui.cli.common import EXIT_UNUSABLE, error, write_out
 from chaintriage.tui.cli.model_options import non_negative, parse_day
 from chaintriage.tui.cli.table_output import render
 
@@ -84,7 +83,7 @@ def run_table(args: argparse.Namespace) -> int:
             have = ", ".join(sorted(f"{e:%Y-%m-%d}" for e in present))
             error(f"no contracts expire on {', '.join(f'{m:%Y-%m-%d}' for m in missing)}; expiries: {have}")
             return EXIT_UNUSABLE
-    sys.stdout.write(render(pd.concat(frames, ignore_index=True), args.format))
+    write_out(render(pd.concat(frames, ignore_index=True), args.format))
     report_findings(args, result, annotated)
     return check_status(result)
 
