@@ -127,6 +127,13 @@ class AnnotatedSnapshot:
             return None
         return terminal_distribution(res.smile, res.forward, res.t_years, res.atm_iv, n=n)
 
+    def horizon_extrapolated(self, days: float) -> bool:
+        """Whether ``days`` (on the settings' basis) lies past the last expiry with a usable vol,
+        where ``horizon_range`` holds the last expiry's variance rate instead of interpolating."""
+        per_year = 365.0 if self.settings.basis == "365" else float(self.settings.basis)
+        usable = [r.t_years for r in self.results.values() if r.t_years > 0 and np.isfinite(r.atm_iv)]
+        return not usable or float(days) / per_year > max(usable) * (1 + 1e-12)
+
     def horizon_range(self, days: float, confidence: float | None = None) -> tuple[float, float, float]:
         """(forward, low, high) of the plain range ``days`` trading/calendar days ahead.
 

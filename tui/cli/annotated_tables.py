@@ -21,7 +21,7 @@ from chaintriage.tui.cli.common import EXIT_UNUSABLE, add_snapshot_options, erro
 from chaintriage.tui.cli.model_options import add_pipeline_options, pipeline_settings
 
 COMMON_NOTES = """\
-Probabilities and vols are decimals in csv and json (0.084 = 8.4%%);
+Probabilities and vols are decimals in csv and json (0.084 = 8.4%);
 plain output shows percentages. Figures are risk-neutral model outputs
 from the quotes (European exercise assumed), not advice.
 
