@@ -74,3 +74,12 @@ def test_a_horizon_past_the_last_expiry_is_marked(capsys, chain):
     assert lines[0].split(",")[-1] == "extrapolated"
     assert lines[1].endswith(",False") and lines[2].endswith(",True")  # 5 days inside, 1000 past 2026-03-20
     assert "past the last expiry" in err and "1000 days" in err
+
+
+def test_a_far_strike_is_left_out_by_table_with_status_1(capsys, chain, tmp_path):
+    text = open(chain, encoding="utf-8").read() + f"QRTZ,{AS_OF},100,2026-03-20,1e300,call,0.5,0.6\n"
+    p = tmp_path / "typo.csv"
+    p.write_text(text, encoding="utf-8")
+    code, out, err = run(capsys, "table", str(p), "--format", "csv")
+    assert code == 1
+    assert "e+300" not in out and ":20 [strike]" in err and "left out before the fit" in err

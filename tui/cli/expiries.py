@@ -9,6 +9,7 @@ import pandas as pd
 
 from chaintriage.core.term_structure import snapshot_term_structure
 from chaintriage.tui.cli.annotated_tables import (
+    annotated_status,
     COMMON_NOTES,
     add_table_options,
     load_and_annotate,
@@ -16,7 +17,6 @@ from chaintriage.tui.cli.annotated_tables import (
     report_findings,
     with_as_of,
 )
-from chaintriage.tui.cli.check import check_status
 from chaintriage.tui.cli.common import EXIT_UNUSABLE, error, one_line, write_out
 from chaintriage.tui.cli.events import add_event_options, gather_events
 from chaintriage.tui.cli.model_options import DAYS_MAX, days
@@ -101,5 +101,5 @@ def run_expiries(args: argparse.Namespace) -> int:
     if not args.quiet:
         for f in extra:
             print(one_line(str(f)), file=sys.stderr)
-    status = check_status(result)
+    status = annotated_status(result, annotated)
     return max(status, 1) if left_out else status

@@ -8,6 +8,7 @@ import pandas as pd
 
 from chaintriage.core.loading import YEAR_MAX, YEAR_MIN
 from chaintriage.tui.cli.annotated_tables import (
+    annotated_status,
     COMMON_NOTES,
     add_table_options,
     load_and_annotate,
@@ -15,7 +16,6 @@ from chaintriage.tui.cli.annotated_tables import (
     report_findings,
     with_as_of,
 )
-from chaintriage.tui.cli.check import check_status
 from chaintriage.tui.cli.common import EXIT_UNUSABLE, error, write_out
 from chaintriage.tui.cli.model_options import non_negative, parse_day
 from chaintriage.tui.cli.table_output import render
@@ -85,6 +85,6 @@ def run_table(args: argparse.Namespace) -> int:
             return EXIT_UNUSABLE
     write_out(render(pd.concat(frames, ignore_index=True), args.format))
     report_findings(args, result, annotated)
-    return check_status(result)
+    return annotated_status(result, annotated)
 
 
