@@ -26,6 +26,23 @@ class TargetExistsError(ChainTriageError, FileExistsError):
     """The file is already there and the caller did not allow overwriting it."""
 
 
+#: Temp files being written right now (removed by ``remove_pending_temps`` when the app is stopped).
+_pending: set[str] = set()
+
+
+def remove_pending_temps() -> int:
+    """Delete the temp files of writes still under way (on SIGTERM/SIGHUP); how many were removed."""
+    removed = 0
+    for name in list(_pending):
+        try:
+            os.unlink(name)
+            removed += 1
+        except OSError:
+            pass
+        _pending.discard(name)
+    return removed
+
+
 def current_umask() -> int:
     """The process umask (read from /proc where it can be, without changing it)."""
     try:
@@ -80,6 +97,7 @@ def write_text_atomic(path: str | os.PathLike[str], text: str, *, overwrite: boo
         where = given.parent if str(given.parent) else Path(".")
         raise ChainTriageError(f"cannot write in {where}: {getattr(exc, 'strerror', None) or exc}") from exc
     tmp = Path(tmp_name)
+    _pending.add(tmp_name)
     try:
         try:
             os.fchmod(fd, mode)
@@ -106,6 +124,7 @@ def write_text_atomic(path: str | os.PathLike[str], text: str, *, overwrite: boo
     except (OSError, ValueError) as exc:  # ValueError: text the encoding cannot hold
         raise ChainTriageError(f"cannot write {target}: {getattr(exc, 'strerror', None) or exc}") from exc
     finally:
+        _pending.discard(tmp_name)
         if tmp.exists():
             try:
                 tmp.unlink()
