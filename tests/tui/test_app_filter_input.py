@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import pytest
 
-from chaintriage.tui.screens import FilterDialog
+from chaintriage.tui.screens.filter_dialog import FilterDialog
 
 from .app_support import bar, make_app, run
 
@@ -36,7 +36,7 @@ def test_unusable_sigma_text_keeps_the_dialog_open_with_the_reason(typed, said):
         assert app.screen is dialog
         assert said in str(dialog.query_one("#f-error").render())
         await pilot.press("escape")
-        assert not app.strike_filter.active
+        assert not app.state.strike_filter.active
 
     run(app, scenario)
 
@@ -46,9 +46,9 @@ def test_a_plain_decimal_is_taken_and_shown_without_a_minus_zero():
 
     async def scenario(pilot):
         await _type_sigma(pilot, "1.5")
-        assert app.screen is app.triage and app.strike_filter.sigma == 1.5
+        assert app.screen is app.triage and app.state.strike_filter.sigma == 1.5
         assert "1.5" in bar(app, "filterbar")
         await _type_sigma(pilot, "0")
-        assert app.strike_filter.sigma == 0 and "-0" not in bar(app, "filterbar")
+        assert app.state.strike_filter.sigma == 0 and "-0" not in bar(app, "filterbar")
 
     run(app, scenario)

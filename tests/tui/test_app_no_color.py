@@ -37,8 +37,8 @@ def test_every_plot_and_grid_cell_carries_the_themes_colours():
 
     async def scenario(pilot):
         await pilot.pause()
-        bg = app.chain_theme.color("background").lower()
-        plot, grid = app.plot, app.grid
+        bg = app.state.theme.color("background").lower()
+        plot, grid = app.triage.plot, app.triage.grid
         assert plot.size.width > 0 and grid.size.width > 0
         plot_strips = [plot.render_line(y) for y in range(plot.size.height + 2)]
         grid_strips = [grid.render_line(y) for y in range(grid.size.height + 2)]

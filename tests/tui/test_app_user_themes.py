@@ -53,8 +53,8 @@ def test_a_user_theme_named_like_the_built_in_fallback_cannot_mix_colours(config
     async def scenario(pilot):
         # the widgets' colours and the screen's CSS colours come from the same theme
         css = app.get_css_variables()["ct-background"].lower()
-        assert app.grid._theme.color("background").lower() == css
-        assert app.plot._theme.color("background").lower() == css
+        assert app.triage.grid._theme.color("background").lower() == css
+        assert app.triage.plot._theme.color("background").lower() == css
         assert any("reserved" in n for n in notes(app)), notes(app)
 
     run(app, scenario)
