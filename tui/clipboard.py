@@ -13,6 +13,8 @@ run in a daemon thread (``copy_in_background``), never on the UI thread.
 
 from __future__ import annotations
 
+import os
+import signal
 import subprocess
 import threading
 import time
@@ -62,11 +64,19 @@ def as_outcome(result: object) -> CopyOutcome:
     return CopyOutcome(problems=["the clipboard tool failed"], tried=1)
 
 
-def _stop(proc: subprocess.Popen) -> None:
+def _kill(proc: subprocess.Popen) -> None:
+    """Kill the tool and whatever it started (it runs in its own session, so its own process group)."""
     try:
-        proc.kill()
-    except OSError:
-        pass
+        os.killpg(proc.pid, signal.SIGKILL)
+    except (OSError, AttributeError):
+        try:
+            proc.kill()
+        except OSError:
+            pass
+
+
+def _stop(proc: subprocess.Popen) -> None:
+    _kill(proc)
     try:
         proc.wait(timeout=1.0)
     except (subprocess.SubprocessError, OSError):
@@ -142,10 +152,7 @@ def stop_all() -> None:
     with _lock:
         procs = list(_running)
     for proc in procs:
-        try:
-            proc.kill()
-        except OSError:
-            pass
+        _kill(proc)
 
 
 def reset() -> None:
