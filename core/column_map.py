@@ -29,6 +29,7 @@ from pathlib import Path
 import pandas as pd
 
 from .findings import ChainTriageError
+from .small_files import SmallFileError, read_small_file
 
 #: Columns every snapshot file must have.
 REQUIRED_COLUMNS: tuple[str, ...] = ("expiry", "strike", "kind", "bid", "ask")
@@ -194,13 +195,9 @@ def load_column_map(path: str | Path) -> ColumnMap:
     """Read a TOML mapping file (see module docstring). Raises ChainTriageError naming the file."""
     name = str(path)
     try:
-        raw = Path(path).read_bytes()
-    except IsADirectoryError:
-        raise _fail(name, "is a directory, not a file") from None
-    except FileNotFoundError:
-        raise _fail(name, "no such file") from None
-    except OSError as exc:
-        raise _fail(name, f"cannot be read ({exc.strerror or exc})") from None
+        raw = read_small_file(name)
+    except SmallFileError as exc:
+        raise _fail(name, exc.reason) from None
     try:
         text = raw.decode("utf-8-sig")
     except UnicodeDecodeError:

@@ -41,8 +41,11 @@ from __future__ import annotations
 
 import csv
 import difflib
+import errno
 import io
+import os
 import re
+import stat
 from collections import Counter
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
@@ -59,6 +62,7 @@ from .column_map import (
     header_key,
     load_column_map,
 )
+from .exchange_calendar import TZ as EXCHANGE_TZ
 from .findings import LEFT_OUT, NOTE, WARNING, ChainTriageError, Finding
 from .snapshot import CONTRACT_COLUMNS, Snapshot
 
@@ -236,11 +240,40 @@ def _show(value: object, width: int = 40) -> str:
     return repr(text)
 
 
+#: Leading bytes of compressed files: (magic, what it is).
+_COMPRESSED = (
+    (b"\x1f\x8b", "a gzip-compressed file; decompress it first (gunzip)"),
+    (b"BZh", "a bzip2-compressed file; decompress it first (bunzip2)"),
+    (b"\xfd7zXZ\x00", "an xz-compressed file; decompress it first (unxz)"),
+    (b"\x28\xb5\x2f\xfd", "a zstd-compressed file; decompress it first (unzstd)"),
+    (b"7z\xbc\xaf\x27\x1c", "a 7-Zip archive; extract the CSV from it first"),
+)
+
+
+def _utf16_without_bom(data: bytes) -> str | None:
+    """'UTF-16LE' / 'UTF-16BE' when the start looks like ASCII text in UTF-16 without a byte-order mark."""
+    head = data[:4096]
+    if len(head) < 4 or b"\x00" not in head:
+        return None
+    even, odd = head[0::2], head[1::2]
+    for zeros, text, name in ((odd, even, "UTF-16LE"), (even, odd, "UTF-16BE")):
+        if zeros.count(0) >= 0.9 * len(zeros) and text.count(0) <= 0.1 * len(text):
+            return name
+    return None
+
+
 def _decode(path: str, data: bytes) -> str:
     if data.startswith((b"\xff\xfe", b"\xfe\xff")):
         raise SnapshotFileError(path, "is UTF-16 text; save it as UTF-8 (CSV UTF-8)")
     if data.startswith(b"PK\x03\x04"):
         raise SnapshotFileError(path, "is a zip archive (perhaps a spreadsheet workbook); export it as CSV")
+    for magic, what in _COMPRESSED:
+        if data.startswith(magic):
+            raise SnapshotFileError(path, f"is {what}")
+    utf16 = _utf16_without_bom(data)
+    if utf16:
+        raise SnapshotFileError(path, f"looks like {utf16} text without a byte-order mark; save it as UTF-8 "
+                                      "(CSV UTF-8)")
     try:
         text = data.decode("utf-8-sig")
     except UnicodeDecodeError as exc:
@@ -486,6 +519,14 @@ def _read_table(path: str) -> _Table:
         if p.is_dir():
             raise SnapshotFileError(path, "is a directory, not a file")
         if not p.exists():
+            if p.is_symlink():
+                try:
+                    os.stat(p)
+                except OSError as exc:
+                    if exc.errno == errno.ELOOP:
+                        raise SnapshotFileError(path, "is a symbolic link that leads back to itself "
+                                                      "(a link loop)") from None
+                raise SnapshotFileError(path, "is a symbolic link to a file that does not exist")
             raise SnapshotFileError(path, "no such file")
         if not p.is_file():
             raise SnapshotFileError(path, "is not a regular file")
@@ -911,11 +952,12 @@ class _FileValidator:
                     self.group_findings.append(Finding(
                         NOTE, f"spot is empty on {gi.size - has.size} of {gi.size} rows; {_fmt(spot)} is used",
                         file=self.path, column=self.lab("spot"), underlying=und))
-            # expiry before the snapshot date (in the snapshot's own UTC offset)
-            day = np.datetime64(as_of.tz_localize(None).normalize().to_datetime64(), "ns")
+            # expiry before the snapshot date, the date in the exchange's time zone (whatever offset as_of has)
+            local = as_of.tz_convert(EXCHANGE_TZ)
+            day = np.datetime64(local.tz_localize(None).normalize().to_datetime64(), "ns")
             before = gi[self.expiry[gi] < day]
             if before.size:
-                day_text = f"{as_of:%Y-%m-%d}"
+                day_text = f"{local:%Y-%m-%d} (New York)"
                 rows.leave_out(before, self.lab("expiry"), lambda i: (
                     f"expiry {self.expiry[i].astype('datetime64[D]')} is before the snapshot date {day_text}"))
             self.snap[und] = (as_of, spot)
@@ -1062,8 +1104,7 @@ class _FileValidator:
             if self.n == 0:
                 raise SnapshotFileError(self.path, "no usable row: there are no data rows below the header",
                                         findings=findings)
-            counts = Counter(_reason_kind(r) for r in self.rows.reason[~self.rows.free])
-            common = "; ".join(f"{c} x {r}" for r, c in counts.most_common(3))
+            common = _common_reasons(self.rows.reason[~self.rows.free])
             raise SnapshotFileError(
                 self.path, f"no usable row: all {self.n} rows were left out ({common})",
                 findings=findings, rows_read=self.n)
@@ -1122,8 +1163,25 @@ def _timestamp(text: str, utc_ns: int) -> pd.Timestamp:
 
 
 def _reason_kind(reason: str) -> str:
-    """A reason with quoted values removed, for counting the common ones."""
+    """A reason with quoted values and numbers masked: the key for counting reasons of one kind."""
     return re.sub(r"'[^']*'|\"[^\"]*\"|line \d+|\d+(\.\d+)?", "…", reason)
+
+
+def _common_reasons(reasons: Sequence[str], top: int = 3) -> str:
+    """The most common kinds of reason with their counts, each shown by its first real example
+    ("12 x strike '-5' is not positive, and the like"), never with its numbers masked."""
+    counts: Counter[str] = Counter()
+    first: dict[str, str] = {}
+    varied: set[str] = set()
+    for r in reasons:
+        key = _reason_kind(r)
+        counts[key] += 1
+        if key not in first:
+            first[key] = r
+        elif r != first[key]:
+            varied.add(key)
+    return "; ".join(f"{c} x {first[k]}" + (", and the like" if k in varied else "")
+                     for k, c in counts.most_common(top))
 
 
 def _tidy(contracts: pd.DataFrame) -> pd.DataFrame:
@@ -1189,14 +1247,32 @@ def load_files(
     cmap = _as_column_map(column_map)
     files: list[FileLoad] = []
     errors: list[SnapshotFileError] = []
+    seen: dict[tuple[int, int], str] = {}
+    repeated: list[Finding] = []
     for p in paths:
+        identity = _file_identity(p)
+        if identity is not None and identity in seen:
+            same = "" if seen[identity] == str(p) else f" (as {seen[identity]})"
+            repeated.append(Finding(NOTE, f"{p} is given twice{same}; it is read once"))
+            continue
+        if identity is not None:
+            seen[identity] = str(p)
         try:
             files.append(load_file(p, overrides=ov, column_map=cmap))
         except SnapshotFileError as exc:
             errors.append(exc)
     merged, merge_findings = _merge(files)
-    findings = [f for fl in files for f in fl.findings] + merge_findings
+    findings = [f for fl in files for f in fl.findings] + repeated + merge_findings
     return LoadResult(snapshots=merged, findings=findings, files=files, errors=errors)
+
+
+def _file_identity(path: str | Path) -> tuple[int, int] | None:
+    """(device, inode) of a regular file, so one file given under two names is read once; None otherwise."""
+    try:
+        st = os.stat(path)
+    except (OSError, ValueError):
+        return None
+    return (st.st_dev, st.st_ino) if stat.S_ISREG(st.st_mode) else None
 
 
 def _merge(files: list[FileLoad]) -> tuple[list[Snapshot], list[Finding]]:

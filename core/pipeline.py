@@ -13,11 +13,13 @@ and puts line up per (expiry, strike); the parity forwards
 smile ranges (``range_smile_rows``) take all expiries in one call, and the
 per-contract figures use each row's own expiry smile (``svi.SviSlices``).
 Python loops over expiries only assemble findings and result objects.
+Before anything else, strikes far outside their expiry's range (typos such as
+1e300) are left out with a finding (``far_strikes``).
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 import pandas as pd
@@ -33,7 +35,8 @@ from .distribution import (
     terminal_distribution,
 )
 from .exchange_calendar import ExchangeCalendar
-from .findings import NOTE, WARNING, ChainTriageError, Finding
+from .far_strikes import FAR_FACTOR, far_strikes
+from .findings import LEFT_OUT, NOTE, WARNING, ChainTriageError, Finding
 from .implied_vol import ABOVE_UPPER_BOUND, BELOW_INTRINSIC, STATUS_REASONS, implied_vol
 from .parity_forward import ForwardEstimate, implied_forwards
 from .smile_batch import fit_smiles
@@ -191,6 +194,13 @@ class AnnotatedSnapshot:
             return None
         return terminal_distribution(res.smile, res.forward, res.t_years, res.atm_iv, n=n)
 
+    def horizon_extrapolated(self, days: float) -> bool:
+        """Whether ``days`` (on the settings' basis) lies past the last expiry with a usable vol,
+        where ``horizon_range`` holds the last expiry's variance rate instead of interpolating."""
+        per_year = 365.0 if self.settings.basis == "365" else float(self.settings.basis)
+        usable = [r.t_years for r in self.results.values() if r.t_years > 0 and np.isfinite(r.atm_iv)]
+        return not usable or float(days) / per_year > max(usable) * (1 + 1e-12)
+
     def horizon_range(self, days: float, confidence: float | None = None) -> tuple[float, float, float]:
         """(forward, low, high) of the plain range ``days`` trading/calendar days ahead.
 
@@ -282,6 +292,24 @@ def _text_per_expiry(column: pd.Series, order: np.ndarray, starts: np.ndarray, e
     return np.where(found, values, default).astype(object)
 
 
+def _without_far_strikes(snapshot: Snapshot, findings: list[Finding]) -> Snapshot:
+    """The snapshot without strikes far outside their expiry's range (``far_strikes``), each left out
+    with a finding naming its file and line; the same snapshot when there are none."""
+    contracts = snapshot.contracts
+    far = far_strikes(contracts["expiry"].to_numpy(), contracts["strike"].to_numpy(float), snapshot.spot)
+    if not far.any():
+        return snapshot
+    gone = contracts[far]
+    for expiry, strike, kind, file, line in zip(gone["expiry"], gone["strike"], gone["kind"],
+                                                gone["source_file"], gone["source_line"]):
+        findings.append(Finding(
+            LEFT_OUT, f"strike {strike:.10g} is more than {FAR_FACTOR:g} times away from the other strikes of "
+                      f"this expiry (and from spot {snapshot.spot:.10g}); left out before the fit as a likely typo",
+            file=str(file) or None, line=int(line), column="strike", underlying=snapshot.underlying,
+            expiry=f"{pd.Timestamp(expiry):%Y-%m-%d}"))
+    return replace(snapshot, contracts=contracts[~far].reset_index(drop=True))
+
+
 def annotate(snapshot: Snapshot, settings: PipelineSettings | None = None, touch: bool = False) -> AnnotatedSnapshot:
     """Run the whole per-expiry pipeline over a snapshot.
 
@@ -290,9 +318,10 @@ def annotate(snapshot: Snapshot, settings: PipelineSettings | None = None, touch
     """
     settings = settings or PipelineSettings()
     calendar = _calendar(settings.extra_closed)
+    findings: list[Finding] = []
+    snapshot = _without_far_strikes(snapshot, findings)
     contracts = snapshot.contracts
     order, is_call, is_put = _sort_order(contracts)
-    findings: list[Finding] = []
     underlying = snapshot.underlying
     n = order.size
 

@@ -22,7 +22,7 @@ from textual.screen import Screen
 from chaintriage.core.confidence import DEFAULT_CONFIDENCE
 from chaintriage.core.findings import ChainTriageError
 from chaintriage.tui import formatting as fm
-from chaintriage.tui import snapshot_loading
+from chaintriage.tui import clipboard, snapshot_loading, terminal_signals
 from chaintriage.tui.cli.common import error
 from chaintriage.tui.layout import PLOT_HIDDEN, PLOT_SHOWN
 from chaintriage.tui.screens.triage import TriageScreen
@@ -116,7 +116,7 @@ class ChainTriageApp(App[int]):
                  views: Sequence[SnapshotView] | None = None,
                  overrides: SnapshotOverrides | None = None, column_map: ColumnMap | None = None,
                  pipeline_settings: Any = None,
-                 system_clipboard: Callable[[str], bool] | None = copy_to_system_clipboard,
+                 system_clipboard: Callable[[str], object] | None = copy_to_system_clipboard,
                  events: Sequence[Any] | None = None) -> None:
         super().__init__()
         #: Scheduled events (core.events.Event) of every underlying; None: the demo's when showing the demo.
@@ -128,6 +128,7 @@ class ChainTriageApp(App[int]):
         self._column_map = column_map
         self._pipeline_settings = pipeline_settings
         self._system_clipboard = system_clipboard
+        clipboard.reset()  # copies allowed again (a previous app in this process may have stopped them)
         self.exit_messages: list[str] = []
         # Remembered preferences and themes.
         self.settings, notices = load_settings()
@@ -163,6 +164,7 @@ class ChainTriageApp(App[int]):
 
     def screen_ready(self) -> None:
         """Called when the triage screen is mounted: start loading."""
+        terminal_signals.install(self)  # SIGTERM/SIGHUP: exit the ordinary way, terminal restored
         for notice in self._startup_notices:
             self.notify(notice, title="settings and themes", severity="warning", markup=False)
         if self._given_views:
@@ -330,12 +332,36 @@ class ChainTriageApp(App[int]):
         self.copy_text(summarize(row, as_of=k.as_of, ascii_only=self.state.ascii_only))
 
     def copy_text(self, text: str) -> None:
-        """Copy to the terminal's clipboard and (in a worker) the system's; confirm with the text."""
+        """Copy to the terminal's clipboard and (in a daemon thread) the system's; then say what happened.
+
+        The system clipboard tools run as child processes that quitting stops (``clipboard.stop_all``),
+        so a hanging tool never holds up ``q``.
+        """
         self.copy_to_clipboard(text)
-        if self._system_clipboard is not None:
-            tool = self._system_clipboard
-            self.run_worker(lambda: tool(text), thread=True, group="clipboard", exit_on_error=False)
-        self.notify(text, title="copied to the clipboard", timeout=4, markup=False)
+        if self._system_clipboard is None:
+            self.notify(text, title="sent to the terminal's clipboard", timeout=4, markup=False)
+            return
+
+        def done(outcome: clipboard.CopyOutcome) -> None:
+            try:
+                self.call_from_thread(self._copy_done, text, outcome)
+            except RuntimeError:  # the app has stopped meanwhile
+                pass
+
+        clipboard.copy_in_background(self._system_clipboard, text, done)
+
+    def _copy_done(self, text: str, outcome: clipboard.CopyOutcome) -> None:
+        if outcome.ok:
+            self.notify(text, title="copied to the clipboard", timeout=4, markup=False)
+        else:
+            self.notify(f"{text}\n{outcome.summary()}; sent only to the terminal's clipboard (pasting works "
+                        "where the terminal allows programs to set it)", title="not copied by a clipboard tool",
+                        severity="warning", timeout=8, markup=False)
+
+    def exit(self, *args: Any, **kwargs: Any) -> None:
+        """Stop: clipboard tools still running are killed first, so none holds up quitting."""
+        clipboard.stop_all()
+        super().exit(*args, **kwargs)
 
     def action_toggle_mark(self) -> None:
         view = self.state.view

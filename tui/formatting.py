@@ -138,10 +138,18 @@ def price_decimals(value: float) -> int:
 #: From this size on, prices, levels and strikes are shown in scientific notation
 #: (no real underlying trades there; a 300-digit number helps nobody).
 HUGE = 1e12
+#: Below this size (and above zero) too: fixed decimals would show them as 0 and
+#: make different values look the same.
+TINY = 1e-3
 
 
 def _huge(x: float) -> str:
     return f"{x:.4g}"
+
+
+def _outside_fixed(x: float) -> bool:
+    """Whether ``x`` is too large or too small (but not zero) for fixed decimals."""
+    return abs(x) >= HUGE or 0.0 < abs(x) < TINY
 
 
 def fmt_price(value: Any, width: int | None = None, ascii_only: bool = False) -> str:
@@ -149,7 +157,7 @@ def fmt_price(value: Any, width: int | None = None, ascii_only: bool = False) ->
     x = as_finite(value)
     if x is None:
         return _missing(width, ascii_only)
-    if abs(x) >= HUGE:
+    if _outside_fixed(x):
         return fit(_huge(x), width)
     return fit(tidy_zero(f"{x:.{price_decimals(x)}f}"), width)
 
@@ -159,7 +167,7 @@ def fmt_level(value: Any, width: int | None = None, ascii_only: bool = False) ->
     x = as_finite(value)
     if x is None:
         return _missing(width, ascii_only)
-    if abs(x) >= HUGE:
+    if _outside_fixed(x):
         return fit(_huge(x), width)
     return fit(tidy_zero(f"{x:.{2 if abs(x) >= 1 else 4}f}"), width)
 
@@ -182,9 +190,11 @@ def fmt_strike(value: Any, decimals: int | None = None, width: int | None = None
     x = as_finite(value)
     if x is None:
         return _missing(width, ascii_only)
-    if abs(x) >= HUGE:
+    if _outside_fixed(x):
         return fit(_huge(x), width)
     d = strike_decimals([x]) if decimals is None else decimals
+    if round(x, d) == 0 and x != 0:  # a small strike in a column of fewer decimals: never a false 0
+        return fit(_huge(x), width)
     return fit(f"{x:.{d}f}", width)
 
 

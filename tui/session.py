@@ -10,6 +10,7 @@ probabilities as decimals, sigma distance in sigmas, time in years.
 from __future__ import annotations
 
 import math
+import re
 from dataclasses import dataclass
 from typing import Any, Iterable, Sequence
 
@@ -122,29 +123,56 @@ class StrikeFilter:
 
         Raises ChainTriageError with a message naming the field when a value is unusable.
         """
+        spread = (max_spread or "").strip()
+        spread = spread[:-1] if spread.endswith("%") else spread
         return cls(
-            sigma=_parse_number(sigma, "sigmas", allow_zero=True),
-            max_spread=None if (v := _parse_number(max_spread.rstrip().rstrip("%"), "max spread",
-                                                   allow_zero=True)) is None else v / 100.0,
-            min_open_interest=_parse_number(min_open_interest, "min open interest", allow_zero=True),
+            sigma=_parse_number(sigma, "sigmas", limit=SIGMA_LIMIT),
+            max_spread=None if (v := _parse_number(spread, "max spread", limit=SPREAD_LIMIT_PCT)) is None
+            else v / 100.0,
+            min_open_interest=_parse_number(min_open_interest, "min open interest", limit=OPEN_INTEREST_LIMIT,
+                                            thousands=True),
         )
 
 
+#: Largest values the filter dialog takes: no strike lies 50 sigmas out, a spread of 1000 % of mid is no
+#: limit, and no contract has a billion open.
+SIGMA_LIMIT = 50.0
+SPREAD_LIMIT_PCT = 1000.0
+OPEN_INTEREST_LIMIT = 1e9
+
+#: What the dialog takes: digits with at most one decimal point (no sign, exponent, "_" or separators).
+_PLAIN_NUMBER = re.compile(r"\+?(?:\d+(?:\.\d*)?|\.\d+)")
+
+
 def _num(x: float) -> str:
-    return f"{x:.2f}".rstrip("0").rstrip(".")
+    return fm.tidy_zero(f"{x:.2f}".rstrip("0").rstrip("."))
 
 
-def _parse_number(text: str, what: str, *, allow_zero: bool) -> float | None:
-    text = (text or "").strip().replace(",", "")
+_THOUSANDS = re.compile(r"\+?\d{1,3}(?:,\d{3})+")
+
+
+def _parse_number(text: str, what: str, *, limit: float, thousands: bool = False) -> float | None:
+    """A typed limit: blank gives None; a plain decimal from 0 to ``limit``, else ChainTriageError.
+
+    With ``thousands`` (a count) commas are taken as thousands separators in whole groups ("1,000").
+    """
+    text = (text or "").strip()
     if not text:
         return None
-    try:
-        value = float(text)
-    except ValueError:
-        raise ChainTriageError(f"{what}: {fm.clean_text(text)!r} is not a number") from None
-    if not math.isfinite(value) or value < 0 or (value == 0 and not allow_zero):
+    shown = fm.clean_text(text)[:20]
+    if thousands and _THOUSANDS.fullmatch(text):
+        text = text.replace(",", "")
+    if "," in text:
+        raise ChainTriageError(f"{what}: {shown!r} has a comma; write decimals with a point and no "
+                               "thousands separators (1.5, 1000)")
+    if text.startswith("-"):
         raise ChainTriageError(f"{what}: give a number of zero or more")
-    return value
+    if not _PLAIN_NUMBER.fullmatch(text):
+        raise ChainTriageError(f"{what}: {shown!r} is not a number (digits and one point, e.g. 1.5)")
+    value = float(text)
+    if value > limit:
+        raise ChainTriageError(f"{what}: at most {_num(limit) if limit < 1e6 else f'{limit:,.0f}'}")
+    return value + 0.0
 
 
 # ---------------------------------------------------------------- one expiry's header

@@ -11,10 +11,12 @@ from __future__ import annotations
 
 import os
 import shutil
-import subprocess
-from typing import Any, Callable, Mapping, Sequence
+from typing import TYPE_CHECKING, Any, Callable, Mapping, Sequence
 
 from . import formatting as fm
+
+if TYPE_CHECKING:
+    from .clipboard import CopyOutcome
 
 SEPARATOR = " | "
 
@@ -85,20 +87,14 @@ def clipboard_commands(env: Mapping[str, str] | None = None,
 
 
 def copy_to_system_clipboard(text: str, *, timeout: float = 2.0,
-                             commands: Sequence[Sequence[str]] | None = None) -> bool:
-    """Hand ``text`` to the first clipboard tool that accepts it; True if one did.
+                             commands: Sequence[Sequence[str]] | None = None) -> "CopyOutcome":
+    """Hand ``text`` to the first clipboard tool that accepts it (exit status 0).
 
     Never raises: a missing tool, a failure or a timeout just tries the next
-    one, and False means none worked (the app can still use the terminal's
-    own clipboard through Textual's ``App.copy_to_clipboard``).
+    one. The result is true when a tool took the text and names it, or lists
+    each tool's problem (see ``clipboard.run_tools``); the app can still use
+    the terminal's own clipboard through Textual's ``App.copy_to_clipboard``.
     """
-    data = text.encode("utf-8")
-    for argv in (clipboard_commands() if commands is None else commands):
-        try:
-            done = subprocess.run(list(argv), input=data, stdout=subprocess.DEVNULL,
-                                  stderr=subprocess.DEVNULL, timeout=timeout, check=False)
-        except (OSError, subprocess.SubprocessError, ValueError):
-            continue
-        if done.returncode == 0:
-            return True
-    return False
+    from .clipboard import run_tools
+
+    return run_tools(text, clipboard_commands() if commands is None else commands, timeout=timeout)

@@ -4,7 +4,10 @@ Built-in themes ship as ``chaintriage.themes/*.toml`` (read through
 importlib.resources); users add their own as
 ``$XDG_CONFIG_HOME/chaintriage/themes/*.toml`` (default ``~/.config``). A file
 that cannot be read or lacks a role is skipped with a plain-text notice; it
-never stops the app. A user theme with a built-in theme's name replaces it.
+never stops the app (more than ``NOTICE_LIMIT`` skipped files give one summary
+notice instead of one each). A user theme with a built-in theme's name replaces
+it; the name of the theme built into the code (``fallback``) is reserved.
+Theme files are read like settings: regular files of at most 1 MiB.
 
 A theme file::
 
@@ -31,6 +34,7 @@ from pathlib import Path
 from typing import Mapping
 
 from chaintriage.core.findings import ChainTriageError
+from chaintriage.core.small_files import SmallFileError, read_small_file
 
 #: Every colour role a theme must define, with what it paints.
 ROLES: dict[str, str] = {
@@ -181,6 +185,7 @@ def load_themes(user_dir: str | os.PathLike[str] | None = None, *, include_user:
     Never raises for a bad file: it is skipped and a notice says which and why.
     """
     result = ThemeSet()
+    skipped: list[str] = []
     for fname, text in builtin_theme_texts():
         try:
             theme = parse_theme(text, f"built-in theme {fname}")
@@ -198,19 +203,41 @@ def load_themes(user_dir: str | os.PathLike[str] | None = None, *, include_user:
         return result
     for path in paths:
         try:
-            text = path.read_text(encoding="utf-8")
-        except (OSError, UnicodeDecodeError) as exc:
-            result.notices.append(f"skipped theme file {path}: cannot be read ({exc})")
+            text = read_small_file(path).decode("utf-8")
+        except SmallFileError as exc:
+            skipped.append(f"skipped theme file {path}: {exc.reason}")
+            continue
+        except UnicodeDecodeError as exc:
+            skipped.append(f"skipped theme file {path}: cannot be read ({exc})")
             continue
         try:
             theme = parse_theme(text, str(path))
         except ThemeError as exc:
-            result.notices.append(f"skipped theme file {exc}")
+            skipped.append(f"skipped theme file {exc}")
+            continue
+        if theme.name == FALLBACK_THEME.name:
+            skipped.append(f"skipped theme file {path}: the name {theme.name!r} is reserved for the theme built "
+                           "into the program; give it another name")
             continue
         if theme.name in result.themes:
             result.notices.append(f"theme '{theme.name}' from {path} replaces the one found earlier")
         result.themes[theme.name] = theme
+    result.notices.extend(summarise_skipped(skipped, directory))
     return result
+
+
+#: More skipped theme files than this give one summary notice.
+NOTICE_LIMIT = 5
+
+
+def summarise_skipped(skipped: list[str], directory: Path) -> list[str]:
+    """The notices for skipped theme files: each one, or one summary when there are many."""
+    if len(skipped) <= NOTICE_LIMIT:
+        return skipped
+    first = skipped[0].removeprefix("skipped theme file ")
+    if len(first) > 200:
+        first = first[:199] + "~"
+    return [f"skipped {len(skipped)} theme files in {directory} that cannot be used; the first: {first}"]
 
 
 def css_variables(theme: ChainTheme) -> dict[str, str]:

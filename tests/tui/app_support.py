@@ -94,3 +94,16 @@ def notes(app: ChainTriageApp) -> list[str]:
 
 def bar(app: ChainTriageApp, name: str) -> str:
     return app.triage.bar(name).plain
+
+
+async def wait_copied(app: ChainTriageApp, pilot, timeout: float = 10.0) -> list[str]:
+    """Wait until the app has said what a copy did (the system clipboard runs in a thread);
+    returns the titles of the clipboard notices."""
+    loop = asyncio.get_running_loop()
+    end = loop.time() + timeout
+    while loop.time() < end:
+        titles = [n.title for n in app._notifications if "clipboard" in n.title]
+        if titles:
+            return titles
+        await pilot.pause(0.02)
+    raise AssertionError("the app never said what the copy did")

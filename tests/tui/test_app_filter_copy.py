@@ -14,7 +14,7 @@ from chaintriage.tui import formatting as fm
 from chaintriage.tui.screens.filter_dialog import FilterDialog
 from chaintriage.tui.strike_summary import summarize
 
-from .app_support import bar, demo_annotated, make_app, notes, run
+from .app_support import bar, demo_annotated, make_app, notes, run, wait_copied
 
 
 def expected_strikes(expiry, z=None, max_spread=None, min_oi=None) -> np.ndarray:
@@ -125,7 +125,7 @@ def test_copy_puts_the_summary_on_both_clipboards_and_shows_it():
 
     async def scenario(pilot):
         await pilot.press("down", "right", "c")
-        await pilot.app.workers.wait_for_complete()
+        assert await wait_copied(app, pilot) == ["copied to the clipboard"]
         strike, kind = app.triage.grid.highlighted
         row = oracle.contracts[(oracle.contracts["expiry"] == app.state.current_expiry)
                                & (oracle.contracts["strike"] == strike) & (oracle.contracts["kind"] == kind)]

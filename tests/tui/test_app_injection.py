@@ -20,7 +20,7 @@ from chaintriage.core.loading import load_files
 from chaintriage.tui import formatting as fm
 from chaintriage.tui.shortlist import FORMULA_PREFIXES, ContractKey, Shortlist
 
-from .app_support import Clipboard, bar, make_app, notes, run, wait_ready
+from .app_support import Clipboard, bar, make_app, notes, run, wait_copied, wait_ready
 from .test_app_looks_and_loading import AS_OF
 
 #: Markup, CSI colour, an OSC 8 hyperlink, an OSC 52 clipboard write, BEL, backspace, CR, bidi override.
@@ -70,7 +70,7 @@ def test_file_text_is_literal_or_stripped_everywhere(tmp_path):
         clean([bar(app, n) for n in ("topbar", "expirybar", "filterbar")], "header lines")
         clean(app.triage.grid.render_lines_text(), "ladder")
         await pilot.press("c")
-        await pilot.pause(0.1)
+        await wait_copied(app, pilot)
         assert app.clipboard.startswith(shown.strip()), app.clipboard
         assert clip.texts and clip.texts[-1] == app.clipboard
         clean([app.clipboard] + clip.texts, "clipboard")

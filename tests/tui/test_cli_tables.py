@@ -123,7 +123,7 @@ def test_expiries_and_horizon(chain_csv, capsys):
     code, out, _ = run(capsys, "expiries", str(path), "--format", "csv", "--days", "30", "--basis", "365",
                        "--quiet")
     frame = pd.read_csv(io.StringIO(out))
-    assert list(frame.columns) == ["underlying", "days", "forward", "range_low", "range_high"]
+    assert list(frame.columns) == ["underlying", "days", "forward", "range_low", "range_high", "extrapolated"]
     assert frame["range_low"].iloc[0] < frame["forward"].iloc[0] < frame["range_high"].iloc[0]
 
 

@@ -118,3 +118,16 @@ def test_absurdly_large_prices_use_scientific_notation():
     assert fmt_level(-2e15) == "-2e+15"
     assert fmt_strike(9e307) == "9e+307"
     assert fmt_price(999_999.5) == "999999.50"
+
+
+def test_tiny_values_use_scientific_notation_too():
+    # [C] Fixed decimals would print 1e-300 as 0 and make different prices look equal.
+    from chaintriage.tui.formatting import fmt_level, fmt_price, fmt_strike
+
+    assert fmt_price(1e-300) == "1e-300"
+    assert fmt_price(1.2e-300) != fmt_price(1.5e-300)
+    assert fmt_level(3e-7) == "3e-07"
+    assert fmt_strike(1e-300) == "1e-300"
+    assert fmt_strike(0.0035, decimals=2) == "0.0035"  # not "0.00" in a two-decimal column
+    assert fmt_price(0) == "0.00" and fmt_strike(0) == "0"  # zero itself stays plain
+    assert fmt_price(0.0035) == "0.0035" and fmt_price(0.05) == "0.05"

@@ -60,23 +60,28 @@ def _tool(tmp_path, name, body):
 def test_copy_through_a_clipboard_tool(tmp_path):
     out = tmp_path / "clip.txt"
     tool = _tool(tmp_path, "fakeclip", f"import sys; open({str(out)!r}, 'wb').write(sys.stdin.buffer.read())")
-    assert copy_to_system_clipboard("QRTZ 95 put | mid 1.23 σ", commands=[[tool]]) is True
+    done = copy_to_system_clipboard("QRTZ 95 put | mid 1.23 σ", commands=[[tool]])
+    assert done.ok and done.tool == tool and "copied with" in done.summary()
     assert out.read_text(encoding="utf-8") == "QRTZ 95 put | mid 1.23 σ"
 
 
 def test_copy_never_raises_and_reports_failure(tmp_path):
     failing = _tool(tmp_path, "failclip", "import sys; sys.exit(3)")
     hanging = _tool(tmp_path, "slowclip", "import time; time.sleep(10)")
-    assert copy_to_system_clipboard("x", commands=[]) is False
-    assert copy_to_system_clipboard("x", commands=[[str(tmp_path / "missing")]]) is False
-    assert copy_to_system_clipboard("x", commands=[[failing]]) is False
+    assert not copy_to_system_clipboard("x", commands=[])
+    assert "no clipboard tool found" in copy_to_system_clipboard("x", commands=[]).summary()
+    missing = copy_to_system_clipboard("x", commands=[[str(tmp_path / "missing")]])
+    assert not missing and "cannot start" in missing.summary()
+    failed = copy_to_system_clipboard("x", commands=[[failing]])
+    assert not failed and "exit status 3" in failed.summary()  # not "copied"
     t0 = time.monotonic()
-    assert copy_to_system_clipboard("x", commands=[[hanging]], timeout=0.5) is False
+    hung = copy_to_system_clipboard("x", commands=[[hanging]], timeout=0.5)
+    assert not hung and "no answer" in hung.summary()
     assert time.monotonic() - t0 < 5
     # a failing tool is passed over for the next one
     out = tmp_path / "second.txt"
     ok = _tool(tmp_path, "okclip", f"import sys; open({str(out)!r}, 'wb').write(sys.stdin.buffer.read())")
-    assert copy_to_system_clipboard("y", commands=[[failing], [ok]]) is True
+    assert copy_to_system_clipboard("y", commands=[[failing], [ok]]).tool == ok
     assert out.read_text() == "y"
 
 

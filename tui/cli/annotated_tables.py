@@ -13,15 +13,22 @@ import sys
 
 import pandas as pd
 
-from chaintriage.core.findings import Finding
+from chaintriage.core.findings import LEFT_OUT, Finding
 from chaintriage.core.loading import LoadResult, load_files
 from chaintriage.core.pipeline import AnnotatedSnapshot, annotate
-from chaintriage.tui.cli.check import _summary, summary_line
-from chaintriage.tui.cli.common import EXIT_UNUSABLE, add_snapshot_options, error, one_line, snapshot_options
+from chaintriage.tui.cli.check import _summary, check_status, summary_line
+from chaintriage.tui.cli.common import (
+    EXIT_ROWS_LEFT_OUT,
+    EXIT_UNUSABLE,
+    add_snapshot_options,
+    error,
+    one_line,
+    snapshot_options,
+)
 from chaintriage.tui.cli.model_options import add_pipeline_options, pipeline_settings
 
 COMMON_NOTES = """\
-Probabilities and vols are decimals in csv and json (0.084 = 8.4%%);
+Probabilities and vols are decimals in csv and json (0.084 = 8.4%);
 plain output shows percentages. Figures are risk-neutral model outputs
 from the quotes (European exercise assumed), not advice.
 
@@ -74,3 +81,11 @@ def with_as_of(frame: pd.DataFrame, a: AnnotatedSnapshot, fmt: str) -> pd.DataFr
     return frame
 
 
+
+
+def annotated_status(result: LoadResult, annotated: list[AnnotatedSnapshot]) -> int:
+    """As `check`, and 1 too when the pipeline left rows out (strikes far outside their expiry)."""
+    status = check_status(result)
+    if status == 0 and any(f.severity == LEFT_OUT for a in annotated for f in a.findings):
+        return EXIT_ROWS_LEFT_OUT
+    return status

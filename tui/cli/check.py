@@ -5,7 +5,6 @@ from __future__ import annotations
 import argparse
 import json
 import re
-import sys
 from collections.abc import Sequence
 from typing import Any, TextIO
 
@@ -15,7 +14,9 @@ from chaintriage.tui.cli.common import (
     EXIT_OK,
     EXIT_ROWS_LEFT_OUT,
     EXIT_UNUSABLE,
+    StdoutWriter,
     add_snapshot_options,
+    can_encode,
     error,
     one_line,
     snapshot_options,
@@ -161,9 +162,10 @@ def json_report(paths: Sequence[str], result: LoadResult) -> dict[str, Any]:
 _UNSAFE_IN_JSON = re.compile("[\x7f-\x9f\u200b-\u200f\u2028\u2029\u202a-\u202e\u2066-\u2069\ufeff]")
 
 
-def json_text(report: dict[str, Any]) -> str:
-    """The JSON report as text: readable non-ASCII kept, but every character a terminal could act on escaped."""
-    text = json.dumps(report, indent=2, ensure_ascii=False)
+def json_text(report: dict[str, Any], *, ascii_only: bool = False) -> str:
+    """The JSON report as text: readable non-ASCII kept (escaped as \\uXXXX with ``ascii_only``, for
+    an output that cannot hold it), but every character a terminal could act on escaped."""
+    text = json.dumps(report, indent=2, ensure_ascii=ascii_only)
     return _UNSAFE_IN_JSON.sub(lambda m: f"\\u{ord(m.group()):04x}", text) + "\n"
 
 
@@ -173,7 +175,9 @@ def run_check(args: argparse.Namespace) -> int:
     for exc in result.errors:
         error(str(exc))
     if args.format == "json":
-        sys.stdout.write(json_text(json_report(args.files, result)))
+        report = json_report(args.files, result)
+        text = json_text(report)
+        StdoutWriter().write(text if can_encode(text) else json_text(report, ascii_only=True))
     else:
-        write_plain_report(args.files, result, sys.stdout)
+        write_plain_report(args.files, result, StdoutWriter())
     return check_status(result)

@@ -3,11 +3,18 @@
 Streams: data (reports, tables) goes to stdout; messages about unusable
 files, bad options and other errors go to stderr, prefixed ``chaintriage:``.
 Text from files is printed with control characters escaped.
+
+Whatever the locale, output never fails: ``safe_streams`` makes stdout and
+stderr escape (``\\xe9``) what their encoding cannot hold, and ``write_out``
+stops quietly when the reader of a pipe goes away (``check big.csv | head``),
+so the command still ends with the status its data deserves.
 """
 
 from __future__ import annotations
 
 import argparse
+import codecs
+import os
 import re
 import sys
 from typing import TYPE_CHECKING, TextIO
@@ -43,6 +50,86 @@ def one_line(text: object) -> str:
     """Like ``plain``, but tab, newline and line separators escaped too: for one table cell or report line,
     so text from a file cannot break the layout or forge a line of its own."""
     return _LINE_CONTROL.sub(_escape, str(text))
+
+
+def safe_streams() -> None:
+    """Make stdout and stderr escape the characters their encoding cannot hold (ASCII / Latin-1 locales)."""
+    for stream in (sys.stdout, sys.stderr):
+        try:
+            if stream is not None and not _is_utf(stream):
+                stream.reconfigure(errors="backslashreplace")
+        except (AttributeError, ValueError, OSError):
+            pass  # not a text stream we can reconfigure (tests capture, or a closed stream)
+
+
+def _is_utf(stream: TextIO) -> bool:
+    try:
+        return codecs.lookup(getattr(stream, "encoding", None) or "ascii").name.startswith("utf")
+    except LookupError:
+        return False
+
+
+def can_encode(text: str, stream: TextIO | None = None) -> bool:
+    """Whether ``stream`` (stdout) can write ``text`` as it is."""
+    stream = stream or sys.stdout
+    try:
+        text.encode(getattr(stream, "encoding", None) or "utf-8")
+    except UnicodeEncodeError:
+        return False
+    except LookupError:
+        return True
+    return True
+
+
+#: Set once stdout's reader has gone away; later output is dropped.
+_pipe_closed = False
+
+
+def write_out(text: str) -> None:
+    """Write to stdout. When the reader has gone away, drop this and later output silently."""
+    global _pipe_closed
+    if _pipe_closed:
+        return
+    try:
+        sys.stdout.write(text)
+    except BrokenPipeError:
+        _pipe_closed = True
+        stdout_to_devnull()
+
+
+def flush_out() -> None:
+    """Flush stdout, with the same quiet stop as ``write_out``."""
+    global _pipe_closed
+    if _pipe_closed:
+        return
+    try:
+        sys.stdout.flush()
+    except BrokenPipeError:
+        _pipe_closed = True
+        stdout_to_devnull()
+
+
+class StdoutWriter:
+    """A file-like object for ``print(..., file=...)`` that writes through ``write_out``."""
+
+    encoding = property(lambda self: getattr(sys.stdout, "encoding", "utf-8"))
+
+    def write(self, text: str) -> int:
+        write_out(text)
+        return len(text)
+
+    def flush(self) -> None:
+        flush_out()
+
+
+def stdout_to_devnull() -> None:
+    """Point stdout's descriptor at /dev/null (so Python's final flush cannot fail on a closed pipe)."""
+    try:
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        os.close(devnull)
+    except (OSError, ValueError, AttributeError):
+        pass
 
 
 def error(message: str, stream: TextIO | None = None) -> None:

@@ -20,7 +20,7 @@ from chaintriage.tui.cli.annotated_tables import (
     with_as_of,
 )
 from chaintriage.tui.cli.check import check_status
-from chaintriage.tui.cli.common import EXIT_UNUSABLE, error, one_line
+from chaintriage.tui.cli.common import EXIT_UNUSABLE, error, one_line, write_out
 from chaintriage.tui.cli.table_output import render
 
 #: Columns of `events`, in order.
@@ -112,7 +112,7 @@ def run_events(args: argparse.Namespace) -> int:
             "method": est.method, "fit_rmse": ts.fit_rmse / 100.0,
         } for est in ts.events]
         frames.append(with_as_of(pd.DataFrame(rows, columns=EVENT_COLUMNS), a, args.format))
-    sys.stdout.write(render(pd.concat(frames, ignore_index=True), args.format))
+    write_out(render(pd.concat(frames, ignore_index=True), args.format))
     report_findings(args, result, annotated)
     if not args.quiet:
         for f in extra:

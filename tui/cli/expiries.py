@@ -9,6 +9,7 @@ import pandas as pd
 
 from chaintriage.core.term_structure import snapshot_term_structure
 from chaintriage.tui.cli.annotated_tables import (
+    annotated_status,
     COMMON_NOTES,
     add_table_options,
     load_and_annotate,
@@ -16,10 +17,9 @@ from chaintriage.tui.cli.annotated_tables import (
     report_findings,
     with_as_of,
 )
-from chaintriage.tui.cli.check import check_status
-from chaintriage.tui.cli.common import EXIT_UNUSABLE, one_line
+from chaintriage.tui.cli.common import EXIT_UNUSABLE, error, one_line, write_out
 from chaintriage.tui.cli.events import add_event_options, gather_events
-from chaintriage.tui.cli.model_options import positive
+from chaintriage.tui.cli.model_options import DAYS_MAX, days
 from chaintriage.tui.cli.table_output import render
 
 #: Columns of `expiries`, in order.
@@ -31,7 +31,7 @@ EXPIRY_COLUMNS = [
 ]
 
 #: Columns of `expiries --days`.
-HORIZON_COLUMNS = ["underlying", "days", "forward", "range_low", "range_high"]
+HORIZON_COLUMNS = ["underlying", "days", "forward", "range_low", "range_high", "extrapolated"]
 
 EXPIRIES_EPILOG = """\
 examples:
@@ -47,9 +47,11 @@ ex_event_vol the vol of its ordinary days (see `chaintriage events --help`).
 
 With --days, prints instead the range N days ahead (trading days on the
 252/250 bases, calendar days on 365), interpolating at-the-money total
-variance in time between expiries.
+variance in time between expiries. A horizon past the last expiry holds
+the last expiry's variance rate: its row says extrapolated = yes and a
+warning goes to stderr. N is more than zero and at most %d.
 
-""" + COMMON_NOTES
+""" % DAYS_MAX + COMMON_NOTES
 
 
 def configure(p: argparse.ArgumentParser) -> None:
@@ -59,7 +61,7 @@ def configure(p: argparse.ArgumentParser) -> None:
     p.epilog = EXPIRIES_EPILOG
     add_table_options(p)
     add_event_options(p)
-    p.add_argument("--days", type=positive, action="append", default=[], metavar="N",
+    p.add_argument("--days", type=days, action="append", default=[], metavar="N",
                    help="print the range N days ahead instead (repeatable)")
     p.set_defaults(func=run_expiries)
 
@@ -75,10 +77,14 @@ def run_expiries(args: argparse.Namespace) -> int:
     if args.days:
         rows = []
         for a in annotated:
-            for days in args.days:
-                f, lo, hi = a.horizon_range(days)
-                rows.append({"underlying": a.snapshot.underlying, "days": days,
-                             "forward": f, "range_low": lo, "range_high": hi})
+            for n in args.days:
+                f, lo, hi = a.horizon_range(n)
+                beyond = a.horizon_extrapolated(n)
+                if beyond:
+                    error(f"warning: {a.snapshot.underlying}: {n:g} days is past the last expiry; "
+                          "the range holds the last expiry's variance rate (an extrapolation)")
+                rows.append({"underlying": a.snapshot.underlying, "days": n,
+                             "forward": f, "range_low": lo, "range_high": hi, "extrapolated": beyond})
         frame = pd.DataFrame(rows, columns=HORIZON_COLUMNS)
     else:
         frames = []
@@ -91,10 +97,10 @@ def run_expiries(args: argparse.Namespace) -> int:
                 table[name] = term[name].reindex(pd.DatetimeIndex(table["expiry"])).to_numpy()
             frames.append(with_as_of(table[EXPIRY_COLUMNS], a, args.format))
         frame = pd.concat(frames, ignore_index=True)
-    sys.stdout.write(render(frame, args.format))
+    write_out(render(frame, args.format))
     report_findings(args, result, annotated)
     if not args.quiet:
         for f in extra:
             print(one_line(str(f)), file=sys.stderr)
-    status = check_status(result)
+    status = annotated_status(result, annotated)
     return max(status, 1) if left_out else status

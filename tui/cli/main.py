@@ -13,13 +13,20 @@ from __future__ import annotations
 
 import argparse
 import importlib
-import os
 import sys
 import warnings
 from collections.abc import Sequence
 from dataclasses import dataclass
 
-from chaintriage.tui.cli.common import EXIT_OK, EXIT_UNUSABLE, PROG, error
+from chaintriage.tui.cli.common import (
+    EXIT_OK,
+    EXIT_UNUSABLE,
+    PROG,
+    error,
+    flush_out,
+    safe_streams,
+    stdout_to_devnull,
+)
 
 
 @dataclass(frozen=True)
@@ -100,6 +107,8 @@ def main(argv: Sequence[str] | None = None) -> int:
     argv = list(sys.argv[1:] if argv is None else argv)
     from chaintriage.core.findings import ChainTriageError  # light: dataclasses only
 
+    safe_streams()
+
     try:
         if not argv:
             from chaintriage.tui.app import open_app  # textual loads only for the app
@@ -116,16 +125,14 @@ def main(argv: Sequence[str] | None = None) -> int:
         # not for the user: core reports such rows as NaN plus a finding.
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", RuntimeWarning)
-            return args.func(args)
+            status = args.func(args)
+        flush_out()  # a reader that went away leaves the status as the data deserves
+        return status
     except ChainTriageError as exc:
         error(str(exc))
         return EXIT_UNUSABLE
-    except BrokenPipeError:  # e.g. `chaintriage check big.csv | head`: stop quietly
-        try:
-            devnull = os.open(os.devnull, os.O_WRONLY)
-            os.dup2(devnull, sys.stdout.fileno())
-        except (OSError, ValueError, AttributeError):
-            pass
+    except BrokenPipeError:  # help or usage text cut short (commands write through write_out)
+        stdout_to_devnull()
         return EXIT_OK
     except KeyboardInterrupt:
         return 130

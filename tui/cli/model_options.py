@@ -4,6 +4,7 @@
 from __future__ import annotations
 
 import argparse
+import re
 from typing import TYPE_CHECKING
 
 from chaintriage.core.confidence import DEFAULT_CONFIDENCE
@@ -15,30 +16,42 @@ if TYPE_CHECKING:  # pragma: no cover
     from chaintriage.core.pipeline import PipelineSettings
 
 
+#: A plain decimal number: digits, one optional point, an optional exponent (no "_", "," or "inf").
+_PLAIN_NUMBER = re.compile(r"[+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?")
+#: A date as the options take it.
+_DATE = re.compile(r"\d{4}-\d{2}-\d{2}")
+#: The furthest --days horizon (a hundred years).
+DAYS_MAX = 36500
+
+
+def _number(text: str) -> float:
+    body = text.strip()
+    if not _PLAIN_NUMBER.fullmatch(body):
+        raise argparse.ArgumentTypeError(f"not a plain number: {text!r}")
+    return float(body)
+
+
 def _confidence(text: str) -> float:
-    try:
-        value = float(text.rstrip("%")) / (100.0 if text.endswith("%") else 1.0)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"not a number: {text!r}") from None
+    body = text.strip()
+    percent = body.endswith("%")
+    value = _number(body[:-1] if percent else body) / (100.0 if percent else 1.0)
     if not 0.0 < value < 1.0:
-        raise argparse.ArgumentTypeError(f"must be between 0 and 1 (or 0%% and 100%%): {text!r}")
+        raise argparse.ArgumentTypeError(f"must be between 0 and 1 (or 0% and 100%): {text!r}")
     return value
 
 
 def non_negative(text: str) -> float:
-    try:
-        value = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"not a number: {text!r}") from None
+    value = _number(text)
     if not value >= 0 or value == float("inf"):
         raise argparse.ArgumentTypeError(f"must be zero or more: {text!r}")
-    return value
+    return abs(value)  # "-0" is 0
 
 
-def positive(text: str) -> float:
-    value = non_negative(text)
-    if value == 0:
-        raise argparse.ArgumentTypeError(f"must be more than zero: {text!r}")
+def days(text: str) -> float:
+    """A --days horizon: more than zero and at most DAYS_MAX."""
+    value = _number(text)
+    if not 0 < value <= DAYS_MAX:
+        raise argparse.ArgumentTypeError(f"must be more than zero and at most {DAYS_MAX}: {text!r}")
     return value
 
 
@@ -57,9 +70,13 @@ def add_pipeline_options(parser: argparse.ArgumentParser) -> None:
 
 
 def parse_day(text: str) -> pd.Timestamp | None:
-    """The date in an option's text (midnight), or None when it is not a date (empty text and 'NaT' included)."""
+    """The date in an option's text, written YYYY-MM-DD (midnight), or None when it is not such a date
+    (words pandas would read as a time, such as 'now' or 'today', included)."""
     import pandas as pd
 
+    if not _DATE.fullmatch(text.strip()):
+        return None
+    text = text.strip()
     try:
         ts = pd.Timestamp(text)
     except (ValueError, TypeError, OverflowError):

@@ -3,12 +3,12 @@
 from __future__ import annotations
 
 import argparse
-import sys
 
 import pandas as pd
 
 from chaintriage.core.loading import YEAR_MAX, YEAR_MIN
 from chaintriage.tui.cli.annotated_tables import (
+    annotated_status,
     COMMON_NOTES,
     add_table_options,
     load_and_annotate,
@@ -16,8 +16,7 @@ from chaintriage.tui.cli.annotated_tables import (
     report_findings,
     with_as_of,
 )
-from chaintriage.tui.cli.check import check_status
-from chaintriage.tui.cli.common import EXIT_UNUSABLE, error
+from chaintriage.tui.cli.common import EXIT_UNUSABLE, error, write_out
 from chaintriage.tui.cli.model_options import non_negative, parse_day
 from chaintriage.tui.cli.table_output import render
 
@@ -87,8 +86,8 @@ def run_table(args: argparse.Namespace) -> int:
             have = ", ".join(sorted(f"{e:%Y-%m-%d}" for e in present))
             error(f"no contracts expire on {', '.join(f'{m:%Y-%m-%d}' for m in missing)}; expiries: {have}")
             return EXIT_UNUSABLE
-    sys.stdout.write(render(pd.concat(frames, ignore_index=True), args.format))
+    write_out(render(pd.concat(frames, ignore_index=True), args.format))
     report_findings(args, result, annotated)
-    return check_status(result)
+    return annotated_status(result, annotated)
 
 

@@ -91,6 +91,7 @@ _PLAIN = {
     "expected_abs_price": ("mean |price|", "price"),
     "ordinary_vol": ("ordinary vol", "vol"),
     "method": ("method", "text"),
+    "extrapolated": ("extrapolated", "bool"),
 }
 
 #: Formatters shared with the app (tui.formatting), in ASCII mode for plain terminals.

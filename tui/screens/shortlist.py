@@ -150,8 +150,17 @@ class ShortlistScreen(Screen):
         """Write the shortlist to ``path`` (.md: Markdown, else CSV); ask before replacing a file."""
         if not path:
             return
-        target = Path(os.path.expanduser(path))
-        if target.is_dir():
+        # Any OS error while checking or writing the path (a name too long for the file system, a
+        # NUL byte, a folder that is not there or not writable) is a notice; the app and the
+        # shortlist stay as they were.
+        try:
+            target = Path(os.path.expanduser(path))
+            is_dir = target.is_dir()
+        except (OSError, ValueError, RuntimeError) as exc:
+            self.app.notify(f"{path[:80]!r} cannot be used as a file name: {getattr(exc, 'strerror', None) or exc}",
+                            title="not written", severity="error", markup=False)
+            return
+        if is_dir:
             self.app.notify(f"{target} is a folder: give a file name, e.g. {target / 'shortlist.csv'}",
                             title="not written", severity="warning", markup=False)
             return
@@ -172,6 +181,10 @@ class ShortlistScreen(Screen):
             return
         except ChainTriageError as exc:
             self.app.notify(str(exc), title="not written", severity="error", markup=False)
+            return
+        except (OSError, ValueError) as exc:
+            self.app.notify(f"cannot write {str(target)[:80]}: {getattr(exc, 'strerror', None) or exc}",
+                            title="not written", severity="error", markup=False)
             return
         n = len(self.shortlist)
         self.app.notify(f"wrote {n} contract{'s' if n != 1 else ''} to {target}", markup=False)

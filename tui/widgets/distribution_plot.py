@@ -35,6 +35,7 @@ from dataclasses import dataclass, field
 from typing import Any, Mapping, Sequence
 
 import numpy as np
+from rich.segment import Segment
 from rich.style import Style
 from rich.text import Text
 from textual.strip import Strip
@@ -447,13 +448,20 @@ class DistributionPlot(Widget):
             result = self._draw()
             self.last_result = result
             console = self.app.console
-            bg = Style(bgcolor=self._theme.colors["background"])
-            self._strips = [Strip(list(line.render(console)), line.cell_len).extend_cell_length(key[0], bg)
-                            for line in result.lines]
+            base = self._base_style()
+            # Every segment gets the theme's text and background under its own style: an unstyled
+            # run (axis, notes, padding) would show the terminal's default colours, and Textual's
+            # monochrome filter (NO_COLOR) cannot take a segment without a style.
+            self._strips = [Strip(list(Segment.apply_style(line.render(console), style=base)), line.cell_len)
+                            .extend_cell_length(key[0], base) for line in result.lines]
             self._strips_size = key
         if 0 <= y < len(self._strips):
             return self._strips[y]
-        return Strip.blank(self.size.width)
+        return Strip.blank(self.size.width, self._base_style())
+
+    def _base_style(self) -> Style:
+        """The theme's text on the theme's background: what every cell of the plot starts from."""
+        return Style(color=self._theme.colors["text"], bgcolor=self._theme.colors["background"])
 
     def render(self) -> Text:
         result = self._draw()

@@ -600,11 +600,11 @@ class StrikeGrid(ScrollView, can_focus=True):
         else:
             r = int(scroll_y) + y - self.header_lines
             if not len(self._strikes):
-                strip = self._empty_strip() if r == 0 else Strip.blank(0)
+                strip = self._empty_strip() if r == 0 else Strip.blank(0, self._styles.base)
             elif 0 <= r < self._display_count():
                 strip = self._row_strip(r)
             else:
-                strip = Strip.blank(0)
+                strip = Strip.blank(0, self._styles.base)
         return strip.crop_extend(int(scroll_x), int(scroll_x) + width, self._styles.base)
 
     def render_lines_text(self) -> list[str]:
