@@ -53,21 +53,34 @@ def _shape(forward, strike, sigma, t):
     return s, d1, phi, ndtr(d1)
 
 
+def gamma_theta_vega(spot, forward, strike, sigma, t, discount, days, is_call=True):
+    """(gamma, theta per day, vega per point) in one pass; units as ``gamma``, ``theta_per_day``, ``vega_per_point``."""
+    spot, forward, strike, sigma, t, discount, days = _arrays(spot, forward, strike, sigma, t, discount, days)
+    is_call = np.broadcast_to(np.asarray(is_call, dtype=bool), spot.shape)
+    s, d1, phi, nd1 = _shape(forward, strike, sigma, t)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        dfp = discount * forward * phi
+        gam = np.where(spot > 0, dfp / (spot * spot * s), np.nan)
+        vega = dfp * (s / np.where(sigma > 0, sigma, np.nan)) / 100.0  # s / sigma = sqrt(t)
+        nd2 = ndtr(d1 - s)
+        # Black-76 value from N(d1), N(d2); the put through parity.
+        call = forward * nd1 - strike * nd2
+        value = discount * np.where(is_call, call, call - (forward - strike))
+        fwd_delta = np.where(is_call, nd1, nd1 - 1.0)
+        life = dfp * s / 2.0 + np.log(discount) * value + np.log(forward / spot) * discount * forward * fwd_delta
+        ok = (spot > 0) & (discount > 0) & (days > 0)
+        theta = np.where(ok, -life / np.where(days > 0, days, np.nan), np.nan)
+    return gam, theta, vega
+
+
 def gamma(spot, forward, strike, sigma, t, discount=1.0):
     """d2V/dS2 per unit of spot squared: DF * F * phi(d1) / (S^2 * sigma * sqrt(t)); same for calls and puts."""
-    spot, forward, strike, sigma, t, discount = _arrays(spot, forward, strike, sigma, t, discount)
-    s, _, phi, _ = _shape(forward, strike, sigma, t)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        out = discount * forward * phi / (spot * spot * s)
-    return np.where(spot > 0, out, np.nan)
+    return gamma_theta_vega(spot, forward, strike, sigma, t, discount, 1.0)[0]
 
 
 def vega_per_point(forward, strike, sigma, t, discount=1.0):
     """dV/dsigma per vol point (0.01 of the vol on the basis of ``t``), price units; same for calls and puts."""
-    forward, strike, sigma, t, discount = _arrays(forward, strike, sigma, t, discount)
-    s, _, phi, _ = _shape(forward, strike, sigma, t)
-    with np.errstate(invalid="ignore"):
-        return np.where(np.isfinite(s), discount * forward * phi * np.sqrt(np.abs(t)) / 100.0, np.nan)
+    return gamma_theta_vega(1.0, forward, strike, sigma, t, discount, 1.0)[2]
 
 
 def theta_per_day(spot, forward, strike, sigma, t, discount, days, is_call=True):
@@ -77,16 +90,4 @@ def theta_per_day(spot, forward, strike, sigma, t, discount, days, is_call=True)
     a trading basis, calendar days for ACT/365). See the module docstring for
     the formula and why it needs no separate rate.
     """
-    spot, forward, strike, sigma, t, discount, days = _arrays(spot, forward, strike, sigma, t, discount, days)
-    is_call = np.broadcast_to(np.asarray(is_call, dtype=bool), spot.shape)
-    s, d1, phi, nd1 = _shape(forward, strike, sigma, t)
-    d2 = d1 - s
-    fwd_delta = np.where(is_call, nd1, nd1 - 1.0)
-    undiscounted = np.where(is_call, forward * nd1 - strike * ndtr(d2), strike * ndtr(-d2) - forward * ndtr(-d1))
-    with np.errstate(divide="ignore", invalid="ignore"):
-        value = discount * undiscounted
-        life = (discount * forward * phi * s / 2.0 + np.log(discount) * value
-                + np.log(forward / spot) * discount * forward * fwd_delta)
-        ok = (spot > 0) & (discount > 0) & (days > 0)
-        return np.where(ok, -life / np.where(days > 0, days, np.nan), np.nan)
-
+    return gamma_theta_vega(spot, forward, strike, sigma, t, discount, days, is_call)[1]

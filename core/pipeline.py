@@ -512,10 +512,11 @@ def _greek_and_trade_columns(spot, f_row, df_row, strike, vol, t_row, basis_days
     be_buy = econ.breakeven(strike, buy, is_call)
     ret = econ.seller_return(strike, spot, sell, is_call)
     edge = econ.edge_to_mid(ask, mid)
+    gamma, theta, vega = greeks.gamma_theta_vega(spot, f_row, strike, vol, t_row, df_row, basis_days, is_call)
     return {
-        "gamma": greeks.gamma(spot, f_row, strike, vol, t_row, df_row),
-        "theta": greeks.theta_per_day(spot, f_row, strike, vol, t_row, df_row, basis_days, is_call),
-        "vega": greeks.vega_per_point(f_row, strike, vol, t_row, df_row),
+        "gamma": gamma,
+        "theta": theta,
+        "vega": vega,
         "sell_premium": sell,
         "buy_premium": buy,
         "breakeven_sell": be_sell,
