@@ -19,6 +19,7 @@ import pandas as pd
 from chaintriage.core.distribution import range_flat, range_smile
 from chaintriage.core.findings import ChainTriageError, Finding
 from chaintriage.core.pipeline import AnnotatedSnapshot
+from chaintriage.core.targets import target_mask
 
 from . import formatting as fm
 
@@ -54,19 +55,27 @@ class StrikeFilter:
 
     ``sigma`` (sigmas, >= 0): a call qualifies when its sigma distance is >= sigma
     (above the forward), a put when <= -sigma (below it), i.e. out of the money
-    by at least that many sigmas. ``max_spread`` (decimal of mid, e.g. 0.2) and
-    ``min_open_interest`` (contracts) are liquidity limits; a missing spread or
-    open interest fails a limit that is set. A strike row stays when either of
-    its contracts qualifies. ``None`` means "no limit".
+    by at least that many sigmas. ``delta`` and ``beyond``: (low, high) ranges
+    of |delta| and P(beyond) (decimals; either end None for open). ``side``:
+    'calls', 'puts' or 'both' (which contracts can qualify). These targets are
+    core's predicate (``core.targets.target_mask``). ``max_spread`` (decimal
+    of mid, e.g. 0.2) and ``min_open_interest`` (contracts) are liquidity
+    limits; a missing spread, open interest or measure fails a limit that is
+    set. A strike row stays when either of its contracts qualifies. ``None``
+    means "no limit".
     """
 
     sigma: float | None = None
     max_spread: float | None = None
     min_open_interest: float | None = None
+    delta: tuple[float | None, float | None] | None = None
+    beyond: tuple[float | None, float | None] | None = None
+    side: str = "both"
 
     @property
     def active(self) -> bool:
-        return not (self.sigma is None and self.max_spread is None and self.min_open_interest is None)
+        return not (self.sigma is None and self.max_spread is None and self.min_open_interest is None
+                    and self.delta is None and self.beyond is None and self.side == "both")
 
     def qualifies(self, frame: pd.DataFrame) -> np.ndarray:
         """Boolean per contract (row of ``frame``): does it pass every limit that is set."""
@@ -74,11 +83,7 @@ class StrikeFilter:
         ok = np.ones(n, dtype=bool)
         if not n:
             return ok
-        if self.sigma is not None:
-            z = frame["sigma_distance"].to_numpy(dtype=float)
-            is_call = (frame["kind"] == "call").to_numpy()
-            with np.errstate(invalid="ignore"):
-                ok &= np.where(is_call, z >= self.sigma, z <= -self.sigma)
+        ok &= target_mask(frame, sigma=self.sigma, delta=self.delta, beyond=self.beyond, side=self.side)
         if self.max_spread is not None:
             s = frame["spread_pct"].to_numpy(dtype=float)
             with np.errstate(invalid="ignore"):
@@ -107,8 +112,14 @@ class StrikeFilter:
         ge = ">=" if ascii_only else "≥"
         le = "<=" if ascii_only else "≤"
         parts = []
+        if self.side != "both":
+            parts.append(f"{self.side} only")
         if self.sigma is not None:
             parts.append(f"{_num(self.sigma)}{sig} or more out of the money")
+        if self.delta is not None:
+            parts.append(_range_words("|delta|" if ascii_only else "|Δ|", self.delta, 1.0, "", ascii_only))
+        if self.beyond is not None:
+            parts.append(_range_words("P(beyond)", self.beyond, 100.0, "%", ascii_only))
         if self.max_spread is not None:
             parts.append(f"spread {le} {_num(100 * self.max_spread)}%")
         if self.min_open_interest is not None:
@@ -116,21 +127,66 @@ class StrikeFilter:
         return " · ".join(parts) if not ascii_only else " / ".join(parts)
 
     @classmethod
-    def parse(cls, sigma: str = "", max_spread: str = "", min_open_interest: str = "") -> "StrikeFilter":
+    def parse(cls, sigma: str = "", max_spread: str = "", min_open_interest: str = "", *,
+              delta: str = "", beyond: str = "", side: str = "both") -> "StrikeFilter":
         """A filter from what the user typed (blank = no limit; the spread in percent, "%" allowed).
 
+        ``delta`` is an |delta| range as decimals, ``beyond`` a P(beyond) range
+        in percent ("%" allowed): "LOW-HIGH", "LOW-" (at least) or "-HIGH" (at
+        most), a single number meaning at least. ``side``: calls, puts or both.
         Raises ChainTriageError with a message naming the field when a value is unusable.
         """
+        side = (side or "both").strip().lower()
+        if side not in ("calls", "puts", "both"):
+            raise ChainTriageError(f"side: {fm.clean_text(side)!r} is not calls, puts or both")
         return cls(
             sigma=_parse_number(sigma, "sigmas", allow_zero=True),
             max_spread=None if (v := _parse_number(max_spread.rstrip().rstrip("%"), "max spread",
                                                    allow_zero=True)) is None else v / 100.0,
             min_open_interest=_parse_number(min_open_interest, "min open interest", allow_zero=True),
+            delta=_parse_range(delta, "|delta|", 1.0),
+            beyond=_parse_range(beyond, "P(beyond) %", 100.0),
+            side=side,
         )
 
 
 def _num(x: float) -> str:
     return f"{x:.2f}".rstrip("0").rstrip(".")
+
+
+def _range_words(label: str, bounds: tuple[float | None, float | None], scale: float, unit: str,
+                 ascii_only: bool) -> str:
+    low, high = bounds
+    ge, le = (">=", "<=") if ascii_only else ("≥", "≤")
+    if low is not None and high is not None:
+        return f"{label} {_num(scale * low)}{unit} to {_num(scale * high)}{unit}"
+    if low is not None:
+        return f"{label} {ge} {_num(scale * low)}{unit}"
+    if high is not None:
+        return f"{label} {le} {_num(scale * high)}{unit}"
+    return f"{label} known"
+
+
+def _parse_range(text: str, what: str, scale: float) -> tuple[float | None, float | None] | None:
+    """(low, high) in decimals from "LOW-HIGH", "LOW-", "-HIGH" or "LOW" typed in units of 1/scale."""
+    text = (text or "").strip().replace("%", "")
+    if not text:
+        return None
+    low_text, sep, high_text = text.partition("-")
+    if not sep:
+        high_text = ""
+    low = _parse_number(low_text, what, allow_zero=True)
+    high = _parse_number(high_text, what, allow_zero=True)
+    if low is None and high is None:
+        raise ChainTriageError(f"{what}: give LOW-HIGH, LOW- or -HIGH")
+    low = None if low is None else low / scale
+    high = None if high is None else high / scale
+    for value in (low, high):
+        if value is not None and value > 1.0:
+            raise ChainTriageError(f"{what}: a value above {_num(scale)} is out of range")
+    if low is not None and high is not None and low > high:
+        raise ChainTriageError(f"{what}: the low end is above the high end")
+    return low, high
 
 
 def _parse_number(text: str, what: str, *, allow_zero: bool) -> float | None:
