@@ -180,8 +180,13 @@ def test_one_known_contract_reads_as_core_computed_it():
         assert cells(left)[:2] == ["7.05", "7.35"] and cells(right)[:2] == ["15.00", "15.55"]
         await pilot.press("c")
         text = app.clipboard
-        assert text == summarize(put, as_of=oracle.snapshot.as_of, underlying="OSPX")
-        assert text.startswith("OSPX 2026-12-18 305 put | mid 15.275 | IV 39.2% | +0.29σ | P(beyond) 59.2%")
+        exp = oracle.expiries.set_index("expiry").loc[pd.Timestamp("2026-12-18")]
+        assert text == summarize(put, as_of=oracle.snapshot.as_of, underlying="OSPX", spot=oracle.snapshot.spot,
+                                 forward=exp["forward"], days=exp["calendar_days"])
+        assert text.startswith(f"OSPX 305 put, expiry 2026-12-18 ({exp['calendar_days']:.0f} days) | "
+                               "bid 15.00 x ask 15.55, mid 15.275 | IV 39.2% |")
+        assert "| 0.29 sigmas above the forward | chance OSPX finishes below 305: 59.2% |" in text
+        assert f"forward {fm.fmt_level(exp['forward'])} |" in text
         # the header: forward, ATM IV and ranges as core gives them
         res = oracle.results[pd.Timestamp("2026-12-18")]
         head = bar(app, "expirybar")
