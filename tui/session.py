@@ -19,7 +19,7 @@ import pandas as pd
 from chaintriage.core.distribution import range_flat, range_smile
 from chaintriage.core.findings import ChainTriageError, Finding
 from chaintriage.core.pipeline import AnnotatedSnapshot
-from chaintriage.core.targets import target_mask
+from chaintriage.core.targets import Target, TargetSelector, target_mask
 
 from . import formatting as fm
 
@@ -278,6 +278,7 @@ class SnapshotView:
         self._dists: dict[pd.Timestamp, Any] = {}
         self._ranges: dict[tuple[pd.Timestamp, float], tuple[tuple[float, float], tuple[float, float]]] = {}
         self._file_findings = list(file_findings)
+        self._target_selector: TargetSelector | None = None
 
     # --- labels
 
@@ -383,6 +384,19 @@ class SnapshotView:
             arbitrage_free=bool(arb) if fit_method else None,
             findings=tuple(res.findings) if res is not None else (),
         )
+
+    # --- targets
+
+    def targets(self, target: Target, shift: int = 0) -> pd.DataFrame:
+        """core's per-expiry target table (``core.targets.TARGET_TABLE_COLUMNS``) for this snapshot.
+
+        The selector (each side's contracts grouped by expiry and strike) is
+        kept, so a change of target costs a few array passes. ``row`` columns
+        are positions in ``annotated.contracts``.
+        """
+        if self._target_selector is None:
+            self._target_selector = TargetSelector(self.annotated.contracts, self.annotated.expiries)
+        return self._target_selector.select(target, shift)
 
     # --- findings
 

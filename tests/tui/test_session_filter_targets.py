@@ -61,3 +61,19 @@ def test_parse_and_describe_ranges():
                 dict(delta="-"), dict(side="left")):
         with pytest.raises(ChainTriageError):
             StrikeFilter.parse(**bad)
+
+
+def test_snapshot_view_targets_are_cores_selection():
+    """[D] the view hands back core's per-expiry table, the same after other targets (kept selector)."""
+    from chaintriage.core.targets import Target, select_targets
+    from chaintriage.tui.session import SnapshotView
+    from tests.tui.app_support import demo_annotated
+
+    ann = demo_annotated()[0]
+    view = SnapshotView(ann)
+    target = Target("puts", "sigma", 1.5)
+    first = view.targets(target)
+    view.targets(Target("calls", "delta", 0.2), shift=1)
+    pd.testing.assert_frame_equal(view.targets(target), first)
+    pd.testing.assert_frame_equal(first, select_targets(ann.contracts, ann.expiries, target))
+    assert len(first) == len(view.expiries) and (first["row"] >= 0).any()
