@@ -118,3 +118,37 @@ def test_per_day_and_returns_use_calendar_days(annotated):
     np.testing.assert_allclose(c["return_sell"][has_bid], ret[has_bid], rtol=1e-12)
     np.testing.assert_allclose(c["return_sell_annual"][has_bid], (ret * 365.0 / days)[has_bid], rtol=1e-12)
     assert c.loc[~has_bid, "sell_premium"].isna().all() and c.loc[~has_bid, "p_profit_sell"].isna().all()
+
+
+def test_greeks_put_call_parity_in_the_table(annotated):
+    """[D] C - P = DF (F - K): per strike, call delta - put delta = DF F / S, equal gamma and vega
+    (the flat chain's calls and puts carry the same implied vol to ~1e-10)."""
+    _, ann, ts, fwd, dfs = annotated
+    c = ann.contracts
+    for i, expiry in enumerate(EXPIRIES):
+        sub = c[(c["expiry"] == pd.Timestamp(expiry)) & (c["mid"] > 0.05)]
+        calls = sub[sub["kind"] == "call"].set_index("strike")
+        puts = sub[sub["kind"] == "put"].set_index("strike")
+        both = calls.index.intersection(puts.index)
+        assert len(both) > 5
+        np.testing.assert_allclose(calls.loc[both, "delta"] - puts.loc[both, "delta"], dfs[i] * fwd[i] / SPOT,
+                                   rtol=1e-8)
+        np.testing.assert_allclose(calls.loc[both, "gamma"], puts.loc[both, "gamma"], rtol=1e-7)
+        np.testing.assert_allclose(calls.loc[both, "vega"], puts.loc[both, "vega"], rtol=1e-7)
+
+
+def test_p_profit_at_a_zero_spread_is_p_beyond_the_mid_breakeven(flat_chain):
+    """[D] with bid = ask = mid, the buyer's P(profit) is the table's P(beyond the breakeven) and the
+    seller's its complement; the breakevens are the mid breakeven."""
+    _, ts, fwd, dfs = flat_chain
+    strikes = [np.arange(80.0, 122.5, 2.5)] * len(EXPIRIES)
+    snap = build_snapshot(EXPIRIES, strikes, lambda i, k: ql_black(fwd[i], k, VOL, ts[i], dfs[i], True),
+                          lambda i, k: ql_black(fwd[i], k, VOL, ts[i], dfs[i], False), spot=SPOT,
+                          half_spread=0.0)
+    c = annotate(snap, PipelineSettings(basis="365")).contracts
+    c = c[c["mid"] > 0]
+    np.testing.assert_array_equal(c["breakeven_buy"], c["breakeven"])
+    np.testing.assert_array_equal(c["breakeven_sell"], c["breakeven"])
+    np.testing.assert_allclose(c["p_profit_buy"], c["p_breakeven"], atol=1e-15)
+    np.testing.assert_allclose(c["p_profit_sell"], 1.0 - c["p_breakeven"], atol=1e-15)
+    assert (c["edge_to_mid"] == 0).all()
