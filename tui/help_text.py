@@ -116,6 +116,19 @@ COLUMNS: tuple[ColumnHelp, ...] = (
     ColumnHelp("open_interest", "OI", "open interest: contracts outstanding"),
     ColumnHelp("volume", "volume", "contracts traded in the session"),
     ColumnHelp("flags", "flags", "short words about the quote: zero-bid, wide, no-iv, ..."),
+    ColumnHelp("gamma", "gamma", "change of delta per unit change in the underlying"),
+    ColumnHelp("theta", "theta", "value change per day with the underlying and vol held: per trading day on the "
+               "252 and 250 bases, per calendar day on 365"),
+    ColumnHelp("vega", "vega", "value change per vol point (one percentage point of IV)"),
+    ColumnHelp("p_profit_sell", "P sell", "chance a seller at the bid ends expiry ahead: the underlying finishes "
+               "short of strike + bid (call) or above strike - bid (put)"),
+    ColumnHelp("p_profit_buy", "P buy", "chance a buyer at the ask ends expiry ahead: the underlying finishes "
+               "beyond strike + ask (call) or below strike - ask (put)"),
+    ColumnHelp("per_day_sell", "/day", "the bid divided by the calendar days to expiry"),
+    ColumnHelp("return_sell_annual", "yr ret", "a seller's simple return on capital, x 365 / calendar days: "
+               "bid / (strike - bid) for a cash-secured put, bid / spot for a covered call"),
+    ColumnHelp("edge_share_sell", "edge", "what selling at the bid gives up against the mid, as a share of "
+               "the bid: (mid - bid) / bid"),
 )
 
 #: The areas of the triage screen, top to bottom.
