@@ -20,7 +20,7 @@ import pandas as pd
 import pytest
 from scipy.stats import lognorm
 
-from chaintriage.tui import cli
+from chaintriage.tui.cli import main as cli
 from chaintriage.tui.cli.targets import TARGETS_COLUMNS
 from tests.core.chain_builders import AS_OF, build_snapshot, ql_black, year_fractions
 
