@@ -129,7 +129,7 @@ def test_copy_puts_the_summary_on_both_clipboards_and_shows_it():
         strike, kind = app.triage.grid.highlighted
         row = oracle.contracts[(oracle.contracts["expiry"] == app.state.current_expiry)
                                & (oracle.contracts["strike"] == strike) & (oracle.contracts["kind"] == kind)]
-        exp = oracle.expiries.set_index("expiry").loc[app.current_expiry]
+        exp = oracle.expiries.set_index("expiry").loc[app.state.current_expiry]
         expected = summarize(row.iloc[0], as_of=oracle.snapshot.as_of, underlying="OSPX", spot=oracle.snapshot.spot,
                              forward=exp["forward"], days=exp["calendar_days"])
         assert app.clipboard == expected

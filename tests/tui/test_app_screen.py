@@ -315,9 +315,9 @@ def test_greek_and_trade_columns_read_as_core_computed_them(config_home):
         for keys, expected in shown.items():
             app.set_columns(list(keys))
             goto_expiry(app, "2026-12-18")
-            app.grid.cursor_to_strike(305.0, "put")
+            app.triage.grid.cursor_to_strike(305.0, "put")
             await pilot.pause()
-            assert app.grid.columns == list(keys)
+            assert app.triage.grid.columns == list(keys)
             left, _, right = grid_row(app, 305.0).split(BAR)
             for side, row in ((cells(left), call), (cells(right), put)):
                 assert side == expected(row)
