@@ -24,7 +24,8 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 import pandas as pd
 
-from . import black76
+from . import black76, greeks
+from . import trade_economics as econ
 from .confidence import DEFAULT_CONFIDENCE
 from .distribution import (
     Distribution,
@@ -53,12 +54,30 @@ from .time_to_expiry import (
 from .calendar_arbitrage import calendar_findings
 from .touch_expiry import ExpiryTouch, expiry_touch
 
+#: Greeks beside delta: gamma per unit of spot squared, theta in price units per day of the
+#: basis (a trading day on 252/250, a calendar day on 365), vega in price units per vol point.
+GREEK_COLUMNS = ["gamma", "theta", "vega"]
+
+#: Economics at executable prices (seller at the bid, buyer at the ask), core/trade_economics.py:
+#: premiums and breakevens in price units; P(profit) at expiry, risk-neutral; premium per
+#: calendar day; the seller's simple return on capital (cash-secured put: bid / (strike - bid),
+#: covered call: bid / spot) and its simple ACT/365 annualisation; the buyer's move to break
+#: even in sigmas (payoff direction, from the forward); the edge to mid (ask - mid) in price
+#: units and as a share of each side's premium.
+TRADE_COLUMNS = [
+    "sell_premium", "buy_premium", "breakeven_sell", "breakeven_buy", "p_profit_sell", "p_profit_buy",
+    "premium_per_day_sell", "premium_per_day_buy", "return_sell", "return_sell_annual",
+    "move_to_breakeven_buy", "edge_to_mid", "edge_share_sell", "edge_share_buy",
+]
+
 #: Columns of the annotated contract table, in display order.
 CONTRACT_TABLE_COLUMNS = [
     "underlying", "expiry", "strike", "kind", "bid", "ask", "mid", "iv",
     "sigma_distance", "p_beyond", "p_beyond_flat", "p_touch", "p_touch_low", "p_touch_high", "delta",
     "breakeven", "p_breakeven", "spread_pct", "flags",
     "volume", "open_interest", "otm", "source_line",
+    # Greeks (core/greeks.py) and the economics at the bid and the ask (core/trade_economics.py).
+    *GREEK_COLUMNS, *TRADE_COLUMNS,
 ]
 
 #: Columns of the per-expiry table, in display order.
@@ -521,6 +540,11 @@ def annotate(snapshot: Snapshot, settings: PipelineSettings | None = None, touch
 
     open_interest = numeric("open_interest")
     flags = _flags(open_interest, bid, iv, spread_pct, settings)
+    per_year = 365.0 if settings.basis == "365" else float(settings.basis)
+    extra = _greek_and_trade_columns(
+        snapshot.spot, f_row, df_row, strike, vol_for_greeks, t_row, t_row * per_year, t_cal[exp_code] * 365.0,
+        atm_ivs[exp_code], is_call, bid, ask, mid, rows, row_smiles if rows.size else None,
+    )
 
     out = pd.DataFrame({
         "underlying": underlying,
@@ -546,6 +570,7 @@ def annotate(snapshot: Snapshot, settings: PipelineSettings | None = None, touch
         "open_interest": open_interest,
         "otm": otm,
         "source_line": contracts["source_line"].to_numpy()[order],
+        **extra,
     })
 
     counts = ends - starts
@@ -574,6 +599,42 @@ def annotate(snapshot: Snapshot, settings: PipelineSettings | None = None, touch
         findings.extend(fs)
     annotated = AnnotatedSnapshot(snapshot, settings, out, exp_table, results, findings)
     return annotated.fill_touch() if touch else annotated
+
+
+def _greek_and_trade_columns(spot, f_row, df_row, strike, vol, t_row, basis_days, calendar_days, atm_row,
+                             is_call, bid, ask, mid, rows, row_smiles) -> dict[str, np.ndarray]:
+    """GREEK_COLUMNS and TRADE_COLUMNS per contract (rows in table order); P(profit) only on ``rows`` (those with a smile)."""
+    n = strike.size
+    sell, buy = econ.executable_premiums(bid, ask)
+    p_sell = np.full(n, np.nan)
+    p_buy = np.full(n, np.nan)
+    if rows.size:
+        p_sell[rows], p_buy[rows] = econ.profit_probabilities(row_smiles, f_row[rows], strike[rows], sell[rows],
+                                                              buy[rows], is_call[rows])
+    be_sell = econ.breakeven(strike, sell, is_call)
+    be_buy = econ.breakeven(strike, buy, is_call)
+    ret = econ.seller_return(strike, spot, sell, is_call)
+    edge = econ.edge_to_mid(ask, mid)
+    gamma, theta, vega = greeks.gamma_theta_vega(spot, f_row, strike, vol, t_row, df_row, basis_days, is_call)
+    return {
+        "gamma": gamma,
+        "theta": theta,
+        "vega": vega,
+        "sell_premium": sell,
+        "buy_premium": buy,
+        "breakeven_sell": be_sell,
+        "breakeven_buy": be_buy,
+        "p_profit_sell": p_sell,
+        "p_profit_buy": p_buy,
+        "premium_per_day_sell": econ.premium_per_day(sell, calendar_days),
+        "premium_per_day_buy": econ.premium_per_day(buy, calendar_days),
+        "return_sell": ret,
+        "return_sell_annual": econ.annualised_simple(ret, calendar_days),
+        "move_to_breakeven_buy": econ.move_to_breakeven(f_row, be_buy, atm_row, t_row, is_call),
+        "edge_to_mid": edge,
+        "edge_share_sell": econ.share_of_premium(edge, sell),
+        "edge_share_buy": econ.share_of_premium(edge, buy),
+    }
 
 
 def _no_vol_findings(status, contracts, order, exp_code, is_call, strike, mid, otm, underlying, labels,

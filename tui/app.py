@@ -322,8 +322,11 @@ class ChainTriageApp(App[int]):
             what = f"no {hl[1]} at this strike" if hl else "no contract highlighted"
             self.notify(f"nothing to copy: {what}", severity="warning", markup=False)
             return
+        index = view.expiry_index(self.state.current_expiry)
+        info = view.info(index, self.state.confidence) if index is not None else None
         text = summarize(contract, as_of=view.snapshot.as_of, underlying=view.snapshot.underlying,
-                         ascii_only=self.state.ascii_only)
+                         ascii_only=self.state.ascii_only, spot=view.snapshot.spot,
+                         forward=info.forward if info else None, days=info.calendar_days if info else None)
         self.copy_text(text)
 
     def copy_entry(self, entry: ShortlistEntry) -> None:

@@ -214,6 +214,27 @@ def fmt_delta(value: Any, width: int | None = None, ascii_only: bool = False) ->
     return fit(signed(x), width)
 
 
+def fmt_greek(value: Any, width: int | None = None, ascii_only: bool = False) -> str:
+    """gamma, theta or vega: four decimals below 1 (-0.0118), three below 100, one above; huge in e-notation."""
+    x = as_finite(value)
+    if x is None:
+        return _missing(width, ascii_only)
+    if abs(x) >= HUGE:
+        return fit(_huge(x), width)
+    decimals = 4 if abs(x) < 1 else (3 if abs(x) < 100 else 1)
+    return fit(tidy_zero(f"{x:.{decimals}f}"), width)
+
+
+def fmt_return(value: Any, width: int | None = None, ascii_only: bool = False) -> str:
+    """A return on capital (decimal) as a percentage with one decimal; >= 10,000% as ">9999%"."""
+    x = as_finite(value)
+    if x is None:
+        return _missing(width, ascii_only)
+    if abs(x) >= 99.995:
+        return fit(">9999%" if x > 0 else "<-9999%", width)
+    return fmt_pct(x, 1, width, ascii_only)
+
+
 def fmt_count(value: Any, width: int | None = None, ascii_only: bool = False) -> str:
     """A count (open interest, volume) with thousands separators: 12345 -> "12,345"."""
     x = as_finite(value)

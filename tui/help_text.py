@@ -122,6 +122,19 @@ COLUMNS: tuple[ColumnHelp, ...] = (
     ColumnHelp("open_interest", "OI", "open interest: contracts outstanding"),
     ColumnHelp("volume", "volume", "contracts traded in the session"),
     ColumnHelp("flags", "flags", "short words about the quote: zero-bid, wide, no-iv, ..."),
+    ColumnHelp("gamma", "gamma", "change of delta per unit change in the underlying"),
+    ColumnHelp("theta", "theta", "value change per day with the underlying and vol held: per trading day on the "
+               "252 and 250 bases, per calendar day on 365"),
+    ColumnHelp("vega", "vega", "value change per vol point (one percentage point of IV)"),
+    ColumnHelp("p_profit_sell", "P sell", "chance a seller at the bid ends expiry ahead: the underlying finishes "
+               "short of strike + bid (call) or above strike - bid (put)"),
+    ColumnHelp("p_profit_buy", "P buy", "chance a buyer at the ask ends expiry ahead: the underlying finishes "
+               "beyond strike + ask (call) or below strike - ask (put)"),
+    ColumnHelp("per_day_sell", "/day", "the bid divided by the calendar days to expiry"),
+    ColumnHelp("return_sell_annual", "yr ret", "a seller's simple return on capital, x 365 / calendar days: "
+               "bid / (strike - bid) for a cash-secured put, bid / spot for a covered call"),
+    ColumnHelp("edge_share_sell", "edge", "what selling at the bid gives up against the mid, as a share of "
+               "the bid: (mid - bid) / bid"),
 )
 
 #: The areas of the triage screen, top to bottom.
@@ -161,6 +174,22 @@ PLOT: tuple[tuple[str, str], ...] = (
     ("F, 1, 2", "the forward, and one and two sigmas either side of it"),
 )
 
+#: Figures of the command line's table and targets and of the copied summary, with their formulas.
+FORMULAS: tuple[tuple[str, str], ...] = (
+    ("P(profit)", "chance the position ends expiry ahead at the price you can deal at (a seller gets the "
+                  "bid, a buyer pays the ask): the chance of finishing beyond the breakeven, strike + "
+                  "premium for a call, strike - premium for a put, on the side that pays the position"),
+    ("return", "the seller's simple return on capital: cash-secured put = bid / (strike - bid); "
+               "covered call = bid / spot"),
+    ("annualised", "return x 365 / calendar days to expiry (simple, not compounded)"),
+    ("per day", "premium / calendar days to expiry"),
+    ("move to BE", "sigmas the underlying must end beyond the forward for a buyer at the ask to break even"),
+    ("edge", "ask - mid (= mid - bid): what dealing at the bid or the ask gives up against the mid"),
+    ("theta", "value change per day with spot and vol held: per trading day on the 252 and 250 bases, "
+              "per calendar day on 365"),
+    ("vega, gamma", "value change per vol point; delta change per unit of the underlying"),
+)
+
 CAUTIONS: tuple[str, ...] = (
     "Every figure is a model output computed from the quotes in the snapshot, under the "
     "risk-neutral measure: not a forecast of what will happen.",
@@ -169,6 +198,8 @@ CAUTIONS: tuple[str, ...] = (
     "Stale, wide or one-sided quotes give unreliable figures: check the spread and the flags.",
     "An event's implied move is the market's price of the event, not a prediction; event dates "
     "in files can be wrong or move.",
+    "P(profit) is risk-neutral and counted at expiry only. Returns leave out commissions, assignment "
+    "and margin rules, which depend on the broker and the account.",
     "This is not advice. Decide for yourself.",
 )
 
@@ -202,6 +233,9 @@ def help_text(ascii_only: bool = False) -> str:
         out.append(f"  {name:<13} {meaning}")
     out += ["", "DISTRIBUTION PANE"]
     for name, meaning in PLOT:
+        out.append(f"  {name:<13} {meaning}")
+    out += ["", "TRADE FIGURES (command line and copied summary)"]
+    for name, meaning in FORMULAS:
         out.append(f"  {name:<13} {meaning}")
     out += ["", "CAUTIONS"]
     out += [f"  - {c}" for c in CAUTIONS]

@@ -21,6 +21,7 @@ from chaintriage.core.confidence import DEFAULT_CONFIDENCE
 from chaintriage.core.distribution import range_flat, range_smile
 from chaintriage.core.findings import ChainTriageError, Finding
 from chaintriage.core.pipeline import AnnotatedSnapshot
+from chaintriage.core.targets import Target, TargetSelector, target_mask
 
 from . import formatting as fm
 
@@ -56,19 +57,27 @@ class StrikeFilter:
 
     ``sigma`` (sigmas, >= 0): a call qualifies when its sigma distance is >= sigma
     (above the forward), a put when <= -sigma (below it), i.e. out of the money
-    by at least that many sigmas. ``max_spread`` (decimal of mid, e.g. 0.2) and
-    ``min_open_interest`` (contracts) are liquidity limits; a missing spread or
-    open interest fails a limit that is set. A strike row stays when either of
-    its contracts qualifies. ``None`` means "no limit".
+    by at least that many sigmas. ``delta`` and ``beyond``: (low, high) ranges
+    of |delta| and P(beyond) (decimals; either end None for open). ``side``:
+    'calls', 'puts' or 'both' (which contracts can qualify). These targets are
+    core's predicate (``core.targets.target_mask``). ``max_spread`` (decimal
+    of mid, e.g. 0.2) and ``min_open_interest`` (contracts) are liquidity
+    limits; a missing spread, open interest or measure fails a limit that is
+    set. A strike row stays when either of its contracts qualifies. ``None``
+    means "no limit".
     """
 
     sigma: float | None = None
     max_spread: float | None = None
     min_open_interest: float | None = None
+    delta: tuple[float | None, float | None] | None = None
+    beyond: tuple[float | None, float | None] | None = None
+    side: str = "both"
 
     @property
     def active(self) -> bool:
-        return not (self.sigma is None and self.max_spread is None and self.min_open_interest is None)
+        return not (self.sigma is None and self.max_spread is None and self.min_open_interest is None
+                    and self.delta is None and self.beyond is None and self.side == "both")
 
     def qualifies(self, frame: pd.DataFrame) -> np.ndarray:
         """Boolean per contract (row of ``frame``): does it pass every limit that is set."""
@@ -76,11 +85,7 @@ class StrikeFilter:
         ok = np.ones(n, dtype=bool)
         if not n:
             return ok
-        if self.sigma is not None:
-            z = frame["sigma_distance"].to_numpy(dtype=float)
-            is_call = (frame["kind"] == "call").to_numpy()
-            with np.errstate(invalid="ignore"):
-                ok &= np.where(is_call, z >= self.sigma, z <= -self.sigma)
+        ok &= target_mask(frame, sigma=self.sigma, delta=self.delta, beyond=self.beyond, side=self.side)
         if self.max_spread is not None:
             s = frame["spread_pct"].to_numpy(dtype=float)
             with np.errstate(invalid="ignore"):
@@ -109,8 +114,14 @@ class StrikeFilter:
         ge = ">=" if ascii_only else "≥"
         le = "<=" if ascii_only else "≤"
         parts = []
+        if self.side != "both":
+            parts.append(f"{self.side} only")
         if self.sigma is not None:
             parts.append(f"{_num(self.sigma)}{sig} or more out of the money")
+        if self.delta is not None:
+            parts.append(_range_words("|delta|" if ascii_only else "|Δ|", self.delta, 1.0, "", ascii_only))
+        if self.beyond is not None:
+            parts.append(_range_words("P(beyond)", self.beyond, 100.0, "%", ascii_only))
         if self.max_spread is not None:
             parts.append(f"spread {le} {_num(100 * self.max_spread)}%")
         if self.min_open_interest is not None:
@@ -118,11 +129,18 @@ class StrikeFilter:
         return " · ".join(parts) if not ascii_only else " / ".join(parts)
 
     @classmethod
-    def parse(cls, sigma: str = "", max_spread: str = "", min_open_interest: str = "") -> "StrikeFilter":
+    def parse(cls, sigma: str = "", max_spread: str = "", min_open_interest: str = "", *,
+              delta: str = "", beyond: str = "", side: str = "both") -> "StrikeFilter":
         """A filter from what the user typed (blank = no limit; the spread in percent, "%" allowed).
 
+        ``delta`` is an |delta| range as decimals, ``beyond`` a P(beyond) range
+        in percent ("%" allowed): "LOW-HIGH", "LOW-" (at least) or "-HIGH" (at
+        most), a single number meaning at least. ``side``: calls, puts or both.
         Raises ChainTriageError with a message naming the field when a value is unusable.
         """
+        side = (side or "both").strip().lower()
+        if side not in ("calls", "puts", "both"):
+            raise ChainTriageError(f"side: {fm.clean_text(side)!r} is not calls, puts or both")
         spread = (max_spread or "").strip()
         spread = spread[:-1] if spread.endswith("%") else spread
         return cls(
@@ -131,6 +149,9 @@ class StrikeFilter:
             else v / 100.0,
             min_open_interest=_parse_number(min_open_interest, "min open interest", limit=OPEN_INTEREST_LIMIT,
                                             thousands=True),
+            delta=_parse_range(delta, "|delta|", 1.0),
+            beyond=_parse_range(beyond, "P(beyond) %", 100.0),
+            side=side,
         )
 
 
@@ -146,6 +167,41 @@ _PLAIN_NUMBER = re.compile(r"\+?(?:\d+(?:\.\d*)?|\.\d+)")
 
 def _num(x: float) -> str:
     return fm.tidy_zero(f"{x:.2f}".rstrip("0").rstrip("."))
+
+
+def _range_words(label: str, bounds: tuple[float | None, float | None], scale: float, unit: str,
+                 ascii_only: bool) -> str:
+    low, high = bounds
+    ge, le = (">=", "<=") if ascii_only else ("≥", "≤")
+    if low is not None and high is not None:
+        return f"{label} {_num(scale * low)}{unit} to {_num(scale * high)}{unit}"
+    if low is not None:
+        return f"{label} {ge} {_num(scale * low)}{unit}"
+    if high is not None:
+        return f"{label} {le} {_num(scale * high)}{unit}"
+    return f"{label} known"
+
+
+def _parse_range(text: str, what: str, scale: float) -> tuple[float | None, float | None] | None:
+    """(low, high) in decimals from "LOW-HIGH", "LOW-", "-HIGH" or "LOW" typed in units of 1/scale."""
+    text = (text or "").strip().replace("%", "")
+    if not text:
+        return None
+    low_text, sep, high_text = text.partition("-")
+    if not sep:
+        high_text = ""
+    low = _parse_number(low_text, what, limit=scale)
+    high = _parse_number(high_text, what, limit=scale)
+    if low is None and high is None:
+        raise ChainTriageError(f"{what}: give LOW-HIGH, LOW- or -HIGH")
+    low = None if low is None else low / scale
+    high = None if high is None else high / scale
+    for value in (low, high):
+        if value is not None and value > 1.0:
+            raise ChainTriageError(f"{what}: a value above {_num(scale)} is out of range")
+    if low is not None and high is not None and low > high:
+        raise ChainTriageError(f"{what}: the low end is above the high end")
+    return low, high
 
 
 _THOUSANDS = re.compile(r"\+?\d{1,3}(?:,\d{3})+")
@@ -251,6 +307,7 @@ class SnapshotView:
         self._dists: dict[pd.Timestamp, Any] = {}
         self._ranges: dict[tuple[pd.Timestamp, float], tuple[tuple[float, float], tuple[float, float]]] = {}
         self._file_findings = list(file_findings)
+        self._target_selector: TargetSelector | None = None
 
     # --- labels
 
@@ -357,6 +414,19 @@ class SnapshotView:
             arbitrage_free=bool(arb) if fit_method else None,
             findings=tuple(res.findings) if res is not None else (),
         )
+
+    # --- targets
+
+    def targets(self, target: Target, shift: int = 0) -> pd.DataFrame:
+        """core's per-expiry target table (``core.targets.TARGET_TABLE_COLUMNS``) for this snapshot.
+
+        The selector (each side's contracts grouped by expiry and strike) is
+        kept, so a change of target costs a few array passes. ``row`` columns
+        are positions in ``annotated.contracts``.
+        """
+        if self._target_selector is None:
+            self._target_selector = TargetSelector(self.annotated.contracts, self.annotated.expiries)
+        return self._target_selector.select(target, shift)
 
     # --- findings
 

@@ -129,10 +129,12 @@ def test_copy_puts_the_summary_on_both_clipboards_and_shows_it():
         strike, kind = app.triage.grid.highlighted
         row = oracle.contracts[(oracle.contracts["expiry"] == app.state.current_expiry)
                                & (oracle.contracts["strike"] == strike) & (oracle.contracts["kind"] == kind)]
-        expected = summarize(row.iloc[0], as_of=oracle.snapshot.as_of, underlying="OSPX")
+        exp = oracle.expiries.set_index("expiry").loc[app.state.current_expiry]
+        expected = summarize(row.iloc[0], as_of=oracle.snapshot.as_of, underlying="OSPX", spot=oracle.snapshot.spot,
+                             forward=exp["forward"], days=exp["calendar_days"])
         assert app.clipboard == expected
         assert app._system_clipboard.texts == [expected]
         assert expected in notes(app)
-        assert f" {fm.fmt_strike(strike)} put |" in expected
+        assert f" {fm.fmt_strike(strike)} put, expiry " in expected
 
     run(app, scenario)

@@ -181,8 +181,13 @@ def test_one_known_contract_reads_as_core_computed_it():
         assert cells(left)[:2] == ["7.05", "7.35"] and cells(right)[:2] == ["15.00", "15.55"]
         await pilot.press("c")
         text = app.clipboard
-        assert text == summarize(put, as_of=oracle.snapshot.as_of, underlying="OSPX")
-        assert text.startswith("OSPX 2026-12-18 305 put | mid 15.275 | IV 39.2% | +0.29σ | P(beyond) 59.2%")
+        exp = oracle.expiries.set_index("expiry").loc[pd.Timestamp("2026-12-18")]
+        assert text == summarize(put, as_of=oracle.snapshot.as_of, underlying="OSPX", spot=oracle.snapshot.spot,
+                                 forward=exp["forward"], days=exp["calendar_days"])
+        assert text.startswith(f"OSPX 305 put, expiry 2026-12-18 ({exp['calendar_days']:.0f} days) | "
+                               "bid 15.00 x ask 15.55, mid 15.275 | IV 39.2% |")
+        assert "| 0.29 sigmas above the forward | chance OSPX finishes below 305: 59.2% |" in text
+        assert f"forward {fm.fmt_level(exp['forward'])} |" in text
         # the header: forward, ATM IV and ranges as core gives them
         res = oracle.results[pd.Timestamp("2026-12-18")]
         head = bar(app, "expirybar")
@@ -289,3 +294,35 @@ def test_q_closes_a_screen_and_then_quits():
 
     run(app, scenario)
     assert app.return_code == 0
+
+
+def test_greek_and_trade_columns_read_as_core_computed_them(config_home):
+    """[D] the picker's new columns show core's gamma, theta, vega, P(profit) both ways, premium per day,
+    annualised return and edge share for the contract on the ladder (four at a time, to fit the width)."""
+    oracle = demo_annotated()[0]
+    call = contract(oracle, "2026-12-18", 305.0, "call")
+    put = contract(oracle, "2026-12-18", 305.0, "put")
+    app = make_app()
+    shown = {
+        ("gamma", "theta", "vega", "p_profit_sell"):
+            lambda r: [fm.fmt_greek(r["gamma"]), fm.fmt_greek(r["theta"]), fm.fmt_greek(r["vega"]),
+                       fm.fmt_prob(r["p_profit_sell"])],
+        ("p_profit_buy", "per_day_sell", "return_sell_annual", "edge_share_sell"):
+            lambda r: [fm.fmt_prob(r["p_profit_buy"]), fm.fmt_price(r["premium_per_day_sell"]),
+                       fm.fmt_return(r["return_sell_annual"]), fm.fmt_spread(r["edge_share_sell"])],
+    }
+
+    async def scenario(pilot):
+        for keys, expected in shown.items():
+            app.set_columns(list(keys))
+            goto_expiry(app, "2026-12-18")
+            app.triage.grid.cursor_to_strike(305.0, "put")
+            await pilot.pause()
+            assert app.triage.grid.columns == list(keys)
+            left, _, right = grid_row(app, 305.0).split(BAR)
+            for side, row in ((cells(left), call), (cells(right), put)):
+                assert side == expected(row)
+            if keys[0] == "gamma":
+                assert float(cells(right)[1]) < 0 < float(cells(right)[0])  # theta decays, gamma positive
+
+    run(app, scenario)

@@ -10,6 +10,7 @@ import csv
 
 import pandas as pd
 
+from chaintriage.tui import formatting as fm
 from chaintriage.tui import help_text as ht
 from chaintriage.tui.screens.column_picker import ColumnPicker
 from chaintriage.tui.screens.confirm_dialog import ConfirmDialog
@@ -64,7 +65,8 @@ def test_shortlist_screen_lists_removes_copies_and_goes_to():
         row = [c.plain for c in table.get_row_at(0)]
         assert row[0] == "OSPX" and row[1] == first.key.expiry and row[3] == first.key.kind
         await pilot.press("c")
-        assert app.clipboard.startswith(f"OSPX {first.key.expiry} ")
+        assert app.clipboard.startswith(f"OSPX {fm.fmt_strike(first.key.strike)} {first.key.kind}, "
+                                        f"expiry {first.key.expiry}")
         await pilot.press("down", "d")
         assert table.row_count == 1 and len(app.state.shortlist) == 1
         await pilot.press("enter")  # go to the remaining (first) contract

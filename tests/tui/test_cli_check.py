@@ -167,7 +167,7 @@ def test_help_has_examples(capsys, argv):
 def test_subcommands_registered_through_the_command_list():
     parser = cli.build_parser()
     sub = next(a for a in parser._actions if a.dest == "command")
-    assert {"open", "check", "table", "expiries", "events"} <= set(sub.choices)
+    assert {"open", "check", "table", "expiries", "events", "targets"} <= set(sub.choices)
     assert [c.name for c in cli.COMMANDS] == list(sub.choices)
     # only the wanted command gets its options: `check --format` exists, `table --side` not yet
     wanted = cli.build_parser("check")

@@ -94,6 +94,27 @@ def _numbers_are_numbers_or_null(records):
 
 
 @pytest.mark.parametrize("name", list(CHAINS))
+@pytest.mark.parametrize("target", [["--side", "puts", "--sigma", "1.5"], ["--side", "calls", "--delta", "0.2"],
+                                    ["--side", "puts", "--beyond", "0.1"]])
+def test_targets_in_every_format(chain_files, capsys, name, target):
+    """One row per expiry, the table's exit status, no nan/inf, probabilities in [0, 1]."""
+    path = chain_files[name]
+    _, status, _ = CHAINS[name]
+    code, out, _ = _run(capsys, "targets", path, *target)
+    assert code == status and "strike" in out.splitlines()[0]
+    assert "nan" not in out.lower() and "inf" not in out.lower()
+    code, out, _ = _run(capsys, "targets", path, *target, "--format", "json")
+    assert code == status
+    records = json.loads(out, parse_constant=lambda c: pytest.fail(f"{c} in json"))
+    _numbers_are_numbers_or_null(records)
+    assert len({(r["underlying"], r["expiry"]) for r in records}) == len(records)
+    for col in ("p_beyond", "p_touch", "p_profit_sell", "p_profit_buy"):
+        assert all(0.0 <= r[col] <= 1.0 for r in records if r[col] is not None), col
+    code, out, _ = _run(capsys, "targets", path, *target, "--format", "csv")
+    assert code == status and len(pd.read_csv(io.StringIO(out))) == len(records)
+
+
+@pytest.mark.parametrize("name", list(CHAINS))
 def test_table_in_every_format(chain_files, capsys, name):
     path = chain_files[name]
     _, status, must = CHAINS[name]

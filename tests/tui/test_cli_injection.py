@@ -71,7 +71,7 @@ def _run(capsys, *argv):
     return code, out, err
 
 
-@pytest.mark.parametrize("command", [["table"], ["expiries"], ["check"]])
+@pytest.mark.parametrize("command", [["table"], ["expiries"], ["check"], ["targets", "--side", "puts", "--sigma", "1"]])
 def test_plain_output_shows_hostile_text_escaped_or_literally(hostile_file, capsys, command):
     code, out, err = _run(capsys, *command, hostile_file)
     assert code == 0
@@ -86,7 +86,7 @@ def test_plain_output_shows_hostile_text_escaped_or_literally(hostile_file, caps
     assert "\\u202eZTRQ" in shown
 
 
-@pytest.mark.parametrize("command", [["table"], ["expiries"], ["check"]])
+@pytest.mark.parametrize("command", [["table"], ["expiries"], ["check"], ["targets", "--side", "puts", "--sigma", "1"]])
 def test_json_output_escapes_hostile_text_and_round_trips(hostile_file, capsys, command):
     code, out, _ = _run(capsys, *command, hostile_file, "--format", "json")
     assert code == 0

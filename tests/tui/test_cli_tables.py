@@ -175,4 +175,5 @@ def test_numbers_near_the_float_limit_print_no_numpy_warnings(tmp_path):
     assert code == 0
     assert "RuntimeWarning" not in err and "overflow" not in err
     assert "nan" not in (out + err).lower() and "inf " not in (out + err).lower()
-    assert len(max(out.splitlines(), key=len)) < 250
+    # every cell stays short: huge numbers in scientific notation, not hundreds of digits
+    assert max(len(cell) for cell in out.split()) < 20

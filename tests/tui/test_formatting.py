@@ -131,3 +131,13 @@ def test_tiny_values_use_scientific_notation_too():
     assert fmt_strike(0.0035, decimals=2) == "0.0035"  # not "0.00" in a two-decimal column
     assert fmt_price(0) == "0.00" and fmt_strike(0) == "0"  # zero itself stays plain
     assert fmt_price(0.0035) == "0.0035" and fmt_price(0.05) == "0.05"
+
+
+def test_greeks_and_returns():
+    """[D] four decimals below 1, three below 100, one above; returns as percentages with a cap."""
+    assert fm.fmt_greek(-0.011795) == "-0.0118" and fm.fmt_greek(0.065544) == "0.0655"
+    assert fm.fmt_greek(12.10548) == "12.105" and fm.fmt_greek(250.0) == "250.0"
+    assert fm.fmt_greek(-0.00001) == "0.0000" and fm.fmt_greek(3e15) == "3e+15"
+    assert fm.fmt_greek(float("nan")) == fm.placeholder()
+    assert fm.fmt_return(0.155650) == "15.6%" and fm.fmt_return(250.0) == ">9999%"
+    assert fm.fmt_return(None, width=7) == fm.fit(fm.placeholder(), 7)

@@ -66,3 +66,12 @@ def test_wrapped_help_keeps_every_word_and_fits_the_width():
     i = next(n for n, line in enumerate(lines) if line.strip().startswith("f ") and "show only" in line)
     start = lines[i].index("show only")
     assert lines[i + 1][:start].strip() == "" and lines[i + 1][start] != " "
+
+
+def test_help_shows_the_trade_formulas_and_their_cautions():
+    """[D] the return formulas and day counts are spelled out, with the P(profit) and returns caution."""
+    text = ht.help_text()
+    assert "bid / (strike - bid)" in text and "bid / spot" in text
+    assert "365 / calendar days" in text and "not compounded" in text
+    cautions = " ".join(ht.CAUTIONS).lower()
+    assert "risk-neutral" in cautions and "at expiry" in cautions and "margin" in cautions

@@ -291,9 +291,9 @@ def test_columns_can_be_chosen_and_unknown_ones_refused():
         assert "beyond" not in heads
         assert "12,345" in "\n".join(data_lines(grid))
         try:
-            grid.set_columns(["bid", "gamma"])
+            grid.set_columns(["bid", "rho"])
         except ValueError as exc:
-            assert "gamma" in str(exc)
+            assert "rho" in str(exc)
         else:
             raise AssertionError("unknown column accepted")
     run(body, size=(170, 30))
@@ -393,7 +393,7 @@ def test_clicking_a_side_highlights_that_contract():
 
 def test_known_columns_drops_unknown_names():
     from chaintriage.tui.widgets.strike_grid import known_columns
-    assert known_columns(["bid", "gamma", "p_touch"]) == ["bid", "p_touch"]
+    assert known_columns(["bid", "rho", "p_touch"]) == ["bid", "p_touch"]
 
 
 def test_otm_column_from_data_wins_and_missing_values_fall_back_to_the_forward():

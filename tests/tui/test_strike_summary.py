@@ -23,30 +23,46 @@ def row(**over):
     """PRESENTATION FIXTURE: one put row with the pipeline's column names."""
     r = dict(underlying="QRTZ", expiry=pd.Timestamp("2027-01-15"), strike=95.0, kind="put",
              bid=1.20, ask=1.26, mid=1.23, iv=0.312, sigma_distance=-1.4849, p_beyond=0.081,
-             p_touch=0.159, breakeven=93.77)
+             p_touch=0.159, breakeven=93.77, delta=-0.1612, sell_premium=1.20, breakeven_sell=93.80,
+             p_profit_sell=0.915, buy_premium=1.26, breakeven_buy=93.74, p_profit_buy=0.079, flags="wide")
     r.update(over)
     return r
 
 
 def test_summary_line_content():
-    line = summarize(row(), as_of=AS_OF)
-    assert line == ("QRTZ 2027-01-15 95 put | mid 1.23 | IV 31.2% | -1.48σ | P(beyond) 8.1% | "
-                    "P(touch) 15.9% | BE 93.77 | as of 2026-12-01 14:30 -05:00")
+    """Every figure of the row, in plain words a reader outside the app understands."""
+    line = summarize(row(), as_of=AS_OF, spot=100.0, forward=100.42, days=45)
+    assert line == ("QRTZ 95 put, expiry 2027-01-15 (45 days) | bid 1.20 x ask 1.26, mid 1.23 | IV 31.2% | "
+                    "delta -0.16 | 1.48 sigmas below the forward | chance QRTZ finishes below 95: 8.1% | "
+                    "chance QRTZ trades at 95 before expiry: 15.9% | "
+                    "sold at 1.20: ends ahead if QRTZ finishes above 93.80, chance 91.5% | "
+                    "bought at 1.26: ends ahead if QRTZ finishes below 93.74, chance 7.9% | "
+                    "spot 100.00, forward 100.42 | flags: wide | as of 2026-12-01 14:30 -05:00 | "
+                    "risk-neutral model figures at expiry, not advice")
+
+
+def test_summary_touch_bounds_and_missing_context():
+    """Touch bounds when the row has them; no days, spot, forward or sides when not given or not quoted."""
+    line = summarize(row(p_touch_low=0.12, p_touch_high=0.201, sell_premium=float("nan"), flags=""), as_of=AS_OF)
+    assert "before expiry: 15.9% (any model fitting the quotes: 12.0% to 20.1%) |" in line
+    assert "expiry 2027-01-15 |" in line and "spot" not in line and "sold at" not in line
+    assert "bought at 1.26" in line and "flags" not in line
 
 
 def test_summary_from_a_pandas_row_and_ascii():
     series = pd.Series(row(kind="c", strike=102.5, sigma_distance=0.52, breakeven=103.73))
     line = summarize(series, as_of=AS_OF, ascii_only=True)
-    assert line.startswith("QRTZ 2027-01-15 102.5 call | ")
-    assert "| +0.52s |" in line and line.isascii()
+    assert line.startswith("QRTZ 102.5 call, expiry 2027-01-15 | ")
+    assert "| 0.52 sigmas above the forward |" in line and line.isascii()
+    assert "chance QRTZ finishes above 102.5" in line
 
 
 def test_missing_figures_and_hostile_text():
     line = summarize(row(mid=float("nan"), iv=None, sigma_distance=float("inf"),
                          underlying="QR\x1b[31mTZ\x07\n[b]x[/b]"), as_of=AS_OF)
     assert "\x1b" not in line and "\x07" not in line and "\n" not in line
-    assert line.startswith("QRTZ [b]x[/b] 2027-01-15")
-    assert "mid -- |" in line and "IV -- |" in line and "| --σ |" in line
+    assert line.startswith("QRTZ [b]x[/b] 95 put, expiry 2027-01-15")
+    assert "mid -- |" in line and "IV -- |" in line and "| -- sigmas from the forward |" in line
     assert "nan" not in line.lower() and "inf" not in line.lower()
 
 

@@ -1,5 +1,5 @@
-"""What `table` and `expiries` share: their common options, loading and annotating the files,
-and reporting the findings on stderr.
+"""What `table`, `expiries` and `targets` share: their common options, loading and annotating
+the files, and reporting the findings on stderr.
 
 Both load snapshot files, run the core pipeline and print one table on
 stdout (plain, csv or json). Findings go to stderr. Exit status as `check`:

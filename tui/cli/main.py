@@ -52,6 +52,8 @@ COMMANDS: tuple[Command, ...] = (
             "chaintriage.tui.cli.expiries"),
     Command("events", "the move the options price for each scheduled event (earnings and the like)",
             "chaintriage.tui.cli.events"),
+    Command("targets", "one row per expiry: the strike nearest a sigma, delta or P(beyond) target",
+            "chaintriage.tui.cli.targets"),
 )
 
 
@@ -65,6 +67,7 @@ examples:
   chaintriage table chain.csv --beyond 1.5 --side puts
   chaintriage expiries chain.csv --confidence 0.95
   chaintriage events chain.csv --events events.csv
+  chaintriage targets chain.csv --side puts --sigma 1.5
   chaintriage COMMAND --help
 
 Every figure is a model output from market quotes under stated assumptions;

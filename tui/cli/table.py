@@ -7,6 +7,7 @@ import argparse
 import pandas as pd
 
 from chaintriage.core.loading import YEAR_MAX, YEAR_MIN
+from chaintriage.core.pipeline import GREEK_COLUMNS, TRADE_COLUMNS
 from chaintriage.tui.cli.annotated_tables import (
     annotated_status,
     COMMON_NOTES,
@@ -25,6 +26,8 @@ TABLE_COLUMNS = [
     "underlying", "expiry", "strike", "kind", "bid", "ask", "mid", "iv", "sigma_distance",
     "p_beyond", "p_beyond_flat", "p_touch", "p_touch_low", "p_touch_high", "delta", "breakeven", "p_breakeven",
     "spread_pct", "open_interest", "flags",
+    # Greeks and the economics at the bid and the ask (core/greeks.py, core/trade_economics.py).
+    *GREEK_COLUMNS, *TRADE_COLUMNS,
 ]
 
 TABLE_EPILOG = """\
@@ -36,13 +39,22 @@ examples:
 --beyond Z keeps out-of-the-money contracts (relative to the forward) whose
 sigma distance is at least Z in size: puts below F, calls above.
 
+theta is per day of --basis (a trading day on 252/250, a calendar day on 365);
+vega per vol point. A seller gets the bid, a buyer pays the ask: breakevens,
+P(profit) (risk-neutral, at expiry), premium per calendar day, the seller's
+simple return (cash-secured put: bid / (strike - bid); covered call: bid /
+spot) and its simple annualisation (x 365 / calendar days), the buyer's move
+to break even in sigmas, and the edge to mid. Returns leave out commissions,
+assignment and margin rules.
+
 """ + COMMON_NOTES
 
 
 def configure(p: argparse.ArgumentParser) -> None:
     """Add `table`'s description, options and ``func`` to its parser."""
     p.description = ("Annotate every contract: mid, implied vol, sigma distance, P(beyond) from the\n"
-                     "smile and flat, P(touch), delta, breakeven and its probability, spread, flags.")
+                     "smile and flat, P(touch), delta, breakeven and its probability, spread, flags;\n"
+                     "gamma, theta, vega; and the economics at the bid (seller) and the ask (buyer).")
     p.epilog = TABLE_EPILOG
     add_table_options(p)
     p.add_argument("--expiry", action="append", default=[], metavar="DATE",

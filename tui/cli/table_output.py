@@ -92,6 +92,25 @@ _PLAIN = {
     "ordinary_vol": ("ordinary vol", "vol"),
     "method": ("method", "text"),
     "extrapolated": ("extrapolated", "bool"),
+    "gamma": ("gamma", "f4"),
+    "theta": ("theta", "f4"),
+    "vega": ("vega", "f4"),
+    "sell_premium": ("sell at", "price"),
+    "buy_premium": ("buy at", "price"),
+    "breakeven_sell": ("BE sell", "price"),
+    "breakeven_buy": ("BE buy", "price"),
+    "p_profit_sell": ("P(profit) sell", "prob"),
+    "p_profit_buy": ("P(profit) buy", "prob"),
+    "premium_per_day_sell": ("per day sell", "f4"),
+    "premium_per_day_buy": ("per day buy", "f4"),
+    "return_sell": ("return sell", "pct2"),
+    "return_sell_annual": ("a year sell", "pct2"),
+    "move_to_breakeven_buy": ("BE move buy", "signed"),
+    "edge_to_mid": ("edge", "price"),
+    "edge_share_sell": ("edge/bid", "pct2"),
+    "edge_share_buy": ("edge/ask", "pct2"),
+    "strike_below": ("below", "strike"),
+    "strike_above": ("above", "strike"),
 }
 
 #: Formatters shared with the app (tui.formatting), in ASCII mode for plain terminals.
@@ -117,10 +136,12 @@ def _fmt(value: object, kind: str) -> str:
         return signed(x)
     if kind == "points":
         return f"{100 * x:.2f}"
+    if kind == "pct2":
+        return f"{100 * x:.2f}%" if abs(x) < 1e6 else f"{100 * x:.3g}%"
     if kind == "g":
         return f"{x:g}"
     if kind == "f4":
-        return f"{x:.4f}"
+        return f"{x:.4f}" if abs(x) < 1e6 else f"{x:.4g}"
     return f"{x:.6f}"
 
 

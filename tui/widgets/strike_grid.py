@@ -89,6 +89,14 @@ COLUMNS: dict[str, ColumnSpec] = {
         ColumnSpec("open_interest", "OI", "OI", 9, "open_interest", fm.fmt_count),
         ColumnSpec("volume", "volume", "volume", 8, "volume", fm.fmt_count),
         ColumnSpec("flags", "flags", "flags", 12, "flags", _fmt_text, text=True),
+        ColumnSpec("gamma", "gamma", "gamma", 7, "gamma", fm.fmt_greek),
+        ColumnSpec("theta", "theta", "theta", 7, "theta", fm.fmt_greek),
+        ColumnSpec("vega", "vega", "vega", 7, "vega", fm.fmt_greek),
+        ColumnSpec("p_profit_sell", "P sell", "P sell", 6, "p_profit_sell", fm.fmt_prob),
+        ColumnSpec("p_profit_buy", "P buy", "P buy", 6, "p_profit_buy", fm.fmt_prob),
+        ColumnSpec("per_day_sell", "/day", "/day", 7, "premium_per_day_sell", fm.fmt_price),
+        ColumnSpec("return_sell_annual", "yr ret", "yr ret", 7, "return_sell_annual", fm.fmt_return),
+        ColumnSpec("edge_share_sell", "edge", "edge", 6, "edge_share_sell", fm.fmt_spread),
     )
 }
 
