@@ -118,7 +118,7 @@ def summarise_history(history: PriceHistory, settings: HistorySettings | None = 
         estimator = "yang_zhang" if has_range else "close_to_close"
         if not has_range:
             findings.append(Finding(NOTE, "fewer than 90% of the days have open, high and low: "
-                                          "close-to-close vol is used for the odds", underlying=history.underlying))
+                                          "close-to-close vol is used for the cone and the odds", underlying=history.underlying))
     cone = vol_cone(table.terms, st.windows, estimator, underlying=history.underlying)
     findings += cone.findings
     return HistorySummary(history=history, realised=table, cone=cone, estimator=estimator, findings=findings)

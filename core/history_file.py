@@ -67,6 +67,8 @@ __all__ = [
     "HistoryLoad",
     "load_history",
     "load_history_column_map",
+    "HistoryLoads",
+    "load_histories",
 ]
 
 #: Every column name a history file may have.
@@ -461,3 +463,49 @@ def load_history(
     except SnapshotFileError as exc:
         raise HistoryFileError(name, exc.reason) from None
     return _HistoryValidator(name, table, cmap, underlying, day).run()
+
+
+@dataclass
+class HistoryLoads:
+    """Several history files: what each gave, and the files that could not be used."""
+
+    files: list[HistoryLoad]
+    errors: list[HistoryFileError]
+
+    @property
+    def histories(self) -> list[PriceHistory]:
+        """Every history, first file first; a later file's history of an underlying already seen is skipped."""
+        seen: dict[str, PriceHistory] = {}
+        for fl in self.files:
+            for h in fl.histories:
+                seen.setdefault(h.underlying, h)
+        return list(seen.values())
+
+    @property
+    def findings(self) -> list[Finding]:
+        return [f for fl in self.files for f in fl.findings] + [f for e in self.errors for f in e.findings]
+
+    @property
+    def rows_read(self) -> int:
+        return sum(f.rows_read for f in self.files) + sum(e.rows_read for e in self.errors)
+
+    @property
+    def rows_left_out(self) -> int:
+        return self.rows_read - sum(f.rows_accepted for f in self.files)
+
+
+def load_histories(paths, *, underlying: str | None = None, column_map: ColumnMap | str | Path | None = None,
+                   until=None) -> HistoryLoads:
+    """Load several history files, going on past unusable ones (their errors are collected).
+
+    A bad mapping file or argument raises ChainTriageError before any file is read.
+    """
+    cmap = _as_history_map(column_map)
+    files: list[HistoryLoad] = []
+    errors: list[HistoryFileError] = []
+    for p in paths:
+        try:
+            files.append(load_history(p, underlying=underlying, column_map=cmap, until=until))
+        except HistoryFileError as exc:
+            errors.append(exc)
+    return HistoryLoads(files=files, errors=errors)

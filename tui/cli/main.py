@@ -45,6 +45,8 @@ COMMANDS: tuple[Command, ...] = (
             "chaintriage.tui.cli.expiries"),
     Command("events", "the move the options price for each scheduled event (earnings and the like)",
             "chaintriage.tui.cli.events"),
+    Command("history", "realised vol by estimator and window, and the volatility cone, from daily prices",
+            "chaintriage.tui.cli.history"),
 )
 
 
@@ -58,6 +60,7 @@ examples:
   chaintriage table chain.csv --beyond 1.5 --side puts
   chaintriage expiries chain.csv --confidence 0.95
   chaintriage events chain.csv --events events.csv
+  chaintriage history prices.csv --windows 21,63,252
   chaintriage COMMAND --help
 
 Every figure is a model output from market quotes under stated assumptions;

@@ -18,6 +18,13 @@ from chaintriage.tui.cli.annotated_tables import (
 )
 from chaintriage.tui.cli.check import check_status
 from chaintriage.tui.cli.common import EXIT_UNUSABLE, error
+from chaintriage.tui.cli.history import (
+    HISTORY_TABLE_COLUMNS,
+    add_history_options,
+    finish_with_history,
+    history_columns,
+    history_for,
+)
 from chaintriage.tui.cli.model_options import non_negative, parse_day
 from chaintriage.tui.cli.table_output import render
 
@@ -37,6 +44,12 @@ examples:
 --beyond Z keeps out-of-the-money contracts (relative to the forward) whose
 sigma distance is at least Z in size: puts below F, calls above.
 
+--history FILE adds a second opinion from the underlying's daily prices:
+hist_vol (realised vol at the window nearest the expiry), hist_p_beyond and
+hist_p_touch (lognormal at hist_vol with the forward's drift), boot_p_beyond
+and boot_p_touch (block bootstrap of its own days, with standard errors).
+History is not a forecast; see `chaintriage history --help`.
+
 """ + COMMON_NOTES
 
 
@@ -51,6 +64,7 @@ def configure(p: argparse.ArgumentParser) -> None:
     p.add_argument("--beyond", type=non_negative, metavar="Z",
                    help="only out-of-the-money contracts at least Z sigmas from the forward")
     p.add_argument("--side", choices=("calls", "puts", "both"), default="both", help="which kinds (default both)")
+    add_history_options(p)
     p.set_defaults(func=run_table)
 
 
@@ -66,8 +80,9 @@ def run_table(args: argparse.Namespace) -> int:
             error(f"--expiry {text!r} is not a date (YYYY-MM-DD)")
             return EXIT_UNUSABLE
         wanted.append(day)
+    history, loads, extra = history_for(args, annotated)
     frames = []
-    for a in annotated:
+    for i, a in enumerate(annotated):
         c = a.contracts
         keep = pd.Series(True, index=c.index)
         if wanted:
@@ -76,7 +91,11 @@ def run_table(args: argparse.Namespace) -> int:
             keep &= c["kind"] == args.side[:-1]
         if args.beyond is not None:
             keep &= c["otm"] & (c["sigma_distance"].abs() >= args.beyond)
-        frames.append(with_as_of(c.loc[keep, TABLE_COLUMNS].copy(), a, args.format))
+        frame = with_as_of(c.loc[keep, TABLE_COLUMNS].copy(), a, args.format)
+        if loads is not None:
+            cmp = history.get(i)
+            frame = history_columns(frame, cmp.contracts if cmp else None, keep, HISTORY_TABLE_COLUMNS)
+        frames.append(frame)
     if wanted:
         present = {e for a in annotated for e in a.contracts["expiry"].unique()}
         missing = [w for w in wanted if w not in present]
@@ -86,6 +105,6 @@ def run_table(args: argparse.Namespace) -> int:
             return EXIT_UNUSABLE
     sys.stdout.write(render(pd.concat(frames, ignore_index=True), args.format))
     report_findings(args, result, annotated)
-    return check_status(result)
+    return finish_with_history(args, loads, extra, check_status(result))
 
 
