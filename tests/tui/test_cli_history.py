@@ -89,3 +89,18 @@ def test_table_history_of_another_underlying_is_a_note(capsys):
     con = pd.read_csv(io.StringIO(out))
     assert con["hist_p_beyond"].isna().all()
     assert "no price history for 'TSBH'" in err
+
+
+def test_file_text_is_never_markup_control_or_formula(capsys, tmp_path):
+    """An underlying name with escape codes, a formula prefix and newlines stays inert [D]."""
+    name = '=HYPERLINK("x")\x1b[2J\u202e'
+    p = tmp_path / "evil.csv"
+    rows = ["underlying,date,close"] + [f'"{name}",2026-11-{d:02d},{100 + d}' for d in (2, 3, 4, 5, 6, 9)]
+    p.write_text("\n".join(rows) + "\n", encoding="utf-8")
+    for fmt in ("plain", "csv", "json"):
+        code, out, err = run(capsys, "history", p, "--windows", "2,3", "--format", fmt)
+        assert code == 0, err
+        for text in (out, err):
+            assert "\x1b" not in text and "\u202e" not in text
+        if fmt == "csv":
+            assert "\n=" not in out and ",=" not in out
