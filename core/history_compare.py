@@ -166,17 +166,20 @@ def compare_with_snapshot(annotated, history: PriceHistory, settings: HistorySet
                                       "their history columns are blank", underlying=und))
 
     con = annotated.contracts
-    codes = pd.Index(exp["expiry"]).get_indexer(con["expiry"])
+    exp_days = exp["expiry"].to_numpy().astype("datetime64[ns]").astype(np.int64)
+    con_days = con["expiry"].to_numpy().astype("datetime64[ns]").astype(np.int64)
+    order = np.argsort(exp_days)
+    pos = np.clip(np.searchsorted(exp_days[order], con_days), 0, max(len(exp_days) - 1, 0))
+    codes = np.where(len(exp_days) and (exp_days[order][pos] == con_days), order[pos] if len(order) else -1, -1)
     strike = con["strike"].to_numpy(dtype=float)
-    is_call = (con["kind"] == "call").to_numpy()
+    is_call = con["kind"].to_numpy(dtype=object) == "call"
     ok = codes >= 0
     ci = np.where(ok, codes, 0)
-    hv = np.where(ok, rv[ci], np.nan)
-    pb, pt = lognormal_odds(spot, fwd[ci], strike, is_call, t[ci], hv)
-    contracts = pd.DataFrame({"hist_vol": hv, "hist_p_beyond": pb, "hist_p_touch": pt}, index=con.index)
+    hv = np.where(ok, rv[ci], np.nan) if len(rv) else np.full(len(con), np.nan)
+    pb, pt = lognormal_odds(spot, fwd[ci] if len(fwd) else np.nan, strike, is_call, t[ci] if len(t) else np.nan, hv)
     boot = None
     nan = np.full(len(con), np.nan)
-    if st.paths > 0 and len(history.bars) > 2:
+    if st.paths > 0 and len(history.bars) > 2 and len(con):
         b = history.bars
         pool = day_pool(b["high"].to_numpy(float), b["low"].to_numpy(float), b["close"].to_numpy(float))
         if pool.size >= max(20, st.block):
@@ -185,9 +188,12 @@ def compare_with_snapshot(annotated, history: PriceHistory, settings: HistorySet
         else:
             findings.append(Finding(NOTE, f"only {pool.size} daily returns: too few for a bootstrap",
                                     underlying=und))
-    contracts["boot_p_beyond"] = boot.p_beyond if boot else nan
-    contracts["boot_p_beyond_se"] = boot.p_beyond_se if boot else nan
-    contracts["boot_p_touch"] = boot.p_touch if boot else nan
-    contracts["boot_p_touch_se"] = boot.p_touch_se if boot else nan
+    contracts = pd.DataFrame({
+        "hist_vol": hv, "hist_p_beyond": pb, "hist_p_touch": pt,
+        "boot_p_beyond": boot.p_beyond if boot else nan,
+        "boot_p_beyond_se": boot.p_beyond_se if boot else nan,
+        "boot_p_touch": boot.p_touch if boot else nan,
+        "boot_p_touch_se": boot.p_touch_se if boot else nan,
+    }, index=con.index)
     return HistoryComparison(summary=summ, contracts=contracts, expiries=expiries, bootstrap=boot,
                              findings=findings)

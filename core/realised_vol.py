@@ -31,7 +31,7 @@ a year is 365 of them. Without gaps, 252/250 give sigma_day * sqrt(252 or
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
@@ -86,6 +86,18 @@ class DailyTerms:
     rogers_satchell: np.ndarray
     span: np.ndarray
     days_per_year: float = 252.0
+    _prefix: dict = field(default_factory=dict, compare=False, repr=False)
+
+    def prefix_sums(self, key: str, x: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Cumulative sums of x, x^2 and the finite count (leading 0), computed once per key."""
+        got = self._prefix.get(key)
+        if got is None:
+            ok = np.isfinite(x)
+            v = np.where(ok, x, 0.0)
+            got = (np.concatenate(([0.0], np.cumsum(v))), np.concatenate(([0.0], np.cumsum(v * v))),
+                   np.concatenate(([0], np.cumsum(ok))))
+            self._prefix[key] = got
+        return got
 
 
 def _spans(dates, basis: str) -> np.ndarray:
@@ -141,28 +153,32 @@ def yang_zhang_k(n) -> np.ndarray | float:
     return k if k.ndim else float(k)
 
 
-def _trailing(x: np.ndarray, window: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Trailing-window sums of x, x^2 and the count of finite x, for windows ending at each index."""
-    ok = np.isfinite(x)
-    v = np.where(ok, x, 0.0)
-    c1 = np.concatenate(([0.0], np.cumsum(v)))
-    c2 = np.concatenate(([0.0], np.cumsum(v * v)))
-    cn = np.concatenate(([0], np.cumsum(ok)))
+def _trailing(x: np.ndarray, window: int, sums=None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Trailing-window sums of x, x^2 and the count of finite x, for windows ending at each index.
+
+    ``sums``: the prefix sums of x (``DailyTerms.prefix_sums``), when already known.
+    """
+    if sums is None:
+        ok = np.isfinite(x)
+        v = np.where(ok, x, 0.0)
+        sums = (np.concatenate(([0.0], np.cumsum(v))), np.concatenate(([0.0], np.cumsum(v * v))),
+                np.concatenate(([0], np.cumsum(ok))))
+    c1, c2, cn = sums
     idx = np.arange(1, x.size + 1)
     lo = np.maximum(idx - window, 0)
     return c1[idx] - c1[lo], c2[idx] - c2[lo], (cn[idx] - cn[lo]).astype(float)
 
 
-def _sample_var(x: np.ndarray, window: int) -> tuple[np.ndarray, np.ndarray]:
-    s1, s2, n = _trailing(x, window)
+def _sample_var(x: np.ndarray, window: int, sums=None) -> tuple[np.ndarray, np.ndarray]:
+    s1, s2, n = _trailing(x, window, sums)
     with np.errstate(divide="ignore", invalid="ignore"):
         var = (s2 - s1 * s1 / n) / (n - 1.0)
     var = np.where(n >= 2, np.maximum(var, 0.0), np.nan)
     return var, n
 
 
-def _mean(x: np.ndarray, window: int) -> tuple[np.ndarray, np.ndarray]:
-    s1, _, n = _trailing(x, window)
+def _mean(x: np.ndarray, window: int, sums=None) -> tuple[np.ndarray, np.ndarray]:
+    s1, _, n = _trailing(x, window, sums)
     with np.errstate(divide="ignore", invalid="ignore"):
         m = s1 / n
     return np.where(n >= 1, m, np.nan), n
@@ -185,23 +201,24 @@ def rolling_vol(terms: DailyTerms, window: int, estimator: str = "close_to_close
         raise ChainTriageError(f"a window needs at least 2 days, not {window}")
     year = terms.days_per_year
     need = max(2, int(np.ceil(2 * window / 3))) if min_days is None else max(2, int(min_days))
+    t = terms
     if estimator == "close_to_close":
-        var, days = _sample_var(terms.close_return, window)
-    elif estimator == "parkinson":
-        var, days = _mean(terms.parkinson, window)
-    elif estimator == "garman_klass":
-        var, days = _mean(terms.garman_klass, window)
-    elif estimator == "rogers_satchell":
-        var, days = _mean(terms.rogers_satchell, window)
+        var, days = _sample_var(t.close_return, window, t.prefix_sums("cc", t.close_return))
+    elif estimator in ("parkinson", "garman_klass", "rogers_satchell"):
+        x = getattr(t, estimator)
+        var, days = _mean(x, window, t.prefix_sums(estimator, x))
     else:
         # Yang-Zhang: the days that have open, high, low, close and the previous close
-        full = np.isfinite(terms.overnight) & np.isfinite(terms.open_close) & np.isfinite(terms.rogers_satchell)
-        so, _ = _sample_var(np.where(full, terms.overnight, np.nan), window)
-        sc, _ = _sample_var(np.where(full, terms.open_close, np.nan), window)
-        srs, days = _mean(np.where(full, terms.rogers_satchell, np.nan), window)
+        full = np.isfinite(t.overnight) & np.isfinite(t.open_close) & np.isfinite(t.rogers_satchell)
+        ov = np.where(full, t.overnight, np.nan)
+        oc = np.where(full, t.open_close, np.nan)
+        rs = np.where(full, t.rogers_satchell, np.nan)
+        so, _ = _sample_var(ov, window, t.prefix_sums("yz_o", ov))
+        sc, _ = _sample_var(oc, window, t.prefix_sums("yz_c", oc))
+        srs, days = _mean(rs, window, t.prefix_sums("yz_rs", rs))
         k = yang_zhang_k(np.maximum(days, 2.0))
         var = so + k * sc + (1.0 - k) * srs
-    span_sum, _, span_n = _trailing(terms.span, window)
+    span_sum, _, span_n = _trailing(t.span, window, t.prefix_sums("span", t.span))
     with np.errstate(divide="ignore", invalid="ignore"):
         mean_span = np.where(span_n > 0, span_sum / span_n, 1.0)
         vol = np.sqrt(np.maximum(var, 0.0) * year / mean_span)
@@ -256,23 +273,26 @@ def realised_vol_table(bars: pd.DataFrame, windows=DEFAULT_WINDOWS, basis="252",
     windows = _check_windows(windows)
     terms = _terms(bars["open"].to_numpy(float), bars["high"].to_numpy(float), bars["low"].to_numpy(float),
                    bars["close"].to_numpy(float), bars["date"].to_numpy(), b)
-    vol = pd.DataFrame(index=pd.Index(windows, name="window"), columns=list(ESTIMATORS), dtype=float)
-    days = vol.copy()
+    vol_a = np.full((len(windows), len(ESTIMATORS)), np.nan)
+    days_a = np.zeros_like(vol_a)
     findings: list[Finding] = []
     n_ret = max(len(bars) - 1, 0)
-    for w in windows:
+    for i, w in enumerate(windows):  # a handful of windows and estimators
         if n_ret < w:
             findings.append(Finding(NOTE, f"{w}-day window: the history has only {n_ret} daily returns",
                                     underlying=underlying))
-        for est in ESTIMATORS:
+        for j, est in enumerate(ESTIMATORS):
             v, d = rolling_vol(terms, w, est)
-            vol.loc[w, est] = v[-1] if v.size else np.nan
-            days.loc[w, est] = d[-1] if d.size else 0.0
+            if v.size:
+                vol_a[i, j], days_a[i, j] = v[-1], d[-1]
         if n_ret >= w:
-            short = [e for e in ESTIMATORS if not np.isfinite(vol.loc[w, e])]
+            short = [e for j, e in enumerate(ESTIMATORS) if not np.isfinite(vol_a[i, j])]
             if short:
                 findings.append(Finding(NOTE, f"{w}-day window: too few days with open, high and low for "
                                               f"{', '.join(short)}", underlying=underlying))
+    index = pd.Index(windows, name="window")
+    vol = pd.DataFrame(vol_a, index=index, columns=list(ESTIMATORS))
+    days = pd.DataFrame(days_a, index=index, columns=list(ESTIMATORS))
     as_of = pd.Timestamp(bars["date"].iat[-1]) if len(bars) else pd.NaT
     return RealisedVolTable(vol=vol, days=days, basis=b, as_of=as_of, terms=terms, findings=findings)
 
