@@ -17,8 +17,9 @@ accepted, accepted with a warning, or left out with a reason, and
 - left out (first problem wins, in this order): wrong field count; empty
   underlying; date empty, not a date, impossible or outside the years
   1900-2199; close empty, not a number, not finite or not positive; date
-  after the snapshot date (``until``); a second row for the same date (the
-  first one in the file is kept).
+  after the snapshot date (``until``), or on it when the snapshot was taken
+  before that day's close; a second row for the same date (the first one in
+  the file is kept).
 - accepted with a warning, the day's open/high/low not used (the close is):
   open, high or low not a number or not positive; high below low; close or
   open outside the day's low-high range. ``volume`` that is not a
@@ -42,7 +43,7 @@ import numpy as np
 import pandas as pd
 
 from .column_map import ColumnMap, check_expiry_format, header_key, load_column_map
-from .exchange_calendar import default_calendar
+from .exchange_calendar import _CLOSE_MIN, TZ, default_calendar
 from .findings import LEFT_OUT, NOTE, WARNING, ChainTriageError, Finding
 from .loading import (
     YEAR_MAX,
@@ -170,18 +171,22 @@ def _as_history_map(column_map: ColumnMap | str | Path | None) -> ColumnMap:
     return load_history_column_map(column_map)
 
 
-def _as_day(until) -> np.datetime64 | None:
+def _as_day(until) -> tuple[np.datetime64 | None, bool]:
+    """The last date a bar may carry, and whether that date's own bar closes after a snapshot time."""
     if until is None:
-        return None
+        return None, False
     try:
         ts = pd.Timestamp(until)
     except (TypeError, ValueError, OverflowError):
         raise ChainTriageError(f"the snapshot date {until!r} is not a date") from None
     if pd.isna(ts):
-        return None
-    if ts.tzinfo is not None:  # a snapshot time: its own calendar date
+        return None, False
+    same_day_late = False
+    if ts.tzinfo is not None:  # a snapshot time: its own calendar date; that day's close may still be to come
+        ny = ts.tz_convert(TZ)
+        same_day_late = ny.hour * 60 + ny.minute < _CLOSE_MIN and ny.date() == ts.tz_localize(None).date()
         ts = ts.tz_localize(None)
-    return np.datetime64(ts.normalize().to_datetime64(), "ns")
+    return np.datetime64(ts.normalize().to_datetime64(), "ns"), same_day_late
 
 
 class _HistoryValidator:
@@ -301,11 +306,16 @@ class _HistoryValidator:
         rows.leave_out(st == 3, lab, "close {v} is not a finite number", s)
         rows.leave_out((st == 0) & ~(self.close > 0), lab, "close {v} is not positive", s)
         # after the snapshot
-        if self.until is not None:
-            late = rows.free & (self.date > self.until)
-            day = str(self.until.astype("datetime64[D]"))
+        until, same_day_late = self.until
+        if until is not None:
+            late = rows.free & (self.date > until)
+            day = str(until.astype("datetime64[D]"))
             rows.leave_out(late, self.lab("date"), lambda i: (
                 f"date {self.date[i].astype('datetime64[D]')} is after the snapshot date {day}"))
+            if same_day_late:
+                rows.leave_out(rows.free & (self.date == until), self.lab("date"), (
+                    f"date {day} is the snapshot's date, and that day's close (16:00 New York) comes after "
+                    "the snapshot time"))
         # duplicates within an underlying
         free = np.flatnonzero(rows.free)
         if free.size > 1:
@@ -447,8 +457,10 @@ def load_history(
 
     ``underlying`` names every row (replacing the file's column); ``column_map``
     is a ColumnMap or the path of a TOML mapping file over HISTORY_COLUMNS;
-    ``until`` (a date, or a snapshot time whose own calendar date is used)
-    leaves out rows dated after it. Raises HistoryFileError when the file as
+    ``until`` (a date, or a tz-aware snapshot time whose own calendar date is
+    used) leaves out rows dated after it, and, for a snapshot time before
+    16:00 New York, the row of that date too (its close comes after the
+    snapshot). Raises HistoryFileError when the file as
     a whole is unusable, ChainTriageError for a bad mapping file or argument.
     """
     name = str(path)

@@ -130,3 +130,15 @@ def test_missing_file_and_folder(tmp_path):
         load_history(tmp_path / "nope.csv")
     with pytest.raises(HistoryFileError, match="directory"):
         load_history(tmp_path)
+
+
+def test_bar_of_the_snapshot_day_is_left_out_when_the_snapshot_comes_before_the_close(tmp_path):
+    text = "date,close\n2026-11-30,100\n2026-12-01,101\n"
+    p = _write(tmp_path, text)
+    # 14:30 New York, mid-session: the 1 December close is still to come [D]
+    load = load_history(p, underlying="Q", until="2026-12-01T14:30:00-05:00")
+    (left,) = [f for f in load.findings if f.severity == LEFT_OUT]
+    assert left.line == 3 and "close (16:00 New York) comes after the snapshot time" in left.reason
+    # after the close, and with a plain date, the day's bar is kept
+    assert load_history(p, underlying="Q", until="2026-12-01T16:30:00-05:00").rows_accepted == 2
+    assert load_history(p, underlying="Q", until="2026-12-01").rows_accepted == 2
