@@ -35,6 +35,10 @@ from .findings import ChainTriageError
 from .touch import prob_touch
 
 __all__ = [
+    "bootstrap_paths",
+    "bootstrap_terminal",
+    "path_fan",
+    "terminal_density",
     "lognormal_odds",
     "DayPool",
     "day_pool",
@@ -139,6 +143,56 @@ def _gather(blocks: np.ndarray, starts: np.ndarray, steps: int) -> np.ndarray:
     return blocks[starts].reshape(m, -1)[:, :steps]
 
 
+def _drift_per_day(pool: DayPool, spot: float, forward, steps) -> np.ndarray:
+    """The drift m per day that centres ln S_T on ln F - s^2 T / 2 (decimal per day; NaN without steps)."""
+    f = np.atleast_1d(np.asarray(forward, dtype=float))
+    n = np.atleast_1d(np.asarray(steps, dtype=np.int64))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(n > 0, (np.log(f / spot) - 0.5 * pool.daily_var * n) / np.maximum(n, 1), np.nan)
+
+
+class _Sampler:
+    """Draws chunks of bootstrap paths: log closes and day highs/lows relative to spot.
+
+    The returns are centred and carry the drift ``base_drift`` per day; callers add
+    (their drift - base_drift) * day where they need another one.
+    """
+
+    def __init__(self, pool: DayPool, block: int, base_drift: float, seed: int):
+        if pool.size < 2:
+            raise ChainTriageError("a bootstrap needs at least two daily returns")
+        self.block = max(1, min(int(block), pool.size))
+        self.base_drift = float(base_drift) if np.isfinite(base_drift) else 0.0
+        mean = pool.ret.mean()
+        shift = self.base_drift - mean
+        b = self.block
+
+        # one row per possible block: its `block` consecutive days, wrapping around the end (float32 halves
+        # the memory traffic; log prices to ~1e-6 are plenty for counting which side of a strike a path ends)
+        def table(v: np.ndarray) -> np.ndarray:
+            wrapped = np.concatenate((v, v[:b - 1])) + shift
+            return np.ascontiguousarray(np.lib.stride_tricks.sliding_window_view(wrapped.astype(np.float32), b))
+
+        self.ret, self.up, self.down = table(pool.ret), table(pool.up), table(pool.down)
+        self.n_pool = pool.size
+        self.rng = np.random.default_rng(seed)
+
+    def closes(self, m: int, steps: int) -> np.ndarray:
+        """ln(S_j / S_0) at the closes j = 1..steps, (m, steps) float32."""
+        starts = _block_starts(self.rng, self.n_pool, m, steps, self.block)
+        return np.cumsum(_gather(self.ret, starts, steps), axis=1)
+
+    def chunk(self, m: int, steps: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """(log closes, log day highs, log day lows) relative to spot, each (m, steps) float32."""
+        starts = _block_starts(self.rng, self.n_pool, m, steps, self.block)
+        x = np.cumsum(_gather(self.ret, starts, steps), axis=1)
+        hi = _gather(self.up, starts, steps)
+        hi[:, 1:] += x[:, :-1]
+        lo = _gather(self.down, starts, steps)
+        lo[:, 1:] += x[:, :-1]
+        return x, hi, lo
+
+
 def bootstrap_odds(pool: DayPool, spot: float, forward, steps, strike, is_call, expiry_index,
                    *, paths: int = 100_000, block: int = 5, seed: int = 20261201) -> BootstrapOdds:
     """Block-bootstrap P(beyond) and P(touch) for contracts of several expiries, from one set of paths.
@@ -160,46 +214,30 @@ def bootstrap_odds(pool: DayPool, spot: float, forward, steps, strike, is_call, 
         raise ChainTriageError("paths must be at least 1")
     n_exp = fwd.size
     max_steps = int(max(n_steps.max(initial=1), 1))
-    var = pool.daily_var
-    centred = pool.ret - pool.ret.mean()
-    up_c = pool.up - pool.ret.mean()
-    down_c = pool.down - pool.ret.mean()
+    drift = _drift_per_day(pool, spot, fwd, n_steps)
     with np.errstate(divide="ignore", invalid="ignore"):
-        drift = np.where(n_steps > 0, (np.log(fwd / spot) - 0.5 * var * n_steps) / np.maximum(n_steps, 1), np.nan)
         log_k = np.log(k / spot)
-    # counts per contract, accumulated over chunks
-    beyond_n = np.zeros(k.shape)
+    longest = int(np.argmax(n_steps)) if n_exp else 0
+    sampler = _Sampler(pool, block, drift[longest] if n_exp else 0.0, seed)
+    beyond_n = np.zeros(k.shape)  # counts per contract, accumulated over chunks
     touch_n = np.zeros(k.shape)
-    block = max(1, min(int(block), pool.size))
-    # one row per possible block: its `block` consecutive days (float32 halves the memory traffic;
-    # log prices to ~1e-6 are plenty for counting which side of a strike a path ends)
-    def table(v: np.ndarray) -> np.ndarray:
-        wrapped = np.concatenate((v, v[:block - 1])).astype(np.float32)
-        return np.ascontiguousarray(np.lib.stride_tricks.sliding_window_view(wrapped, block))
-
-    b_ret, b_up, b_down = table(centred), table(up_c), table(down_c)
-    rng = np.random.default_rng(seed)
-    done = 0
     by_expiry = [np.flatnonzero(ei == e) for e in range(n_exp)]
+    j = np.arange(1, max_steps + 1, dtype=np.float32)
+    done = 0
     while done < paths:
         m = min(max(1_000, CHUNK_CELLS // max_steps), paths - done)
-        starts = _block_starts(rng, pool.size, m, max_steps, block)
-        x = np.cumsum(_gather(b_ret, starts, max_steps), axis=1)   # ln(S_j / S_0) less drift, at each close
-        hi = _gather(b_up, starts, max_steps)                        # day's high, log, less drift
-        hi[:, 1:] += x[:, :-1]
-        lo = _gather(b_down, starts, max_steps)
-        lo[:, 1:] += x[:, :-1]
-        j = np.arange(1, max_steps + 1, dtype=np.float32)
+        x, hi, lo = sampler.chunk(m, max_steps)
         for e in range(n_exp):  # loops over expiries only
             sel = by_expiry[e]
             s = int(n_steps[e])
             if sel.size == 0 or s < 1 or not np.isfinite(drift[e]):
                 continue
-            terminal = np.sort(x[:, s - 1].astype(float) + drift[e] * s)
-            if s == max_steps and drift[e] == 0:
-                top, bottom = np.max(hi, axis=1), np.min(lo, axis=1)
+            extra = drift[e] - sampler.base_drift
+            terminal = np.sort(x[:, s - 1].astype(float) + extra * s)
+            if extra == 0:
+                top, bottom = np.max(hi[:, :s], axis=1), np.min(lo[:, :s], axis=1)
             else:
-                dj = np.float32(drift[e]) * j[:s]
+                dj = np.float32(extra) * j[:s]
                 top, bottom = np.max(hi[:, :s] + dj, axis=1), np.min(lo[:, :s] + dj, axis=1)
             top, bottom = np.sort(top.astype(float)), np.sort(bottom.astype(float))
             lk = log_k[sel]
@@ -210,15 +248,63 @@ def bootstrap_odds(pool: DayPool, spot: float, forward, steps, strike, is_call, 
             reach_down = np.searchsorted(bottom, lk, side="right")    # min <= K
             touch_n[sel] += np.where(lk > 0, reach_up, np.where(lk < 0, reach_down, m))
         done += m
-    with np.errstate(invalid="ignore"):
-        pb = beyond_n / paths
-        pt = touch_n / paths
+    pb = beyond_n / paths
+    pt = touch_n / paths
     valid = (ei >= 0) & (ei < n_exp) & np.isfinite(log_k)
-    valid &= (n_steps[np.clip(ei, 0, n_exp - 1)] >= 1) & np.isfinite(drift[np.clip(ei, 0, n_exp - 1)])
+    if n_exp:
+        cl = np.clip(ei, 0, n_exp - 1)
+        valid &= (n_steps[cl] >= 1) & np.isfinite(drift[cl])
     pb = np.where(valid, pb, np.nan)
     pt = np.where(valid, pt, np.nan)
     se = lambda p: np.sqrt(np.clip(p * (1.0 - p), 0.0, None) / paths)  # noqa: E731
-    return BootstrapOdds(pb, se(pb), pt, se(pt), paths=paths, block=block, seed=seed)
+    return BootstrapOdds(pb, se(pb), pt, se(pt), paths=paths, block=sampler.block, seed=seed)
+
+
+def bootstrap_paths(pool: DayPool, spot: float, forward: float, steps: int, *, paths: int = 200,
+                    block: int = 5, seed: int = 20261201) -> np.ndarray:
+    """Simulated close prices for a path picture: (paths, steps + 1) float64, column 0 = spot.
+
+    The same random walk as ``bootstrap_odds`` (same centring on the forward, same blocks).
+    """
+    steps = int(steps)
+    if steps < 1 or paths < 1:
+        raise ChainTriageError("a path picture needs at least one step and one path")
+    d = _drift_per_day(pool, spot, forward, steps)[0]
+    x = _Sampler(pool, block, d, seed).closes(int(paths), steps).astype(float)
+    return spot * np.exp(np.concatenate((np.zeros((x.shape[0], 1)), x), axis=1))
+
+
+def bootstrap_terminal(pool: DayPool, spot: float, forward: float, steps: int, *, paths: int = 100_000,
+                       block: int = 5, seed: int = 20261201) -> np.ndarray:
+    """Sorted simulated prices at ``steps`` days (float64, price units), for quantiles and densities."""
+    steps = int(steps)
+    if steps < 1 or paths < 1:
+        raise ChainTriageError("a terminal distribution needs at least one step and one path")
+    d = _drift_per_day(pool, spot, forward, steps)[0]
+    sampler = _Sampler(pool, block, d, seed)
+    out = []
+    done = 0
+    while done < paths:
+        m = min(max(1_000, CHUNK_CELLS // steps), paths - done)
+        out.append(sampler.closes(m, steps)[:, -1].astype(float))
+        done += m
+    return np.sort(spot * np.exp(np.concatenate(out)))
+
+
+def path_fan(prices: np.ndarray, levels=(0.05, 0.25, 0.5, 0.75, 0.95)) -> np.ndarray:
+    """Quantiles of simulated prices at each step: (len(levels), steps + 1), price units."""
+    return np.quantile(np.asarray(prices, dtype=float), np.asarray(levels, dtype=float), axis=0)
+
+
+def terminal_density(sorted_prices: np.ndarray, edges) -> np.ndarray:
+    """Histogram density per unit price of simulated prices over the bins ``edges`` (len(edges) - 1 values).
+
+    Mass outside the edges is not shown: the values integrate to the share inside them.
+    """
+    e = np.asarray(edges, dtype=float)
+    p = np.asarray(sorted_prices, dtype=float)
+    counts = np.diff(np.searchsorted(p, e, side="left"))
+    return counts / max(p.size, 1) / np.diff(e)
 
 
 def iv_rv_ratio(implied_vol, realised) -> np.ndarray:

@@ -115,3 +115,33 @@ def test_seeded_and_guarded():
     bad = bootstrap_odds(pool, 100.0, [101.0], [0], [95.0], [False], 0, paths=100)
     assert np.isnan(bad.p_beyond).all()
     np.testing.assert_allclose(iv_rv_ratio([0.3, 0.2, np.nan], [0.25, 0.0, 0.2]), [1.2, np.nan, np.nan])
+
+
+def test_terminal_distribution_and_path_fan_match_the_lognormal():
+    """Bootstrap of lognormal history against scipy.stats.lognorm [L]: quantiles and density."""
+    from scipy.stats import lognorm
+
+    from chaintriage.core.history_odds import bootstrap_paths, bootstrap_terminal, path_fan, terminal_density
+
+    high, low, close = _lognormal_history(2520, 0.30, seed=8)
+    pool = day_pool(high, low, close)
+    steps, spot, fwd = 40, 100.0, 100.5
+    sd = math.sqrt(np.var(pool.ret) * steps)
+    law = lognorm(s=sd, scale=fwd * math.exp(-0.5 * sd * sd))
+    term = bootstrap_terminal(pool, spot, fwd, steps, paths=80_000, block=1, seed=4)
+    n = term.size
+    for q in (0.05, 0.25, 0.5, 0.75, 0.95):
+        # a sample quantile's standard error is sqrt(q(1-q)/n) / density [C]
+        se = math.sqrt(q * (1 - q) / n) / law.pdf(law.ppf(q))
+        assert abs(np.quantile(term, q) - law.ppf(q)) < 4 * se
+    edges = np.linspace(70, 140, 36)
+    dens = terminal_density(term, edges)
+    mid = 0.5 * (edges[1:] + edges[:-1])
+    assert np.allclose(dens, law.pdf(mid), atol=0.002)
+    assert abs(dens @ np.diff(edges) - (law.cdf(140) - law.cdf(70))) < 0.005
+    prices = bootstrap_paths(pool, spot, fwd, steps, paths=4000, block=5, seed=4)
+    assert prices.shape == (4000, steps + 1) and (prices[:, 0] == spot).all()
+    fan = path_fan(prices)
+    assert fan.shape == (5, steps + 1) and (np.diff(fan, axis=0) >= 0).all()
+    # the fan's middle band widens like sqrt(time) [C]
+    assert fan[3, -1] - fan[1, -1] > fan[3, 10] - fan[1, 10]
