@@ -32,6 +32,7 @@ __all__ = [
     "HistoryComparison",
     "summarise_history",
     "compare_with_snapshot",
+    "event_sessions",
     "HISTORY_CONTRACT_COLUMNS",
     "HISTORY_EXPIRY_COLUMNS",
 ]
@@ -72,6 +73,7 @@ class HistorySettings:
     block: int = 5
     seed: int = 20261201
     spot_gap_warning: float = 0.05  # warn when the snapshot's spot and the last close differ by more
+    skip_dates: tuple = ()  # bar dates left out of the realised vol and the cone (see ``event_sessions``)
 
     def __post_init__(self) -> None:
         object.__setattr__(self, "windows", _check_windows(self.windows))
@@ -107,10 +109,28 @@ class HistoryComparison:
     findings: list[Finding] = field(default_factory=list)
 
 
+def event_sessions(bar_dates, events) -> tuple:
+    """The bar dates that carry each event's news: the first session after an ``after_close`` event,
+    the session of the event's own date for a ``before_open`` one (``core.events.Event`` objects).
+
+    For an ex-event realised vol: pass them as ``HistorySettings.skip_dates``. Events with no such
+    session in the bars are ignored.
+    """
+    d = np.sort(np.asarray(bar_dates, dtype="datetime64[D]"))
+    out = []
+    for e in events:  # a handful of events
+        day = np.datetime64(e.date, "D")
+        i = np.searchsorted(d, day, side="right" if e.timing == "after_close" else "left")
+        if i < d.size:
+            out.append(d[i])
+    return tuple(sorted(set(out)))
+
+
 def summarise_history(history: PriceHistory, settings: HistorySettings | None = None) -> HistorySummary:
     """Estimators by window and the cone for one history (vectorised; a loop over windows only)."""
     st = settings or HistorySettings()
-    table = realised_vol_table(history.bars, st.windows, st.basis, underlying=history.underlying)
+    table = realised_vol_table(history.bars, st.windows, st.basis, underlying=history.underlying,
+                               skip_dates=st.skip_dates)
     estimator = st.estimator
     findings = list(table.findings)
     if estimator == "auto":

@@ -112,11 +112,14 @@ def _spans(dates, basis: str) -> np.ndarray:
     return out
 
 
-def daily_terms(open_, high, low, close, dates=None, basis="252") -> DailyTerms:
+def daily_terms(open_, high, low, close, dates=None, basis="252", skip=None) -> DailyTerms:
     """The per-day terms from price arrays (price units; NaN open/high/low allowed).
 
     ``dates`` (sorted, one per bar) give the time each return spans; without
-    them every return spans one day of the basis.
+    them every return spans one day of the basis. ``skip`` (bool per bar)
+    leaves days out of every estimator, e.g. the sessions that carried an
+    earnings release, for an ex-event realised vol: the estimates are then
+    per ordinary day.
     """
     o, h, lo, c = (np.asarray(a, dtype=float) for a in (open_, high, low, close))
     b = str(basis).strip()
@@ -135,6 +138,10 @@ def daily_terms(open_, high, low, close, dates=None, basis="252") -> DailyTerms:
         parkinson = hl * hl / (4.0 * _LN2)
         garman_klass = 0.5 * hl * hl - (2.0 * _LN2 - 1.0) * open_close * open_close
         rogers_satchell = (lh - lc) * (lh - lo_) + (ll - lc) * (ll - lo_)
+    if skip is not None:
+        out = np.asarray(skip, dtype=bool)
+        for a in (close_return, overnight, open_close, parkinson, garman_klass, rogers_satchell):
+            a[out] = np.nan
     if dates is None:
         span = np.ones(n)
         if n:
@@ -239,8 +246,8 @@ def realised_vol(open_, high, low, close, window: int, estimator: str = "close_t
     return float(vol[-1]) if vol.size else float("nan")
 
 
-def _terms(open_, high, low, close, dates, basis) -> DailyTerms:
-    return daily_terms(open_, high, low, close, dates, basis)
+def _terms(open_, high, low, close, dates, basis, skip=None) -> DailyTerms:
+    return daily_terms(open_, high, low, close, dates, basis, skip)
 
 
 @dataclass
@@ -262,20 +269,27 @@ class RealisedVolTable:
 
 
 def realised_vol_table(bars: pd.DataFrame, windows=DEFAULT_WINDOWS, basis="252",
-                       underlying: str | None = None) -> RealisedVolTable:
+                       underlying: str | None = None, skip_dates=()) -> RealisedVolTable:
     """Every estimator over every window, ending at the last bar of ``bars`` (see BAR_COLUMNS).
 
     A window longer than the history, or with too few usable days for an
-    estimator, gives NaN and a note.
+    estimator, gives NaN and a note. Bars dated in ``skip_dates`` are left
+    out of every estimator (ex-event realised vol), with a note.
     """
     b = str(basis).strip()
     _basis_days(b)
     windows = _check_windows(windows)
+    dates = bars["date"].to_numpy().astype("datetime64[D]")
+    skip = np.isin(dates, np.asarray(list(skip_dates), dtype="datetime64[D]")) if len(skip_dates) else None
     terms = _terms(bars["open"].to_numpy(float), bars["high"].to_numpy(float), bars["low"].to_numpy(float),
-                   bars["close"].to_numpy(float), bars["date"].to_numpy(), b)
+                   bars["close"].to_numpy(float), bars["date"].to_numpy(), b, skip)
     vol_a = np.full((len(windows), len(ESTIMATORS)), np.nan)
     days_a = np.zeros_like(vol_a)
     findings: list[Finding] = []
+    if skip is not None and skip.any():
+        shown = ", ".join(str(d) for d in dates[skip][:8]) + (" ..." if skip.sum() > 8 else "")
+        findings.append(Finding(NOTE, f"{int(skip.sum())} event day(s) left out of the realised vol ({shown})",
+                                underlying=underlying))
     n_ret = max(len(bars) - 1, 0)
     for i, w in enumerate(windows):  # a handful of windows and estimators
         if n_ret < w:

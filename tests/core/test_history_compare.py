@@ -98,3 +98,29 @@ def test_parquet_history(tmp_path):
     s = summarise_history(load.histories[0], HistorySettings(windows=(10, 21)))
     r = np.diff(np.log(frame["Close"].to_numpy()))
     assert s.realised.vol.loc[21, "close_to_close"] == pytest.approx(np.std(r[-21:], ddof=1) * math.sqrt(252))
+
+
+def test_ex_event_realised_vol_leaves_the_event_sessions_out():
+    """Left-out days: the estimate equals numpy's on the remaining returns [C]; event timing per core.events [D]."""
+    import datetime as dt
+
+    from chaintriage.core.events import Event
+    from chaintriage.core.history_compare import event_sessions
+    from chaintriage.demo_chains import make_demo_history as mh
+
+    hist = load_history(DEMO / "history" / "ospx_history.csv").histories[0]
+    bars = hist.bars
+    dates = bars["date"].to_numpy().astype("datetime64[D]")
+    past = [Event("OSPX", dt.date(2026, 10, 13)), Event("OSPX", dt.date(2026, 7, 14)),
+            Event("OSPX", dt.date(2026, 4, 15), timing="before_open")]
+    skip = event_sessions(dates, past)
+    assert [str(d) for d in skip] == ["2026-04-15", "2026-07-15", "2026-10-14"]
+    assert set(skip) <= set(dates[mh.event_days(mh.STYLES[1], dates)]) | {np.datetime64("2026-04-15")}
+    plain = summarise_history(hist, HistorySettings(windows=(126,), estimator="close_to_close"))
+    ex = summarise_history(hist, HistorySettings(windows=(126,), estimator="close_to_close", skip_dates=skip))
+    r = np.diff(np.log(bars["close"].to_numpy()))[-126:]
+    kept = ~np.isin(dates[1:][-126:], np.asarray(skip))
+    want = np.std(r[kept], ddof=1) * math.sqrt(252)
+    assert ex.realised.vol.loc[126, "close_to_close"] == pytest.approx(want, rel=1e-12)
+    assert ex.realised.vol.loc[126, "close_to_close"] < plain.realised.vol.loc[126, "close_to_close"]
+    assert any("event day(s) left out" in f.reason for f in ex.findings)
