@@ -104,3 +104,18 @@ def test_file_text_is_never_markup_control_or_formula(capsys, tmp_path):
             assert "\x1b" not in text and "\u202e" not in text
         if fmt == "csv":
             assert "\n=" not in out and ",=" not in out
+
+
+def test_history_with_past_events_is_ex_event(capsys):
+    """--event leaves the session after an after-close release out: numpy on the other returns [C]."""
+    args = ("history", OSPX_HISTORY, "--windows", "126", "--format", "csv")
+    _, plain_out, _ = run(capsys, *args)
+    code, out, err = run(capsys, *args, "--event", "OSPX:2026-10-13", "--event", "OSPX:2026-07-14:amc")
+    assert code == 0, err
+    got = pd.read_csv(io.StringIO(out))["close_to_close"].item()
+    assert got < pd.read_csv(io.StringIO(plain_out))["close_to_close"].item()
+    hist = pd.read_csv(OSPX_HISTORY)
+    r = pd.Series(np.diff(np.log(hist["close"].to_numpy())), index=hist["date"].iloc[1:]).iloc[-126:]
+    want = r.drop(["2026-10-14", "2026-07-15"]).std(ddof=1) * math.sqrt(252)
+    assert abs(got - want) < 1e-9
+    assert "2 event day(s) left out" in err

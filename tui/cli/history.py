@@ -43,6 +43,11 @@ percentages. `days` is the number of days the --cone-estimator's figure rests
 on; the cone (min, quartiles, max) is of that estimator's rolling vol over the
 whole history.
 
+With --events FILE or --event UNDERLYING:DATE[:amc|bmo] (past events, e.g.
+earnings releases), the sessions that carried them are left out of every
+estimator and the cone: an ex-event realised vol, to set beside the
+ex-event implied vol of `chaintriage expiries --events`.
+
 History is not a forecast, and realised and implied vol measure different
 things (implied vol carries the premium sellers ask, and coming events).
 
@@ -97,6 +102,8 @@ def add_history_file_options(p: argparse.ArgumentParser, *, prefix: str = "") ->
 
 def configure(p: argparse.ArgumentParser) -> None:
     """Add `history`'s description, options and ``func`` to its parser."""
+    from chaintriage.tui.cli.events import add_event_options
+
     p.description = ("Realised volatility from daily price history: close-to-close, Parkinson,\n"
                      "Garman-Klass, Rogers-Satchell and Yang-Zhang over each window, and the\n"
                      "volatility cone (Burghardt-Lane) of rolling realised vol.")
@@ -110,6 +117,7 @@ def configure(p: argparse.ArgumentParser) -> None:
                    help="output format on stdout (default: plain)")
     p.add_argument("--quiet", action="store_true",
                    help="print only a summary line on stderr instead of every finding")
+    add_event_options(p)
     p.set_defaults(func=run_history)
 
 
@@ -179,15 +187,27 @@ def _until(text: str | None) -> pd.Timestamp | None:
 
 
 def run_history(args: argparse.Namespace) -> int:
+    from dataclasses import replace
+
+    from chaintriage.core.history_compare import event_sessions
+    from chaintriage.tui.cli.events import gather_events
+
     until = _until(args.until)
     settings = history_settings(args, args.basis)
+    events, bad, events_left_out = gather_events(args)
+    if bad:
+        return EXIT_UNUSABLE
     loads = load_history_files(args.files, args, until=until)
     histories = loads.histories
     if not histories:
         report_history_findings(loads, [], args.quiet)
         error("no usable history")
         return EXIT_UNUSABLE
-    summaries = [summarise_history(h, settings) for h in histories]
+    summaries = []
+    for h in histories:
+        mine = [e for e in events if e.underlying == h.underlying]
+        skip = event_sessions(h.bars["date"].to_numpy(), mine) if mine else ()
+        summaries.append(summarise_history(h, replace(settings, skip_dates=skip) if skip else settings))
     frame = history_frame(summaries)
     if args.format == "plain":
         for s in summaries:
@@ -198,7 +218,8 @@ def run_history(args: argparse.Namespace) -> int:
         print()
     sys.stdout.write(render(frame, args.format))
     report_history_findings(loads, [f for s in summaries for f in s.findings], args.quiet)
-    return history_status(loads)
+    status = history_status(loads)
+    return max(status, 1) if events_left_out else status
 
 
 # --------------------------------------------------------------------------- --history for table / expiries
