@@ -104,10 +104,14 @@ def _string_list(path: str, where: str, value: object) -> tuple[str, ...]:
     return tuple(out)
 
 
-def parse_column_map(data: dict, source: str = "<mapping>") -> ColumnMap:
+def parse_column_map(data: dict, source: str = "<mapping>", *, known: tuple[str, ...] = KNOWN_COLUMNS,
+                     date_column: str = "expiry") -> ColumnMap:
     """Validate an already-parsed TOML document (a dict) into a ColumnMap.
 
-    Raises ChainTriageError naming ``source`` on any problem.
+    ``known`` lists the column names the file may map and ``date_column`` the
+    one column whose strftime format ``[formats]`` may set (kept in
+    ``expiry_format``); the defaults are the snapshot schema's. Raises
+    ChainTriageError naming ``source`` on any problem.
     """
     unknown_tables = sorted(set(data) - set(_TABLES))
     if unknown_tables:
@@ -124,10 +128,10 @@ def parse_column_map(data: dict, source: str = "<mapping>") -> ColumnMap:
     seen_headers: dict[str, str] = {}
     for ours, theirs in data.get("columns", {}).items():
         key = header_key(ours)
-        if key not in KNOWN_COLUMNS:
+        if key not in known:
             raise _fail(
                 source,
-                f"[columns] has unknown column {ours!r}; known columns: {', '.join(KNOWN_COLUMNS)}",
+                f"[columns] has unknown column {ours!r}; known columns: {', '.join(known)}",
             )
         if key in columns:
             raise _fail(source, f"[columns] maps {key!r} twice")
@@ -162,11 +166,12 @@ def parse_column_map(data: dict, source: str = "<mapping>") -> ColumnMap:
     expiry_format = None
     formats = data.get("formats", {})
     for key, value in formats.items():
-        if key != "expiry":
-            raise _fail(source, f"[formats] only 'expiry' can be set, found {key!r}")
+        if key != date_column:
+            raise _fail(source, f"[formats] only {date_column!r} can be set, found {key!r}")
         if not isinstance(value, str) or "%" not in value:
-            raise _fail(source, f"[formats] expiry must be a strftime format such as \"%m/%d/%Y\", found {value!r}")
-        check_expiry_format(value, source)
+            raise _fail(source, f"[formats] {date_column} must be a strftime format such as \"%m/%d/%Y\", "
+                                f"found {value!r}")
+        check_expiry_format(value, source, column=date_column)
         expiry_format = value
 
     return ColumnMap(columns=columns, kind_values=kind_values, expiry_format=expiry_format, source=source)
@@ -175,7 +180,7 @@ def parse_column_map(data: dict, source: str = "<mapping>") -> ColumnMap:
 _TZ_DIRECTIVE = re.compile(r"(?:^|[^%])(?:%%)*%[zZ]")
 
 
-def check_expiry_format(fmt: str, source: str = "<mapping>") -> None:
+def check_expiry_format(fmt: str, source: str = "<mapping>", *, column: str = "expiry") -> None:
     """Raise ChainTriageError naming ``source`` unless ``fmt`` is a date format the loader can use.
 
     Refused: directives the date parser does not know (``%Q``, a stray ``%``,
@@ -183,16 +188,21 @@ def check_expiry_format(fmt: str, source: str = "<mapping>") -> None:
     (``%z``/``%Z``: an expiry is a calendar date; a zone would move it).
     """
     if _TZ_DIRECTIVE.search(fmt):
-        raise _fail(source, f"[formats] expiry {fmt!r} holds a time zone (%z or %Z); an expiry is a date, "
+        what = "an expiry" if column == "expiry" else f"a {column}"
+        raise _fail(source, f"[formats] {column} {fmt!r} holds a time zone (%z or %Z); {what} is a date, "
                             "write the format without it")
     try:
         pd.to_datetime(pd.Series(["2000-01-01"], dtype=object), format=fmt, errors="coerce")
     except Exception as exc:  # ValueError for a bad directive, re.error for a repeated one
-        raise _fail(source, f"[formats] expiry {fmt!r} is not a usable date format ({exc})") from None
+        raise _fail(source, f"[formats] {column} {fmt!r} is not a usable date format ({exc})") from None
 
 
-def load_column_map(path: str | Path) -> ColumnMap:
-    """Read a TOML mapping file (see module docstring). Raises ChainTriageError naming the file."""
+def load_column_map(path: str | Path, *, known: tuple[str, ...] = KNOWN_COLUMNS,
+                    date_column: str = "expiry") -> ColumnMap:
+    """Read a TOML mapping file (see module docstring). Raises ChainTriageError naming the file.
+
+    ``known`` and ``date_column`` as in ``parse_column_map`` (another file schema, e.g. price history).
+    """
     name = str(path)
     try:
         raw = read_small_file(name)
@@ -206,4 +216,4 @@ def load_column_map(path: str | Path) -> ColumnMap:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise _fail(name, f"is not valid TOML ({exc})") from None
-    return parse_column_map(data, source=name)
+    return parse_column_map(data, source=name, known=known, date_column=date_column)

@@ -19,6 +19,13 @@ from chaintriage.tui.cli.annotated_tables import (
 )
 from chaintriage.tui.cli.common import EXIT_UNUSABLE, error, one_line, write_out
 from chaintriage.tui.cli.events import add_event_options, gather_events
+from chaintriage.tui.cli.history import (
+    HISTORY_EXPIRY_COLUMNS,
+    add_history_options,
+    finish_with_history,
+    history_columns,
+    history_for,
+)
 from chaintriage.tui.cli.model_options import DAYS_MAX, days
 from chaintriage.tui.cli.table_output import render
 
@@ -45,6 +52,11 @@ one; with events (--events FILE, --event UNDERLYING:DATE[:amc|bmo]),
 event_variance is the events' total variance the expiry carries and
 ex_event_vol the vol of its ordinary days (see `chaintriage events --help`).
 
+With --history FILE (daily prices of the underlying): hist_window and
+hist_vol (realised vol at the window nearest each expiry), iv_rv (atm_iv /
+hist_vol) and cone_percentile (share of the history's rolling vols of that
+window below atm_iv). Realised and implied vol measure different things.
+
 With --days, prints instead the range N days ahead (trading days on the
 252/250 bases, calendar days on 365), interpolating at-the-money total
 variance in time between expiries. A horizon past the last expiry holds
@@ -61,6 +73,7 @@ def configure(p: argparse.ArgumentParser) -> None:
     p.epilog = EXPIRIES_EPILOG
     add_table_options(p)
     add_event_options(p)
+    add_history_options(p)
     p.add_argument("--days", type=days, action="append", default=[], metavar="N",
                    help="print the range N days ahead instead (repeatable)")
     p.set_defaults(func=run_expiries)
@@ -74,6 +87,7 @@ def run_expiries(args: argparse.Namespace) -> int:
     if not annotated:
         return nothing_usable(args, result)
     extra = []
+    loads, hist_extra = None, []
     if args.days:
         rows = []
         for a in annotated:
@@ -87,15 +101,20 @@ def run_expiries(args: argparse.Namespace) -> int:
                              "forward": f, "range_low": lo, "range_high": hi, "extrapolated": beyond})
         frame = pd.DataFrame(rows, columns=HORIZON_COLUMNS)
     else:
+        history, loads, hist_extra = history_for(args, annotated)
         frames = []
-        for a in annotated:
+        for i, a in enumerate(annotated):
             ts = snapshot_term_structure(a, events)
             extra.extend(ts.findings)
             term = ts.table.set_index("expiry")
             table = a.expiries.copy()
             for name in ("forward_vol", "event_variance", "ex_event_vol", "events"):
                 table[name] = term[name].reindex(pd.DatetimeIndex(table["expiry"])).to_numpy()
-            frames.append(with_as_of(table[EXPIRY_COLUMNS], a, args.format))
+            frame = with_as_of(table[EXPIRY_COLUMNS], a, args.format)
+            if loads is not None:
+                cmp = history.get(i)
+                frame = history_columns(frame, cmp.expiries if cmp else None, slice(None), HISTORY_EXPIRY_COLUMNS)
+            frames.append(frame)
         frame = pd.concat(frames, ignore_index=True)
     write_out(render(frame, args.format))
     report_findings(args, result, annotated)
@@ -103,4 +122,5 @@ def run_expiries(args: argparse.Namespace) -> int:
         for f in extra:
             print(one_line(str(f)), file=sys.stderr)
     status = annotated_status(result, annotated)
-    return max(status, 1) if left_out else status
+    status = max(status, 1) if left_out else status
+    return finish_with_history(args, loads, hist_extra, status)

@@ -54,6 +54,8 @@ COMMANDS: tuple[Command, ...] = (
             "chaintriage.tui.cli.events"),
     Command("targets", "one row per expiry: the strike nearest a sigma, delta or P(beyond) target",
             "chaintriage.tui.cli.targets"),
+    Command("history", "realised vol by estimator and window, and the volatility cone, from daily prices",
+            "chaintriage.tui.cli.history"),
 )
 
 
@@ -68,6 +70,7 @@ examples:
   chaintriage expiries chain.csv --confidence 0.95
   chaintriage events chain.csv --events events.csv
   chaintriage targets chain.csv --side puts --sigma 1.5
+  chaintriage history prices.csv --windows 21,63,252
   chaintriage COMMAND --help
 
 Every figure is a model output from market quotes under stated assumptions;

@@ -18,6 +18,13 @@ from chaintriage.tui.cli.annotated_tables import (
     with_as_of,
 )
 from chaintriage.tui.cli.common import EXIT_UNUSABLE, error, write_out
+from chaintriage.tui.cli.history import (
+    HISTORY_TABLE_COLUMNS,
+    add_history_options,
+    finish_with_history,
+    history_columns,
+    history_for,
+)
 from chaintriage.tui.cli.model_options import non_negative, parse_day
 from chaintriage.tui.cli.table_output import render
 
@@ -47,6 +54,12 @@ spot) and its simple annualisation (x 365 / calendar days), the buyer's move
 to break even in sigmas, and the edge to mid. Returns leave out commissions,
 assignment and margin rules.
 
+--history FILE adds a second opinion from the underlying's daily prices:
+hist_vol (realised vol at the window nearest the expiry), hist_p_beyond and
+hist_p_touch (lognormal at hist_vol with the forward's drift), boot_p_beyond
+and boot_p_touch (block bootstrap of its own days, with standard errors).
+History is not a forecast; see `chaintriage history --help`.
+
 """ + COMMON_NOTES
 
 
@@ -62,6 +75,7 @@ def configure(p: argparse.ArgumentParser) -> None:
     p.add_argument("--beyond", type=non_negative, metavar="Z",
                    help="only out-of-the-money contracts at least Z sigmas from the forward")
     p.add_argument("--side", choices=("calls", "puts", "both"), default="both", help="which kinds (default both)")
+    add_history_options(p)
     p.set_defaults(func=run_table)
 
 
@@ -77,8 +91,9 @@ def run_table(args: argparse.Namespace) -> int:
             error(f"--expiry {text!r} is not a date (YYYY-MM-DD)")
             return EXIT_UNUSABLE
         wanted.append(day)
+    history, loads, extra = history_for(args, annotated)
     frames = []
-    for a in annotated:
+    for i, a in enumerate(annotated):
         for expiry in a.results:  # touch figures are computed per expiry on demand
             if not wanted or expiry in wanted:
                 a.touch(expiry)
@@ -90,7 +105,11 @@ def run_table(args: argparse.Namespace) -> int:
             keep &= c["kind"] == args.side[:-1]
         if args.beyond is not None:
             keep &= c["otm"] & (c["sigma_distance"].abs() >= args.beyond)
-        frames.append(with_as_of(c.loc[keep, TABLE_COLUMNS].copy(), a, args.format))
+        frame = with_as_of(c.loc[keep, TABLE_COLUMNS].copy(), a, args.format)
+        if loads is not None:
+            cmp = history.get(i)
+            frame = history_columns(frame, cmp.contracts if cmp else None, keep, HISTORY_TABLE_COLUMNS)
+        frames.append(frame)
     if wanted:
         present = {e for a in annotated for e in a.contracts["expiry"].unique()}
         missing = [w for w in wanted if w not in present]
@@ -100,6 +119,6 @@ def run_table(args: argparse.Namespace) -> int:
             return EXIT_UNUSABLE
     write_out(render(pd.concat(frames, ignore_index=True), args.format))
     report_findings(args, result, annotated)
-    return annotated_status(result, annotated)
+    return finish_with_history(args, loads, extra, annotated_status(result, annotated))
 
 

@@ -111,6 +111,29 @@ _PLAIN = {
     "edge_share_buy": ("edge/ask", "pct2"),
     "strike_below": ("below", "strike"),
     "strike_above": ("above", "strike"),
+    # history (realised vol, cone, history-based odds)
+    "window": ("window", "count"),
+    "close_to_close": ("close-close", "vol"),
+    "parkinson": ("Parkinson", "vol"),
+    "garman_klass": ("Garman-Klass", "vol"),
+    "rogers_satchell": ("Rogers-Satchell", "vol"),
+    "yang_zhang": ("Yang-Zhang", "vol"),
+    "cone_min": ("cone min", "vol"),
+    "cone_q25": ("cone 25%", "vol"),
+    "cone_median": ("cone median", "vol"),
+    "cone_q75": ("cone 75%", "vol"),
+    "cone_max": ("cone max", "vol"),
+    "cone_samples": ("windows", "count"),
+    "hist_window": ("rv window", "count"),
+    "hist_vol": ("rv", "vol"),
+    "iv_rv": ("iv/rv", "f2"),
+    "cone_percentile": ("iv in cone", "prob"),
+    "hist_p_beyond": ("hist P(beyond)", "prob"),
+    "hist_p_touch": ("hist P(touch)", "prob"),
+    "boot_p_beyond": ("boot P(beyond)", "prob"),
+    "boot_p_beyond_se": ("+/-", "prob"),
+    "boot_p_touch": ("boot P(touch)", "prob"),
+    "boot_p_touch_se": ("+/-", "prob"),
 }
 
 #: Formatters shared with the app (tui.formatting), in ASCII mode for plain terminals.
@@ -142,6 +165,8 @@ def _fmt(value: object, kind: str) -> str:
         return f"{x:g}"
     if kind == "f4":
         return f"{x:.4f}" if abs(x) < 1e6 else f"{x:.4g}"
+    if kind == "f2":
+        return f"{x:.2f}"
     return f"{x:.6f}"
 
 
