@@ -25,18 +25,17 @@ from chaintriage.tui import snapshot_loading
 from chaintriage.tui.cli.common import error
 from chaintriage.tui.layout import PLOT_HIDDEN, PLOT_SHOWN
 from chaintriage.tui.screens.triage import TriageScreen
-from chaintriage.tui.session import StrikeFilter
 from chaintriage.tui.settings import load_settings, save_preferences
 from chaintriage.tui.shortlist import ContractKey, ShortlistEntry
 from chaintriage.tui.strike_summary import copy_to_system_clipboard, summarize
 from chaintriage.tui.themes import FALLBACK_THEME, ChainTheme, css_variables, load_themes, to_textual_theme
 from chaintriage.tui.triage_state import TriageState
-from chaintriage.tui.widgets.strike_grid import DEFAULT_COLUMNS, known_columns
+from chaintriage.tui.ladder_columns import DEFAULT_COLUMNS, known_columns
 
 if TYPE_CHECKING:  # pragma: no cover
     from chaintriage.core.loading import ColumnMap, SnapshotOverrides
     from chaintriage.core.snapshot import Snapshot
-    from chaintriage.tui.session import SnapshotView
+    from chaintriage.tui.session import SnapshotView, StrikeFilter
 
 #: Exit status when nothing could be shown.
 EXIT_NOTHING = 2
@@ -159,11 +158,12 @@ class ChainTriageApp(App[int]):
     def get_default_screen(self) -> Screen:
         return self.triage
 
-    def screen_ready(self) -> None:
-        """Called when the triage screen is mounted: start loading."""
+    async def screen_ready(self) -> None:
+        """Called when the triage screen is mounted: start loading (the first frame is not kept waiting)."""
         for notice in self._startup_notices:
             self.notify(notice, title="settings and themes", severity="warning", markup=False)
         if self._given_views:
+            await self.triage.mount_body()
             self.state.views.extend(self._given_views)
             self.triage.show_view(0)
             return
@@ -192,7 +192,11 @@ class ChainTriageApp(App[int]):
 
     def _load_job(self, paths: list[str], snapshots: Sequence[Snapshot] | None, initial: bool,
                   overrides: SnapshotOverrides | None) -> None:
-        """Worker thread: ``snapshot_loading.load_views``, each view handed to the screen as it is ready."""
+        """Worker thread: the numerical modules, then ``snapshot_loading.load_views``, each view handed
+        to the screen as it is ready."""
+        if not self.triage.body_ready:
+            snapshot_loading.import_numerical_modules()
+            self.call_from_thread(self.triage.mount_body)
 
         def on_view(view: SnapshotView, first: bool) -> None:
             drawn = threading.Event()
@@ -291,7 +295,8 @@ class ChainTriageApp(App[int]):
 
     def action_clear_filter(self) -> None:
         if self.state.strike_filter.active:
-            self.set_filter(StrikeFilter())
+            self.state.clear_filter()
+            self.triage.show_expiry()
 
     def action_confidence_up(self) -> None:
         self._step_confidence(+1)
@@ -310,6 +315,8 @@ class ChainTriageApp(App[int]):
     # ------------------------------------------------------------ actions: copy and shortlist
 
     def action_copy_summary(self) -> None:
+        if not self.triage.body_ready:
+            return
         view = self.state.view
         grid = self.triage.grid
         contract = grid.highlighted_contract()
@@ -336,6 +343,8 @@ class ChainTriageApp(App[int]):
         self.notify(text, title="copied to the clipboard", timeout=4, markup=False)
 
     def action_toggle_mark(self) -> None:
+        if not self.triage.body_ready:
+            return
         view = self.state.view
         contract = self.triage.grid.highlighted_contract()
         if view is None or contract is None:
@@ -368,7 +377,7 @@ class ChainTriageApp(App[int]):
         index, pos = where
         st.expiry_positions[index] = pos
         if st.strike_filter.active:
-            st.strike_filter = StrikeFilter()
+            st.clear_filter()
             self.notify("filter cleared to show the contract", timeout=2, markup=False)
         self.triage.show_view(index)
         self.triage.grid.cursor_to_strike(key.strike, key.kind)
@@ -391,6 +400,8 @@ class ChainTriageApp(App[int]):
         self._save_settings()
 
     def action_toggle_plot(self) -> None:
+        if not self.triage.body_ready:
+            return
         self.state.plot_pref = PLOT_HIDDEN if self.triage.plot.display else PLOT_SHOWN
         self.triage.update_layout()
         self.triage.refresh_bars()

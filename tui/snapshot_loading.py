@@ -24,6 +24,16 @@ if TYPE_CHECKING:  # pragma: no cover
 DEMO_PACKAGE = "chaintriage.demo_chains"
 
 
+def import_numerical_modules() -> None:
+    """Import what loading and the ladder need (numpy, pandas, scipy, core, the ladder's widgets):
+    called first in the loading worker, so the app's first frame waits for none of it."""
+    import chaintriage.core.loading  # noqa: F401
+    import chaintriage.core.pipeline  # noqa: F401
+    import chaintriage.tui.session  # noqa: F401
+    import chaintriage.tui.widgets.distribution_plot  # noqa: F401
+    import chaintriage.tui.widgets.strike_grid  # noqa: F401
+
+
 def demo_files(root=None) -> list[str]:
     """Names of the bundled demo chains (snapshot CSV files, not the messy, events or history ones), sorted.
 
