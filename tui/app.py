@@ -204,10 +204,14 @@ class ChainTriageApp(App[int]):
             # Let the screen draw before more model work competes with it for the interpreter.
             drawn.wait(2.0)
 
+        def on_replace(partial: SnapshotView, whole: SnapshotView) -> None:
+            self.call_from_thread(self._replace_view, partial, whole)
+
         errors, added = snapshot_loading.load_views(
             paths, snapshots=snapshots, overrides=overrides, column_map=self._column_map,
             pipeline_settings=self._pipeline_settings, confidence=lambda: self.state.confidence,
-            on_busy=lambda text: self.call_from_thread(self.triage.set_busy, text), on_view=on_view)
+            on_busy=lambda text: self.call_from_thread(self.triage.set_busy, text), on_view=on_view,
+            on_replace=on_replace)
         self.call_from_thread(self._load_done, errors, added, initial)
 
     def _add_view(self, view: SnapshotView, select: bool, drawn: threading.Event | None = None) -> None:
@@ -218,6 +222,21 @@ class ChainTriageApp(App[int]):
             self.triage.refresh_bars()
         if drawn is not None:
             self.call_after_refresh(drawn.set)
+
+    def _replace_view(self, partial: SnapshotView, whole: SnapshotView) -> None:
+        """Swap the first-expiry view of a big chain for the whole chain, at the same expiry."""
+        st = self.state
+        index = next((i for i, v in enumerate(st.views) if v is partial), None)
+        if index is None:
+            return
+        expiry = partial.expiries[st.expiry_positions.get(index, 0)] if partial.expiries else None
+        st.replace_view(index, whole)
+        if expiry is not None:
+            st.expiry_positions[index] = whole.nearest_expiry_index(expiry)
+        if st.view_index == index:
+            self.triage.show_expiry()
+        else:
+            self.triage.refresh_bars()
 
     def _load_done(self, errors: list[str], added: int, initial: bool) -> None:
         st = self.state

@@ -83,6 +83,11 @@ class TriageState:
             return None
         return view.expiries[self.expiry_pos]
 
+    def replace_view(self, index: int, view: SnapshotView) -> None:
+        """Put ``view`` in place of snapshot number ``index`` (e.g. the whole chain for its first expiry)."""
+        self.views[index] = view
+        self._findings_count.pop(index, None)
+
     def findings_count(self) -> int:
         """How many findings the current snapshot has (counted once per snapshot)."""
         view = self.view

@@ -56,9 +56,9 @@ shown = []
 def say(word):
     print(word, f"{time.perf_counter():.6f}", flush=True)
 
-def first_frame():
+async def first_frame():
     app.call_after_refresh(say, "FIRST")
-    screen_ready()
+    await screen_ready()
 
 def ready():
     lines = app.triage.grid.render_lines_text()

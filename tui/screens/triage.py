@@ -19,6 +19,7 @@ shown as rich Text, never markup.
 from __future__ import annotations
 
 import contextlib
+import inspect
 from typing import TYPE_CHECKING
 
 from rich.text import Text
@@ -90,8 +91,9 @@ class TriageScreen(Screen):
         self.show_body(False)
         self.refresh_bars()
         ready = getattr(self.app, "screen_ready", None)
-        if ready is not None:
-            await ready()
+        result = ready() if ready is not None else None
+        if inspect.isawaitable(result):
+            await result
 
     async def mount_body(self) -> None:
         """Mount the ladder and the plot (imports numpy through them: call it once that is cheap)."""
