@@ -179,13 +179,14 @@ async def _expiry_switch(size: tuple[int, int], repeats: int) -> None:
             composed.append(time.perf_counter() - t0)
         # The app's own frames: every screen update written to the (headless) terminal is counted.
         drawn: list[float] = []
-        real_refresh = screen._compositor_refresh
+        real_display = app._display
 
-        def counting_refresh() -> None:
-            real_refresh()
+        def counting_display(*args, **kwargs):
+            result = real_display(*args, **kwargs)
             drawn.append(time.perf_counter())
+            return result
 
-        screen._compositor_refresh = counting_refresh
+        app._display = counting_display
         for i in range(repeats):
             step = app.action_next_expiry if (i // (n - 1)) % 2 == 0 else app.action_previous_expiry
             await pilot.pause()
