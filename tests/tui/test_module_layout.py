@@ -43,8 +43,9 @@ def _run_main(args: list[str]) -> str:
 
 
 def _demo_chain() -> str:
-    root = resources.files("chaintriage.demo_chains")
-    return str(sorted(p for p in root.iterdir() if p.name.endswith(".csv") and "messy" not in p.name)[0])
+    from chaintriage.tui.snapshot_loading import demo_files
+
+    return str(resources.files("chaintriage.demo_chains") / demo_files()[0])
 
 
 def test_non_interactive_subcommands_import_no_textual():
