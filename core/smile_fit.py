@@ -52,7 +52,6 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy.optimize import least_squares
 
 from .findings import NOTE, WARNING, ChainTriageError, Finding
 from . import svi
@@ -327,6 +326,8 @@ def _grid_start(k, w, wt, g_check_k=None) -> SviParams | None:
 
 def _polish(k, w, wt, start: SviParams, penalty_k=None, penalty_scale: float = 0.0) -> SviParams:
     """Levenberg-Marquardt (MINPACK) on u, with x = lo + (hi - lo) * logistic(u) inside the box."""
+    from scipy.optimize import least_squares  # here only: importing it costs a tenth of a second at start
+
     lo, hi = _bounds(k, w)
     span = hi - lo
     x0 = np.clip(_from_params(start), lo + 1e-3 * span, hi - 1e-3 * span)

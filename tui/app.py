@@ -26,18 +26,17 @@ from chaintriage.tui import clipboard, snapshot_loading, terminal_signals
 from chaintriage.tui.cli.common import error
 from chaintriage.tui.layout import PLOT_HIDDEN, PLOT_SHOWN
 from chaintriage.tui.screens.triage import TriageScreen
-from chaintriage.tui.session import StrikeFilter
 from chaintriage.tui.settings import load_settings, save_preferences
 from chaintriage.tui.shortlist import ContractKey, ShortlistEntry
 from chaintriage.tui.strike_summary import copy_to_system_clipboard, summarize
 from chaintriage.tui.themes import FALLBACK_THEME, ChainTheme, css_variables, load_themes, to_textual_theme
 from chaintriage.tui.triage_state import TriageState
-from chaintriage.tui.widgets.strike_grid import DEFAULT_COLUMNS, known_columns
+from chaintriage.tui.ladder_columns import DEFAULT_COLUMNS, known_columns
 
 if TYPE_CHECKING:  # pragma: no cover
     from chaintriage.core.loading import ColumnMap, SnapshotOverrides
     from chaintriage.core.snapshot import Snapshot
-    from chaintriage.tui.session import SnapshotView
+    from chaintriage.tui.session import SnapshotView, StrikeFilter
 
 #: Exit status when nothing could be shown.
 EXIT_NOTHING = 2
@@ -162,12 +161,13 @@ class ChainTriageApp(App[int]):
     def get_default_screen(self) -> Screen:
         return self.triage
 
-    def screen_ready(self) -> None:
-        """Called when the triage screen is mounted: start loading."""
+    async def screen_ready(self) -> None:
+        """Called when the triage screen is mounted: start loading (the first frame is not kept waiting)."""
         terminal_signals.install(self)  # SIGTERM/SIGHUP: exit the ordinary way, terminal restored
         for notice in self._startup_notices:
             self.notify(notice, title="settings and themes", severity="warning", markup=False)
         if self._given_views:
+            await self.triage.mount_body()
             self.state.views.extend(self._given_views)
             self.triage.show_view(0)
             return
@@ -196,7 +196,11 @@ class ChainTriageApp(App[int]):
 
     def _load_job(self, paths: list[str], snapshots: Sequence[Snapshot] | None, initial: bool,
                   overrides: SnapshotOverrides | None) -> None:
-        """Worker thread: ``snapshot_loading.load_views``, each view handed to the screen as it is ready."""
+        """Worker thread: the numerical modules, then ``snapshot_loading.load_views``, each view handed
+        to the screen as it is ready."""
+        if not self.triage.body_ready:
+            snapshot_loading.import_numerical_modules()
+            self.call_from_thread(self.triage.mount_body)
 
         def on_view(view: SnapshotView, first: bool) -> None:
             drawn = threading.Event()
@@ -204,10 +208,14 @@ class ChainTriageApp(App[int]):
             # Let the screen draw before more model work competes with it for the interpreter.
             drawn.wait(2.0)
 
+        def on_replace(partial: SnapshotView, whole: SnapshotView) -> None:
+            self.call_from_thread(self._replace_view, partial, whole)
+
         errors, added = snapshot_loading.load_views(
             paths, snapshots=snapshots, overrides=overrides, column_map=self._column_map,
             pipeline_settings=self._pipeline_settings, confidence=lambda: self.state.confidence,
-            on_busy=lambda text: self.call_from_thread(self.triage.set_busy, text), on_view=on_view)
+            on_busy=lambda text: self.call_from_thread(self.triage.set_busy, text), on_view=on_view,
+            on_replace=on_replace)
         self.call_from_thread(self._load_done, errors, added, initial)
 
     def _add_view(self, view: SnapshotView, select: bool, drawn: threading.Event | None = None) -> None:
@@ -218,6 +226,21 @@ class ChainTriageApp(App[int]):
             self.triage.refresh_bars()
         if drawn is not None:
             self.call_after_refresh(drawn.set)
+
+    def _replace_view(self, partial: SnapshotView, whole: SnapshotView) -> None:
+        """Swap the first-expiry view of a big chain for the whole chain, at the same expiry."""
+        st = self.state
+        index = next((i for i, v in enumerate(st.views) if v is partial), None)
+        if index is None:
+            return
+        expiry = partial.expiries[st.expiry_positions.get(index, 0)] if partial.expiries else None
+        st.replace_view(index, whole)
+        if expiry is not None:
+            st.expiry_positions[index] = whole.nearest_expiry_index(expiry)
+        if st.view_index == index:
+            self.triage.show_expiry()
+        else:
+            self.triage.refresh_bars()
 
     def _load_done(self, errors: list[str], added: int, initial: bool) -> None:
         st = self.state
@@ -295,7 +318,8 @@ class ChainTriageApp(App[int]):
 
     def action_clear_filter(self) -> None:
         if self.state.strike_filter.active:
-            self.set_filter(StrikeFilter())
+            self.state.clear_filter()
+            self.triage.show_expiry()
 
     def action_confidence_up(self) -> None:
         self._step_confidence(+1)
@@ -314,6 +338,8 @@ class ChainTriageApp(App[int]):
     # ------------------------------------------------------------ actions: copy and shortlist
 
     def action_copy_summary(self) -> None:
+        if not self.triage.body_ready:
+            return
         view = self.state.view
         grid = self.triage.grid
         contract = grid.highlighted_contract()
@@ -367,6 +393,8 @@ class ChainTriageApp(App[int]):
         super().exit(*args, **kwargs)
 
     def action_toggle_mark(self) -> None:
+        if not self.triage.body_ready:
+            return
         view = self.state.view
         contract = self.triage.grid.highlighted_contract()
         if view is None or contract is None:
@@ -399,7 +427,7 @@ class ChainTriageApp(App[int]):
         index, pos = where
         st.expiry_positions[index] = pos
         if st.strike_filter.active:
-            st.strike_filter = StrikeFilter()
+            st.clear_filter()
             self.notify("filter cleared to show the contract", timeout=2, markup=False)
         self.triage.show_view(index)
         self.triage.grid.cursor_to_strike(key.strike, key.kind)
@@ -422,6 +450,8 @@ class ChainTriageApp(App[int]):
         self._save_settings()
 
     def action_toggle_plot(self) -> None:
+        if not self.triage.body_ready:
+            return
         self.state.plot_pref = PLOT_HIDDEN if self.triage.plot.display else PLOT_SHOWN
         self.triage.update_layout()
         self.triage.refresh_bars()

@@ -17,8 +17,7 @@ import math
 import re
 from typing import Any
 
-import numpy as np
-import pandas as pd
+# numpy and pandas are imported where they are used: the app's first frame needs neither.
 
 #: Placeholder for a missing number (Unicode mode).
 PLACEHOLDER = "·"
@@ -174,6 +173,8 @@ def fmt_level(value: Any, width: int | None = None, ascii_only: bool = False) ->
 
 def strike_decimals(values: Any) -> int:
     """Fewest decimals (0..3) that show every strike in ``values`` exactly (ignoring non-finite)."""
+    import numpy as np
+
     try:
         x = np.asarray(values, dtype=float).ravel()
     except (TypeError, ValueError):
@@ -245,6 +246,8 @@ def fmt_count(value: Any, width: int | None = None, ascii_only: bool = False) ->
 
 def fmt_timestamp(value: Any, ascii_only: bool = False) -> str:
     """A snapshot time as "2026-12-01 14:30 -05:00" (offset kept when the time has one)."""
+    import pandas as pd
+
     if value is None:
         return placeholder(ascii_only)
     try:
@@ -263,6 +266,8 @@ def fmt_timestamp(value: Any, ascii_only: bool = False) -> str:
 
 def fmt_date(value: Any, ascii_only: bool = False) -> str:
     """An expiry as "2027-01-15"."""
+    import pandas as pd
+
     if value is None:
         return placeholder(ascii_only)
     try:

@@ -13,7 +13,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Sequence
 
-from chaintriage.tui.widgets.strike_grid import COLUMNS
+from chaintriage.tui.ladder_columns import COLUMNS
 
 #: Columns in the order they are kept when the width runs short (most important first).
 PRIORITY: tuple[str, ...] = (

@@ -306,6 +306,7 @@ class SnapshotView:
         self._frames: dict[pd.Timestamp, pd.DataFrame] = {}
         self._dists: dict[pd.Timestamp, Any] = {}
         self._ranges: dict[tuple[pd.Timestamp, float], tuple[tuple[float, float], tuple[float, float]]] = {}
+        self._infos: dict[tuple[int, float], ExpiryInfo] = {}
         self._file_findings = list(file_findings)
         self._target_selector: TargetSelector | None = None
 
@@ -392,7 +393,15 @@ class SnapshotView:
         return plain, smile_band
 
     def info(self, index: int, confidence: float) -> ExpiryInfo:
-        """The header figures of expiry number ``index`` (0-based) at ``confidence``."""
+        """The header figures of expiry number ``index`` (0-based) at ``confidence``; cached."""
+        key = (int(index), round(float(confidence), 6))
+        cached = self._infos.get(key)
+        if cached is not None:
+            return cached
+        self._infos[key] = info = self._info(index, confidence)
+        return info
+
+    def _info(self, index: int, confidence: float) -> ExpiryInfo:
         row = self.expiry_table.iloc[index]
         expiry = self.expiries[index]
         res = self.annotated.results.get(expiry)

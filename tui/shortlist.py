@@ -24,11 +24,10 @@ import csv
 import io
 import math
 import os
+import sys
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Iterable, Iterator, Mapping
-
-import pandas as pd
 
 from . import formatting as fm
 from .files import write_text_atomic
@@ -72,7 +71,8 @@ class ContractKey:
         """Build a key from loose values (Timestamps, numpy floats, "c"/"p")."""
         k = str(kind).strip().lower()
         k = {"c": "call", "p": "put"}.get(k, k)
-        when = as_of.isoformat() if isinstance(as_of, pd.Timestamp) else str(as_of)
+        pd = sys.modules.get("pandas")  # not imported yet: as_of cannot be a Timestamp
+        when = as_of.isoformat() if pd is not None and isinstance(as_of, pd.Timestamp) else str(as_of)
         return cls(underlying=str(underlying), as_of=when, expiry=fm.fmt_date(expiry, ascii_only=True),
                    strike=float(strike), kind=k)
 

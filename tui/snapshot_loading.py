@@ -23,6 +23,20 @@ if TYPE_CHECKING:  # pragma: no cover
 
 DEMO_PACKAGE = "chaintriage.demo_chains"
 
+#: A snapshot with more contracts than this shows its first expiry (annotated alone) before the
+#: whole chain is annotated: the expiries are computed independently, so its figures are the same.
+FIRST_EXPIRY_FIRST_ABOVE = 50_000
+
+
+def import_numerical_modules() -> None:
+    """Import what loading and the ladder need (numpy, pandas, scipy, core, the ladder's widgets):
+    called first in the loading worker, so the app's first frame waits for none of it."""
+    import chaintriage.core.loading  # noqa: F401
+    import chaintriage.core.pipeline  # noqa: F401
+    import chaintriage.tui.session  # noqa: F401
+    import chaintriage.tui.widgets.distribution_plot  # noqa: F401
+    import chaintriage.tui.widgets.strike_grid  # noqa: F401
+
 
 def demo_files(root=None) -> list[str]:
     """Names of the bundled demo chains (snapshot CSV files, not the messy, events or history ones), sorted.
@@ -98,13 +112,33 @@ def precompute_view(view: SnapshotView, confidence: float | None, start: int = 0
             view.ranges(e, confidence)
 
 
+def first_expiry_snapshot(snapshot: Snapshot) -> Snapshot | None:
+    """The snapshot cut to its first expiry (None when it has at most one expiry)."""
+    import dataclasses
+
+    contracts = snapshot.contracts
+    if contracts.empty:
+        return None
+    expiry = contracts["expiry"]
+    first = expiry.min()
+    keep = (expiry == first).to_numpy()
+    if keep.all():
+        return None
+    return dataclasses.replace(snapshot, contracts=contracts[keep], findings=[])
+
+
 def load_views(paths: Sequence[str], *, snapshots: Sequence[Snapshot] | None = None,
                overrides: SnapshotOverrides | None = None, column_map: ColumnMap | None = None,
                pipeline_settings: Any = None, confidence: Callable[[], float] | None = None,
                on_busy: Callable[[str], None] = lambda text: None,
-               on_view: Callable[[SnapshotView, bool], None] = lambda view, first: None) -> tuple[list[str], int]:
+               on_view: Callable[[SnapshotView, bool], None] = lambda view, first: None,
+               on_replace: Callable[[SnapshotView, SnapshotView], None] | None = None) -> tuple[list[str], int]:
     """The background job: read ``paths`` (the demo when empty; or take ``snapshots`` already read),
     annotate each snapshot and hand each view to ``on_view(view, first)`` as soon as it is ready.
+
+    With ``on_replace``, a snapshot of more than FIRST_EXPIRY_FIRST_ABOVE contracts is handed
+    over first as a view of its first expiry alone, then ``on_replace(partial, whole)`` swaps in
+    the whole chain once it is annotated.
 
     ``confidence()`` gives the range confidence to precompute at (asked each time: the user
     may change it meanwhile). ``on_busy`` says what is being done. ``on_view`` may block until the view is drawn: the
@@ -133,12 +167,27 @@ def load_views(paths: Sequence[str], *, snapshots: Sequence[Snapshot] | None = N
         for n, snap in enumerate(snapshots):
             on_busy(f"computing {fm.clean_text(snap.underlying)} "
                     f"({len(snap.contracts):,} contracts, {n + 1} of {len(snapshots)})")
+            partial = None
+            part = first_expiry_snapshot(snap) if (
+                on_replace is not None and len(snap.contracts) > FIRST_EXPIRY_FIRST_ABOVE) else None
+            if part is not None:
+                try:
+                    partial = annotate_view(part, settings, load_findings, level(), precompute=1)
+                except ChainTriageError:
+                    partial = None  # the whole chain below says what is wrong
+                if partial is not None:
+                    on_view(partial, added == 0)
+                    on_busy(f"computing {fm.clean_text(snap.underlying)}: the other expiries "
+                            f"({len(snap.contracts) - len(part.contracts):,} contracts)")
             try:
                 view = annotate_view(snap, settings, load_findings, level(), precompute=1)
             except ChainTriageError as exc:
                 errors.append(f"{snap.label}: {exc}")
                 continue
-            on_view(view, added == 0)
+            if partial is not None:
+                on_replace(partial, view)
+            else:
+                on_view(view, added == 0)
             added += 1
             precompute_view(view, level(), start=1)
     except ChainTriageError as exc:

@@ -10,13 +10,12 @@ from __future__ import annotations
 from typing import TYPE_CHECKING, Any
 
 from chaintriage.tui.layout import PLOT_AUTO, PLOT_HIDDEN, PLOT_SHOWN
-from chaintriage.tui.session import CONFIDENCE_LEVELS, StrikeFilter, fmt_confidence, step_confidence
 from chaintriage.tui.shortlist import ContractKey, Shortlist
 
 if TYPE_CHECKING:  # pragma: no cover
     import pandas as pd
 
-    from chaintriage.tui.session import SnapshotView
+    from chaintriage.tui.session import SnapshotView, StrikeFilter
     from chaintriage.tui.themes import ChainTheme
 
 
@@ -39,7 +38,7 @@ class TriageState:
         #: The expiry shown in each snapshot (view index -> expiry position), so each one reopens where it was.
         self.expiry_positions: dict[int, int] = {}
         self.file_errors: list[str] = []
-        self.strike_filter = StrikeFilter()
+        self._strike_filter: StrikeFilter | None = None
         self.shortlist = Shortlist()
         #: Ladder columns the terminal is too narrow for (still chosen, not drawn).
         self.left_out_columns: list[str] = []
@@ -49,6 +48,23 @@ class TriageState:
         #: Strikes of the current expiry before the filter.
         self.strike_total = 0
         self._findings_count: dict[int, int] = {}
+
+    @property
+    def strike_filter(self) -> StrikeFilter:
+        """The strike filter (none set: a filter that keeps every strike)."""
+        if self._strike_filter is None:
+            from chaintriage.tui.session import StrikeFilter  # numpy: not needed before the first data
+
+            self._strike_filter = StrikeFilter()
+        return self._strike_filter
+
+    @strike_filter.setter
+    def strike_filter(self, flt: StrikeFilter) -> None:
+        self._strike_filter = flt
+
+    def clear_filter(self) -> None:
+        """Show every strike again."""
+        self._strike_filter = None
 
     # ------------------------------------------------------------ what is shown
 
@@ -66,6 +82,11 @@ class TriageState:
         if view is None or not view.expiries:
             return None
         return view.expiries[self.expiry_pos]
+
+    def replace_view(self, index: int, view: SnapshotView) -> None:
+        """Put ``view`` in place of snapshot number ``index`` (e.g. the whole chain for its first expiry)."""
+        self.views[index] = view
+        self._findings_count.pop(index, None)
 
     def findings_count(self) -> int:
         """How many findings the current snapshot has (counted once per snapshot)."""
@@ -127,6 +148,8 @@ class TriageState:
 
     def step_confidence(self, step: int) -> str | None:
         """Widen (+1) or narrow (-1) the range; returns a notice at the ends, else None."""
+        from chaintriage.tui.session import CONFIDENCE_LEVELS, fmt_confidence, step_confidence
+
         c = step_confidence(self.confidence, step)
         if c == self.confidence:
             edge = "widest" if c >= CONFIDENCE_LEVELS[-1] else "narrowest"

@@ -68,7 +68,7 @@ def skewed_chain(seed: int = 5) -> Snapshot:
 def demo_snapshots():
     out = []
     for path in sorted(DEMO_DIR.glob("*.csv")):
-        if path.name != "messy_export.csv" and "events" not in path.name and "history" not in path.name:  # chains only
+        if not any(w in path.name for w in ("messy", "events", "history")):  # snapshot files only
             out.extend(load_file(path).snapshots)
     return out
 

@@ -43,8 +43,9 @@ def _run_main(args: list[str]) -> str:
 
 
 def _demo_chain() -> str:
-    root = resources.files("chaintriage.demo_chains")
-    return str(sorted(p for p in root.iterdir() if p.name.endswith(".csv") and "messy" not in p.name)[0])
+    from chaintriage.tui.snapshot_loading import demo_files
+
+    return str(resources.files("chaintriage.demo_chains") / demo_files()[0])
 
 
 def test_non_interactive_subcommands_import_no_textual():
@@ -196,3 +197,25 @@ def test_pyproject_ships_every_package():
             found.add(dirs[rel])
     assert {"chaintriage.tui.cli", "chaintriage.tui.screens", "chaintriage.tui.widgets"} <= found
     assert found <= listed, f"not listed in pyproject.toml: {sorted(found - listed)}"
+
+
+def test_the_app_module_needs_only_textual_for_its_first_frame():
+    """Importing the app (what runs before the first frame) loads no numpy, pandas or scipy: the
+    loading worker imports them while the screen already shows its loading state."""
+    loaded = _modules_after("import chaintriage.tui.app, chaintriage.tui.cli.main")
+    assert "textual" in loaded
+    bad = sorted(loaded & {"numpy", "pandas", "scipy"})
+    assert not bad, f"importing the app imported {bad}"
+
+
+def test_scipy_optimize_only_where_it_is_used():
+    """Importing the loader, the pipeline and the `table` command does not import scipy.optimize
+    (only the single-expiry fallback fit uses it, and imports it when it runs)."""
+    code = (
+        "import sys\n"
+        "from chaintriage.core.loading import load_files\n"
+        "from chaintriage.core.pipeline import annotate, PipelineSettings\n"
+        "import chaintriage.tui.cli.table\n"
+        "assert 'scipy.special' in sys.modules and 'scipy.optimize' not in sys.modules, 'scipy.optimize at start'\n"
+    )
+    assert "scipy" in _modules_after(code)

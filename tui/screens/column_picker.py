@@ -14,7 +14,7 @@ from textual.widgets.selection_list import Selection
 
 from chaintriage.tui.help_text import COLUMNS as COLUMN_HELP
 from chaintriage.tui.screens.common import close
-from chaintriage.tui.widgets.strike_grid import COLUMNS
+from chaintriage.tui.ladder_columns import COLUMNS
 
 
 class ColumnPicker(ModalScreen[None]):

@@ -7,6 +7,10 @@ the filter line; then the strike ladder (StrikeGrid) with the distribution
 pane (DistributionPlot) beside it; the key line at the bottom. Until the
 first snapshot is ready, a loading message stands in for the ladder.
 
+The first frame needs only Textual: the ladder and the plot (which need
+numpy) are mounted by ``mount_body`` once the loading job has imported the
+numerical modules (``body_ready`` says whether they are there).
+
 The screen draws a ``TriageState``; its keys call the app's actions, which
 change the state and ask the screen to draw it again. Text from files is
 shown as rich Text, never markup.
@@ -15,6 +19,8 @@ shown as rich Text, never markup.
 from __future__ import annotations
 
 import contextlib
+import inspect
+from typing import TYPE_CHECKING
 
 from rich.text import Text
 from textual.app import ComposeResult
@@ -25,12 +31,15 @@ from textual.screen import Screen
 from textual.widgets import Footer, LoadingIndicator, Static
 
 from chaintriage.tui import formatting as fm
+from chaintriage.tui.ladder_columns import COLUMNS
 from chaintriage.tui.layout import PLOT_HIDDEN, plan_layout
 from chaintriage.tui.themes import ChainTheme
 from chaintriage.tui.triage_state import TriageState
-from chaintriage.tui.widgets.distribution_plot import DistributionPlot
 from chaintriage.tui.widgets.info_bars import BarStyles, InfoBar, expiry_pieces, filter_pieces, top_pieces
-from chaintriage.tui.widgets.strike_grid import COLUMNS, StrikeGrid
+
+if TYPE_CHECKING:  # pragma: no cover
+    from chaintriage.tui.widgets.distribution_plot import DistributionPlot
+    from chaintriage.tui.widgets.strike_grid import StrikeGrid
 
 
 class TriageScreen(Screen):
@@ -63,6 +72,7 @@ class TriageScreen(Screen):
         super().__init__(id=id)
         self.state = state
         self.is_up = False
+        self.body_ready = False
         self._bar_styles = BarStyles(state.theme)
 
     def compose(self) -> ComposeResult:
@@ -70,43 +80,59 @@ class TriageScreen(Screen):
         yield InfoBar(id="topbar")
         yield InfoBar(id="expirybar")
         yield InfoBar(id="filterbar")
-        with Horizontal(id="body"):
-            yield StrikeGrid(id="grid", theme=st.theme, columns=st.columns, ascii_only=st.ascii_only, title=False)
-            yield DistributionPlot(id="plot", theme=st.theme, ascii_only=st.ascii_only)
+        yield Horizontal(id="body")
         with Vertical(id="loading"):
             yield Static(Text("starting"), id="loading-msg")
         yield Footer(show_command_palette=False)
 
-    def on_mount(self) -> None:
+    async def on_mount(self) -> None:
         self.is_up = True
         self.set_class(self.state.ascii_only, "-ascii")
         self.show_body(False)
         self.refresh_bars()
         ready = getattr(self.app, "screen_ready", None)
-        if ready is not None:
-            ready()
+        result = ready() if ready is not None else None
+        if inspect.isawaitable(result):
+            await result
+
+    async def mount_body(self) -> None:
+        """Mount the ladder and the plot (imports numpy through them: call it once that is cheap)."""
+        if self.body_ready:
+            return
+        from chaintriage.tui.widgets.distribution_plot import DistributionPlot
+        from chaintriage.tui.widgets.strike_grid import StrikeGrid
+
+        st = self.state
+        await self.query_one("#body").mount(
+            StrikeGrid(id="grid", theme=st.theme, columns=st.columns, ascii_only=st.ascii_only, title=False),
+            DistributionPlot(id="plot", theme=st.theme, ascii_only=st.ascii_only))
+        self.body_ready = True
+        self.update_layout()
 
     def on_resize(self) -> None:
         self.update_layout()
 
-    def on_strike_grid_strike_highlighted(self, message: StrikeGrid.StrikeHighlighted) -> None:
+    def on_strike_grid_strike_highlighted(self, message) -> None:
         self.highlight_moved()
 
     # ------------------------------------------------------------ widgets
 
     @property
     def grid(self) -> StrikeGrid:
-        return self.query_one("#grid", StrikeGrid)
+        """The ladder (only once ``body_ready``)."""
+        return self.query_one("#grid")  # type: ignore[return-value]
 
     @property
     def plot(self) -> DistributionPlot:
-        return self.query_one("#plot", DistributionPlot)
+        """The distribution pane (only once ``body_ready``)."""
+        return self.query_one("#plot")  # type: ignore[return-value]
 
     def bar(self, name: str) -> InfoBar:
         return self.query_one(f"#{name}", InfoBar)
 
     def show_body(self, ready: bool) -> None:
         """The ladder and plot when a snapshot is ready, else the loading message."""
+        ready = ready and self.body_ready
         self.query_one("#body").set_class(not ready, "-hidden")
         self.query_one("#loading").set_class(ready, "-hidden")
         if ready:
@@ -142,9 +168,9 @@ class TriageScreen(Screen):
         """Put the current expiry in the ladder, the header and the plot."""
         st = self.state
         view = st.view
-        grid = self.grid
-        if view is None or not view.expiries:
+        if view is None or not view.expiries or not self.body_ready:
             return
+        grid = self.grid
         expiry = st.current_expiry
         frame = view.frame(expiry)
         shown, hidden = st.strike_filter.apply(frame)
@@ -161,13 +187,13 @@ class TriageScreen(Screen):
         """Mark the shortlisted contracts of the current expiry in the ladder."""
         st = self.state
         view, expiry = st.view, st.current_expiry
-        if view is None or expiry is None:
+        if view is None or expiry is None or not self.body_ready:
             return
         self.grid.set_marked(st.shortlist.marked_in(view.snapshot.underlying, view.snapshot.as_of, expiry))
 
     def update_layout(self) -> None:
         """Share the width between ladder and plot for the current terminal size."""
-        if not self.is_up:
+        if not (self.is_up and self.body_ready):
             return
         st = self.state
         grid, plot = self.grid, self.plot
@@ -193,7 +219,7 @@ class TriageScreen(Screen):
         st = self.state
         styles, ascii_only = self._bar_styles, st.ascii_only
         view = st.view
-        if view is None:
+        if view is None or not self.body_ready:
             top = top_pieces(underlying="", as_of_text="", spot=float("nan"), index=0, count=0, findings=0,
                              shortlist=len(st.shortlist), busy=st.busy, st=styles, ascii_only=ascii_only)
             self.bar("topbar").set_pieces(top)
@@ -220,6 +246,8 @@ class TriageScreen(Screen):
     def update_plot(self) -> None:
         """Draw the current expiry's distribution in the side pane (when it is shown)."""
         st = self.state
+        if not self.body_ready:
+            return
         view, expiry, plot = st.view, st.current_expiry, self.plot
         if view is None or expiry is None or not plot.display:
             return
@@ -242,7 +270,7 @@ class TriageScreen(Screen):
         return hl[0], hl[1], p
 
     def highlight_moved(self) -> None:
-        if self.plot.display:
+        if self.body_ready and self.plot.display:
             strike, kind, p_beyond = self._highlight()
             self.plot.set_highlight(strike, kind, p_beyond)
 
@@ -251,7 +279,7 @@ class TriageScreen(Screen):
     def apply_theme(self, theme: ChainTheme) -> None:
         """Draw with ``theme`` (the state's theme is already set)."""
         self._bar_styles = BarStyles(theme)
-        if self.is_up:
+        if self.is_up and self.body_ready:
             self.grid.set_theme(theme)
             self.plot.set_theme(theme)
             self.refresh_bars()
@@ -260,6 +288,7 @@ class TriageScreen(Screen):
         """Draw with plain ASCII or Unicode, as the state says."""
         ascii_only = self.state.ascii_only
         self.set_class(ascii_only, "-ascii")
-        self.grid.set_ascii(ascii_only)
-        self.plot.set_ascii(ascii_only)
+        if self.body_ready:
+            self.grid.set_ascii(ascii_only)
+            self.plot.set_ascii(ascii_only)
         self.refresh_bars()

@@ -31,6 +31,7 @@ higher of the two series fills the plot rows.
 from __future__ import annotations
 
 import math
+from collections import OrderedDict
 from dataclasses import dataclass, field
 from typing import Any, Mapping, Sequence
 
@@ -46,6 +47,9 @@ from chaintriage.tui.themes import FALLBACK_THEME, ChainTheme
 
 #: Half-width of the default x domain, in multiples of sigma*sqrt(T).
 DOMAIN_SIGMAS = 3.0
+
+#: Drawn plots kept (by inputs, size and looks): paging back through expiries redraws none of them.
+KEEP_PLOTS = 32
 
 _EIGHTHS = " ▁▂▃▄▅▆▇█"
 
@@ -400,6 +404,8 @@ class DistributionPlot(Widget):
         self.last_result: PlotResult | None = None
         self._strips: list[Strip] | None = None
         self._strips_size: tuple[int, int] = (0, 0)
+        #: Drawn plots by their inputs, size and looks, so switching back to an expiry draws nothing.
+        self._drawn: OrderedDict[tuple, tuple[PlotResult, list[Strip], Any]] = OrderedDict()
 
     def update_plot(self, strikes: Any, density: Any, density_flat: Any, *, forward: float,
                     sigma_sqrt_t: float, highlight_strike: float | None = None,
@@ -413,6 +419,9 @@ class DistributionPlot(Widget):
     def set_highlight(self, strike: float | None, kind: str, p_beyond: float | None) -> None:
         """Move only the highlighted strike (same distribution)."""
         if self._inputs is not None:
+            if (self._inputs["highlight_strike"], self._inputs["highlight_kind"], self._inputs["p_beyond"]) == \
+                    (strike, kind, p_beyond):
+                return  # already drawn so: no second frame
             self._inputs.update(highlight_strike=strike, highlight_kind=kind, p_beyond=p_beyond)
             self.refresh()
 
@@ -441,19 +450,38 @@ class DistributionPlot(Widget):
         return draw_distribution(**self._inputs, colors=colors, width=width, height=height,
                                  ascii_only=self._ascii)
 
+    def _drawn_key(self) -> tuple | None:
+        if self._inputs is None:
+            return None
+        i = self._inputs
+        return (id(i["strikes"]), id(i["density"]), id(i["density_flat"]), i["forward"], i["sigma_sqrt_t"],
+                i["highlight_strike"], i["highlight_kind"], i["p_beyond"], self.size.width, self.size.height,
+                self._theme.name, id(self._theme), self._ascii)
+
     def render_line(self, y: int) -> Strip:
         """One line of the plot, drawn straight to segments (no markup, no re-parsing of styles)."""
         key = (self.size.width, self.size.height)
         if self._strips is None or self._strips_size != key:
-            result = self._draw()
+            drawn_key = self._drawn_key()
+            hit = self._drawn.get(drawn_key) if drawn_key is not None else None
+            if hit is not None and hit[2] is self._inputs["strikes"]:
+                self._drawn.move_to_end(drawn_key)
+                result, strips = hit[0], hit[1]
+            else:
+                result = self._draw()
+                console = self.app.console
+                base = self._base_style()
+                # Every segment gets the theme's text and background under its own style: an unstyled
+                # run (axis, notes, padding) would show the terminal's default colours, and Textual's
+                # monochrome filter (NO_COLOR) cannot take a segment without a style.
+                strips = [Strip(list(Segment.apply_style(line.render(console), style=base)), line.cell_len)
+                          .extend_cell_length(key[0], base) for line in result.lines]
+                if drawn_key is not None:
+                    self._drawn[drawn_key] = (result, strips, self._inputs["strikes"])
+                    while len(self._drawn) > KEEP_PLOTS:
+                        self._drawn.popitem(last=False)
             self.last_result = result
-            console = self.app.console
-            base = self._base_style()
-            # Every segment gets the theme's text and background under its own style: an unstyled
-            # run (axis, notes, padding) would show the terminal's default colours, and Textual's
-            # monochrome filter (NO_COLOR) cannot take a segment without a style.
-            self._strips = [Strip(list(Segment.apply_style(line.render(console), style=base)), line.cell_len)
-                            .extend_cell_length(key[0], base) for line in result.lines]
+            self._strips = strips
             self._strips_size = key
         if 0 <= y < len(self._strips):
             return self._strips[y]

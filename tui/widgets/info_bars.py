@@ -8,7 +8,7 @@ Pieces are kept whole: a line break falls between pieces, never inside one.
 from __future__ import annotations
 
 import math
-from typing import Sequence
+from typing import TYPE_CHECKING, Sequence
 
 from rich.style import Style
 from rich.text import Text
@@ -16,10 +16,11 @@ from textual.geometry import Size
 from textual.widget import Widget
 
 from chaintriage.core.findings import LEFT_OUT, WARNING, Finding
-
 from chaintriage.tui import formatting as fm
-from chaintriage.tui.session import ExpiryInfo, StrikeFilter, fmt_confidence
 from chaintriage.tui.themes import FALLBACK_THEME, ChainTheme
+
+if TYPE_CHECKING:  # pragma: no cover  (session needs numpy and core: not before the first frame)
+    from chaintriage.tui.session import ExpiryInfo, StrikeFilter
 
 SEP = "  "
 
@@ -165,6 +166,8 @@ def top_pieces(*, underlying: str, as_of_text: str, spot: float, index: int, cou
 
 def expiry_pieces(info: ExpiryInfo | None, *, st: BarStyles, ascii_only: bool = False) -> list[Text]:
     """The expiry header: date and position, days left, forward, ATM IV, ranges, fit, findings."""
+    from chaintriage.tui.session import fmt_confidence
+
     if info is None:
         return [_piece(("no expiry to show", st.dim))]
     ph = fm.placeholder(ascii_only)

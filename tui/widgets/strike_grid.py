@@ -20,12 +20,11 @@ visible rows.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
-from typing import Any, Callable, Iterable, Sequence
+from collections import OrderedDict
+from typing import Any, Iterable, Sequence
 
 import numpy as np
 import pandas as pd
-from rich.cells import cell_len, set_cell_size
 from rich.segment import Segment
 from rich.style import Style
 from textual.binding import Binding
@@ -36,80 +35,21 @@ from textual.scroll_view import ScrollView
 from textual.strip import Strip
 
 from chaintriage.tui import formatting as fm
+from chaintriage.tui.ladder_columns import (  # noqa: F401  (the ladder's columns, re-exported)
+    CALL,
+    COLUMNS,
+    DEFAULT_COLUMNS,
+    HEADER_LINES,
+    PUT,
+    ColumnSpec,
+    _fmt_text,
+    known_columns,
+)
 from chaintriage.tui.themes import FALLBACK_THEME, ChainTheme
 
-CALL = "call"
-PUT = "put"
 
-
-def _fmt_text(value: Any, width: int | None = None, ascii_only: bool = False) -> str:
-    """Text from data, cleaned and fitted to ``width`` terminal cells (wide characters counted)."""
-    text = fm.clean_text(value)
-    if ascii_only:
-        text = text.encode("ascii", "replace").decode("ascii")
-    if width is None:
-        return text
-    if cell_len(text) > width:
-        return set_cell_size(text, width - 1) + "~"
-    return set_cell_size(text, width)
-
-
-@dataclass(frozen=True)
-class ColumnSpec:
-    """One per-side column: its key, heading (and ASCII heading), width in cells,
-    the contracts-table field it shows, and its formatter."""
-
-    key: str
-    heading: str
-    heading_ascii: str
-    width: int
-    field: str
-    fmt: Callable[..., str]
-    text: bool = False
-
-
-#: Every column the grid can show, in the order a column picker should list them.
-COLUMNS: dict[str, ColumnSpec] = {
-    spec.key: spec
-    for spec in (
-        ColumnSpec("bid", "bid", "bid", 8, "bid", fm.fmt_price),
-        ColumnSpec("ask", "ask", "ask", 8, "ask", fm.fmt_price),
-        ColumnSpec("mid", "mid", "mid", 8, "mid", fm.fmt_price),
-        ColumnSpec("iv", "IV", "IV", 6, "iv", fm.fmt_vol),
-        ColumnSpec("sigma", "σ dist", "s dist", 7, "sigma_distance", fm.fmt_sigma),
-        ColumnSpec("p_beyond", "beyond", "beyond", 6, "p_beyond", fm.fmt_prob),
-        ColumnSpec("p_flat", "1-vol", "1-vol", 6, "p_beyond_flat", fm.fmt_prob),
-        ColumnSpec("p_touch", "touch", "touch", 6, "p_touch", fm.fmt_prob),
-        ColumnSpec("p_touch_low", "t.low", "t.low", 6, "p_touch_low", fm.fmt_prob),
-        ColumnSpec("p_touch_high", "t.high", "t.high", 6, "p_touch_high", fm.fmt_prob),
-        ColumnSpec("delta", "delta", "delta", 6, "delta", fm.fmt_delta),
-        ColumnSpec("breakeven", "BE", "BE", 8, "breakeven", fm.fmt_price),
-        ColumnSpec("p_breakeven", "P(BE)", "P(BE)", 6, "p_breakeven", fm.fmt_prob),
-        ColumnSpec("spread", "spread", "spread", 6, "spread_pct", fm.fmt_spread),
-        ColumnSpec("open_interest", "OI", "OI", 9, "open_interest", fm.fmt_count),
-        ColumnSpec("volume", "volume", "volume", 8, "volume", fm.fmt_count),
-        ColumnSpec("flags", "flags", "flags", 12, "flags", _fmt_text, text=True),
-        ColumnSpec("gamma", "gamma", "gamma", 7, "gamma", fm.fmt_greek),
-        ColumnSpec("theta", "theta", "theta", 7, "theta", fm.fmt_greek),
-        ColumnSpec("vega", "vega", "vega", 7, "vega", fm.fmt_greek),
-        ColumnSpec("p_profit_sell", "P sell", "P sell", 6, "p_profit_sell", fm.fmt_prob),
-        ColumnSpec("p_profit_buy", "P buy", "P buy", 6, "p_profit_buy", fm.fmt_prob),
-        ColumnSpec("per_day_sell", "/day", "/day", 7, "premium_per_day_sell", fm.fmt_price),
-        ColumnSpec("return_sell_annual", "yr ret", "yr ret", 7, "return_sell_annual", fm.fmt_return),
-        ColumnSpec("edge_share_sell", "edge", "edge", 6, "edge_share_sell", fm.fmt_spread),
-    )
-}
-
-#: The compact set shown until the user picks others.
-DEFAULT_COLUMNS: tuple[str, ...] = ("bid", "ask", "iv", "sigma", "p_beyond", "p_touch")
-
-#: Header lines above the strike rows (title, side labels, column headings).
-HEADER_LINES = 3
-
-
-def known_columns(keys: Iterable[str]) -> list[str]:
-    """``keys`` without the ones the grid does not know (e.g. from an older settings file)."""
-    return [k for k in keys if k in COLUMNS]
+#: Expiries whose arrays and drawn rows the ladder keeps, so switching back to one formats nothing again.
+KEEP_EXPIRIES = 16
 
 
 class _Styles:
@@ -210,6 +150,11 @@ class StrikeGrid(ScrollView, can_focus=True):
         self._side = CALL
         self._row_cache: dict[tuple[int, int], Strip] = {}
         self._header_cache: list[Strip] | None = None
+        #: What ``set_rows`` computed for recent inputs, with their drawn rows (see ``_rows_for_current``).
+        self._kept: OrderedDict[tuple, dict[str, Any]] = OrderedDict()
+        self._kept_key: tuple | None = None
+        #: Bumped whenever the looks of every row change (columns, theme, ASCII).
+        self._looks = 0
         if columns is not None:
             self._columns = self._specs(columns)
         self._update_virtual_size()
@@ -239,6 +184,50 @@ class StrikeGrid(ScrollView, can_focus=True):
         before = self._highlight_key()
         prev_strike = self.highlighted[0] if (self.highlighted and keep_highlight) else None
         frame = expiry_frame
+        fwd_key = float(forward) if forward is not None and np.isfinite(forward) else math.nan
+        key = (id(frame), repr(fwd_key), str(expiry), str(underlying), int(hidden))
+        kept = self._kept.get(key)
+        if kept is not None and kept["_frame"] is frame:
+            self._kept.move_to_end(key)
+            for name in self._KEPT_FIELDS:
+                setattr(self, name, kept[name])
+        else:
+            self._compute_rows(frame, forward, expiry, underlying, hidden)
+            kept = {name: getattr(self, name) for name in self._KEPT_FIELDS}
+            kept["rows"] = {}
+            self._kept[key] = kept
+            while len(self._kept) > KEEP_EXPIRIES:
+                self._kept.popitem(last=False)
+        self._kept_key = key
+        strikes = self._strikes
+        m = len(strikes)
+        # Where the highlight goes.
+        if m == 0:
+            self._cursor = -1
+        else:
+            target = prev_strike if prev_strike is not None else self._forward
+            if target is None or not math.isfinite(target):
+                self._cursor = 0
+            else:
+                self._cursor = int(np.argmin(np.abs(strikes - target)))
+        self._invalidate()
+        self._update_virtual_size()
+        self._scroll_cursor_into_view(center=True)
+        if self.is_mounted:
+            # The scroll limits follow a new width (a scrollbar coming or going) only after the next
+            # layout: look again then (nothing moves, and nothing is drawn again, when it was right).
+            self.call_after_refresh(self._scroll_cursor_into_view, True)
+        self._post_if_changed(before)
+
+    #: What ``_compute_rows`` sets, kept per input in ``_kept``.
+    _KEPT_FIELDS = ("_frame", "_strikes", "_pos", "_values", "_otm", "_forward", "_fwd_pos", "_expiry",
+                    "_underlying", "_hidden", "_strike_decimals", "_strike_width")
+
+    def _compute_rows(self, frame: pd.DataFrame, forward: float, expiry: Any, underlying: str | None,
+                      hidden: int) -> None:
+        """The per-strike arrays of ``frame`` (see ``set_rows``)."""
+        self._pos = {}
+        self._otm = {}
         self._frame = frame
         n = len(frame)
         if n:
@@ -309,22 +298,6 @@ class StrikeGrid(ScrollView, can_focus=True):
         self._strike_decimals = fm.strike_decimals(strikes)
         longest = max((len(fm.fmt_strike(s, self._strike_decimals)) for s in (strikes[:1].tolist() + strikes[-1:].tolist())), default=4)
         self._strike_width = max(8, longest + 2)
-        # Where the highlight goes.
-        if m == 0:
-            self._cursor = -1
-        else:
-            target = prev_strike if prev_strike is not None else self._forward
-            if target is None or not math.isfinite(target):
-                self._cursor = 0
-            else:
-                self._cursor = int(np.argmin(np.abs(strikes - target)))
-        self._invalidate()
-        self._update_virtual_size()
-        self._scroll_cursor_into_view(center=True)
-        if self.is_mounted:
-            # The scroll limits follow the new virtual size only after the next layout.
-            self.call_after_refresh(self._scroll_cursor_into_view, True)
-        self._post_if_changed(before)
 
     def set_columns(self, columns: Sequence[str]) -> None:
         """Choose the per-side columns by key (see COLUMNS), in display order."""
@@ -332,6 +305,7 @@ class StrikeGrid(ScrollView, can_focus=True):
         if not specs:
             raise ValueError("choose at least one column")
         self._columns = specs
+        self._looks += 1
         self._invalidate()
         self._update_virtual_size()
 
@@ -342,18 +316,23 @@ class StrikeGrid(ScrollView, can_focus=True):
 
     def set_marked(self, marked: Iterable[tuple[float, str]]) -> None:
         """Mark these (strike, kind) pairs as shortlisted (kind "call"/"put")."""
-        self._marked = {(float(k), str(kind)) for k, kind in marked}
+        marked = {(float(k), str(kind)) for k, kind in marked}
+        if marked == self._marked:
+            return
+        self._marked = marked
         self._invalidate()
 
     def set_theme(self, theme: ChainTheme) -> None:
         """Repaint with ``theme``'s colours."""
         self._theme = theme
         self._styles = _Styles(theme)
+        self._looks += 1
         self._invalidate()
 
     def set_ascii(self, ascii_only: bool) -> None:
         """Draw with ASCII characters only (True) or Unicode (False)."""
         self._ascii = bool(ascii_only)
+        self._looks += 1
         self._invalidate()
 
     @property
@@ -443,8 +422,20 @@ class StrikeGrid(ScrollView, can_focus=True):
     def _update_virtual_size(self) -> None:
         self.virtual_size = Size(self._total_width(), self._display_count() + self.header_lines)
 
+    def _rows_for_current(self) -> dict[tuple[int, int], Strip]:
+        """The drawn-rows cache of the rows shown now, with the current looks and marks (kept per
+        expiry, so switching back finds its rows drawn)."""
+        kept = self._kept.get(self._kept_key) if self._kept_key is not None else None
+        if kept is None:
+            return {}
+        wanted = (self._looks, frozenset(self._marked))
+        rows = kept["rows"]
+        for other in [k for k in rows if k[0] != self._looks]:
+            del rows[other]  # drawn with looks that are gone
+        return rows.setdefault(wanted, {})
+
     def _invalidate(self) -> None:
-        self._row_cache.clear()
+        self._row_cache = self._rows_for_current()
         self._header_cache = None
         self.refresh()
 
@@ -458,14 +449,15 @@ class StrikeGrid(ScrollView, can_focus=True):
         h = self._data_height()
         top = int(self.scroll_offset.y)
         if center:
-            new_top = max(0, r - h // 2)
+            new_top = min(max(0, r - h // 2), self.max_scroll_y)
         elif r < top:
             new_top = r
         elif r >= top + h:
             new_top = r - h + 1
         else:
             return
-        self.scroll_to(y=new_top, animate=False, immediate=True)
+        if new_top != top:
+            self.scroll_to(y=new_top, animate=False, immediate=True)
 
     # ------------------------------------------------------------- drawing
 

@@ -1,0 +1,62 @@
+"""The app's loading job: a big chain's first expiry, annotated alone, shows the figures the whole
+chain gives it (each expiry is computed from its own quotes), and the job hands it over first."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from chaintriage.core.loading import load_files
+from chaintriage.core.pipeline import PipelineSettings, annotate
+from chaintriage.tui import snapshot_loading
+from chaintriage.tui.snapshot_loading import demo_files, first_expiry_snapshot, load_views
+
+
+FIGURES = ["mid", "iv", "sigma_distance", "p_beyond", "p_beyond_flat", "p_touch", "delta", "breakeven",
+           "p_breakeven", "spread_pct"]
+
+
+def _demo_snapshot():
+    from importlib import resources
+
+    root = resources.files("chaintriage.demo_chains")
+    return load_files([str(root / demo_files()[0])]).snapshots[0]
+
+
+def test_first_expiry_alone_gives_the_whole_chains_figures():
+    """[D] consistency: the figures of the first expiry do not depend on the other expiries."""
+    snap = _demo_snapshot()
+    part = first_expiry_snapshot(snap)
+    assert part is not None and part.contracts["expiry"].nunique() == 1
+    whole = annotate(snap, PipelineSettings()).contracts
+    alone = annotate(part, PipelineSettings()).contracts
+    first = whole[whole["expiry"] == part.contracts["expiry"].iloc[0]]
+    assert len(first) == len(alone) > 0
+    key = ["strike", "kind"]
+    a = first.sort_values(key).reset_index(drop=True)
+    b = alone.sort_values(key).reset_index(drop=True)
+    pd.testing.assert_frame_equal(a[key], b[key])
+    for col in FIGURES:
+        np.testing.assert_allclose(a[col].to_numpy(float), b[col].to_numpy(float), rtol=1e-9, atol=1e-12,
+                                   equal_nan=True, err_msg=col)
+
+
+def test_a_big_chain_is_handed_over_first_expiry_first(monkeypatch):
+    monkeypatch.setattr(snapshot_loading, "FIRST_EXPIRY_FIRST_ABOVE", 10)
+    snap = _demo_snapshot()
+    events = []
+    errors, added = load_views([], snapshots=[snap], confidence=lambda: 0.68,
+                               on_view=lambda view, first: events.append(("view", len(view.expiries))),
+                               on_replace=lambda old, new: events.append(("replace", len(old.expiries),
+                                                                          len(new.expiries))))
+    n = snap.contracts["expiry"].nunique()
+    assert errors == [] and added == 1
+    assert events == [("view", 1), ("replace", 1, n)]
+
+
+def test_without_a_replace_hook_the_whole_chain_comes_at_once(monkeypatch):
+    monkeypatch.setattr(snapshot_loading, "FIRST_EXPIRY_FIRST_ABOVE", 10)
+    snap = _demo_snapshot()
+    events = []
+    load_views([], snapshots=[snap], on_view=lambda view, first: events.append(len(view.expiries)))
+    assert events == [snap.contracts["expiry"].nunique()]
