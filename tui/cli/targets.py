@@ -17,6 +17,7 @@ import pandas as pd
 
 from chaintriage.core.targets import Target, select_targets
 from chaintriage.tui.cli.annotated_tables import (
+    annotated_status,
     COMMON_NOTES,
     add_table_options,
     load_and_annotate,
@@ -24,7 +25,6 @@ from chaintriage.tui.cli.annotated_tables import (
     report_findings,
     with_as_of,
 )
-from chaintriage.tui.cli.check import check_status
 from chaintriage.tui.cli.table_output import render
 
 #: Columns of `targets`, in order (csv/json add as_of after underlying).
@@ -107,10 +107,11 @@ def run_targets(args: argparse.Namespace) -> int:
     target = target_from_args(args)
     frames = []
     for a in annotated:
+        a.fill_touch()  # touch figures are computed per expiry on demand
         table = select_targets(a.contracts, a.expiries, target)
         table.insert(0, "underlying", a.snapshot.underlying)
         table["kind"] = target.side[:-1]
         frames.append(with_as_of(table[TARGETS_COLUMNS].copy(), a, args.format))
     sys.stdout.write(render(pd.concat(frames, ignore_index=True), args.format))
     report_findings(args, result, annotated)
-    return check_status(result)
+    return annotated_status(result, annotated)
