@@ -59,7 +59,8 @@ from .column_map import (
     header_key,
     load_column_map,
 )
-from .findings import LEFT_OUT, NOTE, SEVERITIES, WARNING, ChainTriageError, Finding, FindingTable
+from .finding_table import FindingTable
+from .findings import LEFT_OUT, NOTE, SEVERITIES, WARNING, ChainTriageError, Finding
 from .snapshot import CONTRACT_COLUMNS, Snapshot
 
 __all__ = [

@@ -69,7 +69,7 @@ def run(argv: list[str]) -> tuple[float, float, int]:
 
 
 def cli(*args: str) -> list[str]:
-    return [sys.executable, "-c", "import sys; from chaintriage.tui.cli import main; sys.exit(main())", *args]
+    return [sys.executable, "-c", "import sys; from chaintriage.tui.cli.main import main; sys.exit(main())", *args]
 
 
 def floor_read_csv(path: Path) -> tuple[float, float, int]:
@@ -95,8 +95,8 @@ def commands(path: Path, formats: list[str], label: str) -> None:
 def writers(path: Path) -> None:
     from chaintriage.core.loading import load_files
     from chaintriage.core.pipeline import PipelineSettings, annotate
-    from chaintriage.tui.table_commands import TABLE_COLUMNS
-    from chaintriage.tui.table_output import render
+    from chaintriage.tui.cli.table import TABLE_COLUMNS
+    from chaintriage.tui.cli.table_output import render
 
     snap = load_files([path]).snapshots[0]
     frame = annotate(snap, PipelineSettings()).contracts[TABLE_COLUMNS].copy()

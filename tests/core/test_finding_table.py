@@ -8,7 +8,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from chaintriage.core.findings import LEFT_OUT, NOTE, WARNING, Finding, FindingTable, ranges_text
+from chaintriage.core.finding_table import FindingTable, ranges_text
+from chaintriage.core.findings import LEFT_OUT, NOTE, WARNING, Finding
 from chaintriage.core.loading import load_file
 
 

@@ -13,11 +13,11 @@ import sys
 
 import pandas as pd
 
-from chaintriage.core.findings import Finding
+from chaintriage.core.finding_table import FindingTable
 from chaintriage.core.loading import LoadResult, load_files
 from chaintriage.core.pipeline import AnnotatedSnapshot, annotate
-from chaintriage.tui.cli.check import _summary, summary_line
-from chaintriage.tui.cli.common import EXIT_UNUSABLE, add_snapshot_options, error, one_line, snapshot_options
+from chaintriage.tui.cli.check import _summary, group_line, summary_line
+from chaintriage.tui.cli.common import EXIT_UNUSABLE, add_snapshot_options, error, snapshot_options
 from chaintriage.tui.cli.model_options import add_pipeline_options, pipeline_settings
 
 COMMON_NOTES = """\
@@ -53,11 +53,29 @@ def load_and_annotate(args: argparse.Namespace) -> tuple[LoadResult, list[Annota
     return result, annotated
 
 
-def report_findings(args, result: LoadResult, annotated: list[AnnotatedSnapshot]) -> None:
-    core: list[Finding] = [f for a in annotated for f in a.findings]
+def report_findings(args, result: LoadResult, model_findings: list,
+                    wanted: list[pd.Timestamp] | None = None) -> None:
+    """Findings on stderr, repeated ones grouped per expiry and reason with a count and line ranges.
+
+    ``model_findings``: the pipeline's findings, one list per annotated
+    snapshot. With ``wanted`` expiries, only findings about them (and about no
+    expiry in particular) are listed, and the rest counted in one line.
+    """
+    core = FindingTable.concat(model_findings)
     if not args.quiet:
-        for f in [*result.findings, *core]:
-            print(one_line(str(f)), file=sys.stderr)
+        every = FindingTable.concat([result.findings, core])
+        shown = every
+        if wanted:
+            days = [f"{w:%Y-%m-%d}" for w in wanted]
+            mine = pd.isna(every.expiry) | pd.Series(every.expiry, dtype=object).isin(days).to_numpy(bool)
+            shown, rest = every.take(mine), every.take(~mine)
+        for g in shown.groups():
+            print(group_line(g, shown, with_file=True, severity=True), file=sys.stderr)
+        if wanted and len(rest):
+            n_exp = len(set(rest.expiry))
+            print(f"{len(rest)} more finding{'s' if len(rest) != 1 else ''} about {n_exp} other "
+                  f"expir{'ies' if n_exp != 1 else 'y'} not listed (chaintriage check lists every one)",
+                  file=sys.stderr)
     line = summary_line(_summary(result))
     print(f"{line}; {len(core)} model findings", file=sys.stderr)
 

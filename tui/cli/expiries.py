@@ -20,7 +20,7 @@ from chaintriage.tui.cli.check import check_status
 from chaintriage.tui.cli.common import EXIT_UNUSABLE, one_line
 from chaintriage.tui.cli.events import add_event_options, gather_events
 from chaintriage.tui.cli.model_options import positive
-from chaintriage.tui.cli.table_output import render
+from chaintriage.tui.cli.table_output import write
 
 #: Columns of `expiries`, in order.
 EXPIRY_COLUMNS = [
@@ -90,8 +90,8 @@ def run_expiries(args: argparse.Namespace) -> int:
                 table[name] = term[name].reindex(pd.DatetimeIndex(table["expiry"])).to_numpy()
             frames.append(with_as_of(table[EXPIRY_COLUMNS], a, args.format))
         frame = pd.concat(frames, ignore_index=True)
-    sys.stdout.write(render(frame, args.format))
-    report_findings(args, result, annotated)
+    write(frame, args.format, sys.stdout)
+    report_findings(args, result, [a.findings for a in annotated])
     if not args.quiet:
         for f in extra:
             print(one_line(str(f)), file=sys.stderr)

@@ -120,6 +120,10 @@ def main(argv: Sequence[str] | None = None) -> int:
     except ChainTriageError as exc:
         error(str(exc))
         return EXIT_UNUSABLE
+    except MemoryError:  # past loading (which names the file itself): the work does not fit either
+        error("out of memory: the snapshot is too big for the memory available; split the file "
+              "(e.g. one file per underlying or per expiry)")
+        return EXIT_UNUSABLE
     except BrokenPipeError:  # e.g. `chaintriage check big.csv | head`: stop quietly
         try:
             devnull = os.open(os.devnull, os.O_WRONLY)
