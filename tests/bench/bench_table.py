@@ -15,7 +15,10 @@ with zero bids), printed in one run:
   (the plain write floor) with the ratio.
 
 --big adds a 5,000,000-row file (25 underlyings of the same chain): check and
-table csv, time and peak memory against read_csv.
+table csv, time and peak memory against read_csv. --baseline DIR runs the
+commands of another revision beside these (DIR holds its ``chaintriage``
+package, e.g. the core/, tui/, themes/ and demo_chains/ of ``git archive REV``
+copied into DIR/chaintriage/).
 """
 
 from __future__ import annotations
@@ -68,8 +71,16 @@ def run(argv: list[str]) -> tuple[float, float, int]:
     return time.perf_counter() - t0, usage.ru_maxrss / 1024, code
 
 
-def cli(*args: str) -> list[str]:
-    return [sys.executable, "-c", "import sys; from chaintriage.tui.cli.main import main; sys.exit(main())", *args]
+#: A folder holding another revision's ``chaintriage`` package (--baseline), run beside this one.
+BASELINE: str | None = None
+
+
+def cli(*args: str, baseline: str | None = None) -> list[str]:
+    code = "import sys; "
+    if baseline:  # that revision's package instead of the installed one
+        code += ("sys.meta_path[:] = [f for f in sys.meta_path if 'Editable' not in getattr(f, '__name__', '')]; "
+                 f"sys.path.insert(0, {baseline!r}); ")
+    return [sys.executable, "-c", code + "from chaintriage.tui.cli.main import main; sys.exit(main())", *args]
 
 
 def floor_read_csv(path: Path) -> tuple[float, float, int]:
@@ -81,15 +92,17 @@ def commands(path: Path, formats: list[str], label: str) -> None:
     print(f"{label}: {path.stat().st_size / 1e6:.0f} MB")
     print(f"  floor read_csv (fresh process)  {t_pd:7.2f} s  {m_pd:7,.0f} MB")
     mem = {}
-    for fmt in formats:
-        t, m, _ = run(cli("table", str(path), "--format", fmt, "--quiet"))
-        mem[fmt] = m
-        extra = f"  json memory = {m / mem['csv']:.2f}x csv" if fmt == "json" and "csv" in mem else ""
-        print(f"  table --format {fmt:5s}            {t:7.2f} s  {m:7,.0f} MB   time = {t / t_pd:5.1f}x read_csv, "
-              f"memory = {m / m_pd:4.1f}x{extra}")
-    t, m, _ = run(cli("check", str(path)))
-    print(f"  check                           {t:7.2f} s  {m:7,.0f} MB   time = {t / t_pd:5.1f}x read_csv, "
-          f"memory = {m / m_pd:4.1f}x")
+    for rev in ([None, BASELINE] if BASELINE else [None]):
+        tag = "" if rev is None else " [baseline]"
+        for fmt in formats:
+            t, m, _ = run(cli("table", str(path), "--format", fmt, "--quiet", baseline=rev))
+            mem[fmt] = m
+            extra = f"  json memory = {m / mem['csv']:.2f}x csv" if fmt == "json" and "csv" in mem else ""
+            print(f"  table --format {fmt:5s}{tag:11s} {t:7.2f} s  {m:7,.0f} MB   time = {t / t_pd:5.1f}x "
+                  f"read_csv, memory = {m / m_pd:4.1f}x{extra}")
+        t, m, _ = run(cli("check", str(path), baseline=rev))
+        print(f"  check{tag:11s}                {t:7.2f} s  {m:7,.0f} MB   time = {t / t_pd:5.1f}x read_csv, "
+              f"memory = {m / m_pd:4.1f}x")
 
 
 def writers(path: Path) -> None:
@@ -125,7 +138,12 @@ def main() -> None:
     ap.add_argument("--formats", nargs="*", default=["csv", "plain", "json"])
     ap.add_argument("--big", action="store_true", help="also 5,000,000 rows: check and table csv")
     ap.add_argument("--no-writers", action="store_true")
+    ap.add_argument("--baseline", metavar="DIR",
+                    help="a folder with another revision's chaintriage package (e.g. from `git archive`), "
+                         "run beside this one")
     args = ap.parse_args()
+    global BASELINE
+    BASELINE = args.baseline
     with tempfile.TemporaryDirectory() as tmp:
         path = Path(tmp) / "chain.csv"
         write_chain(path, args.contracts, args.expiries)
