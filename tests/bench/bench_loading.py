@@ -8,7 +8,7 @@ rows, 25 underlyings) it prints, measured in one run:
 - load_file, best of R, and its floors: pandas.read_csv of the same file with
   default types (numbers parsed in C) and with every cell as text (what the
   loader must look at), with the ratio to each;
-- peak memory (VmHWM from /proc, or ru_maxrss) of a fresh process that loads
+- peak memory (its own VmHWM from /proc) of a fresh process that loads
   the file, beside a fresh process that only runs read_csv, and one that only
   imports (the interpreter and libraries);
 - the accounting: every row accepted or left out with a finding of its own,
@@ -21,7 +21,6 @@ where one finding per row used to cost a Python object each.
 from __future__ import annotations
 
 import argparse
-import os
 import subprocess
 import sys
 import tempfile
@@ -90,14 +89,19 @@ def best_of(fn, repeat: int) -> float:
 
 
 def peak_mb(code: str) -> tuple[float, float]:
-    """(seconds, peak resident MB) of a fresh Python process running ``code``."""
+    """(seconds, peak resident MB) of a fresh Python process running ``code``.
+
+    The child reports its own VmHWM at exit (reset by exec; ru_maxrss would keep
+    the high-water mark of this forking parent).
+    """
+    hook = ("import atexit, sys; atexit.register(lambda: sys.stderr.write('PEAK_KB ' + "
+            "open('/proc/self/status').read().split('VmHWM:')[1].split()[0] + '\\n')); ")
     t0 = time.perf_counter()
-    proc = subprocess.Popen([sys.executable, "-c", code])
-    _, status, usage = os.wait4(proc.pid, 0)
-    proc.returncode = os.waitstatus_to_exitcode(status)
-    if proc.returncode:
-        raise SystemExit(f"child failed: {code}")
-    return time.perf_counter() - t0, usage.ru_maxrss / 1024
+    proc = subprocess.run([sys.executable, "-c", hook + code], stderr=subprocess.PIPE)
+    err = proc.stderr.decode(errors="replace")
+    if proc.returncode or "PEAK_KB " not in err:
+        raise SystemExit(f"child failed: {code}: {err[-500:]}")
+    return time.perf_counter() - t0, int(err.rsplit("PEAK_KB ", 1)[1].split()[0]) / 1024
 
 
 def main() -> None:

@@ -7,7 +7,7 @@ default, priced with Black-76 from an SSVI surface, a quarter of the quotes
 with zero bids), printed in one run:
 
 - each command as a fresh process (`table --format F --quiet`, `check`), wall
-  time and peak memory (wait4's ru_maxrss), with the ratio to the floor
+  time and peak memory (the process's own VmHWM), with the ratio to the floor
   pandas.read_csv of the same file (also a fresh process: the interpreter,
   pandas and the read); the json run's memory is also shown against the csv run;
 - the writers alone, in this process, on the annotated frame: our csv, plain
@@ -58,17 +58,23 @@ def repeat_underlyings(src: Path, dst: Path, copies: int) -> None:
             fh.write(body.replace(name + ",", f"U{k:04d},"))
 
 
+#: Prefix for a child's code: at exit it writes its own peak resident memory (VmHWM, reset by exec,
+#: unlike ru_maxrss, which keeps the high-water mark of the forking parent) to stderr.
+PEAK_HOOK = ("import atexit, sys; atexit.register(lambda: sys.stderr.write('\\nPEAK_KB ' + "
+             "open('/proc/self/status').read().split('VmHWM:')[1].split()[0] + '\\n')); ")
+
+
 def run(argv: list[str]) -> tuple[float, float, int]:
-    """(seconds, peak MB, exit status) of a fresh process, stdout thrown away."""
+    """(seconds, peak MB, exit status) of a fresh process running ``python -c CODE ...``, stdout thrown away."""
+    argv = [argv[0], argv[1], PEAK_HOOK + argv[2], *argv[3:]]
     t0 = time.perf_counter()
     with open(os.devnull, "w") as null:
-        proc = subprocess.Popen(argv, stdout=null, stderr=subprocess.PIPE)
-        err = proc.stderr.read()
-        _, status, usage = os.wait4(proc.pid, 0)
-    code = os.waitstatus_to_exitcode(status)
-    if code not in (0, 1):
-        raise SystemExit(f"{argv} failed ({code}): {err.decode()[-500:]}")
-    return time.perf_counter() - t0, usage.ru_maxrss / 1024, code
+        proc = subprocess.run(argv, stdout=null, stderr=subprocess.PIPE)
+    seconds = time.perf_counter() - t0
+    err = proc.stderr.decode(errors="replace")
+    if proc.returncode not in (0, 1) or "PEAK_KB " not in err:
+        raise SystemExit(f"{argv} failed ({proc.returncode}): {err[-500:]}")
+    return seconds, int(err.rsplit("PEAK_KB ", 1)[1].split()[0]) / 1024, proc.returncode
 
 
 #: A folder holding another revision's ``chaintriage`` package (--baseline), run beside this one.
