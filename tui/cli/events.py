@@ -113,7 +113,7 @@ def run_events(args: argparse.Namespace) -> int:
         } for est in ts.events]
         frames.append(with_as_of(pd.DataFrame(rows, columns=EVENT_COLUMNS), a, args.format))
     sys.stdout.write(render(pd.concat(frames, ignore_index=True), args.format))
-    report_findings(args, result, annotated)
+    report_findings(args, result, [a.findings for a in annotated])
     if not args.quiet:
         for f in extra:
             print(one_line(str(f)), file=sys.stderr)
