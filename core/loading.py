@@ -63,7 +63,8 @@ from .column_map import (
     load_column_map,
 )
 from .exchange_calendar import TZ as EXCHANGE_TZ
-from .findings import LEFT_OUT, NOTE, WARNING, ChainTriageError, Finding
+from .finding_table import FindingTable
+from .findings import LEFT_OUT, NOTE, SEVERITIES, WARNING, ChainTriageError, Finding
 from .snapshot import CONTRACT_COLUMNS, Snapshot
 
 __all__ = [
@@ -115,7 +116,7 @@ class SnapshotFileError(ChainTriageError):
     def __init__(self, path: str, reason: str, *, findings: Sequence[Finding] = (), rows_read: int = 0):
         self.path = str(path)
         self.reason = reason
-        self.findings = list(findings)
+        self.findings = FindingTable.of(findings)
         self.rows_read = rows_read
         super().__init__(f"{self.path}: {reason}")
 
@@ -158,11 +159,15 @@ class SnapshotOverrides:
 
 @dataclass
 class FileLoad:
-    """What one file gave: its snapshots (one per underlying), findings and row counts."""
+    """What one file gave: its snapshots (one per underlying), findings and row counts.
+
+    ``findings`` is a FindingTable: a list of every finding when iterated,
+    and ``findings.groups()`` for the same findings grouped with line ranges.
+    """
 
     path: str
     snapshots: list[Snapshot]
-    findings: list[Finding]
+    findings: FindingTable
     rows_read: int
     rows_accepted: int
 
@@ -176,7 +181,7 @@ class LoadResult:
     """Everything ``load_files`` gave: merged snapshots, all findings, per-file loads, file errors."""
 
     snapshots: list[Snapshot]
-    findings: list[Finding]
+    findings: FindingTable
     files: list[FileLoad]
     errors: list[SnapshotFileError]
 
@@ -375,7 +380,7 @@ def _table_fast(path: str, text: str, delim: str) -> _Table | None:
             quotechar='"',
             doublequote=True,
         )
-    except (pd.errors.ParserError, ValueError, MemoryError):
+    except (pd.errors.ParserError, ValueError):
         return None
     if len(df) != starts.size:
         return None
@@ -513,6 +518,129 @@ def _read_parquet_table(path: str) -> _Table:
                   np.full(n, len(headers), np.int64), np.zeros(n, bool))
 
 
+#: Files bigger than this many bytes are read block by block, with every cell kept as a category
+#: code: memory then follows the distinct values and the row count, not the file's bytes.
+BIG_FILE_BYTES = 64 * 1024 * 1024
+#: Bytes per block when reading a big file (the text of one block is held at a time).
+CHUNK_BYTES = 8 * 1024 * 1024
+
+
+def _block_cut(buf: bytes) -> int:
+    """Where to cut ``buf``: just after its last line break outside quotes (0 when there is none)."""
+    arr = np.frombuffer(buf, dtype=np.uint8)
+    nl = np.flatnonzero(arr == 10)
+    if nl.size == 0:
+        return 0
+    qpos = np.flatnonzero(arr == 34)
+    even = (np.searchsorted(qpos, nl) % 2) == 0
+    if not even.any():
+        return 0
+    return int(nl[np.flatnonzero(even)[-1]]) + 1
+
+
+def _as_categories(cells: pd.DataFrame) -> pd.DataFrame:
+    """Every column as a categorical (codes plus the distinct texts)."""
+    return pd.DataFrame({c: pd.Categorical(cells[c]) for c in cells.columns}, index=cells.index)
+
+
+def _join_tables(tables: list[_Table]) -> _Table:
+    """One table of blocks read one after the other (categories united)."""
+    from pandas.api.types import union_categoricals
+
+    first = tables[0]
+    width = len(first.headers)
+    cells = pd.DataFrame({
+        c: pd.Series(union_categoricals([t.cells[c] for t in tables]) if tables else [], dtype="category")
+        for c in range(width)})
+    cat = np.concatenate
+    return _Table(first.headers, cells, cat([t.line for t in tables]), cat([t.end_line for t in tables]),
+                  cat([t.nfields for t in tables]), cat([t.extra for t in tables]))
+
+
+def _decode_block(path: str, block: bytes, lines_before: int) -> str:
+    """UTF-8 bytes of whole lines as text with \\n line breaks; a bad byte is named by its line in the file."""
+    try:
+        text = block.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        before = block[: exc.start].replace(b"\r\n", b"\n").replace(b"\r", b"\n")
+        line = lines_before + before.count(b"\n") + 1
+        raise SnapshotFileError(
+            path, f"is not UTF-8 text: byte 0x{block[exc.start]:02X} on line {line} cannot be decoded; "
+            "save the file as UTF-8") from None
+    return text.replace("\r\n", "\n").replace("\r", "\n")
+
+
+def _read_csv_blocks(path: str, fh, first: bytes) -> _Table:
+    """A big CSV file read block by block; each block ends at a line break outside quotes.
+
+    The header comes from the first block; every later block is read after a
+    stand-in header of the same width, and its line numbers are shifted back,
+    so they are those of the whole file. Bytes are decoded block by block.
+    """
+    if first.startswith((b"\xff\xfe", b"\xfe\xff")) or first.startswith(b"PK\x03\x04"):
+        return _read_csv_table(path, first)  # its own message, from the first bytes
+    if first.startswith(b"\xef\xbb\xbf"):
+        first = first[3:]
+    tables: list[_Table] = []
+    carry = first
+    lines_before = 0  # line breaks in the bytes already read
+    headers: list[str] | None = None
+    delim = ","
+    at_end = False
+    while not at_end:
+        more = fh.read(CHUNK_BYTES)
+        at_end = not more
+        buf = carry + more
+        cut = len(buf) if at_end else _block_cut(buf)
+        if cut == 0:  # no line break outside quotes yet: read on
+            carry = buf
+            continue
+        block, carry = buf[:cut], buf[cut:]
+        if not block.strip():
+            lines_before += block.count(b"\n") + (block.count(b"\r") - block.count(b"\r\n"))
+            continue
+        text = _decode_block(path, block, lines_before)
+        if not text.endswith("\n"):
+            text += "\n"
+        breaks = text.count("\n")
+        if headers is None:
+            delim = _pick_delimiter(text)
+            offset = lines_before
+            stand_in = ""
+        else:
+            stand_in = delim.join(["h"] * len(headers)) + "\n"
+            offset = lines_before - 1
+        try:
+            table = _table_fast(path, stand_in + text, delim)
+            if table is None:
+                # quotes that are not plain: where a record ends is known only by reading on from here,
+                # so the rest of the file is read whole by the csv module (exact, slower, more memory)
+                rest = block + carry + fh.read()
+                carry, at_end = b"", True
+        except SnapshotFileError as exc:  # a line named in the block: name it in the file
+            raise SnapshotFileError(path, re.sub(r"line (\d+)", lambda m: f"line {int(m.group(1)) + offset}",
+                                                 exc.reason)) from None
+        if table is None:
+            text = _decode_block(path, rest, lines_before)
+            text = text if text.endswith("\n") else text + "\n"
+            try:
+                table = _table_csv_module(path, stand_in + text, delim)
+            except SnapshotFileError as exc:
+                raise SnapshotFileError(path, re.sub(r"line (\d+)", lambda m: f"line {int(m.group(1)) + offset}",
+                                                     exc.reason)) from None
+        if headers is None:
+            headers = table.headers
+        table.headers = headers
+        table.line += offset
+        table.end_line += offset
+        table.cells = _as_categories(table.cells)
+        tables.append(table)
+        lines_before += breaks
+    if headers is None:
+        raise SnapshotFileError(path, "is empty")
+    return _join_tables(tables)
+
+
 def _read_table(path: str) -> _Table:
     p = Path(path)
     try:
@@ -534,6 +662,8 @@ def _read_table(path: str) -> _Table:
             head = fh.read(4)
             if p.suffix.lower() in _PARQUET_SUFFIXES or head == b"PAR1":
                 return _read_parquet_table(path)
+            if p.stat().st_size > max(BIG_FILE_BYTES, CHUNK_BYTES):
+                return _read_csv_blocks(path, fh, head)
             data = head + fh.read()
     except OSError as exc:
         raise SnapshotFileError(path, f"cannot be read ({exc.strerror or exc})") from None
@@ -651,7 +781,14 @@ def _times(s: pd.Series) -> tuple[np.ndarray, np.ndarray]:
 
 
 def _stripped(s: pd.Series) -> pd.Series:
-    """The column with surrounding whitespace removed (str dtype)."""
+    """The column with surrounding whitespace removed (str dtype; a categorical stays one)."""
+    if isinstance(s.dtype, pd.CategoricalDtype):
+        raw = s.cat.categories.to_numpy(dtype=object)
+        clean = pd.Series(raw, dtype=str).str.strip().to_numpy(dtype=object)
+        if np.array_equal(raw, clean):
+            return s.reset_index(drop=True)
+        new_codes, new_cats = pd.factorize(clean)
+        return pd.Series(pd.Categorical.from_codes(new_codes[s.cat.codes.to_numpy()], new_cats))
     codes, uniques = pd.factorize(s)
     raw = np.asarray(uniques, dtype=object)
     clean = pd.Series(raw, dtype=str).str.strip().to_numpy(dtype=object)
@@ -674,13 +811,16 @@ class _Rows:
     def __init__(self, n: int):
         self.free = np.ones(n, dtype=bool)
         self.reason = np.empty(n, dtype=object)
+        self.topic = np.empty(n, dtype=object)
         self.column = np.empty(n, dtype=object)
 
-    def leave_out(self, where: np.ndarray, column: str | None, text, values: Sequence | None = None) -> None:
+    def leave_out(self, where: np.ndarray, column: str | None, text, values: Sequence | None = None,
+                  topic: str | None = None) -> None:
         """Leave out the rows of ``where`` (a bool mask or row indices) not yet left out.
 
         ``text`` is a str, or a format with ``{v}`` filled from ``values`` (a
-        cell per row), or a callable(index) -> str.
+        cell per row), or a callable(index) -> str. ``topic`` is what the rows'
+        reasons share, for grouping (default: ``text`` without its value).
         """
         where = np.asarray(where)
         sel = np.flatnonzero(where & self.free) if where.dtype == bool else where[self.free[where]]
@@ -693,12 +833,26 @@ class _Rows:
             self.reason[sel] = [text.format(v=_show(v)) for v in vals]
         else:
             self.reason[sel] = text
+        self.topic[sel] = topic if topic is not None else _topic(text)
         self.column[sel] = column
         self.free[sel] = False
 
 
 def _fmt(x: float) -> str:
     return f"{x:.10g}"
+
+
+def _topic(text) -> str:
+    """The shared part of a reason template: the text without its quoted value."""
+    if callable(text):
+        return "other"
+    return str(text).replace(" {v}", "").replace("{{", "{").replace("}}", "}")
+
+
+def _fmt_many(x: np.ndarray) -> np.ndarray:
+    """``_fmt`` of each value, as an object array (formatted once per distinct value)."""
+    uniq, inverse = np.unique(x, return_inverse=True)
+    return np.array([_fmt(v) for v in uniq], dtype=object)[inverse.reshape(-1)]
 
 
 class _FileValidator:
@@ -794,9 +948,11 @@ class _FileValidator:
         t, rows, n = self.t, self.rows, self.n
         width = len(t.headers)
         short = t.nfields < width
-        rows.leave_out(short, None, lambda i: f"row has {t.nfields[i]} fields; the header has {width}")
+        rows.leave_out(short, None, lambda i: f"row has {t.nfields[i]} fields; the header has {width}",
+                       topic=f"row has fewer fields than the header ({width})")
         rows.leave_out(t.extra, None,
-                       lambda i: f"row has {t.nfields[i]} fields; the header has {width} (extra values at the end)")
+                       lambda i: f"row has {t.nfields[i]} fields; the header has {width} (extra values at the end)",
+                       topic=f"row has more fields than the header ({width})")
 
         # underlying
         if self.ov.underlying is not None:
@@ -883,7 +1039,8 @@ class _FileValidator:
         rows.leave_out(has_b & has_a & (bid == 0) & (ask == 0), None, "bid and ask are both zero: no quote")
         crossed = has_b & has_a & (bid > ask)
         rows.leave_out(crossed, None,
-                       lambda i: f"crossed market: bid {_fmt(bid[i])} is above ask {_fmt(ask[i])}")
+                       lambda i: f"crossed market: bid {_fmt(bid[i])} is above ask {_fmt(ask[i])}",
+                       topic="crossed market: bid above ask")
 
     # -- per underlying ---------------------------------------------------
     def resolve_groups(self) -> None:
@@ -959,7 +1116,8 @@ class _FileValidator:
             if before.size:
                 day_text = f"{local:%Y-%m-%d} (New York)"
                 rows.leave_out(before, self.lab("expiry"), lambda i: (
-                    f"expiry {self.expiry[i].astype('datetime64[D]')} is before the snapshot date {day_text}"))
+                    f"expiry {self.expiry[i].astype('datetime64[D]')} is before the snapshot date {day_text}"),
+                    topic=f"expiry is before the snapshot date {day_text}")
             self.snap[und] = (as_of, spot)
             # control characters in the name
             if self.ov.underlying is None and re.search(_CONTROL_RE, und):
@@ -968,26 +1126,33 @@ class _FileValidator:
                     file=self.path, line=int(lines[gi[0]]), column=self.lab("underlying"), underlying=und))
 
     def check_duplicates(self) -> None:
+        """Leave out a contract given again (same underlying, expiry, strike, kind): the first is kept.
+
+        Sort-based on integer and float keys (no hashing of text per row).
+        """
         free = np.flatnonzero(self.rows.free)
         if free.size < 2:
             return
-        keys = pd.DataFrame({
-            "u": self.und[free],
-            "e": self.expiry[free].astype(np.int64),
-            "s": self.strike[free],
-            "k": self.kind[free],
-            "line": self.t.line[free],
-        })
-        dup = keys.duplicated(["u", "e", "s", "k"], keep="first").to_numpy()
-        if not dup.any():
+        u = pd.factorize(self.und[free])[0]
+        e = self.expiry[free].astype(np.int64)
+        k = self.kind[free] == "put"
+        st = self.strike[free]
+        order = np.lexsort((free, k, st, e, u))  # file order last: the first of a run is the first given
+        same = np.zeros(free.size, dtype=bool)
+        same[1:] = ((u[order][1:] == u[order][:-1]) & (e[order][1:] == e[order][:-1])
+                    & (st[order][1:] == st[order][:-1]) & (k[order][1:] == k[order][:-1]))
+        if not same.any():
             return
-        first_line = keys.groupby(["u", "e", "s", "k"], sort=False)["line"].transform("first").to_numpy()
+        run_start = np.maximum.accumulate(np.where(same, 0, np.arange(free.size)))
+        dup_rows = free[order[same]]
+        first_rows = free[order[run_start[same]]]
         mask = np.zeros(self.n, dtype=bool)
-        mask[free[dup]] = True
+        mask[dup_rows] = True
         firsts = np.zeros(self.n, dtype=np.int64)
-        firsts[free] = first_line
+        firsts[dup_rows] = self.t.line[first_rows]
         self.rows.leave_out(mask, None,
-                            lambda i: f"duplicate of line {firsts[i]} (same underlying, expiry, strike and kind)")
+                            lambda i: f"duplicate of line {firsts[i]} (same underlying, expiry, strike and kind)",
+                            topic="duplicate contract (same underlying, expiry, strike and kind)")
 
     # -- warnings for accepted rows ----------------------------------------
     def optional_columns(self) -> dict[str, np.ndarray]:
@@ -1041,55 +1206,80 @@ class _FileValidator:
             out["settle"] = np.full(n, "pm", dtype=object)
         return out
 
-    def warn_rows(self, mask: np.ndarray, column: str | None, text, values=None) -> None:
+    def warn_rows(self, mask: np.ndarray, column: str | None, text, values=None, *, topic: str | None = None,
+                  strike: bool = False) -> None:
+        """Warn about the rows of ``mask``: ``text`` as in ``_Rows.leave_out``, or an object array of
+        reasons (one per selected row). ``strike`` records each row's strike for the group's strike range."""
         sel = np.flatnonzero(mask)
         if sel.size == 0:
             return
-        if callable(text):
+        if isinstance(text, np.ndarray):
+            msgs = text
+        elif callable(text):
             msgs = [text(i) for i in sel]
         elif values is not None:
             vals = np.asarray(values, dtype=object)[sel]
             msgs = [text.format(v=_show(v)) for v in vals]
         else:
-            msgs = [text] * sel.size
-        self.warn.append((sel, column, msgs))
+            msgs = text
+        self.warn.append((sel, column, msgs, topic if topic is not None else _topic(text) if isinstance(text, str)
+                          else "other", strike))
+
+    def _on_contract(self, sel: np.ndarray) -> np.ndarray:
+        """`` on the 95 put`` for each row of ``sel`` (object array), formatted per distinct strike."""
+        kinds = np.where(self.kind[sel] == "put", " put", " call").astype(object)
+        return " on the " + _fmt_many(self.strike[sel]) + kinds
 
     def quote_warnings(self) -> None:
         ok = self.rows.free
         bid, ask = self.bid, self.ask
         has_b, has_a = np.isfinite(bid), np.isfinite(ask)
-        self.warn_rows(ok & has_b & has_a & (bid == 0), self.lab("bid"), "zero bid")
-        self.warn_rows(ok & ~has_b & has_a, self.lab("bid"), "no bid")
-        self.warn_rows(ok & has_b & ~has_a, self.lab("ask"), lambda i: f"no ask (bid {_fmt(bid[i])})")
+        is_put = self.kind == "put"
+        for side, words in ((~is_put, "calls"), (is_put, "puts")):
+            for mask, what, col in ((ok & has_b & has_a & (bid == 0), "zero bid", "bid"),
+                                    (ok & ~has_b & has_a, "no bid", "bid")):
+                mask = mask & side
+                sel = np.flatnonzero(mask)
+                if sel.size:
+                    self.warn_rows(mask, self.lab(col), what + self._on_contract(sel), topic=f"{what} on {words}",
+                                   strike=True)
+        self.warn_rows(ok & has_b & ~has_a, self.lab("ask"), lambda i: f"no ask (bid {_fmt(bid[i])})",
+                       topic="no ask", strike=True)
         spread = ask - bid
         mid = 0.5 * ask + 0.5 * bid  # not (ask + bid) / 2: that overflows for prices near 1e308
         with np.errstate(invalid="ignore"):
             wide = ok & has_b & has_a & (bid > 0) & (spread > WIDE_SPREAD_FRACTION * mid) & (spread > WIDE_SPREAD_MIN)
         self.warn_rows(wide, None, lambda i: (
-            f"wide spread: bid {_fmt(bid[i])}, ask {_fmt(ask[i])} (spread {spread[i] / mid[i] * 100:.0f}% of mid)"))
+            f"wide spread: bid {_fmt(bid[i])}, ask {_fmt(ask[i])} (spread {spread[i] / mid[i] * 100:.0f}% of mid)"),
+            topic=f"wide spread (over {WIDE_SPREAD_FRACTION:.0%} of mid)", strike=True)
 
     # -- output -----------------------------------------------------------
-    def row_finding(self, severity: str, i: int, reason: str, column: str | None) -> Finding:
-        und = self.und[i]
-        und = und if isinstance(und, str) and und else None
-        e = self.expiry[i]
-        exp = None if np.isnat(e) else str(e.astype("datetime64[D]"))
-        return Finding(severity, reason, file=self.path, line=int(self.t.line[i]), column=column,
-                       underlying=und, expiry=exp)
+    def row_findings(self, severity: str, sel: np.ndarray, reason, topic, column, strike: bool) -> FindingTable:
+        """Findings about the rows ``sel`` as one table (no Python work per row)."""
+        und = self.und[sel]
+        codes, uniq = pd.factorize(und, use_na_sentinel=False)
+        named = np.array([isinstance(u, str) and u != "" for u in uniq], dtype=bool)
+        und = np.where(named[codes], und, None) if und.size else und
+        exp = self.expiry[sel]
+        exp_text = _dates_text(exp)
+        return FindingTable(SEVERITIES.index(severity), reason, topic=topic, file=self.path, line=self.t.line[sel],
+                            column=column, underlying=und, expiry=exp_text,
+                            strike=self.strike[sel] if strike else None)
 
-    def findings(self) -> list[Finding]:
+    def findings(self) -> FindingTable:
         rows, t = self.rows, self.t
-        out: list[Finding] = list(self.file_findings) + list(self.group_findings)
-        for i in np.flatnonzero(~rows.free):
-            reason = rows.reason[i]
-            if t.end_line[i] > t.line[i]:
-                reason += f" (this row spans lines {t.line[i]}-{t.end_line[i]})"
-            out.append(self.row_finding(LEFT_OUT, int(i), reason, rows.column[i]))
-        for sel, column, msgs in self.warn:
-            for i, msg in zip(sel, msgs):
-                out.append(self.row_finding(WARNING, int(i), msg, column))
-        out.sort(key=lambda f: (f.line is not None, f.line or 0))
-        return out
+        parts: list = [FindingTable.of(list(self.file_findings) + list(self.group_findings))]
+        out_rows = np.flatnonzero(~rows.free)
+        if out_rows.size:
+            reason = rows.reason[out_rows].copy()
+            for k in np.flatnonzero(t.end_line[out_rows] > t.line[out_rows]):  # rare: rows over several lines
+                i = out_rows[k]
+                reason[k] = f"{reason[k]} (this row spans lines {t.line[i]}-{t.end_line[i]})"
+            parts.append(self.row_findings(LEFT_OUT, out_rows, reason, rows.topic[out_rows], rows.column[out_rows],
+                                           False))
+        for sel, column, msgs, topic, strike in self.warn:
+            parts.append(self.row_findings(WARNING, sel, msgs, topic, column, strike))
+        return FindingTable.concat(parts).sorted_by_line()
 
     def run(self) -> FileLoad:
         self.resolve_columns()
@@ -1108,6 +1298,10 @@ class _FileValidator:
             raise SnapshotFileError(
                 self.path, f"no usable row: all {self.n} rows were left out ({common})",
                 findings=findings, rows_read=self.n)
+        # what only the checks needed goes before the frame is built (a big file's peak memory is here)
+        self.col, self.warn = {}, []
+        self.t.cells = self.t.cells.iloc[:0]
+        self.rows.reason = self.rows.topic = self.rows.column = None
         # one frame of every accepted row, sorted by underlying, expiry, strike, kind, then cut per underlying
         ok = self.rows.free
         names = list(self.snap)
@@ -1135,10 +1329,7 @@ class _FileValidator:
             "source_line": self.t.line[acc].astype(np.int64),
         })[list(CONTRACT_COLUMNS)]
         bounds = np.searchsorted(gid[acc], np.arange(len(names) + 1))
-        by_underlying: dict[str, list[Finding]] = {}
-        for f in findings:
-            if f.underlying is not None:
-                by_underlying.setdefault(f.underlying, []).append(f)
+        by_underlying = findings.split("underlying")
         snapshots = []
         for g, und in enumerate(names):
             if bounds[g] == bounds[g + 1]:
@@ -1146,9 +1337,18 @@ class _FileValidator:
             as_of, spot = self.snap[und]
             contracts = frame.iloc[bounds[g]:bounds[g + 1]].reset_index(drop=True)
             snapshots.append(Snapshot(underlying=und, as_of=as_of, spot=spot, contracts=contracts,
-                                      findings=by_underlying.get(und, []), sources=(self.path,)))
+                                      findings=by_underlying.get(und, FindingTable.empty()), sources=(self.path,)))
         return FileLoad(path=self.path, snapshots=snapshots, findings=findings, rows_read=self.n,
                         rows_accepted=accepted)
+
+
+def _dates_text(values: np.ndarray) -> np.ndarray:
+    """datetime64 values as ``YYYY-MM-DD`` text, None for NaT (object array, formatted per distinct date)."""
+    if values.size == 0:
+        return np.empty(0, dtype=object)
+    uniq, inverse = np.unique(values.astype("datetime64[D]"), return_inverse=True)
+    text = np.array([None if np.isnat(u) else str(u) for u in uniq], dtype=object)
+    return text[inverse.reshape(-1)]
 
 
 def _timestamp(text: str, utc_ns: int) -> pd.Timestamp:
@@ -1225,8 +1425,45 @@ def load_file(
     name = str(path)
     ov = (overrides or SnapshotOverrides()).resolved()
     cmap = _as_column_map(column_map)
-    table = _read_table(name)
-    return _FileValidator(name, table, ov, cmap).run()
+    try:
+        table = _read_table(name)
+        return _FileValidator(name, table, ov, cmap).run()
+    except MemoryError:
+        raise SnapshotFileError(name, _too_big(name)) from None
+
+
+#: The most bytes of snapshot files the app opens at once (about 1.2 million contracts in a typical
+#: export); bigger inputs go to `check` and `table`, which read them block by block.
+OPEN_MAX_BYTES = 100 * 1000 * 1000
+
+
+def too_big_to_open(paths: Iterable[str | Path], limit: int | None = None) -> str | None:
+    """A message when the regular files among ``paths`` are together bigger than ``limit`` bytes, else None."""
+    limit = OPEN_MAX_BYTES if limit is None else limit
+    sizes = []
+    for p in paths:
+        try:
+            if Path(p).is_file():
+                sizes.append((str(p), Path(p).stat().st_size))
+        except OSError:
+            continue
+    total = sum(n for _, n in sizes)
+    if total <= limit:
+        return None
+    biggest = max(sizes, key=lambda x: x[1])
+    return (f"{total / 1e6:,.0f} MB of snapshot files is more than the app opens at once ({limit / 1e6:,.0f} MB; "
+            f"the biggest is {biggest[0]}, {biggest[1] / 1e6:,.0f} MB): use `chaintriage check` or "
+            "`chaintriage table` on it, or split it (e.g. one file per underlying) and open a part")
+
+
+def _too_big(path: str) -> str:
+    """The reason for a file that does not fit in memory, with its size."""
+    try:
+        size = f" ({Path(path).stat().st_size / 1e6:,.0f} MB)"
+    except OSError:
+        size = ""
+    return (f"is too big to load in the memory available{size}; split it (e.g. one file per underlying "
+            "or per expiry) and load the parts")
 
 
 def load_files(
@@ -1262,7 +1499,7 @@ def load_files(
         except SnapshotFileError as exc:
             errors.append(exc)
     merged, merge_findings = _merge(files)
-    findings = [f for fl in files for f in fl.findings] + repeated + merge_findings
+    findings = FindingTable.concat([fl.findings for fl in files] + [repeated, merge_findings])
     return LoadResult(snapshots=merged, findings=findings, files=files, errors=errors)
 
 
@@ -1300,6 +1537,7 @@ def _merge(files: list[FileLoad]) -> tuple[list[Snapshot], list[Finding]]:
         group_findings: list[Finding] = []
         if dup.any():
             first_at = allc.groupby(keys, sort=False)[["source_file", "source_line"]].transform("first")
+            added: dict[int, list[Finding]] = {}
             for i in np.flatnonzero(dup):
                 fl, snap = members[int(allc["_member"].iat[i])]
                 finding = Finding(
@@ -1308,15 +1546,18 @@ def _merge(files: list[FileLoad]) -> tuple[list[Snapshot], list[Finding]]:
                     "(same underlying, expiry, strike and kind)",
                     file=fl.path, line=int(allc["source_line"].iat[i]), underlying=und,
                     expiry=str(allc["expiry"].iat[i].date()))
-                fl.findings.append(finding)
-                snap.findings.append(finding)
+                added.setdefault(int(allc["_member"].iat[i]), []).append(finding)
                 fl.rows_accepted -= 1
+            for m, new in added.items():
+                fl, snap = members[m]
+                fl.findings = FindingTable.concat([fl.findings, new])
+                snap.findings = FindingTable.concat([snap.findings, new])
             for m, (fl, snap) in enumerate(members):
                 gone = allc.loc[dup & (allc["_member"] == m).to_numpy(), "source_line"].to_numpy()
                 if gone.size:
                     keep = ~np.isin(snap.contracts["source_line"].to_numpy(), gone)
                     snap.contracts = snap.contracts[keep].reset_index(drop=True)
-                    fl.findings.sort(key=lambda f: (f.line is not None, f.line or 0))
+                    fl.findings = fl.findings.sorted_by_line()
                     if snap.contracts.empty:
                         fl.snapshots.remove(snap)
         spots = [s.spot for _, s in members]
@@ -1327,7 +1568,7 @@ def _merge(files: list[FileLoad]) -> tuple[list[Snapshot], list[Finding]]:
                 underlying=und))
         extra_findings.extend(group_findings)
         contracts = _tidy(allc[~dup].drop(columns="_member").reset_index(drop=True))
-        snap_findings = [f for _, s in members for f in s.findings] + group_findings
+        snap_findings = FindingTable.concat([s.findings for _, s in members] + [group_findings])
         sources = tuple(dict.fromkeys(src for _, s in members for src in s.sources))
         out.append(Snapshot(underlying=und, as_of=first.as_of, spot=first.spot, contracts=contracts,
                             findings=snap_findings, sources=sources))

@@ -7,6 +7,7 @@ it came from. Text values (``underlying``, file names) are plain strings.
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from dataclasses import dataclass, field
 
 import pandas as pd
@@ -45,7 +46,7 @@ class Snapshot:
     as_of: pd.Timestamp
     spot: float
     contracts: pd.DataFrame
-    findings: list[Finding] = field(default_factory=list)
+    findings: Sequence[Finding] = field(default_factory=list)  # a FindingTable from the loader
     sources: tuple[str, ...] = ()
 
     @property

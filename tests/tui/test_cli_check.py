@@ -50,8 +50,39 @@ def test_warnings_only_still_exit_0(tmp_path, capsys):
     p = csv_file(tmp_path, "warn.csv", row(bid="0", ask="0.05"))
     code, out, _ = run(capsys, "check", str(p))
     assert code == 0
-    assert "  warnings (1)\n    line 2 [bid] QRTZ 2026-03-20: zero bid\n" in out
+    assert "  warnings (1)\n    line 2 [bid] QRTZ 2026-03-20: zero bid on the 100 call\n" in out
     assert out.splitlines()[-1] == "1 file, 1 rows read, 1 accepted, 1 warnings, 0 left out"
+
+
+def test_repeated_warnings_are_grouped_with_count_and_line_ranges(tmp_path, capsys):
+    """Zero bids on lines 2-6 and 8 (puts) and on line 7 (a call): one line per expiry, topic and side."""
+    puts = [row(strike=str(k), kind="put", bid="0", ask="0.05") for k in (80, 81, 82, 83, 84)]
+    p = csv_file(tmp_path, "zeros.csv", *puts, row(strike="120", kind="call", bid="0", ask="0.05"),
+                 row(strike="79", kind="put", bid="0", ask="0.05"), row(strike="100", kind="put"))
+    code, out, _ = run(capsys, "check", str(p))
+    assert code == 0
+    lines = out.splitlines()
+    assert lines[1] == "  warnings (7, in 2 groups)"
+    assert lines[2] == "    lines 2-6, 8 [bid] QRTZ 2026-03-20: zero bid on puts (6 rows, strikes 79 to 84)"
+    assert lines[3] == "    line 7 [bid] QRTZ 2026-03-20: zero bid on the 120 call"
+    assert lines[-1] == "1 file, 8 rows read, 8 accepted, 7 warnings, 0 left out"
+    code, out, _ = run(capsys, "check", str(p), "--format", "json")
+    doc = json.loads(out)["files"][0]
+    # json keeps every finding with its own line, and gives the groups beside them
+    assert [f["line"] for f in doc["findings"]] == [2, 3, 4, 5, 6, 7, 8]
+    assert doc["findings"][0]["reason"] == "zero bid on the 80 put"
+    assert [(g["topic"], g["count"], g["lines"], g["strikes"]) for g in doc["finding_groups"]] == [
+        ("zero bid on puts", 6, [[2, 6], [8, 8]], [79.0, 84.0]), ("zero bid on calls", 1, [[7, 7]], [120.0, 120.0])]
+
+
+def test_left_out_rows_are_grouped_but_every_line_is_shown(tmp_path, capsys):
+    rows = [row(strike=str(k), bid="x") for k in range(100, 130)]
+    p = csv_file(tmp_path, "bad.csv", *rows[::2], row(strike="99"), *rows[1::2])
+    code, out, _ = run(capsys, "check", str(p))
+    assert code == 1
+    lines = out.splitlines()
+    assert lines[1] == "  left out (30, in 1 group)"
+    assert lines[2] == ("    lines 2-16, 18-32 [bid] QRTZ 2026-03-20: bid is not a number (30 rows)")
 
 
 def test_left_out_rows_exit_1_and_are_grouped_by_severity(tmp_path, capsys):

@@ -13,16 +13,16 @@ import sys
 
 import pandas as pd
 
-from chaintriage.core.findings import LEFT_OUT, Finding
+from chaintriage.core.finding_table import FindingTable
+from chaintriage.core.findings import LEFT_OUT
 from chaintriage.core.loading import LoadResult, load_files
 from chaintriage.core.pipeline import AnnotatedSnapshot, annotate
-from chaintriage.tui.cli.check import _summary, check_status, summary_line
+from chaintriage.tui.cli.check import _summary, check_status, group_line, summary_line
 from chaintriage.tui.cli.common import (
     EXIT_ROWS_LEFT_OUT,
     EXIT_UNUSABLE,
     add_snapshot_options,
     error,
-    one_line,
     snapshot_options,
 )
 from chaintriage.tui.cli.model_options import add_pipeline_options, pipeline_settings
@@ -60,11 +60,29 @@ def load_and_annotate(args: argparse.Namespace) -> tuple[LoadResult, list[Annota
     return result, annotated
 
 
-def report_findings(args, result: LoadResult, annotated: list[AnnotatedSnapshot]) -> None:
-    core: list[Finding] = [f for a in annotated for f in a.findings]
+def report_findings(args, result: LoadResult, model_findings: list,
+                    wanted: list[pd.Timestamp] | None = None) -> None:
+    """Findings on stderr, repeated ones grouped per expiry and reason with a count and line ranges.
+
+    ``model_findings``: the pipeline's findings, one list per annotated
+    snapshot. With ``wanted`` expiries, only findings about them (and about no
+    expiry in particular) are listed, and the rest counted in one line.
+    """
+    core = FindingTable.concat(model_findings)
     if not args.quiet:
-        for f in [*result.findings, *core]:
-            print(one_line(str(f)), file=sys.stderr)
+        every = FindingTable.concat([result.findings, core])
+        shown = every
+        if wanted:
+            days = [f"{w:%Y-%m-%d}" for w in wanted]
+            mine = pd.isna(every.expiry) | pd.Series(every.expiry, dtype=object).isin(days).to_numpy(bool)
+            shown, rest = every.take(mine), every.take(~mine)
+        for g in shown.groups():
+            print(group_line(g, shown, with_file=True, severity=True), file=sys.stderr)
+        if wanted and len(rest):
+            n_exp = len(set(rest.expiry))
+            print(f"{len(rest)} more finding{'s' if len(rest) != 1 else ''} about {n_exp} other "
+                  f"expir{'ies' if n_exp != 1 else 'y'} not listed (chaintriage check lists every one)",
+                  file=sys.stderr)
     line = summary_line(_summary(result))
     print(f"{line}; {len(core)} model findings", file=sys.stderr)
 
@@ -83,9 +101,12 @@ def with_as_of(frame: pd.DataFrame, a: AnnotatedSnapshot, fmt: str) -> pd.DataFr
 
 
 
-def annotated_status(result: LoadResult, annotated: list[AnnotatedSnapshot]) -> int:
-    """As `check`, and 1 too when the pipeline left rows out (strikes far outside their expiry)."""
+def annotated_status(result: LoadResult, model_findings: list) -> int:
+    """As `check`, and 1 too when the pipeline left rows out (strikes far outside their expiry).
+
+    ``model_findings``: the pipeline's findings, one list (or FindingTable) per annotated snapshot.
+    """
     status = check_status(result)
-    if status == 0 and any(f.severity == LEFT_OUT for a in annotated for f in a.findings):
+    if status == 0 and any(f.severity == LEFT_OUT for fs in model_findings for f in fs):
         return EXIT_ROWS_LEFT_OUT
     return status

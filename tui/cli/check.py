@@ -8,6 +8,7 @@ import re
 from collections.abc import Sequence
 from typing import Any, TextIO
 
+from chaintriage.core.finding_table import FindingGroup, FindingTable, ranges_text
 from chaintriage.core.findings import LEFT_OUT, NOTE, WARNING, Finding
 from chaintriage.core.loading import FileLoad, LoadResult, SnapshotFileError, load_files
 from chaintriage.tui.cli.common import (
@@ -31,7 +32,10 @@ examples:
 
 Every row is accepted, accepted with a warning, or left out with a reason;
 the report lists them by file and severity, with the line numbers a text
-editor shows (header = line 1).
+editor shows (header = line 1). Findings that say the same thing about one
+expiry are shown as one line with their count and line ranges (e.g. "lines
+96-130"); the json report keeps every finding with its own line, and the
+groups beside them.
 
 exit status:
   0  every row is usable (warnings allowed)
@@ -60,6 +64,50 @@ def _finding_line(f: Finding, *, with_file: bool = False) -> str:
     return one_line(f"{where}: {f.reason}" if where else f.reason)
 
 
+#: Runs of line numbers a plain-report line shows for a group of warnings or notes (json has them all);
+#: left-out rows always show every run, so each one can be found.
+WARNING_RUNS_SHOWN = 8
+
+
+def group_line(group: FindingGroup, table: FindingTable, *, with_file: bool = False,
+               severity: bool = False) -> str:
+    """One report line for a group: the finding itself when alone, else its topic, count and line ranges.
+
+    ``severity`` puts the severity between place and message (``place: warning: message``).
+    """
+    if group.count == 1:
+        f = table[int(group.rows[0])]
+        where = f.location(with_file=with_file)
+        text = f"{f.severity}: {f.reason}" if severity else f.reason
+        return one_line(f"{where}: {text}" if where else text)
+    limit = len(group.lines) if group.severity == LEFT_OUT else WARNING_RUNS_SHOWN
+    parts = [group.file] if with_file and group.file is not None else []
+    if group.lines:
+        parts.append(ranges_text(group.lines, limit=limit))
+    for extra in (f"[{group.column}]" if group.column else "", group.underlying or "", group.expiry or ""):
+        if extra:
+            parts.append(extra)
+    where = " ".join(parts)
+    text = f"{group.severity}: {group.summary()}" if severity else group.summary()
+    return one_line(f"{where}: {text}" if where else text)
+
+
+def write_grouped(findings: FindingTable, out: TextIO, indent: str = "  ") -> None:
+    """Findings by severity, each severity's findings grouped per file, underlying, expiry, column and topic."""
+    groups = findings.groups()
+    counts = findings.counts()
+    for severity, title in _SEVERITY_TITLES:
+        mine = [g for g in groups if g.severity == severity]
+        if not mine:
+            continue
+        n = counts[severity]
+        k = len(mine)
+        head = f"{indent}{title} ({n})" if k == n else f"{indent}{title} ({n}, in {k} group{'s' if k != 1 else ''})"
+        print(head, file=out)
+        for g in mine:
+            print(f"{indent}  {group_line(g, findings)}", file=out)
+
+
 def _ordered_outcomes(paths: Sequence[str], result: LoadResult) -> list[FileLoad | SnapshotFileError]:
     """Loads and errors in the order the files were given."""
     pending: list[FileLoad | SnapshotFileError] = [*result.files, *result.errors]
@@ -73,13 +121,13 @@ def _ordered_outcomes(paths: Sequence[str], result: LoadResult) -> list[FileLoad
 
 
 def _summary(result: LoadResult) -> dict[str, int]:
-    findings = [f for f in result.findings] + [f for e in result.errors for f in e.findings]
+    warnings = result.findings.counts()[WARNING] + sum(e.findings.counts()[WARNING] for e in result.errors)
     return {
         "files": len(result.files) + len(result.errors),
         "unusable": len(result.errors),
         "rows_read": result.rows_read,
         "rows_accepted": result.rows_accepted,
-        "warnings": sum(f.severity == WARNING for f in findings),
+        "warnings": warnings,
         "left_out": result.rows_left_out,
     }
 
@@ -114,13 +162,8 @@ def write_plain_report(paths: Sequence[str], result: LoadResult, out: TextIO) ->
                     f"{item.rows_left_out} left out")
             findings = item.findings
         print(one_line(head), file=out)
-        for severity, title in _SEVERITY_TITLES:
-            group = [f for f in findings if f.severity == severity]
-            if group:
-                print(f"  {title} ({len(group)})", file=out)
-                for f in group:
-                    print(f"    {_finding_line(f)}", file=out)
-    across = [f for f in result.findings if f.file is None]
+        write_grouped(FindingTable.of(findings), out)
+    across = [f for f in result.findings.where(file=None)]
     if across:
         print("across files", file=out)
         for f in across:
@@ -129,7 +172,12 @@ def write_plain_report(paths: Sequence[str], result: LoadResult, out: TextIO) ->
 
 
 def json_report(paths: Sequence[str], result: LoadResult) -> dict[str, Any]:
-    """The `check` report as a JSON-ready dict."""
+    """The `check` report as a JSON-ready dict.
+
+    Each file has ``findings`` (every finding, one per line) and
+    ``finding_groups`` (the same findings grouped per underlying, expiry,
+    column and topic, with a count and line runs as [first, last] pairs).
+    """
     files = []
     for item in _ordered_outcomes(paths, result):
         if isinstance(item, SnapshotFileError):
@@ -137,6 +185,7 @@ def json_report(paths: Sequence[str], result: LoadResult) -> dict[str, Any]:
                 "path": item.path, "usable": False, "error": item.reason,
                 "rows_read": item.rows_read, "rows_accepted": 0, "rows_left_out": item.rows_read,
                 "snapshots": [], "findings": [f.as_dict() for f in item.findings],
+                "finding_groups": [g.as_dict() for g in item.findings.groups()],
             })
         else:
             files.append({
@@ -148,10 +197,11 @@ def json_report(paths: Sequence[str], result: LoadResult) -> dict[str, Any]:
                     "contracts": len(s.contracts), "expiries": len(s.expiries()),
                 } for s in item.snapshots],
                 "findings": [f.as_dict() for f in item.findings],
+                "finding_groups": [g.as_dict() for g in item.findings.groups()],
             })
     return {
         "files": files,
-        "findings_across_files": [f.as_dict() for f in result.findings if f.file is None],
+        "findings_across_files": [f.as_dict() for f in result.findings.where(file=None)],
         "summary": _summary(result),
         "exit_status": check_status(result),
     }

@@ -12,6 +12,7 @@ from chaintriage.core.events import Event, parse_event_option
 from chaintriage.core.findings import ChainTriageError
 from chaintriage.core.term_structure import snapshot_term_structure
 from chaintriage.tui.cli.annotated_tables import (
+    annotated_status,
     COMMON_NOTES,
     add_table_options,
     load_and_annotate,
@@ -19,7 +20,6 @@ from chaintriage.tui.cli.annotated_tables import (
     report_findings,
     with_as_of,
 )
-from chaintriage.tui.cli.check import check_status
 from chaintriage.tui.cli.common import EXIT_UNUSABLE, error, one_line, write_out
 from chaintriage.tui.cli.table_output import render
 
@@ -113,9 +113,9 @@ def run_events(args: argparse.Namespace) -> int:
         } for est in ts.events]
         frames.append(with_as_of(pd.DataFrame(rows, columns=EVENT_COLUMNS), a, args.format))
     write_out(render(pd.concat(frames, ignore_index=True), args.format))
-    report_findings(args, result, annotated)
+    report_findings(args, result, [a.findings for a in annotated])
     if not args.quiet:
         for f in extra:
             print(one_line(str(f)), file=sys.stderr)
-    status = check_status(result)
+    status = annotated_status(result, [a.findings for a in annotated])
     return max(status, 1) if left_out else status

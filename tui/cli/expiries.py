@@ -117,10 +117,10 @@ def run_expiries(args: argparse.Namespace) -> int:
             frames.append(frame)
         frame = pd.concat(frames, ignore_index=True)
     write_out(render(frame, args.format))
-    report_findings(args, result, annotated)
+    report_findings(args, result, [a.findings for a in annotated])
     if not args.quiet:
         for f in extra:
             print(one_line(str(f)), file=sys.stderr)
-    status = annotated_status(result, annotated)
+    status = annotated_status(result, [a.findings for a in annotated])
     status = max(status, 1) if left_out else status
     return finish_with_history(args, loads, hist_extra, status)

@@ -20,6 +20,7 @@ from chaintriage.core.history_compare import HistorySettings, HistorySummary, su
 from chaintriage.core.history_file import HistoryLoads, load_histories, load_history_column_map
 from chaintriage.core.realised_vol import DEFAULT_WINDOWS, ESTIMATORS
 from chaintriage.tui.cli.common import EXIT_OK, EXIT_ROWS_LEFT_OUT, EXIT_UNUSABLE, error, one_line, plain
+from chaintriage.tui.cli.common import write_out
 from chaintriage.tui.cli.table_output import render
 
 #: Columns of `history`, in order.
@@ -216,7 +217,7 @@ def run_history(args: argparse.Namespace) -> int:
                         f"{b['date'].iat[-1]:%Y-%m-%d}, last close {s.history.last_close:.6g}; basis {args.basis}; "
                         f"cone of {s.estimator.replace('_', '-')} vol"))
         print()
-    sys.stdout.write(render(frame, args.format))
+    write_out(render(frame, args.format))
     report_history_findings(loads, [f for s in summaries for f in s.findings], args.quiet)
     status = history_status(loads)
     return max(status, 1) if events_left_out else status

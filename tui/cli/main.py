@@ -137,6 +137,10 @@ def main(argv: Sequence[str] | None = None) -> int:
     except ChainTriageError as exc:
         error(str(exc))
         return EXIT_UNUSABLE
+    except MemoryError:  # past loading (which names the file itself): the work does not fit either
+        error("out of memory: the snapshot is too big for the memory available; split the file "
+              "(e.g. one file per underlying or per expiry)")
+        return EXIT_UNUSABLE
     except BrokenPipeError:  # help or usage text cut short (commands write through write_out)
         stdout_to_devnull()
         return EXIT_OK

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import argparse
 
+from chaintriage.core.findings import ChainTriageError
 from chaintriage.tui.cli.common import add_snapshot_options, snapshot_options
 from chaintriage.tui.cli.model_options import add_pipeline_options, pipeline_settings
 
@@ -14,6 +15,9 @@ examples:
   chaintriage open morning.csv afternoon.csv --basis 365
   chaintriage open export.csv --columns columns.toml
   chaintriage open chain.csv --events events.csv     (y: vols by expiry, events marked)
+
+Files bigger than 100 MB together are refused with a message (use check or
+table on them, which read big files block by block, or split them).
 
 Every figure is a model output from market quotes under stated assumptions;
 it is not advice. Press ? in the app for keys and cautions.
@@ -35,6 +39,7 @@ def configure(p: argparse.ArgumentParser) -> None:
 
 
 def run_open(args: argparse.Namespace) -> int:
+    from chaintriage.core.loading import too_big_to_open
     from chaintriage.tui.app import open_app  # lazy: textual loads only for the app
 
     from chaintriage.core.event_file import read_events_files
@@ -43,6 +48,9 @@ def run_open(args: argparse.Namespace) -> int:
     from chaintriage.tui.cli.common import EXIT_UNUSABLE, error, one_line
 
     overrides, column_map = snapshot_options(args)
+    refusal = too_big_to_open(args.files)
+    if refusal:
+        raise ChainTriageError(refusal)
     events = None
     if args.events or args.event:
         events = []

@@ -6,18 +6,18 @@ import argparse
 
 import pandas as pd
 
-from chaintriage.core.loading import YEAR_MAX, YEAR_MIN
-from chaintriage.core.pipeline import GREEK_COLUMNS, TRADE_COLUMNS
+from chaintriage.core.findings import ChainTriageError
+from chaintriage.core.loading import YEAR_MAX, YEAR_MIN, load_files
+from chaintriage.core.pipeline import GREEK_COLUMNS, TRADE_COLUMNS, annotate
 from chaintriage.tui.cli.annotated_tables import (
     annotated_status,
     COMMON_NOTES,
     add_table_options,
-    load_and_annotate,
     nothing_usable,
     report_findings,
     with_as_of,
 )
-from chaintriage.tui.cli.common import EXIT_UNUSABLE, error, write_out
+from chaintriage.tui.cli.common import EXIT_UNUSABLE, StdoutWriter, error, snapshot_options
 from chaintriage.tui.cli.history import (
     HISTORY_TABLE_COLUMNS,
     add_history_options,
@@ -25,8 +25,8 @@ from chaintriage.tui.cli.history import (
     history_columns,
     history_for,
 )
-from chaintriage.tui.cli.model_options import non_negative, parse_day
-from chaintriage.tui.cli.table_output import render
+from chaintriage.tui.cli.model_options import non_negative, parse_day, pipeline_settings
+from chaintriage.tui.cli.table_output import TableStream
 
 #: Columns of `table`, in order (csv/json add as_of after underlying).
 TABLE_COLUMNS = [
@@ -79,21 +79,45 @@ def configure(p: argparse.ArgumentParser) -> None:
     p.set_defaults(func=run_table)
 
 
-def run_table(args: argparse.Namespace) -> int:
-    result, annotated = load_and_annotate(args)
-    if not annotated:
-        return nothing_usable(args, result)
+def _wanted_expiries(args: argparse.Namespace) -> list[pd.Timestamp]:
+    """The --expiry dates; raises ChainTriageError for one that is not a date the loader could hold."""
     wanted = []
     for text in args.expiry:
         day = parse_day(text)
         # a date the loader could hold: naive, inside its years (year 1 is outside pandas' ns range)
         if day is None or day.tzinfo is not None or not YEAR_MIN <= day.year <= YEAR_MAX:
-            error(f"--expiry {text!r} is not a date (YYYY-MM-DD)")
-            return EXIT_UNUSABLE
+            raise ChainTriageError(f"--expiry {text!r} is not a date (YYYY-MM-DD)")
         wanted.append(day)
-    history, loads, extra = history_for(args, annotated)
-    frames = []
-    for i, a in enumerate(annotated):
+    return wanted
+
+
+def run_table(args: argparse.Namespace) -> int:
+    """Load, then annotate and write one snapshot at a time (csv and json leave as they are made)."""
+    overrides, column_map = snapshot_options(args)
+    settings = pipeline_settings(args)
+    result = load_files(args.files, overrides=overrides, column_map=column_map)
+    for exc in result.errors:
+        error(str(exc))
+    if not result.snapshots:
+        return nothing_usable(args, result)
+    wanted = _wanted_expiries(args)
+    if wanted:
+        present = {e for s in result.snapshots for e in s.contracts["expiry"].unique()}
+        missing = [w for w in wanted if w not in present]
+        if missing:
+            have = ", ".join(sorted(f"{e:%Y-%m-%d}" for e in present))
+            error(f"no contracts expire on {', '.join(f'{m:%Y-%m-%d}' for m in missing)}; expiries: {have}")
+            return EXIT_UNUSABLE
+    stream = TableStream(args.format, StdoutWriter())
+    model_findings = []
+    history, loads, extra = {}, None, []
+    if args.history:  # the history odds need every snapshot's time: annotate them all first
+        annotated = [annotate(snap, settings) for snap in result.snapshots]
+        history, loads, extra = history_for(args, annotated)
+        items = enumerate(annotated)
+    else:  # one snapshot at a time: annotated, written, let go
+        items = ((i, annotate(snap, settings)) for i, snap in enumerate(result.snapshots))
+    for i, a in items:
         for expiry in a.results:  # touch figures are computed per expiry on demand
             if not wanted or expiry in wanted:
                 a.touch(expiry)
@@ -109,16 +133,11 @@ def run_table(args: argparse.Namespace) -> int:
         if loads is not None:
             cmp = history.get(i)
             frame = history_columns(frame, cmp.contracts if cmp else None, keep, HISTORY_TABLE_COLUMNS)
-        frames.append(frame)
-    if wanted:
-        present = {e for a in annotated for e in a.contracts["expiry"].unique()}
-        missing = [w for w in wanted if w not in present]
-        if missing:
-            have = ", ".join(sorted(f"{e:%Y-%m-%d}" for e in present))
-            error(f"no contracts expire on {', '.join(f'{m:%Y-%m-%d}' for m in missing)}; expiries: {have}")
-            return EXIT_UNUSABLE
-    write_out(render(pd.concat(frames, ignore_index=True), args.format))
-    report_findings(args, result, annotated)
-    return finish_with_history(args, loads, extra, annotated_status(result, annotated))
+        stream.write(frame)
+        model_findings.append(a.findings)
+        del a, c, keep
+    stream.close()
+    report_findings(args, result, model_findings, wanted)
+    return finish_with_history(args, loads, extra, annotated_status(result, model_findings))
 
 

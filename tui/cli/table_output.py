@@ -8,6 +8,11 @@ starts with = + - @ tab, carriage return or NUL gets a leading single quote
 so a spreadsheet does not run it as a formula (OWASP CSV injection guidance,
 ``shortlist.neutralise_formula``); numbers stay numbers. json escapes every
 non-ASCII and control character.
+
+The writers work a column at a time: numbers are formatted once per distinct
+shown value (a value near a rounding tie is formatted on its own), text is
+cleaned once per distinct value, and rows are written in blocks, so memory
+beyond the frame stays small and the time stays near that of writing text.
 """
 
 from __future__ import annotations
@@ -15,12 +20,17 @@ from __future__ import annotations
 import io
 import json
 import math
+import sys
+from typing import TextIO
+
+import numpy as np
 
 import pandas as pd
 
 from chaintriage.tui.cli.common import one_line, plain
 from chaintriage.tui.shortlist import neutralise_formula
 from chaintriage.tui.formatting import (
+    TINY,
     as_finite,
     fmt_count,
     fmt_date,
@@ -31,8 +41,10 @@ from chaintriage.tui.formatting import (
     fmt_spread,
     fmt_strike,
     fmt_vol,
+    HUGE,
     placeholder,
     signed,
+    tidy_zero,
 )
 
 #: How plain output shows each known column: (heading, formatter name).
@@ -170,70 +182,325 @@ def _fmt(value: object, kind: str) -> str:
     return f"{x:.6f}"
 
 
-def to_plain(frame: pd.DataFrame) -> str:
-    """A fixed-width, right-aligned (text left-aligned) table for reading."""
+#: Rows per block when writing (bounds the text held in memory at once).
+BLOCK_ROWS = 20_000
+
+#: Per plain formatter: how many units of the value one step of the last shown digit is,
+#: and the values that have a text of their own (special branches of the formatter).
+_STEP = {"prob": 1000.0, "vol": 1000.0, "spread": 1000.0, "delta": 100.0, "signed": 100.0,
+         "points": 10000.0, "count": 1.0, "g": None, "f4": 10000.0, "f6": 1e6}
+
+
+def _special(x: np.ndarray, kind: str) -> np.ndarray:
+    """Codes (0 = none) for the values a formatter shows in a branch of its own."""
+    code = np.zeros(x.shape, dtype=np.int8)
+    with np.errstate(invalid="ignore", over="ignore"):
+        if kind == "prob":
+            code[(x > 0) & (x < 0.0005)] = 1
+            code[(x >= 0.9995) & (x < 1.0)] = 2
+        if kind == "spread":
+            code[x >= 9.995] = 3
+        code[~np.isfinite(x * 100.0)] = 4
+    return code
+
+
+def _decimals(x: np.ndarray, kind: str) -> np.ndarray:
+    """Decimals ``fmt_price`` / ``fmt_strike`` would choose for each value (vectorised)."""
+    with np.errstate(invalid="ignore", over="ignore"):
+        if kind == "price":
+            r4 = np.round(x, 4)
+            return np.where(np.abs(np.round(x, 2) - r4) < 1e-9, 2, np.where(np.abs(np.round(x, 3) - r4) < 1e-9, 3, 4))
+        d = np.full(x.shape, 3)
+        for k in (2, 1, 0):
+            d = np.where(np.abs(np.round(x, k) - x) < 1e-9, k, d)
+        return d
+
+
+def _format_codes(values, kind: str) -> tuple[np.ndarray, np.ndarray]:
+    """(codes, texts): ``texts[codes]`` is ``_fmt(value, kind)`` for every value of a column.
+
+    Values that show the same text are formatted once: a key per row is the
+    value rounded to the last shown digit; values within 1e-6 of a rounding
+    tie (where scaled arithmetic and printf could disagree) and values in
+    special ranges (tiny, huge, non-finite) are keyed by their exact value.
+    """
+    n = len(values)
+    if kind in ("text", "date", "bool") or n == 0:
+        arr = np.asarray(values, dtype=object) if kind != "date" else values
+        codes, uniq = pd.factorize(pd.Series(arr), use_na_sentinel=False)
+        return codes, np.array([_fmt(u, kind) for u in uniq], dtype=object)
+    x = pd.to_numeric(pd.Series(values), errors="coerce").to_numpy(dtype=float, na_value=np.nan)
+    decimals = None
+    with np.errstate(invalid="ignore", over="ignore"):
+        if kind in ("price", "strike"):
+            decimals = _decimals(x, kind)
+            scale = 10.0 ** decimals
+            lone = ~(np.abs(x) < 1e9)  # scaled rounding is exact enough only well below HUGE
+            if kind == "price":  # Python's round() decides the decimals: ties at 2-4 decimals on their own
+                for k in (100.0, 1000.0, 10000.0):
+                    yk = x * k
+                    lone |= np.abs(np.abs(yk - np.floor(yk)) - 0.5) < 1e-6
+        elif _STEP.get(kind) is not None:
+            scale = np.full(n, _STEP[kind])
+            lone = _special(x, kind) > 0
+        else:  # shown digits depend on the value itself: one text per distinct value
+            scale = None
+            lone = np.ones(n, dtype=bool)
+        # tiny values print in scientific notation (or special words): each one by the formatter itself
+        lone |= (x != 0) & (np.abs(x) < TINY)
+        if scale is not None:
+            y = x * scale
+            lone |= (np.abs(np.abs(y - np.floor(y)) - 0.5) < 1e-6) | ~(np.abs(y) < 1e14)
+            zero = np.round(y) == 0
+            key = np.round(y) / scale if decimals is None else np.round(y) * 8 + decimals  # decimals apart
+        else:
+            key = x
+            zero = x == 0
+        key = np.where(lone, x, key)
+    # a lone row is keyed by its exact value, apart from the rounded keys; a key of zero from a
+    # negative value apart too (factorize takes -0.0 for 0.0, but some formats show "-0")
+    negz = (zero & ~lone | (x == 0)) & np.signbit(x)
+    codes = np.empty(n, dtype=np.int64)
+    texts: list[str] = []
+    for rows in (np.flatnonzero(~lone & ~negz), np.flatnonzero(lone & ~negz), np.flatnonzero(negz)):
+        if rows.size == 0:
+            continue
+        c, uniq = pd.factorize(key[rows], use_na_sentinel=False)
+        order = np.argsort(c, kind="stable")
+        first = rows[order[np.searchsorted(c[order], np.arange(len(uniq)))]]
+        codes[rows] = c + len(texts)
+        if decimals is not None and not lone[rows[0]]:
+            # finite prices and strikes below HUGE: the formatter's own f-string, with its decimals
+            made = [f"{v:.{d}f}" for v, d in zip(x[first].tolist(), decimals[first].tolist())]
+            if kind == "price":
+                made = [tidy_zero(t) if t[0] == "-" else t for t in made]
+            texts.extend(made)
+        else:
+            texts.extend(_fmt(x[i], kind) for i in first)
+    return codes, np.array(texts, dtype=object)
+
+
+def format_column(values, kind: str) -> np.ndarray:
+    """Every value of a column as plain text (object array), equal to ``_fmt(value, kind)`` for each."""
+    codes, texts = _format_codes(values, kind)
+    return texts[codes] if len(codes) else np.empty(0, dtype=object)
+
+
+def _plain_kinds(frame: pd.DataFrame) -> tuple[list[str], list[str]]:
     cols = list(frame.columns)
-    headings = [_PLAIN.get(c, (c, "text"))[0] for c in cols]
-    kinds = [_PLAIN.get(c, (c, "text"))[1] for c in cols]
-    cells = [[_fmt(v, k) for v, k in zip(row, kinds)] for row in frame.itertuples(index=False, name=None)]
-    widths = [max([len(h)] + [len(r[j]) for r in cells]) for j, h in enumerate(headings)]
+    return [_PLAIN.get(c, (c, "text"))[0] for c in cols], [_PLAIN.get(c, (c, "text"))[1] for c in cols]
+
+
+def write_plain(frame: pd.DataFrame, out: TextIO) -> None:
+    """A fixed-width, right-aligned (text left-aligned) table for reading."""
+    headings, kinds = _plain_kinds(frame)
+    coded = [_format_codes(frame.iloc[:, j], k) for j, k in enumerate(kinds)]
+    widths = [max([len(h)] + [len(t) for t in texts]) if len(codes) else len(h)
+              for h, (codes, texts) in zip(headings, coded)]
     left = [k in ("text", "date") for k in kinds]
 
     def line(values: list[str]) -> str:
         return "  ".join(v.ljust(w) if lft else v.rjust(w) for v, w, lft in zip(values, widths, left)).rstrip()
 
-    out = [line(headings), line(["-" * w for w in widths])]
-    out.extend(line(r) for r in cells)
-    return "\n".join(out) + "\n"
+    out.write(line(headings) + "\n" + line(["-" * w for w in widths]) + "\n")
+    padded = [(codes, np.array([t.ljust(w) if lft else t.rjust(w) for t in texts], dtype=object))
+              for (codes, texts), w, lft in zip(coded, widths, left)]
+    for a in range(0, len(frame), BLOCK_ROWS):
+        block = [texts[codes[a:a + BLOCK_ROWS]].tolist() for codes, texts in padded]
+        out.write("\n".join(r.rstrip() for r in map("  ".join, zip(*block))) + "\n")
 
 
-def _jsonable(frame: pd.DataFrame) -> list[dict]:
-    records = []
-    for row in frame.to_dict(orient="records"):
-        rec = {}
-        for key, value in row.items():
-            if isinstance(value, pd.Timestamp):
-                value = f"{value:%Y-%m-%d}"
-            elif isinstance(value, float) and not math.isfinite(value):
-                value = None
-            elif hasattr(value, "item"):
-                value = value.item()
-                if isinstance(value, float) and not math.isfinite(value):
-                    value = None
-            rec[key] = value
-        records.append(rec)
-    return records
+def to_plain(frame: pd.DataFrame) -> str:
+    """``write_plain`` as a string."""
+    buf = io.StringIO()
+    write_plain(frame, buf)
+    return buf.getvalue()
+
+
+def _is_text(s: pd.Series) -> bool:
+    return s.dtype == object or isinstance(s.dtype, pd.StringDtype)
+
+
+def _once_per_value(s: pd.Series, fn) -> np.ndarray:
+    """``fn`` of every cell (object array), computed once per distinct value."""
+    codes, uniq = pd.factorize(s, use_na_sentinel=False)
+    if len(s) == 0:
+        return np.empty(0, dtype=object)
+    return np.array([fn(u) for u in uniq], dtype=object)[codes]
+
+
+def _csv_cell_text(v: object) -> str:
+    """One text cell for csv: control characters escaped, formula prefixes neutralised, quoted when needed."""
+    if not isinstance(v, str):
+        return _csv_scalar(v)
+    text = neutralise_formula(plain(v))
+    if any(ch in text for ch in ',"\n\r'):
+        text = '"' + text.replace('"', '""') + '"'
+    return text
+
+
+def _csv_scalar(v: object) -> str:
+    if v is None or v is pd.NaT:
+        return ""
+    if isinstance(v, pd.Timestamp):
+        return f"{v:%Y-%m-%d}"
+    if isinstance(v, (bool, np.bool_)):
+        return "True" if v else "False"
+    if isinstance(v, (float, np.floating)):
+        return "" if math.isnan(v) else "%.10g" % v
+    return str(v)
+
+
+def _csv_column(s: pd.Series) -> np.ndarray:
+    if pd.api.types.is_float_dtype(s.dtype):
+        x = s.to_numpy(dtype=float, na_value=np.nan)
+        codes, uniq = pd.factorize(x, use_na_sentinel=False)
+        texts = np.array(["" if math.isnan(u) else "%.10g" % u for u in uniq.tolist()], dtype=object)
+        return texts[codes] if len(x) else np.empty(0, dtype=object)
+    if _is_text(s):
+        return _once_per_value(s.astype(object), _csv_cell_text)
+    return _once_per_value(s, _csv_scalar)
+
+
+def _csv_header(name: object) -> str:
+    return _csv_cell_text(str(name))
+
+
+def write_csv(frame: pd.DataFrame, out: TextIO, header: bool = True) -> None:
+    """CSV with decimals to 10 significant digits, missing values empty, dates as YYYY-MM-DD.
+
+    Text cells are escaped and neutralised (``_safe_text_cells``), then quoted
+    where they hold a comma, quote or line break.
+    """
+    if header:
+        out.write(",".join(_csv_header(c) for c in frame.columns) + "\n")
+    for a in range(0, len(frame), BLOCK_ROWS):
+        block = frame.iloc[a:a + BLOCK_ROWS]
+        cols = [_csv_column(block.iloc[:, j]) for j in range(block.shape[1])]
+        if not cols:
+            out.write("\n" * len(block))
+            continue
+        out.write("\n".join(map(",".join, zip(*[c.tolist() for c in cols]))) + "\n")
+
+
+def _json_scalar(v: object) -> str:
+    if v is None or v is pd.NaT:
+        return "null"
+    if isinstance(v, pd.Timestamp):
+        return f'"{v:%Y-%m-%d}"'
+    if hasattr(v, "item"):
+        v = v.item()
+    if isinstance(v, float) and not math.isfinite(v):
+        return "null"
+    return json.dumps(v)
+
+
+def _json_column(s: pd.Series) -> np.ndarray:
+    if pd.api.types.is_float_dtype(s.dtype):
+        x = s.to_numpy(dtype=float, na_value=np.nan)
+        codes, uniq = pd.factorize(x, use_na_sentinel=False)
+        texts = np.array([float.__repr__(u) if math.isfinite(u) else "null" for u in uniq.tolist()], dtype=object)
+        return texts[codes] if len(x) else np.empty(0, dtype=object)
+    return _once_per_value(s.astype(object) if _is_text(s) else s, _json_scalar)
+
+
+def write_json(frame: pd.DataFrame, out: TextIO) -> None:
+    """Records as JSON: decimals as numbers, missing values as null, dates as YYYY-MM-DD.
+
+    Written block by block, laid out as ``json.dumps(records, indent=1)`` would.
+    """
+    if len(frame) == 0:
+        out.write("[]\n")
+        return
+    out.write("[\n")
+    _json_records(frame, out, first=True)
+    out.write("\n]\n")
+
+
+def _json_records(frame: pd.DataFrame, out: TextIO, first: bool) -> None:
+    """The records of ``frame``, comma-separated (a leading comma unless ``first``)."""
+    keys = ['  ' + json.dumps(str(c)) + ": " for c in frame.columns]
+    for a in range(0, len(frame), BLOCK_ROWS):
+        block = frame.iloc[a:a + BLOCK_ROWS]
+        if block.shape[1] == 0:
+            rows = [" {}"] * len(block)
+        else:
+            cols = [(keys[j] + _json_column(block.iloc[:, j])).tolist() for j in range(block.shape[1])]
+            rows = [" {\n" + r + "\n }" for r in map(",\n".join, zip(*cols))]
+        out.write(("" if a == 0 and first else ",\n") + ",\n".join(rows))
 
 
 def to_json(frame: pd.DataFrame) -> str:
-    """Records as JSON: decimals as numbers, missing values as null, dates as YYYY-MM-DD."""
-    return json.dumps(_jsonable(frame), indent=1) + "\n"
+    """``write_json`` as a string."""
+    buf = io.StringIO()
+    write_json(frame, buf)
+    return buf.getvalue()
 
 
 def _safe_text_cells(frame: pd.DataFrame) -> pd.DataFrame:
     """A copy whose text cells are safe for a terminal and a spreadsheet (numbers untouched)."""
     out = frame.copy()
     for col in out.columns:
-        if out[col].dtype == object or isinstance(out[col].dtype, pd.StringDtype):
-            out[col] = [neutralise_formula(plain(v)) if isinstance(v, str) else v for v in out[col]]
+        if _is_text(out[col]):
+            out[col] = _once_per_value(out[col].astype(object),
+                                       lambda v: neutralise_formula(plain(v)) if isinstance(v, str) else v)
     return out
 
 
 def to_csv(frame: pd.DataFrame) -> str:
-    """CSV with decimals at full precision, missing values empty, dates as YYYY-MM-DD.
-
-    Text cells are escaped and neutralised (``_safe_text_cells``).
-    """
-    frame = _safe_text_cells(frame)
+    """``write_csv`` as a string."""
     buf = io.StringIO()
-    frame.to_csv(buf, index=False, date_format="%Y-%m-%d", float_format="%.10g", lineterminator="\n")
+    write_csv(frame, buf)
     return buf.getvalue()
 
 
+_WRITERS = {"csv": write_csv, "json": write_json, "plain": write_plain}
+
+
+class TableStream:
+    """One table written piece by piece: csv and json go out as each piece comes (memory: one piece);
+    plain keeps the pieces, because its column widths need every row, and writes them at ``close``.
+
+    The text equals ``write(pd.concat(pieces), fmt)``.
+    """
+
+    def __init__(self, fmt: str, out: TextIO | None = None) -> None:
+        self.fmt = fmt if fmt in _WRITERS else "plain"
+        self.out = out or sys.stdout
+        self.rows = 0
+        self.pieces = 0
+        self._kept: list[pd.DataFrame] = []
+
+    def write(self, frame: pd.DataFrame) -> None:
+        """Add rows (every piece has the same columns)."""
+        if self.fmt == "plain":
+            self._kept.append(frame)
+        elif self.fmt == "csv":
+            write_csv(frame, self.out, header=self.pieces == 0)
+        elif len(frame):
+            if self.rows == 0:
+                self.out.write("[\n")
+            _json_records(frame, self.out, first=self.rows == 0)
+        self.rows += len(frame)
+        self.pieces += 1
+
+    def close(self) -> None:
+        """Finish the table."""
+        if self.fmt == "plain":
+            if self._kept:
+                write_plain(pd.concat(self._kept, ignore_index=True) if len(self._kept) > 1 else self._kept[0],
+                            self.out)
+        elif self.fmt == "json":
+            self.out.write("[]\n" if self.rows == 0 else "\n]\n")
+
+
+def write(frame: pd.DataFrame, fmt: str, out: TextIO | None = None) -> None:
+    """Write the table in one of 'plain', 'csv', 'json' to ``out`` (default stdout), block by block."""
+    _WRITERS.get(fmt, write_plain)(frame, out or sys.stdout)
+
+
 def render(frame: pd.DataFrame, fmt: str) -> str:
-    """The table in one of 'plain', 'csv', 'json'."""
-    if fmt == "csv":
-        return to_csv(frame)
-    if fmt == "json":
-        return to_json(frame)
-    return to_plain(frame)
+    """The table in one of 'plain', 'csv', 'json', as one string."""
+    buf = io.StringIO()
+    write(frame, fmt, buf)
+    return buf.getvalue()

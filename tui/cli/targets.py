@@ -25,6 +25,7 @@ from chaintriage.tui.cli.annotated_tables import (
     report_findings,
     with_as_of,
 )
+from chaintriage.tui.cli.common import write_out
 from chaintriage.tui.cli.table_output import render
 
 #: Columns of `targets`, in order (csv/json add as_of after underlying).
@@ -112,6 +113,6 @@ def run_targets(args: argparse.Namespace) -> int:
         table.insert(0, "underlying", a.snapshot.underlying)
         table["kind"] = target.side[:-1]
         frames.append(with_as_of(table[TARGETS_COLUMNS].copy(), a, args.format))
-    sys.stdout.write(render(pd.concat(frames, ignore_index=True), args.format))
-    report_findings(args, result, annotated)
-    return annotated_status(result, annotated)
+    write_out(render(pd.concat(frames, ignore_index=True), args.format))
+    report_findings(args, result, [a.findings for a in annotated])
+    return annotated_status(result, [a.findings for a in annotated])
