@@ -115,5 +115,5 @@ def test_tool_detection_follows_the_session():
 
 def test_summary_shows_the_touch_bounds_when_present():
     line = summarize(row(p_touch_low=0.09, p_touch_high=0.21), as_of=AS_OF)
-    assert "P(touch) 15.9% (bounds 9.0%-21.0%) | BE 93.77" in line
-    assert "bounds" not in summarize(row(p_touch_low=float("nan"), p_touch_high=0.21), as_of=AS_OF)
+    assert "chance QRTZ trades at 95 before expiry: 15.9% (any model fitting the quotes: 9.0% to 21.0%) |" in line
+    assert "any model" not in summarize(row(p_touch_low=float("nan"), p_touch_high=0.21), as_of=AS_OF)
