@@ -1245,9 +1245,9 @@ class _FileValidator:
                                    strike=True)
         self.warn_rows(ok & has_b & ~has_a, self.lab("ask"), lambda i: f"no ask (bid {_fmt(bid[i])})",
                        topic="no ask", strike=True)
-        spread = ask - bid
-        mid = 0.5 * ask + 0.5 * bid  # not (ask + bid) / 2: that overflows for prices near 1e308
-        with np.errstate(invalid="ignore"):
+        with np.errstate(over="ignore", invalid="ignore"):  # rows already left out may hold +-1e308
+            spread = ask - bid
+            mid = 0.5 * ask + 0.5 * bid  # not (ask + bid) / 2: that overflows for prices near 1e308
             wide = ok & has_b & has_a & (bid > 0) & (spread > WIDE_SPREAD_FRACTION * mid) & (spread > WIDE_SPREAD_MIN)
         self.warn_rows(wide, None, lambda i: (
             f"wide spread: bid {_fmt(bid[i])}, ask {_fmt(ask[i])} (spread {spread[i] / mid[i] * 100:.0f}% of mid)"),
