@@ -413,9 +413,15 @@ class ChainTriageApp(App[int]):
     def action_open_shortlist(self) -> None:
         from chaintriage.tui.screens.shortlist import ShortlistScreen
 
-        self.push_screen(ShortlistScreen(self.state.shortlist, self.state.ascii_only,
+        st = self.state
+
+        def remember(row: int) -> None:
+            st.shortlist_row = row
+
+        self.push_screen(ShortlistScreen(st.shortlist, st.ascii_only,
                                          on_change=self.shortlist_changed, copy_entry=self.copy_entry,
-                                         go_to=self.go_to_contract))
+                                         go_to=self.go_to_contract, cursor=st.shortlist_row,
+                                         on_cursor=remember))
 
     def go_to_contract(self, key: ContractKey) -> bool:
         """Show a shortlisted contract in the ladder; False (with a notice) if its snapshot is gone."""
@@ -426,12 +432,22 @@ class ChainTriageApp(App[int]):
             return False
         index, pos = where
         st.expiry_positions[index] = pos
-        if st.strike_filter.active:
+        if st.strike_filter.active and not self._filter_passes(index, pos, key):
             st.clear_filter()
             self.notify("filter cleared to show the contract", timeout=2, markup=False)
-        self.triage.show_view(index)
+        self.triage.show_view(index, expiry=st.views[index].expiries[pos])
         self.triage.grid.cursor_to_strike(key.strike, key.kind)
         return True
+
+    def _filter_passes(self, index: int, pos: int, key: ContractKey) -> bool:
+        """True when the strike filter keeps ``key``'s strike in its expiry's ladder."""
+        view = self.state.views[index]
+        shown, _ = self.state.strike_filter.apply(view.frame(view.expiries[pos]))
+        try:
+            strikes = shown["strike"].to_numpy(dtype=float)
+        except (KeyError, TypeError, ValueError):
+            return False
+        return bool(len(strikes)) and bool((abs(strikes - key.strike) <= 1e-9 * max(1.0, abs(key.strike))).any())
 
     # ------------------------------------------------------------ actions: looks
 

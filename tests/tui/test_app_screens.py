@@ -63,7 +63,7 @@ def test_shortlist_screen_lists_removes_copies_and_goes_to():
         assert table.row_count == 2
         first = app.state.shortlist.entries[0]
         row = [c.plain for c in table.get_row_at(0)]
-        assert row[0] == "OSPX" and row[1] == first.key.expiry and row[3] == first.key.kind
+        assert row[0] == "OSPX" and row[1] == first.key.expiry and row[4] == first.key.kind  # underlying, expiry, days, strike, kind
         await pilot.press("c")
         assert app.clipboard.startswith(f"OSPX {fm.fmt_strike(first.key.strike)} {first.key.kind}, "
                                         f"expiry {first.key.expiry}")

@@ -15,6 +15,7 @@ from textual.widgets.selection_list import Selection
 from chaintriage.tui.help_text import COLUMNS as COLUMN_HELP
 from chaintriage.tui.screens.common import close
 from chaintriage.tui.ladder_columns import COLUMNS
+from chaintriage.tui.widgets.column_list import StoppingSelectionList
 
 
 class ColumnPicker(ModalScreen[None]):
@@ -36,7 +37,7 @@ class ColumnPicker(ModalScreen[None]):
             options.append(Selection(label, key, key in self._chosen))
         with Vertical(classes="dialog wide"):
             yield Static(Text("columns on each side of the ladder", style="bold"))
-            yield SelectionList[str](*options, id="column-list")
+            yield StoppingSelectionList(*options, id="column-list")
             yield Static(Text("Space or Enter shows/hides a column; Esc closes", style="dim"),
                          id="column-hint")
 

@@ -14,6 +14,7 @@ from textual.widgets import DataTable, Footer, Static
 from chaintriage.core.findings import SEVERITIES, Finding
 from chaintriage.tui import formatting as fm
 from chaintriage.tui.screens.common import close, plain
+from chaintriage.tui.widgets.row_table import RowTable
 
 
 FINDING_COLUMNS = ("severity", "where", "column", "expiry", "reason")
@@ -64,7 +65,7 @@ class FindingsScreen(Screen):
             head.append(f"; {len(self._errors)} unusable file{'s' if len(self._errors) != 1 else ''}",
                         style="bold")
         yield Static(head, classes="title")
-        yield DataTable(id="findings-table", cursor_type="row", zebra_stripes=True)
+        yield RowTable(id="findings-table")
         yield Static(Text(""), id="finding-detail")
         yield Footer(show_command_palette=False)
 

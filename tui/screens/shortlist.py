@@ -6,6 +6,8 @@ import os
 from collections.abc import Callable
 from pathlib import Path
 
+import pandas as pd
+
 from rich.text import Text
 from textual.app import ComposeResult
 from textual.binding import Binding
@@ -19,32 +21,69 @@ from chaintriage.tui.screens.common import close, plain
 from chaintriage.tui.screens.confirm_dialog import ConfirmDialog
 from chaintriage.tui.screens.path_prompt import PathPrompt
 from chaintriage.tui.shortlist import ContractKey, Shortlist, ShortlistEntry
+from chaintriage.tui.widgets.row_table import RowTable
 
 
 #: The file name the export prompt offers.
 DEFAULT_EXPORT_NAME = "shortlist.csv"
 
+#: (heading, figure) of the shortlist table, in the order a trader reads them: what and when, the
+#: quotes, then the model's figures, the liquidity, the snapshot time. "days" is calendar days from
+#: the snapshot's date to the expiry.
 SHORTLIST_COLUMNS: tuple[tuple[str, str], ...] = (
-    ("underlying", "underlying"), ("expiry", "expiry"), ("strike", "strike"), ("kind", "kind"),
-    ("mid", "mid"), ("IV", "iv"), ("σ dist", "sigma_distance"), ("beyond", "p_beyond"),
-    ("touch", "p_touch"), ("BE", "breakeven"), ("spread", "spread_pct"), ("OI", "open_interest"),
-    ("as of", "as_of"),
+    ("underlying", "underlying"), ("expiry", "expiry"), ("days", "days"), ("strike", "strike"),
+    ("kind", "kind"), ("bid", "bid"), ("ask", "ask"), ("mid", "mid"), ("IV", "iv"),
+    ("σ dist", "sigma_distance"), ("delta", "delta"), ("beyond", "p_beyond"), ("touch", "p_touch"),
+    ("BE", "breakeven"), ("P(BE)", "p_breakeven"), ("spread", "spread_pct"), ("OI", "open_interest"),
+    ("flags", "flags"), ("as of", "as_of"),
 )
+#: Columns of text (left-aligned); every other column holds numbers (right-aligned, heading too).
+TEXT_COLUMNS = frozenset({"underlying", "expiry", "kind", "flags", "as_of"})
+
+_FORMATS = {
+    "bid": fm.fmt_price, "ask": fm.fmt_price, "mid": fm.fmt_price, "iv": fm.fmt_vol,
+    "sigma_distance": fm.fmt_sigma, "delta": fm.fmt_delta, "p_beyond": fm.fmt_prob, "p_touch": fm.fmt_prob,
+    "breakeven": fm.fmt_price, "p_breakeven": fm.fmt_prob, "spread_pct": fm.fmt_spread,
+    "open_interest": fm.fmt_count,
+}
+
+
+def days_to_expiry(key: ContractKey) -> int | None:
+    """Calendar days from the snapshot's date to the expiry date (None when either is unreadable)."""
+    try:
+        as_of = pd.Timestamp(key.as_of)
+        expiry = pd.Timestamp(key.expiry)
+    except (ValueError, TypeError):
+        return None
+    if pd.isna(as_of) or pd.isna(expiry):
+        return None
+    return (expiry.date() - as_of.date()).days
+
+
+def shortlist_heading(heading: str, name: str, ascii_only: bool = False) -> Text:
+    """A column heading aligned like its cells (numbers to the right)."""
+    text = heading.replace("σ", "s") if ascii_only else heading
+    return Text(text, justify="left" if name in TEXT_COLUMNS else "right")
 
 
 def shortlist_row(entry: ShortlistEntry, ascii_only: bool = False) -> tuple[Text, ...]:
     """One shortlist-table row, formatted for reading."""
     k, fig = entry.key, entry.figures
-    cells: list[Text] = [plain(k.underlying), plain(k.expiry), Text(fm.fmt_strike(k.strike), justify="right"),
-                         plain(k.kind)]
-    fmts = {
-        "mid": fm.fmt_price, "iv": fm.fmt_vol, "sigma_distance": fm.fmt_sigma, "p_beyond": fm.fmt_prob,
-        "p_touch": fm.fmt_prob, "breakeven": fm.fmt_price, "spread_pct": fm.fmt_spread,
-        "open_interest": fm.fmt_count,
-    }
-    for _, name in SHORTLIST_COLUMNS[4:-1]:
-        cells.append(Text(fmts[name](fig.get(name), ascii_only=ascii_only), justify="right"))
-    cells.append(plain(fm.fmt_timestamp(k.as_of, ascii_only)))
+    cells: list[Text] = []
+    for _, name in SHORTLIST_COLUMNS:
+        if name in ("underlying", "expiry", "kind"):
+            cells.append(plain(getattr(k, name)))
+        elif name == "as_of":
+            cells.append(plain(fm.fmt_timestamp(k.as_of, ascii_only)))
+        elif name == "flags":
+            cells.append(plain(fig.get("flags", "") or ""))
+        elif name == "strike":
+            cells.append(Text(fm.fmt_strike(k.strike), justify="right"))
+        elif name == "days":
+            days = days_to_expiry(k)
+            cells.append(Text(fm.placeholder(ascii_only) if days is None else str(days), justify="right"))
+        else:
+            cells.append(Text(_FORMATS[name](fig.get(name), ascii_only=ascii_only), justify="right"))
     return tuple(cells)
 
 
@@ -62,29 +101,58 @@ class ShortlistScreen(Screen):
     def __init__(self, shortlist: Shortlist, ascii_only: bool = False, *,
                  on_change: Callable[[], None] = lambda: None,
                  copy_entry: Callable[[ShortlistEntry], None] = lambda entry: None,
-                 go_to: Callable[[ContractKey], bool] = lambda key: False) -> None:
+                 go_to: Callable[[ContractKey], bool] = lambda key: False, cursor: int = 0,
+                 on_cursor: Callable[[int], None] = lambda row: None) -> None:
         """``on_change`` is called after an entry is taken off, ``copy_entry`` copies one entry's
-        summary, ``go_to`` shows a contract in the ladder (False when it cannot)."""
+        summary, ``go_to`` shows a contract in the ladder (False when it cannot); the cursor starts
+        on row ``cursor`` and ``on_cursor`` is told where it is (so reopening finds it there)."""
         super().__init__()
         self.shortlist = shortlist
         self._ascii = ascii_only
         self._on_change = on_change
         self._copy_entry = copy_entry
         self._go_to = go_to
+        self._start_row = max(0, int(cursor))
+        self._on_cursor = on_cursor
 
     def compose(self) -> ComposeResult:
         yield Static(id="shortlist-title", classes="title")
-        yield DataTable(id="shortlist-table", cursor_type="row", zebra_stripes=True)
+        yield RowTable(id="shortlist-table")
+        yield Static(id="shortlist-more", classes="title")
         yield Footer(show_command_palette=False)
 
     def on_mount(self) -> None:
-        table = self.query_one("#shortlist-table", DataTable)
-        table.add_columns(*[(h.replace("σ", "s") if self._ascii else h) for h, _ in SHORTLIST_COLUMNS])
-        self.refresh_table()
+        table = self.query_one("#shortlist-table", RowTable)
+        table.add_columns(*[shortlist_heading(h, name, self._ascii) for h, name in SHORTLIST_COLUMNS])
+        self.refresh_table(keep_row=self._start_row)
         table.focus()
+        self.call_after_refresh(self._say_more)
+        self.watch(table, "scroll_x", lambda _: self._say_more(), init=False)
+
+    def on_resize(self) -> None:
+        self.call_after_refresh(self._say_more)
+
+    def _say_more(self) -> None:
+        """A line under the table when columns lie beyond its right edge, with the keys that show them."""
+        try:
+            table = self.query_one("#shortlist-table", RowTable)
+            line = self.query_one("#shortlist-more", Static)
+        except Exception:  # closing
+            return
+        if len(self.shortlist) and table.more_to_the_right:
+            arrow = "->" if self._ascii else "→"
+            line.update(Text(f" more columns to the right {arrow}  (Ctrl+PgDn or the mouse scroll sideways)",
+                             style="dim"))
+            line.display = True
+        else:
+            line.update(Text(""))
+            line.display = False
+
+    def on_data_table_row_highlighted(self, event: DataTable.RowHighlighted) -> None:
+        self._on_cursor(event.cursor_row)
 
     def refresh_table(self, keep_row: int | None = None) -> None:
-        table = self.query_one("#shortlist-table", DataTable)
+        table = self.query_one("#shortlist-table", RowTable)
         table.clear()
         entries = self.shortlist.entries
         for i, e in enumerate(entries):
@@ -101,7 +169,7 @@ class ShortlistScreen(Screen):
             table.move_cursor(row=min(keep_row, n - 1))
 
     def _current(self) -> ShortlistEntry | None:
-        table = self.query_one("#shortlist-table", DataTable)
+        table = self.query_one("#shortlist-table", RowTable)
         entries = self.shortlist.entries
         if not entries or table.cursor_row is None or not 0 <= table.cursor_row < len(entries):
             return None
@@ -114,7 +182,7 @@ class ShortlistScreen(Screen):
         entry = self._current()
         if entry is None:
             return
-        row = self.query_one("#shortlist-table", DataTable).cursor_row
+        row = self.query_one("#shortlist-table", RowTable).cursor_row
         self.shortlist.remove(entry.key)
         self._on_change()
         self.refresh_table(keep_row=row)
