@@ -100,7 +100,7 @@ def test_export_writes_csv_and_markdown_and_asks_before_replacing(tmp_path):
         key = app.state.shortlist.entries[0].key
         want = oracle[(oracle["expiry"] == pd.Timestamp(key.expiry)) & (oracle["strike"] == key.strike)
                       & (oracle["kind"] == key.kind)].iloc[0]
-        assert float(rows[0]["p_beyond"]) == want["p_beyond"]
+        assert abs(float(rows[0]["p_beyond"]) - want["p_beyond"]) <= 1e-9 * abs(want["p_beyond"])  # 10 digits
         assert any(str(target) in n for n in notes(app))
         before = target.read_bytes()
         # a second contract, then the same path: a question, and "no" keeps the file

@@ -20,12 +20,32 @@ from chaintriage.tui.files import TargetExistsError
 from chaintriage.tui.screens.common import close, plain
 from chaintriage.tui.screens.confirm_dialog import ConfirmDialog
 from chaintriage.tui.screens.path_prompt import PathPrompt
-from chaintriage.tui.shortlist import ContractKey, Shortlist, ShortlistEntry
+from chaintriage.tui.shortlist import ContractKey, Shortlist, ShortlistEntry, default_export_path
 from chaintriage.tui.widgets.row_table import RowTable
 
 
-#: The file name the export prompt offers.
-DEFAULT_EXPORT_NAME = "shortlist.csv"
+#: Endings that choose the export's format; a name with any other ending is asked about.
+CSV_ENDINGS = (".csv",)
+MARKDOWN_ENDINGS = (".md", ".markdown", ".txt", ".text")  # a text file gets the table a person reads
+
+
+def export_format(path: Path) -> str | None:
+    """'csv' or 'markdown' by the file name's ending; None when the ending says neither."""
+    suffix = path.suffix.lower()
+    if suffix in CSV_ENDINGS:
+        return "csv"
+    if suffix in MARKDOWN_ENDINGS:
+        return "markdown"
+    return None
+
+
+def home_short(path: Path) -> str:
+    """``path`` with the home folder written as ~ (shorter in a prompt)."""
+    home = os.path.expanduser("~")
+    text = str(path)
+    if home not in ("", "/") and (text == home or text.startswith(home.rstrip(os.sep) + os.sep)):
+        return "~" + text[len(home.rstrip(os.sep)):]
+    return text
 
 #: (heading, figure) of the shortlist table, in the order a trader reads them: what and when, the
 #: quotes, then the model's figures, the liquidity, the snapshot time. "days" is calendar days from
@@ -209,13 +229,17 @@ class ShortlistScreen(Screen):
         if not len(self.shortlist):
             self.notify("the shortlist is empty: nothing to write", severity="warning", markup=False)
             return
+        proposed = default_export_path()
         self.app.push_screen(
-            PathPrompt("write the shortlist to (.csv or .md)", value=DEFAULT_EXPORT_NAME,
-                       hint="a name ending in .md writes a Markdown table; anything else, CSV"),
+            PathPrompt("write the shortlist to (.csv or .md)", value=home_short(proposed),
+                       hint=f"proposed: a dated name in {home_short(proposed.parent)} (the folder the app was "
+                            "started from, else ~/Documents or ~); .csv writes CSV, .md or .txt a Markdown "
+                            "table; other endings are asked about"),
             self.export)
 
-    def export(self, path: str | None, overwrite: bool = False) -> None:
-        """Write the shortlist to ``path`` (.md: Markdown, else CSV); ask before replacing a file."""
+    def export(self, path: str | None, overwrite: bool = False, chosen: str | None = None) -> None:
+        """Write the shortlist to ``path`` (.csv: CSV; .md, .markdown, .txt: Markdown; any other
+        ending: ask, CSV on yes); ask before replacing a file."""
         if not path:
             return
         # Any OS error while checking or writing the path (a name too long for the file system, a
@@ -232,7 +256,19 @@ class ShortlistScreen(Screen):
             self.app.notify(f"{target} is a folder: give a file name, e.g. {target / 'shortlist.csv'}",
                             title="not written", severity="warning", markup=False)
             return
-        markdown = target.suffix.lower() in (".md", ".markdown")
+        fmt = chosen or export_format(target)
+        if fmt is None:
+            def answer(yes: bool | None) -> None:
+                if yes:
+                    self.export(path, overwrite=overwrite, chosen="csv")
+                else:
+                    self.app.notify("not written: give a name ending in .csv, .md or .txt", timeout=4,
+                                    markup=False)
+
+            self.app.push_screen(ConfirmDialog(
+                f"{target.name} ends in neither .csv nor .md. Write it as CSV anyway?"), answer)
+            return
+        markdown = fmt == "markdown"
         try:
             if markdown:
                 self.shortlist.export_markdown(target, overwrite=overwrite, ascii_only=self._ascii)
@@ -241,7 +277,7 @@ class ShortlistScreen(Screen):
         except TargetExistsError:
             def answer(yes: bool | None) -> None:
                 if yes:
-                    self.export(path, overwrite=True)
+                    self.export(path, overwrite=True, chosen=fmt)
                 else:
                     self.app.notify("not written: the file was kept as it was", timeout=3, markup=False)
 
@@ -255,4 +291,5 @@ class ShortlistScreen(Screen):
                             title="not written", severity="error", markup=False)
             return
         n = len(self.shortlist)
-        self.app.notify(f"wrote {n} contract{'s' if n != 1 else ''} to {target}", markup=False)
+        kind = "a Markdown table" if markdown else "CSV"
+        self.app.notify(f"wrote {n} contract{'s' if n != 1 else ''} to {target} as {kind}", markup=False)
