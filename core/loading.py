@@ -924,7 +924,8 @@ class _FileValidator:
             shown = ", ".join(_show(h, 30) for h in found[:20]) + (" ..." if len(found) > 20 else "")
             raise SnapshotFileError(
                 self.path,
-                f"required column(s) missing: {', '.join(missing)}{src}; the header has: {shown or 'nothing'}{hint}",
+                f"required column(s) missing: {', '.join(missing)}{src}; the header has: {shown or 'nothing'}{hint}"
+                f"{'' if src else '; a mapping file (--columns MAP.toml) can name the headers this file uses'}",
             )
         for name, flag, value in (("underlying", "--underlying", self.ov.underlying),
                                   ("as_of", "--as-of", self.ov.as_of), ("spot", "--spot", self.ov.spot)):
@@ -1471,8 +1472,13 @@ def load_files(
     *,
     overrides: SnapshotOverrides | None = None,
     column_map: ColumnMap | str | Path | None = None,
+    column_maps: Sequence[ColumnMap | str | Path | None] | None = None,
 ) -> LoadResult:
     """Load several files, going on past unusable ones (their errors are collected).
+
+    ``column_map`` maps the headers of every file; ``column_maps`` (one per path, None for
+    a file in our own layout) gives each file its own mapping instead: a mapping belongs to
+    the files it was given for.
 
     Snapshots of the same underlying at the same instant from different files
     are merged into one (e.g. calls and puts exported apart); a contract found
@@ -1481,12 +1487,18 @@ def load_files(
     ChainTriageError before any file is read.
     """
     ov = (overrides or SnapshotOverrides()).resolved()
-    cmap = _as_column_map(column_map)
+    paths = list(paths)
+    if column_maps is not None:
+        if len(column_maps) != len(paths):
+            raise ValueError("column_maps needs one entry per path")
+        maps = [_as_column_map(m) for m in column_maps]
+    else:
+        maps = [_as_column_map(column_map)] * len(paths)
     files: list[FileLoad] = []
     errors: list[SnapshotFileError] = []
     seen: dict[tuple[int, int], str] = {}
     repeated: list[Finding] = []
-    for p in paths:
+    for p, cmap in zip(paths, maps):
         identity = _file_identity(p)
         if identity is not None and identity in seen:
             same = "" if seen[identity] == str(p) else f" (as {seen[identity]})"

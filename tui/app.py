@@ -125,6 +125,9 @@ class ChainTriageApp(App[int]):
         self._given_views = list(views) if views is not None else None
         self._overrides = overrides
         self._column_map = column_map
+        #: Each file's own column mapping (None: our own layout), by real path: a mapping
+        #: belongs to the files it was given for.
+        self._file_maps: dict[str, ColumnMap | None] = {os.path.realpath(p): column_map for p in self._paths}
         self._pipeline_settings = pipeline_settings
         self._system_clipboard = system_clipboard
         clipboard.reset()  # copies allowed again (a previous app in this process may have stopped them)
@@ -194,6 +197,23 @@ class ChainTriageApp(App[int]):
         self.run_worker(lambda: self._load_job(list(paths), snapshots, initial, overrides),
                         thread=True, group="load", name="load", exit_on_error=False)
 
+    def _companions(self, snapshot: Snapshot) -> list[tuple[str, ColumnMap | None]]:
+        """Files (with their mappings) of a snapshot already shown at ``snapshot``'s underlying and instant."""
+        for view in list(self.state.views):
+            shown = view.snapshot
+            if (shown.underlying, shown.as_of) == (snapshot.underlying, snapshot.as_of) \
+                    and set(shown.sources) != set(snapshot.sources):
+                return [(p, self._file_maps.get(os.path.realpath(p))) for p in shown.sources]
+        return []
+
+    def _shown_file(self, path: str) -> int | None:
+        """The index of the snapshot that already holds file ``path`` (same real path), or None."""
+        real = os.path.realpath(path)
+        for i, view in enumerate(self.state.views):
+            if any(os.path.realpath(p) == real for p in view.snapshot.sources):
+                return i
+        return None
+
     def _load_job(self, paths: list[str], snapshots: Sequence[Snapshot] | None, initial: bool,
                   overrides: SnapshotOverrides | None) -> None:
         """Worker thread: the numerical modules, then ``snapshot_loading.load_views``, each view handed
@@ -211,18 +231,29 @@ class ChainTriageApp(App[int]):
         def on_replace(partial: SnapshotView, whole: SnapshotView) -> None:
             self.call_from_thread(self._replace_view, partial, whole)
 
+        maps = [self._file_maps.get(os.path.realpath(p)) for p in paths] if paths else None
         errors, added = snapshot_loading.load_views(
-            paths, snapshots=snapshots, overrides=overrides, column_map=self._column_map,
+            paths, snapshots=snapshots, overrides=overrides, column_map=self._column_map if not paths else None,
+            column_maps=maps, companions=None if initial else self._companions,
             pipeline_settings=self._pipeline_settings, confidence=lambda: self.state.confidence,
             on_busy=lambda text: self.call_from_thread(self.triage.set_busy, text), on_view=on_view,
             on_replace=on_replace)
         self.call_from_thread(self._load_done, errors, added, initial)
 
     def _add_view(self, view: SnapshotView, select: bool, drawn: threading.Event | None = None) -> None:
-        self.state.views.append(view)
-        if select or self.state.view_index < 0:
-            self.triage.show_view(len(self.state.views) - 1)
+        st = self.state
+        key = (view.snapshot.underlying, view.snapshot.as_of)
+        same = [i for i, v in enumerate(st.views) if (v.snapshot.underlying, v.snapshot.as_of) == key]
+        if same:  # merged with a snapshot already shown: it takes that one's place
+            index = same[0]
+            st.views[index] = view
+            st._findings_count.pop(index, None)
+            self.triage.show_view(index)
+        elif select or st.view_index < 0:
+            st.views.append(view)
+            self.triage.show_view(len(st.views) - 1)
         else:
+            st.views.append(view)
             self.triage.refresh_bars()
         if drawn is not None:
             self.call_after_refresh(drawn.set)
@@ -536,12 +567,32 @@ class ChainTriageApp(App[int]):
     def action_load_file(self) -> None:
         from chaintriage.tui.screens.path_prompt import PathPrompt
 
-        def done(path: str | None) -> None:
-            if path:
-                self._start_load([os.path.expanduser(path)])
+        def done(answer: tuple[str, str] | None) -> None:
+            if not answer or not answer[0]:
+                return
+            path = os.path.expanduser(answer[0])
+            mapping = os.path.expanduser(answer[1]) if answer[1] else ""
+            shown = self._shown_file(path)
+            if shown is not None:  # the same file again: no second copy (the command line merges it too)
+                self.notify(f"{os.path.basename(path)} is already open: showing it", timeout=3, markup=False)
+                self.triage.show_view(shown)
+                return
+            column_map = None
+            if mapping:
+                from chaintriage.core.loading import load_column_map
 
-        self.push_screen(PathPrompt("open a snapshot file", hint="CSV in the chaintriage layout, or as mapped "
-                                    "by --columns"), done)
+                try:
+                    column_map = load_column_map(mapping)
+                except ChainTriageError as exc:
+                    self.notify(str(exc), title="could not open", severity="error", timeout=10, markup=False)
+                    return
+            self._file_maps[os.path.realpath(path)] = column_map
+            self._start_load([path])
+
+        self.push_screen(PathPrompt("open a snapshot file",
+                                    hint="CSV or Parquet in chaintriage's layout; for other headers, a mapping "
+                                         "file (as --columns takes) for this file only",
+                                    second=("column mapping", "optional: MAP.toml")), done)
 
 
 def open_app(paths: Sequence[str | Path], *, overrides: SnapshotOverrides | None = None,

@@ -109,3 +109,86 @@ def test_a_txt_name_writes_a_markdown_table_and_an_unknown_ending_is_asked(tmp_p
         assert (tmp_path / "picks.dat").read_text(encoding="utf-8").startswith("underlying,as_of,")
 
     run(app, scenario)
+
+
+# ---------------------------------------------------------------- opening files with l
+
+DATA = os.path.join(os.path.dirname(os.path.dirname(__file__)), "data")
+FOREIGN = os.path.join(DATA, "foreign_export.csv")
+MAPPING = os.path.join(DATA, "columns_example.toml")
+
+
+async def _open(app, pilot, path, mapping=""):
+    from .app_support import wait_ready
+
+    await pilot.press("l")
+    prompt = app.screen
+    assert isinstance(prompt, PathPrompt)
+    prompt.query_one("#path-input").value = str(path)
+    if mapping:
+        prompt.query_one("#second-input").value = str(mapping)
+    await pilot.press("enter")
+    await pilot.pause()
+    await wait_ready(app, pilot)
+    await pilot.pause()
+
+
+def _ospx() -> str:
+    return [p for p in demo_paths() if "ospx" in os.path.basename(p)][0]
+
+
+def test_the_same_file_opened_again_is_not_a_second_snapshot(tmp_path):
+    import shutil
+
+    from chaintriage.core.loading import load_files
+
+    copy = tmp_path / "ospx_copy.csv"
+    shutil.copyfile(_ospx(), copy)
+    app = make_app(paths=[_ospx()])
+
+    async def scenario(pilot):
+        assert len(app.state.views) == 1
+        await _open(app, pilot, _ospx())
+        assert len(app.state.views) == 1
+        assert any("already open" in n for n in notes(app))
+        # Another file with the same underlying and instant merges, as the command line does.
+        await _open(app, pilot, copy)
+        cli_result = load_files([_ospx(), str(copy)])
+        assert len(app.state.views) == len(cli_result.snapshots) == 1
+        merged = app.state.views[0].snapshot
+        assert len(merged.contracts) == len(cli_result.snapshots[0].contracts)
+        assert set(merged.sources) == {_ospx(), str(copy)}
+
+    run(app, scenario)
+
+
+def test_a_mapping_belongs_to_its_file_and_l_can_take_one():
+    from chaintriage.core.loading import load_column_map
+
+    app = make_app(paths=[FOREIGN], column_map=load_column_map(MAPPING))
+
+    async def scenario(pilot):
+        assert len(app.state.views) == 1 and app.state.view.snapshot.underlying == "VELM"
+        await _open(app, pilot, _ospx())  # our own layout: the mapping is not applied to it
+        assert len(app.state.views) == 2 and not app.state.file_errors, app.state.file_errors
+        assert app.state.view.snapshot.underlying == "OSPX"
+
+    run(app, scenario)
+
+
+def test_l_opens_a_mapped_file_with_the_mapping_given_in_the_dialog():
+    app = make_app(paths=[_ospx()])
+
+    async def scenario(pilot):
+        await _open(app, pilot, FOREIGN)  # no mapping: refused, and the message says how to map
+        assert len(app.state.views) == 1
+        assert any("--columns" in e for e in app.state.file_errors), app.state.file_errors
+        await _open(app, pilot, FOREIGN, MAPPING)
+        assert len(app.state.views) == 2 and app.state.view.snapshot.underlying == "VELM"
+
+    run(app, scenario)
+
+
+def test_missing_columns_error_mentions_columns_on_the_command_line(capsys):
+    assert cli.main(["check", FOREIGN]) == 2
+    assert "--columns" in capsys.readouterr().err

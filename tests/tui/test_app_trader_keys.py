@@ -203,3 +203,19 @@ def test_enter_in_the_shortlist_clears_a_filter_that_hides_the_contract():
         assert "filter cleared to show the contract" in notes(app)
 
     run(app, scenario)
+
+
+def test_header_height_is_steady_while_paging_expiries_at_80_columns():
+    app = make_app()
+
+    async def scenario(pilot):
+        for _snapshot in range(2):
+            tops = set()
+            for _ in range(len(app.state.view.expiries)):
+                await pilot.pause()
+                tops.add(app.triage.grid.region.y)
+                await pilot.press("]")
+            assert len(tops) == 1, tops
+            await pilot.press("}")
+
+    run(app, scenario, size=(80, 24))

@@ -69,14 +69,19 @@ class InfoBar(Widget):
     def __init__(self, *, id: str | None = None, classes: str | None = None) -> None:
         super().__init__(id=id, classes=classes)
         self._pieces: list[Text] = []
+        self._reserve: list[Text] = []
         self._right: Text | None = None
 
-    def set_pieces(self, pieces: Sequence[Text]) -> None:
+    def set_pieces(self, pieces: Sequence[Text], reserve: Sequence[Text] = ()) -> None:
+        """Show ``pieces``; the bar is at least as tall as ``reserve`` would make it (a steady height)."""
         new = list(pieces)
+        res = list(reserve)
         if [p.plain for p in new] == [p.plain for p in self._pieces] and \
-                [p.spans for p in new] == [p.spans for p in self._pieces]:
+                [p.spans for p in new] == [p.spans for p in self._pieces] and \
+                [p.plain for p in res] == [p.plain for p in self._reserve]:
             return
         self._pieces = new
+        self._reserve = res
         self.refresh(layout=True)
 
     @property
@@ -88,7 +93,8 @@ class InfoBar(Widget):
         return pack_pieces(self._pieces, width)
 
     def get_content_height(self, container: Size, viewport: Size, width: int) -> int:
-        return len(self._lines(width))
+        reserved = len(pack_pieces(self._reserve, width)) if self._reserve else 0
+        return max(len(self._lines(width)), reserved)
 
     def render(self) -> Text:
         return Text("\n").join(self._lines(self.size.width))
@@ -164,12 +170,27 @@ def top_pieces(*, underlying: str, as_of_text: str, spot: float, index: int, cou
     return pieces
 
 
-def expiry_pieces(info: ExpiryInfo | None, *, st: BarStyles, ascii_only: bool = False) -> list[Text]:
-    """The expiry header: date and position, days left, forward, ATM IV, ranges, fit, findings."""
+def expiry_pieces(info: ExpiryInfo | None, *, st: BarStyles, ascii_only: bool = False,
+                  widest: bool = False) -> list[Text]:
+    """The expiry header: date and position, days left, forward, ATM IV, ranges, fit, findings.
+
+    ``widest`` gives the pieces as long as any expiry of this snapshot can make them (the
+    longest forward method, a findings count, a fallback fit): the header reserves that many
+    lines so it keeps one height while paging through expiries.
+    """
     from chaintriage.tui.session import fmt_confidence
 
     if info is None:
         return [_piece(("no expiry to show", st.dim))]
+    if widest:
+        import dataclasses
+
+        longest = max(FORWARD_METHODS, key=lambda m: len(FORWARD_METHODS[m]))
+        info = dataclasses.replace(info, forward_method=longest, fit_method=info.fit_method or "svi")
+        pieces = expiry_pieces(info, st=st, ascii_only=ascii_only)
+        pieces = [p for p in pieces if not p.plain.startswith("this expiry: ")]
+        pieces.append(_piece(("this expiry: 99 left out, 99 warnings, 99 notes (e)", st.dim)))
+        return pieces
     ph = fm.placeholder(ascii_only)
     days_t = ph if info.trading_days is None else f"{info.trading_days}"
     days_c = ph if info.calendar_days is None else f"{info.calendar_days}"
