@@ -437,6 +437,26 @@ class SnapshotView:
             self._target_selector = TargetSelector(self.annotated.contracts, self.annotated.expiries)
         return self._target_selector.select(target, shift)
 
+    def header_infos(self, current: ExpiryInfo) -> list[ExpiryInfo]:
+        """``current`` as every other expiry's header would read, without computing their ranges
+        (the ranges of ``current`` stand in): for sizing the header once for the whole snapshot."""
+        import dataclasses
+
+        out = []
+        for i, expiry in enumerate(self.expiries):
+            row = self.expiry_table.iloc[i]
+            res = self.annotated.results.get(expiry)
+            fit_method = str(row.get("fit_method") or "")
+            out.append(dataclasses.replace(
+                current, expiry=expiry, index=i,
+                trading_days=_int_or_none(row.get("trading_days")),
+                calendar_days=_int_or_none(row.get("calendar_days")),
+                forward=_float(row.get("forward")), forward_method=str(row.get("forward_method") or ""),
+                atm_iv=_float(row.get("atm_iv")), fit_rmse=_float(row.get("fit_rmse")), fit_method=fit_method,
+                arbitrage_free=bool(row.get("arbitrage_free")) if fit_method else None,
+                findings=tuple(res.findings) if res is not None else ()))
+        return out
+
     # --- findings
 
     def findings(self) -> list[Finding]:

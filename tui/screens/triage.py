@@ -233,8 +233,9 @@ class TriageScreen(Screen):
                          busy=st.busy, st=styles, ascii_only=ascii_only)
         self.bar("topbar").set_pieces(top)
         info = view.info(st.expiry_pos, st.confidence) if view.expiries else None
-        self.bar("expirybar").set_pieces(expiry_pieces(info, st=styles, ascii_only=ascii_only),
-                                         reserve=expiry_pieces(info, st=styles, ascii_only=ascii_only, widest=True))
+        reserve = expiry_pieces(info, st=styles, ascii_only=ascii_only, widest=view.header_infos(info)) \
+            if info is not None else []
+        self.bar("expirybar").set_pieces(expiry_pieces(info, st=styles, ascii_only=ascii_only), reserve=reserve)
         hidden_names = [COLUMNS[k].heading_ascii if ascii_only else COLUMNS[k].heading
                         for k in st.left_out_columns]
         plot_note = ""

@@ -171,26 +171,19 @@ def top_pieces(*, underlying: str, as_of_text: str, spot: float, index: int, cou
 
 
 def expiry_pieces(info: ExpiryInfo | None, *, st: BarStyles, ascii_only: bool = False,
-                  widest: bool = False) -> list[Text]:
+                  widest: Sequence[ExpiryInfo] | None = None) -> list[Text]:
     """The expiry header: date and position, days left, forward, ATM IV, ranges, fit, findings.
 
-    ``widest`` gives the pieces as long as any expiry of this snapshot can make them (the
-    longest forward method, a findings count, a fallback fit): the header reserves that many
-    lines so it keeps one height while paging through expiries.
+    With ``widest`` (the infos of every expiry of the snapshot, or a sample), the pieces are as
+    long as any of them makes each one: the header reserves that many lines so it keeps one
+    height while paging through the expiries.
     """
     from chaintriage.tui.session import fmt_confidence
 
     if info is None:
         return [_piece(("no expiry to show", st.dim))]
-    if widest:
-        import dataclasses
-
-        longest = max(FORWARD_METHODS, key=lambda m: len(FORWARD_METHODS[m]))
-        info = dataclasses.replace(info, forward_method=longest, fit_method=info.fit_method or "svi")
-        pieces = expiry_pieces(info, st=st, ascii_only=ascii_only)
-        pieces = [p for p in pieces if not p.plain.startswith("this expiry: ")]
-        pieces.append(_piece(("this expiry: 99 left out, 99 warnings, 99 notes (e)", st.dim)))
-        return pieces
+    if widest is not None:
+        return _widest_pieces(info, widest, st=st, ascii_only=ascii_only)
     ph = fm.placeholder(ascii_only)
     days_t = ph if info.trading_days is None else f"{info.trading_days}"
     days_c = ph if info.calendar_days is None else f"{info.calendar_days}"
@@ -232,6 +225,24 @@ def expiry_pieces(info: ExpiryInfo | None, *, st: BarStyles, ascii_only: bool = 
         pieces.append(_piece(("this expiry: ", st.dim), (", ".join(words), st.warning if (lo or wa) else st.text),
                              (" (e)", st.dim)))
     return pieces
+
+
+def _widest_pieces(info: ExpiryInfo, others: Sequence[ExpiryInfo], *, st: BarStyles,
+                   ascii_only: bool = False) -> list[Text]:
+    """Each piece of the expiry header at its longest over ``info`` and ``others`` (same order)."""
+    every = [expiry_pieces(i, st=st, ascii_only=ascii_only) for i in (info, *others)]
+    # Findings and fit pieces come and go: keep the slots by their first words.
+    slots: dict[str, Text] = {}
+    for pieces in every:
+        for p in pieces:
+            word = p.plain.split(" ")[0] if not p.plain.startswith("fwd") else "fwd"
+            if word.replace(".", "").isdigit() or word in ("—", "--", "-"):
+                word = "days"
+            if word.endswith("%") or "range" in p.plain[:16]:
+                word = "range"
+            if word not in slots or p.cell_len > slots[word].cell_len:
+                slots[word] = p
+    return list(slots.values())
 
 
 def filter_pieces(flt: StrikeFilter, *, shown: int, total: int, hidden_columns: Sequence[str] = (),
