@@ -109,7 +109,13 @@ class ChainTriageApp(App[int]):
     #path-input { margin: 1 0; }
     #f-error { height: auto; margin: 1 0 0 0; color: $ct-error; }
     #column-list { height: auto; max-height: 17; border: none; padding: 0; margin: 1 0; }
+    /* Below NARROW_WIDTH columns notices sit over the header lines, not over the ladder's figures. */
+    App.-narrow ToastRack { dock: top; align: right top; margin-bottom: 0; }
+    App.-narrow Toast { padding: 0 1; margin-top: 0; max-width: 60%; }
     """
+
+    #: Below this many columns, notices go at the top (over the header lines) instead of over the ladder.
+    NARROW_WIDTH = 120
 
     def __init__(self, paths: Sequence[str | Path] = (), *, snapshots: Sequence[Snapshot] | None = None,
                  views: Sequence[SnapshotView] | None = None,
@@ -157,6 +163,12 @@ class ChainTriageApp(App[int]):
         self.triage = TriageScreen(self.state, id="triage")
 
     # ------------------------------------------------------------ Textual hooks
+
+    def on_resize(self, event: Any) -> None:
+        self.set_class(event.size.width < self.NARROW_WIDTH, "-narrow")
+
+    def on_mount(self) -> None:
+        self.set_class(self.size.width < self.NARROW_WIDTH, "-narrow")
 
     def get_theme_variable_defaults(self) -> dict[str, str]:
         return {**super().get_theme_variable_defaults(), **css_variables(FALLBACK_THEME)}

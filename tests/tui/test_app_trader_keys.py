@@ -219,3 +219,26 @@ def test_header_height_is_steady_while_paging_expiries_at_80_columns():
             await pilot.press("}")
 
     run(app, scenario, size=(80, 24))
+
+
+def test_notices_do_not_cover_the_ladder_at_80_columns():
+    import asyncio
+
+    from textual.widgets._toast import Toast
+
+    from .app_support import wait_ready
+
+    app = make_app()
+
+    async def main():
+        async with app.run_test(size=(80, 24), notifications=True) as pilot:  # toasts drawn
+            await wait_ready(app, pilot)
+            await pilot.press("c")
+            await pilot.pause(0.3)
+            toasts = [w for w in app.screen.walk_children(with_self=False) if isinstance(w, Toast)]
+            assert toasts
+            grid = app.triage.grid.region
+            for toast in toasts:
+                assert not toast.region.overlaps(grid), (toast.region, grid)
+
+    asyncio.run(main())
