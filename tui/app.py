@@ -32,6 +32,7 @@ from chaintriage.tui.strike_summary import copy_to_system_clipboard, summarize
 from chaintriage.tui.themes import FALLBACK_THEME, ChainTheme, css_variables, load_themes, to_textual_theme
 from chaintriage.tui.triage_state import TriageState
 from chaintriage.tui.ladder_columns import DEFAULT_COLUMNS, known_columns
+from chaintriage.tui.widgets.ascii_drawing import use_ascii_drawing
 
 if TYPE_CHECKING:  # pragma: no cover
     from chaintriage.core.loading import ColumnMap, SnapshotOverrides
@@ -112,6 +113,11 @@ class ChainTriageApp(App[int]):
     /* Below NARROW_WIDTH columns notices sit over the header lines, not over the ladder's figures. */
     App.-narrow ToastRack { dock: top; align: right top; margin-bottom: 0; }
     App.-narrow Toast { padding: 0 1; margin-top: 0; max-width: 60%; }
+    /* ASCII drawing: dialog frames, notice bars. */
+    App.-ascii .dialog { border: ascii $ct-accent; }
+    App.-ascii Toast { border-left: ascii $ct-accent; }
+    App.-ascii Toast.-warning { border-left: ascii $ct-warning; }
+    App.-ascii Toast.-error { border-left: ascii $ct-error; }
     """
 
     #: Below this many columns, notices go at the top (over the header lines) instead of over the ladder.
@@ -169,6 +175,13 @@ class ChainTriageApp(App[int]):
 
     def on_mount(self) -> None:
         self.set_class(self.size.width < self.NARROW_WIDTH, "-narrow")
+        self._apply_ascii_drawing()
+
+    def _apply_ascii_drawing(self) -> None:
+        ascii_only = self.state.ascii_only
+        self.set_class(ascii_only, "-ascii")
+        use_ascii_drawing(ascii_only)
+        self.refresh(layout=True)
 
     def get_theme_variable_defaults(self) -> dict[str, str]:
         return {**super().get_theme_variable_defaults(), **css_variables(FALLBACK_THEME)}
@@ -497,7 +510,7 @@ class ChainTriageApp(App[int]):
     def action_choose_columns(self) -> None:
         from chaintriage.tui.screens.column_picker import ColumnPicker
 
-        self.push_screen(ColumnPicker(self.state.columns, self.set_columns))
+        self.push_screen(ColumnPicker(self.state.columns, self.set_columns, ascii_only=self.state.ascii_only))
 
     def set_columns(self, keys: Sequence[str]) -> None:
         keys = known_columns(keys)
@@ -529,6 +542,7 @@ class ChainTriageApp(App[int]):
 
     def action_toggle_ascii(self) -> None:
         self.state.ascii_only = not self.state.ascii_only
+        self._apply_ascii_drawing()
         self.triage.apply_ascii()
         self._save_settings()
         self.notify("plain ASCII drawing" if self.state.ascii_only else "Unicode drawing", timeout=2,
