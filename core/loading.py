@@ -855,6 +855,13 @@ def _fmt_many(x: np.ndarray) -> np.ndarray:
     return np.array([_fmt(v) for v in uniq], dtype=object)[inverse.reshape(-1)]
 
 
+def _fmt_quote(x: float) -> str:
+    """A quoted price in a message: cents always shown (1.3 -> "1.30"), finer ticks kept (0.005)."""
+    if not np.isfinite(x) or abs(x) >= 1e12 or round(x, 2) != x:
+        return _fmt(x)
+    return f"{x:.2f}"
+
+
 class _FileValidator:
     def __init__(self, path: str, table: _Table, overrides: SnapshotOverrides, cmap: ColumnMap):
         self.path = path
@@ -1040,7 +1047,7 @@ class _FileValidator:
         rows.leave_out(has_b & has_a & (bid == 0) & (ask == 0), None, "bid and ask are both zero: no quote")
         crossed = has_b & has_a & (bid > ask)
         rows.leave_out(crossed, None,
-                       lambda i: f"crossed market: bid {_fmt(bid[i])} is above ask {_fmt(ask[i])}",
+                       lambda i: f"crossed market: bid {_fmt_quote(bid[i])} is above ask {_fmt_quote(ask[i])}",
                        topic="crossed market: bid above ask")
 
     # -- per underlying ---------------------------------------------------
@@ -1244,14 +1251,14 @@ class _FileValidator:
                 if sel.size:
                     self.warn_rows(mask, self.lab(col), what + self._on_contract(sel), topic=f"{what} on {words}",
                                    strike=True)
-        self.warn_rows(ok & has_b & ~has_a, self.lab("ask"), lambda i: f"no ask (bid {_fmt(bid[i])})",
+        self.warn_rows(ok & has_b & ~has_a, self.lab("ask"), lambda i: f"no ask (bid {_fmt_quote(bid[i])})",
                        topic="no ask", strike=True)
         spread = ask - bid
         mid = 0.5 * ask + 0.5 * bid  # not (ask + bid) / 2: that overflows for prices near 1e308
         with np.errstate(invalid="ignore"):
             wide = ok & has_b & has_a & (bid > 0) & (spread > WIDE_SPREAD_FRACTION * mid) & (spread > WIDE_SPREAD_MIN)
         self.warn_rows(wide, None, lambda i: (
-            f"wide spread: bid {_fmt(bid[i])}, ask {_fmt(ask[i])} (spread {spread[i] / mid[i] * 100:.0f}% of mid)"),
+            f"wide spread: bid {_fmt_quote(bid[i])}, ask {_fmt_quote(ask[i])} (spread {spread[i] / mid[i] * 100:.0f}% of mid)"),
             topic=f"wide spread (over {WIDE_SPREAD_FRACTION:.0%} of mid)", strike=True)
 
     # -- output -----------------------------------------------------------

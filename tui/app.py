@@ -400,9 +400,7 @@ class ChainTriageApp(App[int]):
         grid = self.triage.grid
         contract = grid.highlighted_contract()
         if view is None or contract is None:
-            hl = grid.highlighted
-            what = f"no {hl[1]} at this strike" if hl else "no contract highlighted"
-            self.notify(f"nothing to copy: {what}", severity="warning", markup=False)
+            self.notify(f"nothing to copy: {self._no_contract_reason()}", severity="warning", markup=False)
             return
         index = view.expiry_index(self.state.current_expiry)
         info = view.info(index, self.state.confidence) if index is not None else None
@@ -410,6 +408,11 @@ class ChainTriageApp(App[int]):
                          ascii_only=self.state.ascii_only, spot=view.snapshot.spot,
                          forward=info.forward if info else None, days=info.calendar_days if info else None)
         self.copy_text(text)
+
+    def _no_contract_reason(self) -> str:
+        """Why no contract is highlighted (the same words for copy and mark)."""
+        hl = self.triage.grid.highlighted if self.state.view is not None else None
+        return f"no {hl[1]} quoted at this strike" if hl else "no contract highlighted (the ladder is empty)"
 
     def copy_entry(self, entry: ShortlistEntry) -> None:
         k = entry.key
@@ -454,8 +457,7 @@ class ChainTriageApp(App[int]):
         view = self.state.view
         contract = self.triage.grid.highlighted_contract()
         if view is None or contract is None:
-            self.notify("nothing to mark: no contract on this side at this strike", severity="warning",
-                        markup=False)
+            self.notify(f"nothing to mark: {self._no_contract_reason()}", severity="warning", markup=False)
             return
         key = ContractKey.of(view.snapshot.underlying, view.snapshot.as_of, contract["expiry"],
                              contract["strike"], contract["kind"])

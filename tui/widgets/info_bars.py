@@ -41,7 +41,7 @@ def pack_pieces(pieces: Sequence[Text], width: int, sep: str = SEP, indent: str 
     for piece in pieces:
         p = piece.copy()
         if p.cell_len > width - len(indent):
-            p.truncate(max(1, width - len(indent) - 1))
+            p.truncate(max(1, width - len(indent) - 1), overflow="crop")  # one marker: the "~"
             p.append("~")
         needed = p.cell_len + (len(sep) if has else 0)
         if has and line.cell_len + needed > width:
