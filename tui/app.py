@@ -530,6 +530,9 @@ class ChainTriageApp(App[int]):
         self.triage.update_layout()
         self.triage.refresh_bars()
         self._save_settings()
+        if self.state.plot_pref == PLOT_SHOWN and not self.triage.plot.display:
+            self.notify("the plot shows once the terminal is wide enough for it beside the quotes; "
+                        "v again hides it for good", timeout=4, markup=False)
 
     def action_next_theme(self) -> None:
         name = self.themes.next_name(self.state.theme.name)

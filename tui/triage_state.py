@@ -44,6 +44,8 @@ class TriageState:
         self.shortlist_row = 0
         #: Ladder columns the terminal is too narrow for (still chosen, not drawn).
         self.left_out_columns: list[str] = []
+        #: True when the plot is wanted but its width went to the ladder's essential columns.
+        self.plot_squeezed = False
         #: What the background work is doing ("" when idle), and how many loads are running.
         self.busy = ""
         self.loads_running = 0

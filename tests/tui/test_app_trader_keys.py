@@ -242,3 +242,47 @@ def test_notices_do_not_cover_the_ladder_at_80_columns():
                 assert not toast.region.overlaps(grid), (toast.region, grid)
 
     asyncio.run(main())
+
+
+def test_the_plot_yields_before_the_quotes_at_120_columns():
+    app = make_app()
+
+    async def scenario(pilot):
+        grid = app.triage.grid
+        assert {"bid", "ask", "p_touch"} <= set(grid.columns)  # every default column
+        assert not app.triage.plot.display
+
+    run(app, scenario, size=(120, 40))
+
+
+def test_a_remembered_plot_keeps_the_quotes_and_odds_at_80_columns(config_home):
+    from chaintriage.tui.settings import load_settings, save_preferences
+
+    settings, _ = load_settings()
+    save_preferences(settings, theme="harbour", ascii_only=False, columns=["bid", "ask", "iv", "sigma", "p_beyond",
+                                                                          "p_touch"],
+                     confidence=0.6827, plot="shown")
+    app = make_app()
+
+    async def scenario(pilot):
+        assert app.state.plot_pref == "shown"
+        grid = app.triage.grid
+        assert {"bid", "sigma", "p_beyond"} <= set(grid.columns), grid.columns
+        assert not app.triage.plot.display
+        assert "wider terminal" in app.triage.bar("filterbar").plain
+
+    run(app, scenario, size=(80, 24))
+
+
+def test_liquidity_columns_outrank_the_breakeven_when_the_width_runs_short():
+    app = make_app()
+
+    async def scenario(pilot):
+        app.set_columns(["bid", "ask", "sigma", "p_beyond", "spread", "open_interest", "flags", "breakeven",
+                         "p_breakeven"])
+        await pilot.pause()
+        cols = app.triage.grid.columns
+        assert {"spread", "open_interest"} <= set(cols), cols
+        assert "p_breakeven" not in cols
+
+    run(app, scenario, size=(120, 40))

@@ -82,17 +82,23 @@ def test_width_plan_keeps_the_important_columns_and_the_plot_when_it_fits():
     full = ladder_width(cols, 8)
     assert full == 2 * (9 + 9 + 7 + 8 + 7 + 7) + 14
     shown, out = fit_columns(cols, 79, 8)
-    assert "sigma" in shown and "p_beyond" in shown and ladder_width(shown, 8) <= 79
+    assert shown == ["bid", "iv", "sigma", "p_beyond"] and ladder_width(shown, 8) <= 79  # one quote, the odds
+    assert {"bid", "ask", "sigma", "p_beyond"} <= set(fit_columns(cols, 95, 8)[0])  # both quotes once they fit
     assert shown == [c for c in cols if c in shown] and set(shown) | set(out) == set(cols)
-    assert fit_columns(cols, 10, 8)[0] == ["sigma"]  # always one column
+    assert fit_columns(cols, 10, 8)[0] == ["bid"]  # always one column: the quote first
     wide = plan_layout(200, cols, 8)
     assert wide.columns == cols and wide.plot_width == 200 - full - 1
     narrow = plan_layout(80, cols, 8)
     assert narrow.plot_width == 0 and narrow.left_out
-    assert plan_layout(80, cols, 8, PLOT_SHOWN).plot_width == MIN_PLOT
+    # The plot yields before the quotes: a remembered "shown" at 80 columns keeps the ladder whole.
+    assert plan_layout(80, cols, 8, PLOT_SHOWN).plot_width == 0
+    assert plan_layout(80, cols, 8, PLOT_SHOWN).plot_squeezed
     assert plan_layout(200, cols, 8, PLOT_HIDDEN).plot_width == 0
     mid = plan_layout(130, cols, 8)
-    assert mid.plot_width == MIN_PLOT and ladder_width(mid.columns, 8) + 1 <= 130 - MIN_PLOT
+    assert mid.plot_width == 0 and mid.columns == cols  # auto: every chosen column before the plot
+    shown = plan_layout(130, cols, 8, PLOT_SHOWN)
+    assert shown.plot_width == MIN_PLOT and ladder_width(shown.columns, 8) + 1 <= 130 - MIN_PLOT
+    assert {"bid", "ask", "sigma", "p_beyond"} <= set(shown.columns)
 
 
 def test_pieces_pack_into_lines_without_splitting_a_piece():
