@@ -94,7 +94,29 @@ class StrikeFilter:
             oi = frame["open_interest"].to_numpy(dtype=float)
             with np.errstate(invalid="ignore"):
                 ok &= oi >= self.min_open_interest
+        if self.has_limits:
+            ok &= self.read_side(frame)
         return ok
+
+    @property
+    def has_limits(self) -> bool:
+        """True when a liquidity limit (spread, open interest) is set."""
+        return self.max_spread is not None or self.min_open_interest is not None
+
+    @staticmethod
+    def read_side(frame: pd.DataFrame) -> np.ndarray:
+        """Boolean per contract: is it on the side a trader reads at its strike, the out-of-the-money
+        one (calls above the forward, puts below)? A liquidity limit is tested on that side only:
+        the in-the-money contract at the same strike meeting it says nothing about the one traded."""
+        if "otm" in frame.columns:
+            try:
+                return frame["otm"].astype("boolean").fillna(False).to_numpy(dtype=bool)
+            except (TypeError, ValueError):
+                pass
+        z = frame["sigma_distance"].to_numpy(dtype=float)
+        is_call = (frame["kind"] == "call").to_numpy()
+        with np.errstate(invalid="ignore"):
+            return np.where(is_call, z > 0, z < 0)
 
     def apply(self, frame: pd.DataFrame) -> tuple[pd.DataFrame, int]:
         """(the contracts of the strikes that stay, how many strikes were hidden)."""
@@ -126,6 +148,8 @@ class StrikeFilter:
             parts.append(f"spread {le} {_num(100 * self.max_spread)}%")
         if self.min_open_interest is not None:
             parts.append(f"OI {ge} {fm.fmt_count(self.min_open_interest)}")
+        if self.has_limits:
+            parts.append("limits tested on the out-of-the-money side")
         return " · ".join(parts) if not ascii_only else " / ".join(parts)
 
     @classmethod

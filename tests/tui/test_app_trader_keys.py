@@ -286,3 +286,28 @@ def test_liquidity_columns_outrank_the_breakeven_when_the_width_runs_short():
         assert "p_breakeven" not in cols
 
     run(app, scenario, size=(120, 40))
+
+
+def test_a_spread_limit_is_tested_on_the_out_of_the_money_side():
+    from .app_support import demo_annotated
+
+    app = make_app()
+
+    async def scenario(pilot):
+        st = app.state
+        want = pd.Timestamp("2026-12-04")
+        st.expiry_positions[st.view_index] = st.view.expiry_index(want)
+        app.set_filter(StrikeFilter(max_spread=0.05))
+        await pilot.pause()
+        oracle = demo_annotated()[0].contracts
+        exp = oracle[oracle["expiry"] == want]
+        otm = exp[exp["otm"].astype(bool)]
+        passing = set(otm.loc[otm["spread_pct"] <= 0.05 + 1e-12, "strike"].astype(float))
+        shown = set(app.triage.grid.strikes.astype(float))
+        assert shown == passing, sorted(shown ^ passing)
+        # A strike whose only liquid contract is in the money is gone (e.g. far calls at zero bid).
+        itm_only = set(exp.loc[~exp["otm"].astype(bool) & (exp["spread_pct"] <= 0.05), "strike"]) - passing
+        assert itm_only and not (itm_only & shown)
+        assert "out-of-the-money side" in app.triage.bar("filterbar").plain
+
+    run(app, scenario, size=(200, 50))

@@ -48,7 +48,8 @@ def test_sigma_filter_keeps_strikes_out_of_the_money_by_z_on_either_side():
 def test_liquidity_limits_and_missing_values():
     f = fixture_frame()
     kept, _ = StrikeFilter(max_spread=0.10).apply(f)
-    assert set(kept["strike"]) == {90.0, 95.0, 100.0, 105.0, 110.0}  # every call is tight
+    # every call is tight, but a limit is tested on the out-of-the-money side only: the calls above F
+    assert set(kept["strike"]) == {105.0, 110.0}
     assert not StrikeFilter(max_spread=0.10, sigma=1.0).qualifies(f)[(f["kind"] == "put").to_numpy()].any()
     kept, _ = StrikeFilter(min_open_interest=100).apply(f)
     assert 110.0 not in set(kept["strike"])  # missing open interest fails a set limit
@@ -58,7 +59,8 @@ def test_filter_parsing_and_description():
     f = StrikeFilter.parse("1.5", "20%", "1,000")
     assert f == StrikeFilter(sigma=1.5, max_spread=0.20, min_open_interest=1000.0)
     assert StrikeFilter.parse("", "", "") == StrikeFilter() and not StrikeFilter().active
-    assert f.describe() == "1.5σ or more out of the money · spread ≤ 20% · OI ≥ 1,000"
+    assert f.describe() == ("1.5σ or more out of the money · spread ≤ 20% · OI ≥ 1,000"
+                            " · limits tested on the out-of-the-money side")
     assert f.describe(ascii_only=True).isascii()
     for bad in (("x", "", ""), ("-1", "", ""), ("", "nan", ""), ("inf", "", "")):
         with pytest.raises(ChainTriageError):
