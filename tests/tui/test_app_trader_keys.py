@@ -311,3 +311,21 @@ def test_a_spread_limit_is_tested_on_the_out_of_the_money_side():
         assert "out-of-the-money side" in app.triage.bar("filterbar").plain
 
     run(app, scenario, size=(200, 50))
+
+
+def test_shortlist_number_headings_align_right_over_their_numbers():
+    app = make_app()
+
+    async def scenario(pilot):
+        await pilot.press("m", "s")
+        await pilot.pause()
+        table = app.screen.query_one("#shortlist-table")
+        head, row = table.render_line(0).text, table.render_line(1).text
+        cells = [c.plain for c in table.get_row_at(0)]
+        headings = [str(c.label) for c in table.columns.values()]
+        for name in ("mid", "BE", "strike", "bid"):
+            value = cells[headings.index(name)]
+            end = head.index(f" {name} ") + 1 + len(name) if f" {name} " in head else head.index(name) + len(name)
+            assert row[:end].endswith(value), (name, head, row)
+
+    run(app, scenario, size=(200, 30))
