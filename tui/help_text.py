@@ -64,7 +64,9 @@ KEYS: tuple[KeyHelp, ...] = (
     KeyHelp(("y",), "screen", "show_terms",
             "vols by expiry: ATM, ex-event and forward vol, scheduled events and the move each is priced "
             "at (Enter opens an expiry)"),
-    KeyHelp(("l",), "screen", "load_file", "open another snapshot file (asks for its path)"),
+    KeyHelp(("l",), "screen", "load_file",
+            "open another snapshot file (asks for its path, and a mapping file for its headers if it needs "
+            "one); a file already open is shown, not loaded twice"),
     KeyHelp(("question_mark",), "screen", "show_help", "this help"),
     KeyHelp(("q",), "screen", "quit", "quit"),
     # The shortlist.
