@@ -94,7 +94,7 @@ class StrikeFilter:
             oi = frame["open_interest"].to_numpy(dtype=float)
             with np.errstate(invalid="ignore"):
                 ok &= oi >= self.min_open_interest
-        if self.has_limits:
+        if self.has_limits and self.side == "both":  # one side chosen: its contracts are the ones read
             ok &= self.read_side(frame)
         return ok
 
@@ -149,7 +149,8 @@ class StrikeFilter:
         if self.min_open_interest is not None:
             parts.append(f"OI {ge} {fm.fmt_count(self.min_open_interest)}")
         if self.has_limits:
-            parts.append("limits tested on the out-of-the-money side")
+            parts.append("limits tested on the out-of-the-money side" if self.side == "both"
+                         else f"limits tested on the {self.side}")
         return " · ".join(parts) if not ascii_only else " / ".join(parts)
 
     @classmethod

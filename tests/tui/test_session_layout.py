@@ -111,3 +111,12 @@ def test_pieces_pack_into_lines_without_splitting_a_piece():
     cut = pack_pieces([Text("x" * 50)], 10)
     assert len(cut) == 1 and cut[0].cell_len <= 10 and cut[0].plain.endswith("~")
     assert [t.plain for t in pack_pieces([], 10)] == [" "]
+
+
+def test_liquidity_limits_follow_the_side_read():
+    f = fixture_frame()
+    calls = StrikeFilter(max_spread=0.10, side="calls")
+    # calls chosen: every tight call counts, in the money or not
+    assert set(calls.apply(f)[0]["strike"]) == {90.0, 95.0, 100.0, 105.0, 110.0}
+    assert "limits tested on the calls" in calls.describe()
+    assert "out-of-the-money side" in StrikeFilter(max_spread=0.10).describe()
