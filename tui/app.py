@@ -427,7 +427,7 @@ class ChainTriageApp(App[int]):
         """
         self.copy_to_clipboard(text)
         if self._system_clipboard is None:
-            self.notify(text, title="sent to the terminal's clipboard", timeout=4, markup=False)
+            self.notify(self._copy_notice(text), title="sent to the terminal's clipboard", timeout=4, markup=False)
             return
 
         def done(outcome: clipboard.CopyOutcome) -> None:
@@ -438,11 +438,22 @@ class ChainTriageApp(App[int]):
 
         clipboard.copy_in_background(self._system_clipboard, text, done)
 
+    #: Characters of the copied text a notice shows below NARROW_WIDTH columns (about two lines there).
+    NARROW_COPY_NOTICE = 88
+
+    def _copy_notice(self, text: str) -> str:
+        """The copied text as its notice shows it: whole on a wide terminal, its start on a narrow one
+        (so the notice stays over the header lines, not over the ladder's figures)."""
+        if self.size.width >= self.NARROW_WIDTH or len(text) <= self.NARROW_COPY_NOTICE:
+            return text
+        return text[:self.NARROW_COPY_NOTICE - 1].rstrip() + ("~" if self.state.ascii_only else "…")
+
     def _copy_done(self, text: str, outcome: clipboard.CopyOutcome) -> None:
         if outcome.ok:
-            self.notify(text, title="copied to the clipboard", timeout=4, markup=False)
+            self.notify(self._copy_notice(text), title="copied to the clipboard", timeout=4, markup=False)
         else:
-            self.notify(f"{text}\n{outcome.summary()}; sent only to the terminal's clipboard (pasting works "
+            self.notify(f"{self._copy_notice(text)}\n{outcome.summary()}; sent only to the terminal's clipboard "
+                        "(pasting works "
                         "where the terminal allows programs to set it)", title="not copied by a clipboard tool",
                         severity="warning", timeout=8, markup=False)
 
