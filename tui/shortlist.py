@@ -293,7 +293,9 @@ def default_export_path(now: Any = None, cwd: str | os.PathLike[str] | None = No
     the app was started from, unless that is inside the installed package (or site-packages)
     or cannot be written, then ~/Documents when it exists, else the home folder.
     """
-    stamp = pd.Timestamp.now() if now is None else pd.Timestamp(now)
+    import datetime
+
+    stamp = datetime.datetime.now() if now is None else now  # anything with strftime
     name = stamp.strftime(EXPORT_NAME_FORMAT)
     start = Path(os.getcwd() if cwd is None else cwd).resolve()
     home_dir = Path(os.path.expanduser("~") if home is None else home)
