@@ -257,6 +257,12 @@ class ShortlistScreen(Screen):
                             title="not written", severity="warning", markup=False)
             return
         fmt = chosen or export_format(target)
+        try:  # only a new file is asked about: writing says why a name cannot be used, and an
+            askable = target.parent.is_dir() and not target.exists()  # existing one gets one question
+        except (OSError, ValueError):
+            askable = False
+        if fmt is None and not askable:
+            fmt = "csv"
         if fmt is None:
             def answer(yes: bool | None) -> None:
                 if yes:
@@ -281,7 +287,8 @@ class ShortlistScreen(Screen):
                 else:
                     self.app.notify("not written: the file was kept as it was", timeout=3, markup=False)
 
-            self.app.push_screen(ConfirmDialog(f"{target} already exists. Replace it?"), answer)
+            as_what = "" if export_format(target) else " (with CSV)"
+            self.app.push_screen(ConfirmDialog(f"{target} already exists. Replace it{as_what}?"), answer)
             return
         except ChainTriageError as exc:
             self.app.notify(str(exc), title="not written", severity="error", markup=False)
