@@ -855,6 +855,13 @@ def _fmt_many(x: np.ndarray) -> np.ndarray:
     return np.array([_fmt(v) for v in uniq], dtype=object)[inverse.reshape(-1)]
 
 
+def _fmt_quote(x: float) -> str:
+    """A quoted price in a message: cents always shown (1.3 -> "1.30"), finer ticks kept (0.005)."""
+    if not np.isfinite(x) or abs(x) >= 1e12 or round(x, 2) != x:
+        return _fmt(x)
+    return f"{x:.2f}"
+
+
 class _FileValidator:
     def __init__(self, path: str, table: _Table, overrides: SnapshotOverrides, cmap: ColumnMap):
         self.path = path
@@ -924,7 +931,8 @@ class _FileValidator:
             shown = ", ".join(_show(h, 30) for h in found[:20]) + (" ..." if len(found) > 20 else "")
             raise SnapshotFileError(
                 self.path,
-                f"required column(s) missing: {', '.join(missing)}{src}; the header has: {shown or 'nothing'}{hint}",
+                f"required column(s) missing: {', '.join(missing)}{src}; the header has: {shown or 'nothing'}{hint}"
+                f"{'' if src else '; a mapping file (--columns MAP.toml) can name the headers this file uses'}",
             )
         for name, flag, value in (("underlying", "--underlying", self.ov.underlying),
                                   ("as_of", "--as-of", self.ov.as_of), ("spot", "--spot", self.ov.spot)):
@@ -1039,7 +1047,7 @@ class _FileValidator:
         rows.leave_out(has_b & has_a & (bid == 0) & (ask == 0), None, "bid and ask are both zero: no quote")
         crossed = has_b & has_a & (bid > ask)
         rows.leave_out(crossed, None,
-                       lambda i: f"crossed market: bid {_fmt(bid[i])} is above ask {_fmt(ask[i])}",
+                       lambda i: f"crossed market: bid {_fmt_quote(bid[i])} is above ask {_fmt_quote(ask[i])}",
                        topic="crossed market: bid above ask")
 
     # -- per underlying ---------------------------------------------------
@@ -1243,14 +1251,14 @@ class _FileValidator:
                 if sel.size:
                     self.warn_rows(mask, self.lab(col), what + self._on_contract(sel), topic=f"{what} on {words}",
                                    strike=True)
-        self.warn_rows(ok & has_b & ~has_a, self.lab("ask"), lambda i: f"no ask (bid {_fmt(bid[i])})",
+        self.warn_rows(ok & has_b & ~has_a, self.lab("ask"), lambda i: f"no ask (bid {_fmt_quote(bid[i])})",
                        topic="no ask", strike=True)
         with np.errstate(over="ignore", invalid="ignore"):  # rows already left out may hold +-1e308
             spread = ask - bid
             mid = 0.5 * ask + 0.5 * bid  # not (ask + bid) / 2: that overflows for prices near 1e308
             wide = ok & has_b & has_a & (bid > 0) & (spread > WIDE_SPREAD_FRACTION * mid) & (spread > WIDE_SPREAD_MIN)
         self.warn_rows(wide, None, lambda i: (
-            f"wide spread: bid {_fmt(bid[i])}, ask {_fmt(ask[i])} (spread {spread[i] / mid[i] * 100:.0f}% of mid)"),
+            f"wide spread: bid {_fmt_quote(bid[i])}, ask {_fmt_quote(ask[i])} (spread {spread[i] / mid[i] * 100:.0f}% of mid)"),
             topic=f"wide spread (over {WIDE_SPREAD_FRACTION:.0%} of mid)", strike=True)
 
     # -- output -----------------------------------------------------------
@@ -1471,8 +1479,13 @@ def load_files(
     *,
     overrides: SnapshotOverrides | None = None,
     column_map: ColumnMap | str | Path | None = None,
+    column_maps: Sequence[ColumnMap | str | Path | None] | None = None,
 ) -> LoadResult:
     """Load several files, going on past unusable ones (their errors are collected).
+
+    ``column_map`` maps the headers of every file; ``column_maps`` (one per path, None for
+    a file in our own layout) gives each file its own mapping instead: a mapping belongs to
+    the files it was given for.
 
     Snapshots of the same underlying at the same instant from different files
     are merged into one (e.g. calls and puts exported apart); a contract found
@@ -1481,12 +1494,18 @@ def load_files(
     ChainTriageError before any file is read.
     """
     ov = (overrides or SnapshotOverrides()).resolved()
-    cmap = _as_column_map(column_map)
+    paths = list(paths)
+    if column_maps is not None:
+        if len(column_maps) != len(paths):
+            raise ValueError("column_maps needs one entry per path")
+        maps = [_as_column_map(m) for m in column_maps]
+    else:
+        maps = [_as_column_map(column_map)] * len(paths)
     files: list[FileLoad] = []
     errors: list[SnapshotFileError] = []
     seen: dict[tuple[int, int], str] = {}
     repeated: list[Finding] = []
-    for p in paths:
+    for p, cmap in zip(paths, maps):
         identity = _file_identity(p)
         if identity is not None and identity in seen:
             same = "" if seen[identity] == str(p) else f" (as {seen[identity]})"

@@ -32,6 +32,7 @@ from chaintriage.tui.strike_summary import copy_to_system_clipboard, summarize
 from chaintriage.tui.themes import FALLBACK_THEME, ChainTheme, css_variables, load_themes, to_textual_theme
 from chaintriage.tui.triage_state import TriageState
 from chaintriage.tui.ladder_columns import DEFAULT_COLUMNS, known_columns
+from chaintriage.tui.widgets.ascii_drawing import use_ascii_drawing
 
 if TYPE_CHECKING:  # pragma: no cover
     from chaintriage.core.loading import ColumnMap, SnapshotOverrides
@@ -109,7 +110,18 @@ class ChainTriageApp(App[int]):
     #path-input { margin: 1 0; }
     #f-error { height: auto; margin: 1 0 0 0; color: $ct-error; }
     #column-list { height: auto; max-height: 17; border: none; padding: 0; margin: 1 0; }
+    /* Below NARROW_WIDTH columns notices sit over the header lines, not over the ladder's figures. */
+    App.-narrow ToastRack { dock: top; align: right top; margin-bottom: 0; }
+    App.-narrow Toast { padding: 0 1; margin-top: 0; max-width: 60%; }
+    /* ASCII drawing: dialog frames, notice bars. */
+    App.-ascii .dialog { border: ascii $ct-accent; }
+    App.-ascii Toast { border-left: ascii $ct-accent; }
+    App.-ascii Toast.-warning { border-left: ascii $ct-warning; }
+    App.-ascii Toast.-error { border-left: ascii $ct-error; }
     """
+
+    #: Below this many columns, notices go at the top (over the header lines) instead of over the ladder.
+    NARROW_WIDTH = 120
 
     def __init__(self, paths: Sequence[str | Path] = (), *, snapshots: Sequence[Snapshot] | None = None,
                  views: Sequence[SnapshotView] | None = None,
@@ -125,6 +137,9 @@ class ChainTriageApp(App[int]):
         self._given_views = list(views) if views is not None else None
         self._overrides = overrides
         self._column_map = column_map
+        #: Each file's own column mapping (None: our own layout), by real path: a mapping
+        #: belongs to the files it was given for.
+        self._file_maps: dict[str, ColumnMap | None] = {os.path.realpath(p): column_map for p in self._paths}
         self._pipeline_settings = pipeline_settings
         self._system_clipboard = system_clipboard
         clipboard.reset()  # copies allowed again (a previous app in this process may have stopped them)
@@ -154,6 +169,19 @@ class ChainTriageApp(App[int]):
         self.triage = TriageScreen(self.state, id="triage")
 
     # ------------------------------------------------------------ Textual hooks
+
+    def on_resize(self, event: Any) -> None:
+        self.set_class(event.size.width < self.NARROW_WIDTH, "-narrow")
+
+    def on_mount(self) -> None:
+        self.set_class(self.size.width < self.NARROW_WIDTH, "-narrow")
+        self._apply_ascii_drawing()
+
+    def _apply_ascii_drawing(self) -> None:
+        ascii_only = self.state.ascii_only
+        self.set_class(ascii_only, "-ascii")
+        use_ascii_drawing(ascii_only)
+        self.refresh(layout=True)
 
     def get_theme_variable_defaults(self) -> dict[str, str]:
         return {**super().get_theme_variable_defaults(), **css_variables(FALLBACK_THEME)}
@@ -194,6 +222,23 @@ class ChainTriageApp(App[int]):
         self.run_worker(lambda: self._load_job(list(paths), snapshots, initial, overrides),
                         thread=True, group="load", name="load", exit_on_error=False)
 
+    def _companions(self, snapshot: Snapshot) -> list[tuple[str, ColumnMap | None]]:
+        """Files (with their mappings) of a snapshot already shown at ``snapshot``'s underlying and instant."""
+        for view in list(self.state.views):
+            shown = view.snapshot
+            if (shown.underlying, shown.as_of) == (snapshot.underlying, snapshot.as_of) \
+                    and set(shown.sources) != set(snapshot.sources):
+                return [(p, self._file_maps.get(os.path.realpath(p))) for p in shown.sources]
+        return []
+
+    def _shown_file(self, path: str) -> int | None:
+        """The index of the snapshot that already holds file ``path`` (same real path), or None."""
+        real = os.path.realpath(path)
+        for i, view in enumerate(self.state.views):
+            if any(os.path.realpath(p) == real for p in view.snapshot.sources):
+                return i
+        return None
+
     def _load_job(self, paths: list[str], snapshots: Sequence[Snapshot] | None, initial: bool,
                   overrides: SnapshotOverrides | None) -> None:
         """Worker thread: the numerical modules, then ``snapshot_loading.load_views``, each view handed
@@ -211,18 +256,29 @@ class ChainTriageApp(App[int]):
         def on_replace(partial: SnapshotView, whole: SnapshotView) -> None:
             self.call_from_thread(self._replace_view, partial, whole)
 
+        maps = [self._file_maps.get(os.path.realpath(p)) for p in paths] if paths else None
         errors, added = snapshot_loading.load_views(
-            paths, snapshots=snapshots, overrides=overrides, column_map=self._column_map,
+            paths, snapshots=snapshots, overrides=overrides, column_map=self._column_map if not paths else None,
+            column_maps=maps, companions=None if initial else self._companions,
             pipeline_settings=self._pipeline_settings, confidence=lambda: self.state.confidence,
             on_busy=lambda text: self.call_from_thread(self.triage.set_busy, text), on_view=on_view,
             on_replace=on_replace)
         self.call_from_thread(self._load_done, errors, added, initial)
 
     def _add_view(self, view: SnapshotView, select: bool, drawn: threading.Event | None = None) -> None:
-        self.state.views.append(view)
-        if select or self.state.view_index < 0:
-            self.triage.show_view(len(self.state.views) - 1)
+        st = self.state
+        key = (view.snapshot.underlying, view.snapshot.as_of)
+        same = [i for i, v in enumerate(st.views) if (v.snapshot.underlying, v.snapshot.as_of) == key]
+        if same:  # merged with a snapshot already shown: it takes that one's place
+            index = same[0]
+            st.views[index] = view
+            st._findings_count.pop(index, None)
+            self.triage.show_view(index)
+        elif select or st.view_index < 0:
+            st.views.append(view)
+            self.triage.show_view(len(st.views) - 1)
         else:
+            st.views.append(view)
             self.triage.refresh_bars()
         if drawn is not None:
             self.call_after_refresh(drawn.set)
@@ -344,9 +400,7 @@ class ChainTriageApp(App[int]):
         grid = self.triage.grid
         contract = grid.highlighted_contract()
         if view is None or contract is None:
-            hl = grid.highlighted
-            what = f"no {hl[1]} at this strike" if hl else "no contract highlighted"
-            self.notify(f"nothing to copy: {what}", severity="warning", markup=False)
+            self.notify(f"nothing to copy: {self._no_contract_reason()}", severity="warning", markup=False)
             return
         index = view.expiry_index(self.state.current_expiry)
         info = view.info(index, self.state.confidence) if index is not None else None
@@ -354,6 +408,11 @@ class ChainTriageApp(App[int]):
                          ascii_only=self.state.ascii_only, spot=view.snapshot.spot,
                          forward=info.forward if info else None, days=info.calendar_days if info else None)
         self.copy_text(text)
+
+    def _no_contract_reason(self) -> str:
+        """Why no contract is highlighted (the same words for copy and mark)."""
+        hl = self.triage.grid.highlighted if self.state.view is not None else None
+        return f"no {hl[1]} quoted at this strike" if hl else "no contract highlighted (the ladder is empty)"
 
     def copy_entry(self, entry: ShortlistEntry) -> None:
         k = entry.key
@@ -368,7 +427,7 @@ class ChainTriageApp(App[int]):
         """
         self.copy_to_clipboard(text)
         if self._system_clipboard is None:
-            self.notify(text, title="sent to the terminal's clipboard", timeout=4, markup=False)
+            self.notify(self._copy_notice(text), title="sent to the terminal's clipboard", timeout=4, markup=False)
             return
 
         def done(outcome: clipboard.CopyOutcome) -> None:
@@ -379,11 +438,22 @@ class ChainTriageApp(App[int]):
 
         clipboard.copy_in_background(self._system_clipboard, text, done)
 
+    #: Characters of the copied text a notice shows below NARROW_WIDTH columns (about two lines there).
+    NARROW_COPY_NOTICE = 88
+
+    def _copy_notice(self, text: str) -> str:
+        """The copied text as its notice shows it: whole on a wide terminal, its start on a narrow one
+        (so the notice stays over the header lines, not over the ladder's figures)."""
+        if self.size.width >= self.NARROW_WIDTH or len(text) <= self.NARROW_COPY_NOTICE:
+            return text
+        return text[:self.NARROW_COPY_NOTICE - 1].rstrip() + ("~" if self.state.ascii_only else "…")
+
     def _copy_done(self, text: str, outcome: clipboard.CopyOutcome) -> None:
         if outcome.ok:
-            self.notify(text, title="copied to the clipboard", timeout=4, markup=False)
+            self.notify(self._copy_notice(text), title="copied to the clipboard", timeout=4, markup=False)
         else:
-            self.notify(f"{text}\n{outcome.summary()}; sent only to the terminal's clipboard (pasting works "
+            self.notify(f"{self._copy_notice(text)}\n{outcome.summary()}; sent only to the terminal's clipboard "
+                        "(pasting works "
                         "where the terminal allows programs to set it)", title="not copied by a clipboard tool",
                         severity="warning", timeout=8, markup=False)
 
@@ -398,8 +468,7 @@ class ChainTriageApp(App[int]):
         view = self.state.view
         contract = self.triage.grid.highlighted_contract()
         if view is None or contract is None:
-            self.notify("nothing to mark: no contract on this side at this strike", severity="warning",
-                        markup=False)
+            self.notify(f"nothing to mark: {self._no_contract_reason()}", severity="warning", markup=False)
             return
         key = ContractKey.of(view.snapshot.underlying, view.snapshot.as_of, contract["expiry"],
                              contract["strike"], contract["kind"])
@@ -413,9 +482,15 @@ class ChainTriageApp(App[int]):
     def action_open_shortlist(self) -> None:
         from chaintriage.tui.screens.shortlist import ShortlistScreen
 
-        self.push_screen(ShortlistScreen(self.state.shortlist, self.state.ascii_only,
+        st = self.state
+
+        def remember(row: int) -> None:
+            st.shortlist_row = row
+
+        self.push_screen(ShortlistScreen(st.shortlist, st.ascii_only,
                                          on_change=self.shortlist_changed, copy_entry=self.copy_entry,
-                                         go_to=self.go_to_contract))
+                                         go_to=self.go_to_contract, cursor=st.shortlist_row,
+                                         on_cursor=remember))
 
     def go_to_contract(self, key: ContractKey) -> bool:
         """Show a shortlisted contract in the ladder; False (with a notice) if its snapshot is gone."""
@@ -426,19 +501,29 @@ class ChainTriageApp(App[int]):
             return False
         index, pos = where
         st.expiry_positions[index] = pos
-        if st.strike_filter.active:
+        if st.strike_filter.active and not self._filter_passes(index, pos, key):
             st.clear_filter()
             self.notify("filter cleared to show the contract", timeout=2, markup=False)
-        self.triage.show_view(index)
+        self.triage.show_view(index, expiry=st.views[index].expiries[pos])
         self.triage.grid.cursor_to_strike(key.strike, key.kind)
         return True
+
+    def _filter_passes(self, index: int, pos: int, key: ContractKey) -> bool:
+        """True when the strike filter keeps ``key``'s strike in its expiry's ladder."""
+        view = self.state.views[index]
+        shown, _ = self.state.strike_filter.apply(view.frame(view.expiries[pos]))
+        try:
+            strikes = shown["strike"].to_numpy(dtype=float)
+        except (KeyError, TypeError, ValueError):
+            return False
+        return bool(len(strikes)) and bool((abs(strikes - key.strike) <= 1e-9 * max(1.0, abs(key.strike))).any())
 
     # ------------------------------------------------------------ actions: looks
 
     def action_choose_columns(self) -> None:
         from chaintriage.tui.screens.column_picker import ColumnPicker
 
-        self.push_screen(ColumnPicker(self.state.columns, self.set_columns))
+        self.push_screen(ColumnPicker(self.state.columns, self.set_columns, ascii_only=self.state.ascii_only))
 
     def set_columns(self, keys: Sequence[str]) -> None:
         keys = known_columns(keys)
@@ -456,6 +541,9 @@ class ChainTriageApp(App[int]):
         self.triage.update_layout()
         self.triage.refresh_bars()
         self._save_settings()
+        if self.state.plot_pref == PLOT_SHOWN and not self.triage.plot.display:
+            self.notify("the plot shows once the terminal is wide enough for it beside the quotes; "
+                        "v again hides it for good", timeout=4, markup=False)
 
     def action_next_theme(self) -> None:
         name = self.themes.next_name(self.state.theme.name)
@@ -470,6 +558,7 @@ class ChainTriageApp(App[int]):
 
     def action_toggle_ascii(self) -> None:
         self.state.ascii_only = not self.state.ascii_only
+        self._apply_ascii_drawing()
         self.triage.apply_ascii()
         self._save_settings()
         self.notify("plain ASCII drawing" if self.state.ascii_only else "Unicode drawing", timeout=2,
@@ -520,12 +609,32 @@ class ChainTriageApp(App[int]):
     def action_load_file(self) -> None:
         from chaintriage.tui.screens.path_prompt import PathPrompt
 
-        def done(path: str | None) -> None:
-            if path:
-                self._start_load([os.path.expanduser(path)])
+        def done(answer: tuple[str, str] | None) -> None:
+            if not answer or not answer[0]:
+                return
+            path = os.path.expanduser(answer[0])
+            mapping = os.path.expanduser(answer[1]) if answer[1] else ""
+            shown = self._shown_file(path)
+            if shown is not None:  # the same file again: no second copy (the command line merges it too)
+                self.notify(f"{os.path.basename(path)} is already open: showing it", timeout=3, markup=False)
+                self.triage.show_view(shown)
+                return
+            column_map = None
+            if mapping:
+                from chaintriage.core.loading import load_column_map
 
-        self.push_screen(PathPrompt("open a snapshot file", hint="CSV in the chaintriage layout, or as mapped "
-                                    "by --columns"), done)
+                try:
+                    column_map = load_column_map(mapping)
+                except ChainTriageError as exc:
+                    self.notify(str(exc), title="could not open", severity="error", timeout=10, markup=False)
+                    return
+            self._file_maps[os.path.realpath(path)] = column_map
+            self._start_load([path])
+
+        self.push_screen(PathPrompt("open a snapshot file",
+                                    hint="CSV or Parquet in chaintriage's layout; for other headers, a mapping "
+                                         "file (as --columns takes) for this file only",
+                                    second=("column mapping", "optional: MAP.toml")), done)
 
 
 def open_app(paths: Sequence[str | Path], *, overrides: SnapshotOverrides | None = None,

@@ -37,6 +37,7 @@ KEYS: tuple[KeyHelp, ...] = (
     KeyHelp(("down", "j"), "ladder", "cursor_down", "move the highlight down one row (next higher strike)"),
     KeyHelp(("pageup", "pagedown"), "ladder", "cursor_page_up / cursor_page_down", "move a screenful"),
     KeyHelp(("home", "end"), "ladder", "cursor_first / cursor_last", "lowest / highest strike"),
+    KeyHelp(("g",), "ladder", "cursor_forward", "back to the strike nearest the forward (at the money)"),
     KeyHelp(("left", "right"), "ladder", "select_side", "select the call side / the put side"),
     KeyHelp(("ctrl+pageup", "ctrl+pagedown"), "ladder", "page_left / page_right",
             "scroll sideways when the columns are wider than the pane"),
@@ -63,11 +64,14 @@ KEYS: tuple[KeyHelp, ...] = (
     KeyHelp(("y",), "screen", "show_terms",
             "vols by expiry: ATM, ex-event and forward vol, scheduled events and the move each is priced "
             "at (Enter opens an expiry)"),
-    KeyHelp(("l",), "screen", "load_file", "open another snapshot file (asks for its path)"),
+    KeyHelp(("l",), "screen", "load_file",
+            "open another snapshot file (asks for its path, and a mapping file for its headers if it needs "
+            "one); a file already open is shown, not loaded twice"),
     KeyHelp(("question_mark",), "screen", "show_help", "this help"),
     KeyHelp(("q",), "screen", "quit", "quit"),
     # The shortlist.
     KeyHelp(("up", "k", "down", "j"), "shortlist", "cursor_up / cursor_down", "move through the shortlist"),
+    KeyHelp(("home", "end"), "shortlist", "scroll_top / scroll_bottom", "first / last contract (findings too)"),
     KeyHelp(("enter",), "shortlist", "go_to", "show the contract in the ladder"),
     KeyHelp(("d", "delete"), "shortlist", "remove_entry", "take the contract off the shortlist"),
     KeyHelp(("w",), "shortlist", "export",

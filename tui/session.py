@@ -94,7 +94,29 @@ class StrikeFilter:
             oi = frame["open_interest"].to_numpy(dtype=float)
             with np.errstate(invalid="ignore"):
                 ok &= oi >= self.min_open_interest
+        if self.has_limits and self.side == "both":  # one side chosen: its contracts are the ones read
+            ok &= self.read_side(frame)
         return ok
+
+    @property
+    def has_limits(self) -> bool:
+        """True when a liquidity limit (spread, open interest) is set."""
+        return self.max_spread is not None or self.min_open_interest is not None
+
+    @staticmethod
+    def read_side(frame: pd.DataFrame) -> np.ndarray:
+        """Boolean per contract: is it on the side a trader reads at its strike, the out-of-the-money
+        one (calls above the forward, puts below)? A liquidity limit is tested on that side only:
+        the in-the-money contract at the same strike meeting it says nothing about the one traded."""
+        if "otm" in frame.columns:
+            try:
+                return frame["otm"].astype("boolean").fillna(False).to_numpy(dtype=bool)
+            except (TypeError, ValueError):
+                pass
+        z = frame["sigma_distance"].to_numpy(dtype=float)
+        is_call = (frame["kind"] == "call").to_numpy()
+        with np.errstate(invalid="ignore"):
+            return np.where(is_call, z > 0, z < 0)
 
     def apply(self, frame: pd.DataFrame) -> tuple[pd.DataFrame, int]:
         """(the contracts of the strikes that stay, how many strikes were hidden)."""
@@ -126,6 +148,9 @@ class StrikeFilter:
             parts.append(f"spread {le} {_num(100 * self.max_spread)}%")
         if self.min_open_interest is not None:
             parts.append(f"OI {ge} {fm.fmt_count(self.min_open_interest)}")
+        if self.has_limits:
+            parts.append("limits tested on the out-of-the-money side" if self.side == "both"
+                         else f"limits tested on the {self.side}")
         return " · ".join(parts) if not ascii_only else " / ".join(parts)
 
     @classmethod
@@ -436,6 +461,26 @@ class SnapshotView:
         if self._target_selector is None:
             self._target_selector = TargetSelector(self.annotated.contracts, self.annotated.expiries)
         return self._target_selector.select(target, shift)
+
+    def header_infos(self, current: ExpiryInfo) -> list[ExpiryInfo]:
+        """``current`` as every other expiry's header would read, without computing their ranges
+        (the ranges of ``current`` stand in): for sizing the header once for the whole snapshot."""
+        import dataclasses
+
+        out = []
+        for i, expiry in enumerate(self.expiries):
+            row = self.expiry_table.iloc[i]
+            res = self.annotated.results.get(expiry)
+            fit_method = str(row.get("fit_method") or "")
+            out.append(dataclasses.replace(
+                current, expiry=expiry, index=i,
+                trading_days=_int_or_none(row.get("trading_days")),
+                calendar_days=_int_or_none(row.get("calendar_days")),
+                forward=_float(row.get("forward")), forward_method=str(row.get("forward_method") or ""),
+                atm_iv=_float(row.get("atm_iv")), fit_rmse=_float(row.get("fit_rmse")), fit_method=fit_method,
+                arbitrage_free=bool(row.get("arbitrage_free")) if fit_method else None,
+                findings=tuple(res.findings) if res is not None else ()))
+        return out
 
     # --- findings
 

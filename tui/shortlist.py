@@ -12,8 +12,11 @@ OWASP ASVS 5.0 requirement 1.2.10 ("'=', '+', '-', '@', '\\t' (tab), and '\\0'
 (null character)) must be escaped with a single quote if they appear as the
 first character in a field value") [V]; carriage return added per the OWASP
 CSV Injection page [M]. NUL characters are dropped from text cells. Numbers
-are written as plain numbers (so "-1.48" stays a number); missing numbers as
-empty cells. Markdown cells have pipes escaped and line breaks removed, and their text
+are written as plain numbers with at most 10 significant digits, as
+``chaintriage table --format csv`` writes them (so "-1.48" stays a number,
+181.1 is not 181.10000000000002 and an open interest of 718 is "718"); missing
+numbers as empty cells. Lines end in CR LF (RFC 4180), which also makes the
+csv module quote a text cell holding a carriage return. Markdown cells have pipes escaped and line breaks removed, and their text
 cells get the same formula guard (a Markdown table pasted into a spreadsheet
 becomes cells too).
 """
@@ -213,9 +216,13 @@ def neutralise_formula(text: Any) -> str:
     return s
 
 
+#: printf format of numbers in the CSV export: the one ``table --format csv`` uses.
+CSV_NUMBER_FORMAT = "%.10g"
+
+
 def _csv_number(value: Any) -> str:
     x = fm.as_finite(value)
-    return "" if x is None else repr(float(x))
+    return "" if x is None else CSV_NUMBER_FORMAT % float(x)
 
 
 def markdown_figure(name: str, value: Any, ascii_only: bool = False) -> str:
@@ -250,6 +257,54 @@ def escape_markdown(text: Any) -> str:
     """A Markdown table cell: control characters removed, backslashes and pipes escaped."""
     s = fm.clean_text(text)
     return s.replace("\\", "\\\\").replace("|", "\\|")
+
+
+#: Where the export prompt proposes to write, in this order: the folder the app was started
+#: from (unless it is inside the installed package or not writable), ~/Documents, the home folder.
+EXPORT_NAME_FORMAT = "shortlist-%Y-%m-%d-%H%M.csv"
+
+
+def package_folders() -> list[Path]:
+    """The folders the installed chaintriage package lives in (never a place to write exports)."""
+    import importlib
+
+    folders = []
+    for name in ("chaintriage.core", "chaintriage.tui", "chaintriage.themes", "chaintriage.demo_chains"):
+        try:
+            module = importlib.import_module(name)
+        except ImportError:
+            continue
+        for where in getattr(module, "__path__", []):
+            folders.append(Path(where).resolve())
+    # A wheel installs every subpackage under one chaintriage/ folder: that one too.
+    parents = {f.parent for f in folders if f.parent.name == "chaintriage"}
+    return folders + sorted(parents)
+
+
+def _inside(path: Path, folders: Iterable[Path]) -> bool:
+    return any(path == f or f in path.parents for f in folders)
+
+
+def default_export_path(now: Any = None, cwd: str | os.PathLike[str] | None = None,
+                        home: str | os.PathLike[str] | None = None) -> Path:
+    """A dated file name for the shortlist export in a writable folder the user owns.
+
+    The name is ``shortlist-YYYY-MM-DD-HHMM.csv`` (local time ``now``); the folder is the one
+    the app was started from, unless that is inside the installed package (or site-packages)
+    or cannot be written, then ~/Documents when it exists, else the home folder.
+    """
+    import datetime
+
+    stamp = datetime.datetime.now() if now is None else now  # anything with strftime
+    name = stamp.strftime(EXPORT_NAME_FORMAT)
+    start = Path(os.getcwd() if cwd is None else cwd).resolve()
+    home_dir = Path(os.path.expanduser("~") if home is None else home)
+    unsuitable = _inside(start, package_folders()) or "site-packages" in start.parts \
+        or not os.access(start, os.W_OK)
+    if not unsuitable:
+        return start / name
+    documents = home_dir / "Documents"
+    return (documents if documents.is_dir() else home_dir) / name
 
 
 def shortlist_from(entries: Iterable[tuple[ContractKey, Mapping[str, Any] | None]]) -> Shortlist:

@@ -68,15 +68,17 @@ def demo_events() -> list:
 
 
 def load_for_app(paths: Sequence[str | Path], *, overrides: SnapshotOverrides | None = None,
-                 column_map: ColumnMap | None = None) -> LoadResult:
+                 column_map: ColumnMap | None = None,
+                 column_maps: Sequence[ColumnMap | None] | None = None) -> LoadResult:
     """Load the given files, or the bundled demo chains when ``paths`` is empty.
 
+    ``column_maps`` (one per path) gives each file its own mapping instead of ``column_map``.
     Raises ChainTriageError when there is nothing to load.
     """
     from chaintriage.core.loading import load_files
 
     if paths:
-        return load_files(paths, overrides=overrides, column_map=column_map)
+        return load_files(paths, overrides=overrides, column_map=column_map, column_maps=column_maps)
     names = demo_files()
     if not names:
         raise ChainTriageError(
@@ -132,13 +134,21 @@ def load_views(paths: Sequence[str], *, snapshots: Sequence[Snapshot] | None = N
                pipeline_settings: Any = None, confidence: Callable[[], float] | None = None,
                on_busy: Callable[[str], None] = lambda text: None,
                on_view: Callable[[SnapshotView, bool], None] = lambda view, first: None,
-               on_replace: Callable[[SnapshotView, SnapshotView], None] | None = None) -> tuple[list[str], int]:
+               on_replace: Callable[[SnapshotView, SnapshotView], None] | None = None,
+               column_maps: Sequence[ColumnMap | None] | None = None,
+               companions: Callable[[Snapshot], list[tuple[str, ColumnMap | None]]] | None = None,
+               ) -> tuple[list[str], int]:
     """The background job: read ``paths`` (the demo when empty; or take ``snapshots`` already read),
     annotate each snapshot and hand each view to ``on_view(view, first)`` as soon as it is ready.
 
     With ``on_replace``, a snapshot of more than FIRST_EXPIRY_FIRST_ABOVE contracts is handed
     over first as a view of its first expiry alone, then ``on_replace(partial, whole)`` swaps in
     the whole chain once it is annotated.
+
+    ``column_maps`` gives each path its own mapping. ``companions(snapshot)`` names the files
+    (and their mappings) of a snapshot already shown with the same underlying and instant: they
+    are read again together with the new file and merged, as the command line merges files
+    given together (a contract given twice is left out of the later file, with a finding).
 
     ``confidence()`` gives the range confidence to precompute at (asked each time: the user
     may change it meanwhile). ``on_busy`` says what is being done. ``on_view`` may block until the view is drawn: the
@@ -153,10 +163,13 @@ def load_views(paths: Sequence[str], *, snapshots: Sequence[Snapshot] | None = N
 
     try:
         if snapshots is None:
-            result = load_for_app(paths, overrides=overrides, column_map=column_map)
+            result = load_for_app(paths, overrides=overrides, column_map=column_map, column_maps=column_maps)
             snapshots = result.snapshots
             load_findings = result.findings
             errors.extend(str(e) for e in result.errors)
+            if companions is not None:
+                snapshots, load_findings = _merge_with_shown(snapshots, load_findings, result, companions,
+                                                             overrides, column_maps, paths)
         else:
             load_findings = []
         settings = pipeline_settings
@@ -195,3 +208,30 @@ def load_views(paths: Sequence[str], *, snapshots: Sequence[Snapshot] | None = N
     except Exception as exc:  # never a traceback on screen: say what failed and go on
         errors.append(f"could not load: {type(exc).__name__}: {exc}")
     return errors, added
+
+
+def _merge_with_shown(snapshots, load_findings, result, companions, overrides, column_maps, paths):
+    """Snapshots whose underlying and instant are already shown: read again with the files shown,
+    merged (see ``load_views``). Returns (snapshots, findings)."""
+    import os
+
+    from chaintriage.core.loading import load_files
+
+    maps_by_path = {os.path.realpath(p): (column_maps[i] if column_maps else None) for i, p in enumerate(paths)}
+    out, findings = [], list(load_findings)
+    for snap in snapshots:
+        earlier = companions(snap)
+        if not earlier:
+            out.append(snap)
+            continue
+        files = [p for p, _ in earlier] + list(snap.sources)
+        maps = [m for _, m in earlier] + [maps_by_path.get(os.path.realpath(p)) for p in snap.sources]
+        merged = load_files(files, overrides=overrides, column_maps=maps)
+        same = [m for m in merged.snapshots if (m.underlying, m.as_of) == (snap.underlying, snap.as_of)]
+        if not same:
+            out.append(snap)
+            continue
+        out.append(same[0])
+        findings = [f for f in findings if f.file not in snap.sources] + \
+            [f for f in merged.findings if f.file in same[0].sources or f.file is None]
+    return out, findings

@@ -40,8 +40,12 @@ class TriageState:
         self.file_errors: list[str] = []
         self._strike_filter: StrikeFilter | None = None
         self.shortlist = Shortlist()
+        #: The shortlist screen's cursor row, kept between openings.
+        self.shortlist_row = 0
         #: Ladder columns the terminal is too narrow for (still chosen, not drawn).
         self.left_out_columns: list[str] = []
+        #: True when the plot is wanted but its width went to the ladder's essential columns.
+        self.plot_squeezed = False
         #: What the background work is doing ("" when idle), and how many loads are running.
         self.busy = ""
         self.loads_running = 0
@@ -100,8 +104,9 @@ class TriageState:
     # ------------------------------------------------------------ moving around
 
     def choose_view(self, index: int, expiry: Any = None) -> bool | None:
-        """Make snapshot number ``index`` current: at ``expiry`` if given, else where it was left,
-        else at the expiry nearest the one shown now (same underlying at another time reads across).
+        """Make snapshot number ``index`` current: at ``expiry`` if given, else at the expiry date
+        nearest the one shown now, every time (paging snapshots reads one date across them),
+        else where that snapshot was left (its first expiry at first).
 
         Returns None when there is no such snapshot, else whether the underlying is the one
         shown before (strike levels of another underlying mean nothing in its ladder).
@@ -114,6 +119,8 @@ class TriageState:
         view = self.views[index]
         if expiry is not None:
             self.expiry_positions[index] = view.nearest_expiry_index(expiry)
+        elif before is not None:
+            self.expiry_positions[index] = view.nearest_expiry_index(before)
         elif index not in self.expiry_positions:
             self.expiry_positions[index] = view.nearest_expiry_index(before) if before is not None else 0
         return view.snapshot.underlying == before_underlying

@@ -240,7 +240,7 @@ def test_no_usable_row_keeps_the_findings(tmp_path):
         ({"ask": "-0.1", "bid": ""}, "ask", "negative price"),
         ({"bid": "x1"}, "bid", "bid 'x1' is not a number"),
         ({"bid": "", "ask": ""}, None, "no bid and no ask"),
-        ({"bid": "2.5", "ask": "2.4"}, None, "crossed market: bid 2.5 is above ask 2.4"),
+        ({"bid": "2.5", "ask": "2.4"}, None, "crossed market: bid 2.50 is above ask 2.40"),
         ({"bid": "0", "ask": "0"}, None, "both zero"),
         ({"bid": "0", "ask": ""}, "bid", "zero bid and no ask"),
         ({"spot": "-3"}, "spot", "spot '-3' is not positive"),
@@ -285,8 +285,8 @@ def test_put_spellings(tmp_path, spelling):
     [
         ("0", "0.05", "zero bid"),
         ("", "0.05", "no bid"),
-        ("0.40", "", "no ask (bid 0.4)"),
-        ("1.00", "2.00", "wide spread: bid 1, ask 2 (spread 67% of mid)"),
+        ("0.40", "", "no ask (bid 0.40)"),
+        ("1.00", "2.00", "wide spread: bid 1.00, ask 2.00 (spread 67% of mid)"),
     ],
 )
 def test_row_accepted_with_warning(tmp_path, bid, ask, words):

@@ -29,6 +29,8 @@ def expected_strikes(expiry, z=None, max_spread=None, min_oi=None) -> np.ndarray
         ok &= c["spread_pct"].to_numpy() <= max_spread
     if min_oi is not None:
         ok &= c["open_interest"].to_numpy() >= min_oi
+    if max_spread is not None or min_oi is not None:  # limits are tested on the out-of-the-money side
+        ok &= c["otm"].astype(bool).to_numpy()
     return np.unique(c["strike"].to_numpy()[ok])
 
 

@@ -43,7 +43,7 @@ def _num(text: str) -> float | None:
 
 
 def cells(side: str) -> list[str]:
-    return side.replace("●", " ").split()
+    return side.replace("●", " ").replace("▸", " ").replace("◂", " ").split()
 
 
 def contract(annotated, expiry: str, strike: float, kind: str) -> pd.Series:

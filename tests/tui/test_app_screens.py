@@ -63,7 +63,7 @@ def test_shortlist_screen_lists_removes_copies_and_goes_to():
         assert table.row_count == 2
         first = app.state.shortlist.entries[0]
         row = [c.plain for c in table.get_row_at(0)]
-        assert row[0] == "OSPX" and row[1] == first.key.expiry and row[3] == first.key.kind
+        assert row[0] == "OSPX" and row[1] == first.key.expiry and row[4] == first.key.kind  # underlying, expiry, days, strike, kind
         await pilot.press("c")
         assert app.clipboard.startswith(f"OSPX {fm.fmt_strike(first.key.strike)} {first.key.kind}, "
                                         f"expiry {first.key.expiry}")
@@ -100,7 +100,7 @@ def test_export_writes_csv_and_markdown_and_asks_before_replacing(tmp_path):
         key = app.state.shortlist.entries[0].key
         want = oracle[(oracle["expiry"] == pd.Timestamp(key.expiry)) & (oracle["strike"] == key.strike)
                       & (oracle["kind"] == key.kind)].iloc[0]
-        assert float(rows[0]["p_beyond"]) == want["p_beyond"]
+        assert abs(float(rows[0]["p_beyond"]) - want["p_beyond"]) <= 1e-9 * abs(want["p_beyond"])  # 10 digits
         assert any(str(target) in n for n in notes(app))
         before = target.read_bytes()
         # a second contract, then the same path: a question, and "no" keeps the file

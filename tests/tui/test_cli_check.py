@@ -95,7 +95,7 @@ def test_left_out_rows_exit_1_and_are_grouped_by_severity(tmp_path, capsys):
     assert lines[0] == f"{p}: 4 rows read, 2 accepted, 2 left out"
     assert lines[1] == "  left out (2)"
     assert lines[2] == "    line 3 [strike] QRTZ 2026-03-20: strike '-5' is not positive"
-    assert lines[3] == "    line 5 QRTZ 2026-03-20: crossed market: bid 3 is above ask 2"
+    assert lines[3] == "    line 5 QRTZ 2026-03-20: crossed market: bid 3.00 is above ask 2.00"
     assert lines[4] == "  warnings (1)"
     assert lines[5].startswith("    line 4 [bid]")
     assert lines[-1] == "1 file, 4 rows read, 2 accepted, 1 warnings, 2 left out"

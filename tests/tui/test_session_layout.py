@@ -48,7 +48,8 @@ def test_sigma_filter_keeps_strikes_out_of_the_money_by_z_on_either_side():
 def test_liquidity_limits_and_missing_values():
     f = fixture_frame()
     kept, _ = StrikeFilter(max_spread=0.10).apply(f)
-    assert set(kept["strike"]) == {90.0, 95.0, 100.0, 105.0, 110.0}  # every call is tight
+    # every call is tight, but a limit is tested on the out-of-the-money side only: the calls above F
+    assert set(kept["strike"]) == {105.0, 110.0}
     assert not StrikeFilter(max_spread=0.10, sigma=1.0).qualifies(f)[(f["kind"] == "put").to_numpy()].any()
     kept, _ = StrikeFilter(min_open_interest=100).apply(f)
     assert 110.0 not in set(kept["strike"])  # missing open interest fails a set limit
@@ -58,7 +59,8 @@ def test_filter_parsing_and_description():
     f = StrikeFilter.parse("1.5", "20%", "1,000")
     assert f == StrikeFilter(sigma=1.5, max_spread=0.20, min_open_interest=1000.0)
     assert StrikeFilter.parse("", "", "") == StrikeFilter() and not StrikeFilter().active
-    assert f.describe() == "1.5σ or more out of the money · spread ≤ 20% · OI ≥ 1,000"
+    assert f.describe() == ("1.5σ or more out of the money · spread ≤ 20% · OI ≥ 1,000"
+                            " · limits tested on the out-of-the-money side")
     assert f.describe(ascii_only=True).isascii()
     for bad in (("x", "", ""), ("-1", "", ""), ("", "nan", ""), ("inf", "", "")):
         with pytest.raises(ChainTriageError):
@@ -82,17 +84,23 @@ def test_width_plan_keeps_the_important_columns_and_the_plot_when_it_fits():
     full = ladder_width(cols, 8)
     assert full == 2 * (9 + 9 + 7 + 8 + 7 + 7) + 14
     shown, out = fit_columns(cols, 79, 8)
-    assert "sigma" in shown and "p_beyond" in shown and ladder_width(shown, 8) <= 79
+    assert shown == ["bid", "iv", "sigma", "p_beyond"] and ladder_width(shown, 8) <= 79  # one quote, the odds
+    assert {"bid", "ask", "sigma", "p_beyond"} <= set(fit_columns(cols, 95, 8)[0])  # both quotes once they fit
     assert shown == [c for c in cols if c in shown] and set(shown) | set(out) == set(cols)
-    assert fit_columns(cols, 10, 8)[0] == ["sigma"]  # always one column
+    assert fit_columns(cols, 10, 8)[0] == ["bid"]  # always one column: the quote first
     wide = plan_layout(200, cols, 8)
     assert wide.columns == cols and wide.plot_width == 200 - full - 1
     narrow = plan_layout(80, cols, 8)
     assert narrow.plot_width == 0 and narrow.left_out
-    assert plan_layout(80, cols, 8, PLOT_SHOWN).plot_width == MIN_PLOT
+    # The plot yields before the quotes: a remembered "shown" at 80 columns keeps the ladder whole.
+    assert plan_layout(80, cols, 8, PLOT_SHOWN).plot_width == 0
+    assert plan_layout(80, cols, 8, PLOT_SHOWN).plot_squeezed
     assert plan_layout(200, cols, 8, PLOT_HIDDEN).plot_width == 0
     mid = plan_layout(130, cols, 8)
-    assert mid.plot_width == MIN_PLOT and ladder_width(mid.columns, 8) + 1 <= 130 - MIN_PLOT
+    assert mid.plot_width == 0 and mid.columns == cols  # auto: every chosen column before the plot
+    shown = plan_layout(130, cols, 8, PLOT_SHOWN)
+    assert shown.plot_width == MIN_PLOT and ladder_width(shown.columns, 8) + 1 <= 130 - MIN_PLOT
+    assert {"bid", "ask", "sigma", "p_beyond"} <= set(shown.columns)
 
 
 def test_pieces_pack_into_lines_without_splitting_a_piece():
@@ -103,3 +111,12 @@ def test_pieces_pack_into_lines_without_splitting_a_piece():
     cut = pack_pieces([Text("x" * 50)], 10)
     assert len(cut) == 1 and cut[0].cell_len <= 10 and cut[0].plain.endswith("~")
     assert [t.plain for t in pack_pieces([], 10)] == [" "]
+
+
+def test_liquidity_limits_follow_the_side_read():
+    f = fixture_frame()
+    calls = StrikeFilter(max_spread=0.10, side="calls")
+    # calls chosen: every tight call counts, in the money or not
+    assert set(calls.apply(f)[0]["strike"]) == {90.0, 95.0, 100.0, 105.0, 110.0}
+    assert "limits tested on the calls" in calls.describe()
+    assert "out-of-the-money side" in StrikeFilter(max_spread=0.10).describe()

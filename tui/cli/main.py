@@ -56,6 +56,8 @@ COMMANDS: tuple[Command, ...] = (
             "chaintriage.tui.cli.targets"),
     Command("history", "realised vol by estimator and window, and the volatility cone, from daily prices",
             "chaintriage.tui.cli.history"),
+    Command("demo-path", "print the folder of the bundled demo snapshots (for trying the examples)",
+            "chaintriage.tui.cli.demo_path"),
 )
 
 
@@ -71,6 +73,7 @@ examples:
   chaintriage events chain.csv --events events.csv
   chaintriage targets chain.csv --side puts --sigma 1.5
   chaintriage history prices.csv --windows 21,63,252
+  chaintriage check "$(chaintriage demo-path)/messy_export.csv"
   chaintriage COMMAND --help
 
 Every figure is a model output from market quotes under stated assumptions;

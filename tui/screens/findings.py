@@ -14,6 +14,7 @@ from textual.widgets import DataTable, Footer, Static
 from chaintriage.core.findings import SEVERITIES, Finding
 from chaintriage.tui import formatting as fm
 from chaintriage.tui.screens.common import close, plain
+from chaintriage.tui.widgets.row_table import RowTable
 
 
 FINDING_COLUMNS = ("severity", "where", "column", "expiry", "reason")
@@ -53,9 +54,8 @@ class FindingsScreen(Screen):
 
     def compose(self) -> ComposeResult:
         n = len(self._findings)
-        head = Text(" findings for ", style="bold")
-        head.append(fm.clean_text(self._title))
-        head.append(f"  {n:,} finding{'s' if n != 1 else ''}", style="bold")
+        # One line at any width: the counts first, the snapshot's name last (cut with "~" if need be).
+        head = Text(f" {n:,} finding{'s' if n != 1 else ''}", style="bold", no_wrap=True, overflow="crop")
         counts = {sev: sum(1 for f in self._findings if f.severity == sev) for sev in SEVERITIES}
         words = ", ".join(f"{c} {sev}" for sev, c in counts.items() if c)
         if words:
@@ -63,12 +63,32 @@ class FindingsScreen(Screen):
         if self._errors:
             head.append(f"; {len(self._errors)} unusable file{'s' if len(self._errors) != 1 else ''}",
                         style="bold")
-        yield Static(head, classes="title")
-        yield DataTable(id="findings-table", cursor_type="row", zebra_stripes=True)
+        head.append("  for ")
+        head.append(fm.clean_text(self._title))
+        self._head = head
+        yield Static(head, classes="title", id="findings-title")
+        yield RowTable(id="findings-table")
         yield Static(Text(""), id="finding-detail")
         yield Footer(show_command_palette=False)
 
+    def on_resize(self) -> None:
+        self._fit_title()
+
+    def _fit_title(self) -> None:
+        """Cut the title to the screen's width with one "~" (no wrapping, no ellipsis character)."""
+        title = self.query_one("#findings-title", Static)
+        full = self._head
+        width = self.size.width or self.app.size.width
+        if full.cell_len > width:
+            cut = full.copy()
+            cut.truncate(max(1, width - 1), overflow="crop")
+            cut.append("~")
+            title.update(cut)
+        else:
+            title.update(full)
+
     def on_mount(self) -> None:
+        self._fit_title()
         table = self.query_one("#findings-table", DataTable)
         table.add_columns(*FINDING_COLUMNS)
         for message in self._errors:

@@ -32,7 +32,7 @@ from textual.widgets import Footer, LoadingIndicator, Static
 
 from chaintriage.tui import formatting as fm
 from chaintriage.tui.ladder_columns import COLUMNS
-from chaintriage.tui.layout import PLOT_HIDDEN, plan_layout
+from chaintriage.tui.layout import PLOT_HIDDEN, PLOT_SHOWN, plan_layout
 from chaintriage.tui.themes import ChainTheme
 from chaintriage.tui.triage_state import TriageState
 from chaintriage.tui.widgets.info_bars import BarStyles, InfoBar, expiry_pieces, filter_pieces, top_pieces
@@ -206,8 +206,9 @@ class TriageScreen(Screen):
             plot.styles.width = plan.plot_width
         if grid.columns != plan.columns:
             grid.set_columns(plan.columns)
-        if plan.left_out != st.left_out_columns:
+        if plan.left_out != st.left_out_columns or plan.plot_squeezed != st.plot_squeezed:
             st.left_out_columns = plan.left_out
+            st.plot_squeezed = plan.plot_squeezed
             self.refresh_bars()
         if plot.display and not was_shown:
             self.update_plot()
@@ -233,11 +234,15 @@ class TriageScreen(Screen):
                          busy=st.busy, st=styles, ascii_only=ascii_only)
         self.bar("topbar").set_pieces(top)
         info = view.info(st.expiry_pos, st.confidence) if view.expiries else None
-        self.bar("expirybar").set_pieces(expiry_pieces(info, st=styles, ascii_only=ascii_only))
+        reserve = expiry_pieces(info, st=styles, ascii_only=ascii_only, widest=view.header_infos(info)) \
+            if info is not None else []
+        self.bar("expirybar").set_pieces(expiry_pieces(info, st=styles, ascii_only=ascii_only), reserve=reserve)
         hidden_names = [COLUMNS[k].heading_ascii if ascii_only else COLUMNS[k].heading
                         for k in st.left_out_columns]
         plot_note = ""
-        if not self.plot.display and st.plot_pref != PLOT_HIDDEN:
+        if not self.plot.display and st.plot_pref == PLOT_SHOWN:
+            plot_note = "plot waits for a wider terminal (the quotes come first)"
+        elif not self.plot.display and st.plot_pref != PLOT_HIDDEN:
             plot_note = "plot hidden (v shows it)"
         self.bar("filterbar").set_pieces(filter_pieces(
             st.strike_filter, shown=len(self.grid.strikes), total=st.strike_total,

@@ -270,9 +270,12 @@ def draw_distribution(
             f_level = f_vals[c] / ymax * plot_rows
             if f_level >= 0.5:
                 jf = min(plot_rows - 1, int(math.floor(f_level)))
-                fg = Style(color=colors.flat, bgcolor=colors.beyond if beyond else colors.market, bold=True) \
-                    if jf <= top and not ascii_only else st_flat
-                grid[plot_rows - 1 - jf][c] = (g["flat"], fg)
+                # In ASCII there is no background colour to keep the bar under a dot: a dot inside
+                # the bar would read as a gap in it, so the bar cell stays and the dot is left out.
+                if not (ascii_only and jf <= top):
+                    fg = Style(color=colors.flat, bgcolor=colors.beyond if beyond else colors.market, bold=True) \
+                        if jf <= top else st_flat
+                    grid[plot_rows - 1 - jf][c] = (g["flat"], fg)
         line_char = None
         if strike_col is not None and c == strike_col:
             line_char = (g["strike_line"], st_strike)

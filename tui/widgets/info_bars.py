@@ -41,7 +41,7 @@ def pack_pieces(pieces: Sequence[Text], width: int, sep: str = SEP, indent: str 
     for piece in pieces:
         p = piece.copy()
         if p.cell_len > width - len(indent):
-            p.truncate(max(1, width - len(indent) - 1))
+            p.truncate(max(1, width - len(indent) - 1), overflow="crop")  # one marker: the "~"
             p.append("~")
         needed = p.cell_len + (len(sep) if has else 0)
         if has and line.cell_len + needed > width:
@@ -69,14 +69,19 @@ class InfoBar(Widget):
     def __init__(self, *, id: str | None = None, classes: str | None = None) -> None:
         super().__init__(id=id, classes=classes)
         self._pieces: list[Text] = []
+        self._reserve: list[Text] = []
         self._right: Text | None = None
 
-    def set_pieces(self, pieces: Sequence[Text]) -> None:
+    def set_pieces(self, pieces: Sequence[Text], reserve: Sequence[Text] = ()) -> None:
+        """Show ``pieces``; the bar is at least as tall as ``reserve`` would make it (a steady height)."""
         new = list(pieces)
+        res = list(reserve)
         if [p.plain for p in new] == [p.plain for p in self._pieces] and \
-                [p.spans for p in new] == [p.spans for p in self._pieces]:
+                [p.spans for p in new] == [p.spans for p in self._pieces] and \
+                [p.plain for p in res] == [p.plain for p in self._reserve]:
             return
         self._pieces = new
+        self._reserve = res
         self.refresh(layout=True)
 
     @property
@@ -88,7 +93,8 @@ class InfoBar(Widget):
         return pack_pieces(self._pieces, width)
 
     def get_content_height(self, container: Size, viewport: Size, width: int) -> int:
-        return len(self._lines(width))
+        reserved = len(pack_pieces(self._reserve, width)) if self._reserve else 0
+        return max(len(self._lines(width)), reserved)
 
     def render(self) -> Text:
         return Text("\n").join(self._lines(self.size.width))
@@ -164,12 +170,20 @@ def top_pieces(*, underlying: str, as_of_text: str, spot: float, index: int, cou
     return pieces
 
 
-def expiry_pieces(info: ExpiryInfo | None, *, st: BarStyles, ascii_only: bool = False) -> list[Text]:
-    """The expiry header: date and position, days left, forward, ATM IV, ranges, fit, findings."""
+def expiry_pieces(info: ExpiryInfo | None, *, st: BarStyles, ascii_only: bool = False,
+                  widest: Sequence[ExpiryInfo] | None = None) -> list[Text]:
+    """The expiry header: date and position, days left, forward, ATM IV, ranges, fit, findings.
+
+    With ``widest`` (the infos of every expiry of the snapshot, or a sample), the pieces are as
+    long as any of them makes each one: the header reserves that many lines so it keeps one
+    height while paging through the expiries.
+    """
     from chaintriage.tui.session import fmt_confidence
 
     if info is None:
         return [_piece(("no expiry to show", st.dim))]
+    if widest is not None:
+        return _widest_pieces(info, widest, st=st, ascii_only=ascii_only)
     ph = fm.placeholder(ascii_only)
     days_t = ph if info.trading_days is None else f"{info.trading_days}"
     days_c = ph if info.calendar_days is None else f"{info.calendar_days}"
@@ -211,6 +225,24 @@ def expiry_pieces(info: ExpiryInfo | None, *, st: BarStyles, ascii_only: bool = 
         pieces.append(_piece(("this expiry: ", st.dim), (", ".join(words), st.warning if (lo or wa) else st.text),
                              (" (e)", st.dim)))
     return pieces
+
+
+def _widest_pieces(info: ExpiryInfo, others: Sequence[ExpiryInfo], *, st: BarStyles,
+                   ascii_only: bool = False) -> list[Text]:
+    """Each piece of the expiry header at its longest over ``info`` and ``others`` (same order)."""
+    every = [expiry_pieces(i, st=st, ascii_only=ascii_only) for i in (info, *others)]
+    # Findings and fit pieces come and go: keep the slots by their first words.
+    slots: dict[str, Text] = {}
+    for pieces in every:
+        for p in pieces:
+            word = p.plain.split(" ")[0] if not p.plain.startswith("fwd") else "fwd"
+            if word.replace(".", "").isdigit() or word in ("—", "--", "-"):
+                word = "days"
+            if word.endswith("%") or "range" in p.plain[:16]:
+                word = "range"
+            if word not in slots or p.cell_len > slots[word].cell_len:
+                slots[word] = p
+    return list(slots.values())
 
 
 def filter_pieces(flt: StrikeFilter, *, shown: int, total: int, hidden_columns: Sequence[str] = (),

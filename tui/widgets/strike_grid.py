@@ -98,6 +98,7 @@ class StrikeGrid(ScrollView, can_focus=True):
         Binding("pagedown", "cursor_page_down", "page down", show=False),
         Binding("home", "cursor_first", "first strike", show=False),
         Binding("end", "cursor_last", "last strike", show=False),
+        Binding("g", "cursor_forward", "forward row", show=False),
         Binding("left", "select_side('call')", "call side", show=False),
         Binding("right", "select_side('put')", "put side", show=False),
     ]
@@ -485,6 +486,12 @@ class StrikeGrid(ScrollView, can_focus=True):
             text = text[1:] + " "  # cells then a trailing space, mirroring the call side
         return [Segment(text, style)]
 
+    def _pointer(self, side: str) -> str:
+        """The glyph beside the strike on the highlighted row's selected side."""
+        if self._ascii:
+            return ">" if side == CALL else "<"
+        return "▸" if side == CALL else "◂"
+
     def _mark_char(self, strike: float, side: str) -> str:
         if (strike, side) in self._marked:
             return "*" if self._ascii else "●"
@@ -507,15 +514,19 @@ class StrikeGrid(ScrollView, can_focus=True):
         mark_style = st.cursor_mark if state else st.mark
         rule_style = st.cursor if state else st.rule
         strike_text = fm.fmt_strike(strike, self._strike_decimals).center(self._strike_width)
+        # The highlighted row carries a pointer on its selected side, so it reads without colour
+        # (monochrome terminals, screen captures, colour-blind users).
+        call_pointer = self._pointer(CALL) if state == 1 else " "
+        put_pointer = self._pointer(PUT) if state == 2 else " "
         segments = self._side_segments(CALL, i, state)
         segments += [
-            Segment(" ", st.cursor if state else st.base),
+            Segment(call_pointer, st.cursor_mark if state else st.base),
             Segment(self._mark_char(strike, CALL), mark_style),
             Segment(bar, rule_style),
             Segment(strike_text, st.cursor_strike if state else st.strike),
             Segment(bar, rule_style),
             Segment(self._mark_char(strike, PUT), mark_style),
-            Segment(" ", st.cursor if state else st.base),
+            Segment(put_pointer, st.cursor_mark if state else st.base),
         ]
         segments += self._side_segments(PUT, i, state)
         strip = Strip(segments)
@@ -647,6 +658,13 @@ class StrikeGrid(ScrollView, can_focus=True):
 
     def action_cursor_last(self) -> None:
         self._move_to(len(self._strikes) - 1)
+
+    def action_cursor_forward(self) -> None:
+        """Back to the strike nearest the forward (the at-the-money row), centred."""
+        if not len(self._strikes) or not math.isfinite(self._forward):
+            return
+        self._move_to(int(np.argmin(np.abs(self._strikes - self._forward))))
+        self._scroll_cursor_into_view(center=True)
 
     def action_select_side(self, side: str) -> None:
         if side not in (CALL, PUT) or side == self._side:
