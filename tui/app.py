@@ -196,6 +196,8 @@ class ChainTriageApp(App[int]):
             self.notify(notice, title="settings and themes", severity="warning", markup=False)
         if self._given_views:
             await self.triage.mount_body()
+            for view in self._given_views:
+                view.set_events(self.events)
             self.state.views.extend(self._given_views)
             self.triage.show_view(0)
             return
@@ -266,6 +268,7 @@ class ChainTriageApp(App[int]):
         self.call_from_thread(self._load_done, errors, added, initial)
 
     def _add_view(self, view: SnapshotView, select: bool, drawn: threading.Event | None = None) -> None:
+        view.set_events(self.events)
         st = self.state
         key = (view.snapshot.underlying, view.snapshot.as_of)
         same = [i for i, v in enumerate(st.views) if (v.snapshot.underlying, v.snapshot.as_of) == key]
@@ -588,13 +591,12 @@ class ChainTriageApp(App[int]):
         return self._events
 
     def action_show_terms(self) -> None:
-        from chaintriage.core.term_structure import snapshot_term_structure
         from chaintriage.tui.screens.term_structure import TermStructureScreen
 
         view = self.state.view
         if view is None:
             return
-        ts = snapshot_term_structure(view.annotated, self.events)
+        ts = view.term_structure()
         days = view.annotated.expiries["trading_days"].tolist()
         index = self.state.view_index
 

@@ -146,7 +146,8 @@ AREAS: tuple[tuple[str, str], ...] = (
     ("top line", "the snapshot shown (underlying, snapshot time, spot), which of the loaded snapshots "
                  "it is, how many findings its data has, and the shortlist's size"),
     ("expiry lines", "the expiry and its place in the list; trading and calendar days left; the forward "
-                     "(from put-call parity); the at-the-money IV; the range at the chosen confidence, "
+                     "(from put-call parity); the at-the-money IV (and, when the expiry carries a scheduled event, "
+                     "the ex-event vol and the event's name after a diamond); the range at the chosen confidence, "
                      "plain F x exp(-ATM IV^2 x T/2 +/- z x ATM IV x sqrt(T)) (the central interval of the "
                      "one-vol lognormal) and from the smile's quantiles; the smile "
                      "fit's error in vol points (root mean square distance outside the bid-ask bands of "

@@ -283,6 +283,10 @@ class ExpiryInfo:
     fit_method: str
     arbitrage_free: bool | None
     findings: tuple[Finding, ...] = ()
+    #: Names of the scheduled events this expiry carries ("" when none) and the vol of its ordinary
+    #: days with their variance taken out (decimal; NaN without events).
+    events: str = ""
+    ex_event_vol: float = math.nan
 
     @property
     def sigma_sqrt_t(self) -> float:
@@ -333,6 +337,8 @@ class SnapshotView:
         self._ranges: dict[tuple[pd.Timestamp, float], tuple[tuple[float, float], tuple[float, float]]] = {}
         self._infos: dict[tuple[int, float], ExpiryInfo] = {}
         self._file_findings = list(file_findings)
+        self._events: list = []
+        self._term: Any = None
         self._target_selector: TargetSelector | None = None
 
     # --- labels
@@ -426,6 +432,34 @@ class SnapshotView:
         self._infos[key] = info = self._info(index, confidence)
         return info
 
+    # --- scheduled events
+
+    def set_events(self, events) -> None:
+        """Scheduled events (``core.events.Event``, any underlying): the header marks the expiries that carry one."""
+        self._events = list(events)
+        self._term = None
+        self._infos.clear()
+
+    def term_structure(self):
+        """core's term structure of this snapshot with its events (``core.term_structure.TermStructure``); cached."""
+        if self._term is None:
+            from chaintriage.core.term_structure import snapshot_term_structure
+
+            self._term = snapshot_term_structure(self.annotated, self._events)
+        return self._term
+
+    def _event_marks(self, index: int) -> tuple[str, float]:
+        """(names of the events expiry ``index`` carries, its ex-event vol); ("", NaN) without events."""
+        if not self._events:
+            return "", math.nan
+        table = self.term_structure().table
+        hit = table.index[pd.DatetimeIndex(table["expiry"]) == self.expiries[index]]
+        if not len(hit):
+            return "", math.nan
+        row = table.loc[hit[0]]
+        names = str(row["events"] or "")
+        return names, _float(row["ex_event_vol"]) if names else math.nan
+
     def _info(self, index: int, confidence: float) -> ExpiryInfo:
         row = self.expiry_table.iloc[index]
         expiry = self.expiries[index]
@@ -433,6 +467,7 @@ class SnapshotView:
         plain, smile_band = self.ranges(expiry, confidence)
         arb = row.get("arbitrage_free")
         fit_method = str(row.get("fit_method") or "")
+        events, ex_event_vol = self._event_marks(index)
         return ExpiryInfo(
             expiry=expiry, index=index, count=len(self.expiries),
             t_years=_float(row.get("t_years")),
@@ -447,6 +482,7 @@ class SnapshotView:
             fit_method=fit_method,
             arbitrage_free=bool(arb) if fit_method else None,
             findings=tuple(res.findings) if res is not None else (),
+            events=events, ex_event_vol=ex_event_vol,
         )
 
     # --- targets
@@ -479,7 +515,8 @@ class SnapshotView:
                 forward=_float(row.get("forward")), forward_method=str(row.get("forward_method") or ""),
                 atm_iv=_float(row.get("atm_iv")), fit_rmse=_float(row.get("fit_rmse")), fit_method=fit_method,
                 arbitrage_free=bool(row.get("arbitrage_free")) if fit_method else None,
-                findings=tuple(res.findings) if res is not None else ()))
+                findings=tuple(res.findings) if res is not None else (),
+                events=self._event_marks(i)[0]))
         return out
 
     # --- findings

@@ -61,3 +61,29 @@ def test_the_screen_shows_events_and_opens_the_chosen_expiry():
             assert app.state.current_expiry == pd.Timestamp(ts.table["expiry"].iloc[5])
 
     asyncio.run(main())
+
+
+def test_the_expiry_line_marks_expiries_that_carry_an_event():
+    views = demo_views()
+    event = Event("OSPX", dt.date(2027, 1, 12), AFTER_CLOSE, "quarterly results")
+    app = ChainTriageApp(views=views, system_clipboard=Clipboard(), events=[event])
+    ospx = next(v for v in views if v.snapshot.underlying == "OSPX")
+    table = snapshot_term_structure(ospx.annotated, [event]).table.set_index("expiry")
+
+    async def main() -> None:
+        async with app.run_test(size=(200, 50)) as pilot:
+            await wait_ready(app, pilot)
+            while app.state.view.snapshot.underlying != "OSPX":
+                await pilot.press("}")
+            await pilot.pause()
+            before = app.triage.bar("expirybar").plain
+            assert "carries" not in before and "ex-event" not in before  # the first expiry is before the event
+            while app.state.current_expiry != pd.Timestamp("2027-01-15"):
+                await pilot.press("]")
+            await pilot.pause()
+            line = app.triage.bar("expirybar").plain
+            assert "carries quarterly results" in line
+            ex = table.loc[pd.Timestamp("2027-01-15"), "ex_event_vol"]
+            assert f"ex-event {100 * ex:.1f}%" in line
+
+    asyncio.run(main())

@@ -196,11 +196,16 @@ def expiry_pieces(info: ExpiryInfo | None, *, st: BarStyles, ascii_only: bool = 
                (f"  {info.index + 1} of {info.count} ([ ])", st.dim)),
         _piece((days_t, st.text), (" trading / ", st.dim), (days_c, st.text), (" calendar days", st.dim)),
         _piece(*fwd),
-        _piece(("ATM IV ", st.dim), (fm.fmt_vol(info.atm_iv, ascii_only=ascii_only), st.text)),
+        _piece(("ATM IV ", st.dim), (fm.fmt_vol(info.atm_iv, ascii_only=ascii_only), st.text),
+               *((("  ex-event ", st.dim), (fm.fmt_vol(info.ex_event_vol, ascii_only=ascii_only), st.text))
+                 if info.events else ())),
         _piece((f"{fmt_confidence(info.confidence)} range ", st.dim),
                (_band(*info.range_plain, ascii_only), st.text),
                ("  smile ", st.dim), (_band(*info.range_smile, ascii_only), st.text), ("  (+/-)", st.dim)),
     ]
+    if info.events:
+        pieces.append(_piece(("* " if ascii_only else "◆ ", st.warning), ("carries ", st.dim),
+                             (fm.clean_text(info.events), st.warning), ("  (y)", st.dim)))
     if info.fit_method:
         rmse = fm.as_finite(info.fit_rmse)
         fit = [("fit ", st.dim), (f"{100 * rmse:.2f}" if rmse is not None else ph, st.text), (" vol pts", st.dim)]
