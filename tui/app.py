@@ -250,6 +250,7 @@ class ChainTriageApp(App[int]):
             self.call_from_thread(self.triage.mount_body)
 
         def on_view(view: SnapshotView, first: bool) -> None:
+            view.finding_groups()  # grouped here, off the screen's thread: the findings screen opens at once
             drawn = threading.Event()
             self.call_from_thread(self._add_view, view, first, drawn)
             # Let the screen draw before more model work competes with it for the interpreter.
@@ -580,7 +581,8 @@ class ChainTriageApp(App[int]):
         view = self.state.view
         if view is None:
             return
-        self.push_screen(FindingsScreen(view.label, view.findings(), self.state.file_errors))
+        self.push_screen(FindingsScreen(view.label, view.findings(), self.state.file_errors,
+                                        groups=view.finding_groups()))
 
     @property
     def events(self) -> list:

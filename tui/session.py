@@ -339,6 +339,9 @@ class SnapshotView:
         self._file_findings = list(file_findings)
         self._events: list = []
         self._term: Any = None
+        self._findings: Any = None
+        self._findings_key = -1
+        self._groups: Any = None
         self._target_selector: TargetSelector | None = None
 
     # --- labels
@@ -521,15 +524,32 @@ class SnapshotView:
 
     # --- findings
 
-    def findings(self) -> list[Finding]:
-        """The loader's findings about this snapshot, then the pipeline's, without repeats."""
-        seen: set[Finding] = set()
-        out: list[Finding] = []
-        for f in list(self.snapshot.findings) + self._file_findings + list(self.annotated.findings):
-            if f not in seen:
-                seen.add(f)
-                out.append(f)
-        return out
+    def findings(self):
+        """The loader's findings about this snapshot, then the pipeline's (a ``core.finding_table.FindingTable``).
+
+        The loader's come as a table (no object per finding); the few others are added once each.
+        """
+        from chaintriage.core.finding_table import FindingTable
+
+        key = len(self.annotated.findings)  # touch figures computed on demand add findings
+        if self._findings is None or self._findings_key != key:
+            self._findings_key = key
+            self._groups = None
+            seen: set[Finding] = set()
+            extra: list[Finding] = []
+            for f in list(self._file_findings) + list(self.annotated.findings):
+                if f not in seen:
+                    seen.add(f)
+                    extra.append(f)
+            self._findings = FindingTable.concat([FindingTable.of(self.snapshot.findings), extra])
+        return self._findings
+
+    def finding_groups(self):
+        """``findings()`` grouped per file, underlying, expiry, column and reason (``FindingGroup``); cached."""
+        table = self.findings()
+        if self._groups is None:
+            self._groups = table.groups()
+        return self._groups
 
 
 def file_findings_without_underlying(findings: Sequence[Finding], sources: Sequence[str]) -> list[Finding]:

@@ -153,9 +153,13 @@ def test_findings_screen_lists_the_snapshots_findings():
         screen = app.screen
         assert isinstance(screen, FindingsScreen)
         table = screen.query_one("#findings-table")
-        assert table.row_count == len(findings)
-        reasons = {table.get_row_at(i)[4].plain for i in range(table.row_count)}
-        assert {f.reason for f in findings} == reasons
+        # One row per group of like findings (per file, expiry, column and reason), with its count.
+        groups = view.finding_groups()
+        assert table.row_count == len(groups) < len(findings)
+        counts = [int(table.get_row_at(i)[1].plain.replace(",", "")) for i in range(table.row_count)]
+        assert sum(counts) == len(findings)
+        singles = {f.reason for g in groups if g.count == 1 for f in findings.take(g.rows)}
+        assert singles <= {table.get_row_at(i)[5].plain for i in range(table.row_count)}
         severities = {table.get_row_at(i)[0].plain for i in range(table.row_count)}
         assert severities <= {"left-out", "warning", "note"}
         await pilot.press("escape")
@@ -180,12 +184,12 @@ def test_findings_of_a_file_show_file_line_and_column(tmp_path):
         await pilot.press("e")
         table = app.screen.query_one("#findings-table")
         rows = [[c.plain for c in table.get_row_at(i)] for i in range(table.row_count)]
-        bad = [i for i, r in enumerate(rows) if r[1] == f"chain.csv:{len(lines)}"]
-        assert bad and rows[bad[0]][0] == "left-out" and rows[bad[0]][2] == "bid"
+        bad = [i for i, r in enumerate(rows) if r[2] == f"chain.csv line {len(lines)}"]
+        assert bad and rows[bad[0]][0] == "left-out" and rows[bad[0]][3] == "bid" and rows[bad[0]][1] == "1"
         table.move_cursor(row=bad[0])
         await pilot.pause()
         detail = str(app.screen.query_one("#finding-detail").render())
-        assert f"{p}:{len(lines)}" in detail and "left-out" in detail  # the full path in the detail pane
+        assert f"{p} line {len(lines)}" in detail and "left-out" in detail  # the full path in the detail pane
 
     run(app, scenario)
 
@@ -232,5 +236,35 @@ def test_column_picker_changes_the_ladder_and_remembers(config_home):
         await pilot.press("escape")
         assert app.screen is app.triage
         assert load_settings()[0].columns == app.state.columns
+
+    run(app, scenario)
+
+
+def test_findings_screen_draws_a_row_per_group_not_per_finding():
+    """200,000 zero-bid findings in two groups open as two rows; the detail pane expands a few."""
+    import numpy as np
+
+    from chaintriage.core.finding_table import FindingTable
+    from chaintriage.core.findings import Finding
+
+    n = 100_000
+    rows = [Finding("warning", "zero bid", file="big.csv", line=i + 2, column="bid", underlying="QRTZ",
+                    expiry="2027-01-15") for i in range(2)]
+    base = FindingTable.of(rows)
+    idx = np.zeros(2 * n, dtype=np.int64)
+    idx[n:] = 1
+    big = base.take(idx)
+    big.line = np.concatenate([np.arange(2, n + 2), np.arange(n + 10, 2 * n + 10)])
+    big.expiry = np.array(["2027-01-15"] * n + ["2027-02-19"] * n, dtype=object)
+    app = make_app()
+
+    async def scenario(pilot):
+        app.push_screen(FindingsScreen("big", big, ()))
+        await pilot.pause()
+        table = app.screen.query_one("#findings-table")
+        assert table.row_count == len(big.groups()) == 2
+        assert [table.get_row_at(i)[1].plain for i in range(2)] == ["100,000", "100,000"]
+        detail = str(app.screen.query_one("#finding-detail").render())
+        assert "lines 2-100001" in detail and "and 99,996 more" in detail
 
     run(app, scenario)

@@ -1,4 +1,11 @@
-"""The findings screen: what the loader and the pipeline said about the current snapshot's data."""
+"""The findings screen: what the loader and the pipeline said about the current snapshot's data,
+grouped per file, underlying, expiry, column and reason with a count and the runs of lines.
+
+A big file can give a million findings; the screen shows one row per group (the groups are
+computed once per snapshot, off the screen's thread, by ``SnapshotView.finding_groups``), and a
+finding is built as an object only when the detail pane shows it. Opening the screen costs a
+row per group, not per finding.
+"""
 
 from __future__ import annotations
 
@@ -11,55 +18,76 @@ from textual.binding import Binding
 from textual.screen import Screen
 from textual.widgets import DataTable, Footer, Static
 
+from chaintriage.core.finding_table import FindingGroup, FindingTable, ranges_text
 from chaintriage.core.findings import SEVERITIES, Finding
 from chaintriage.tui import formatting as fm
 from chaintriage.tui.screens.common import close, plain
 from chaintriage.tui.widgets.row_table import RowTable
 
-
-FINDING_COLUMNS = ("severity", "where", "column", "expiry", "reason")
-
-
-def finding_row(f: Finding) -> tuple[Text, ...]:
-    """One findings-table row: severity, file name:line, column, expiry, reason (plain text)."""
-    if f.file is not None:
-        name = os.path.basename(f.file) or f.file
-        where = name if f.line is None else f"{name}:{f.line}"
-    elif f.line is not None:
-        where = f"line {f.line}"
-    else:
-        where = ""
-    return (plain(f.severity), plain(where), plain(f.column or ""), plain(f.expiry or ""), plain(f.reason))
+FINDING_COLUMNS = ("severity", "count", "where", "column", "expiry", "reason")
+#: Runs of lines shown in the table's "where" cell (the detail pane shows more).
+RUNS_IN_TABLE = 3
+#: Runs of lines, and example findings, shown in the detail pane.
+RUNS_IN_DETAIL = 12
+EXAMPLES_IN_DETAIL = 4
 
 
-def finding_detail(f: Finding) -> Text:
-    """The whole finding for the pane under the table: full location, then the reason."""
-    out = Text(f"{f.severity}: ", style="bold")
-    out.append(fm.clean_text(f.location()) or "the whole snapshot")
+def _file_name(path: str | None) -> str:
+    return "" if path is None else (os.path.basename(path) or path)
+
+
+def group_row(group: FindingGroup, table: FindingTable) -> tuple[Text, ...]:
+    """One findings-table row: severity, count, file name and line runs, column, expiry, reason."""
+    where = " ".join(p for p in (_file_name(group.file), ranges_text(group.lines, limit=RUNS_IN_TABLE)) if p)
+    one = table.reason[int(group.rows[0])] if group.count == 1 else None
+    return (plain(group.severity), Text(f"{group.count:,}", justify="right"), plain(where),
+            plain(group.column or ""), plain(group.expiry or ""), plain(group.summary(one)))
+
+
+def group_detail(group: FindingGroup, table: FindingTable) -> Text:
+    """The whole group for the pane under the table: where, what, and a few of its findings."""
+    one = table.reason[int(group.rows[0])] if group.count == 1 else None
+    out = Text(f"{group.severity}: ", style="bold")
+    out.append(fm.clean_text(group.summary(one)))
     out.append("\n")
-    out.append(fm.clean_text(f.reason))
+    where = [p for p in (group.file, ranges_text(group.lines, limit=RUNS_IN_DETAIL),
+                         f"[{group.column}]" if group.column else "", group.underlying or "",
+                         group.expiry or "") if p]
+    out.append(fm.clean_text(" ".join(where)) or "the whole snapshot")
+    if group.count > 1:
+        for f in table.take(group.rows[:EXAMPLES_IN_DETAIL]):
+            out.append("\n  ")
+            out.append(fm.clean_text(f"line {f.line}: {f.reason}" if f.line else f.reason), style="dim")
+        if group.count > EXAMPLES_IN_DETAIL:
+            out.append(f"\n  ... and {group.count - EXAMPLES_IN_DETAIL:,} more", style="dim")
     return out
 
 
 class FindingsScreen(Screen):
-    """What the loader and the pipeline said about the current snapshot's data."""
+    """What the loader and the pipeline said about the current snapshot's data, grouped."""
 
     BINDINGS = [Binding("escape,q,e", "close", "close")]
 
-    def __init__(self, title: str, findings: Sequence[Finding], file_errors: Sequence[str] = ()) -> None:
+    def __init__(self, title: str, findings: Sequence[Finding] | FindingTable,
+                 file_errors: Sequence[str] = (), groups: Sequence[FindingGroup] | None = None) -> None:
+        """``groups`` are ``findings``' groups when already computed (else they are computed here)."""
         super().__init__()
         self._title = title
-        self._findings = list(findings)
+        self._findings = FindingTable.of(findings)
+        self._groups = list(groups) if groups is not None else self._findings.groups()
         self._errors = list(file_errors)
 
     def compose(self) -> ComposeResult:
         n = len(self._findings)
         # One line at any width: the counts first, the snapshot's name last (cut with "~" if need be).
         head = Text(f" {n:,} finding{'s' if n != 1 else ''}", style="bold", no_wrap=True, overflow="crop")
-        counts = {sev: sum(1 for f in self._findings if f.severity == sev) for sev in SEVERITIES}
-        words = ", ".join(f"{c} {sev}" for sev, c in counts.items() if c)
+        counts = self._findings.counts()
+        words = ", ".join(f"{counts[sev]:,} {sev}" for sev in SEVERITIES if counts.get(sev))
         if words:
             head.append(f" ({words})")
+        k = len(self._groups)
+        if k and k != n:
+            head.append(f" in {k:,} group{'s' if k != 1 else ''}")
         if self._errors:
             head.append(f"; {len(self._errors)} unusable file{'s' if len(self._errors) != 1 else ''}",
                         style="bold")
@@ -90,13 +118,16 @@ class FindingsScreen(Screen):
     def on_mount(self) -> None:
         self._fit_title()
         table = self.query_one("#findings-table", DataTable)
-        table.add_columns(*FINDING_COLUMNS)
+        table.add_column("severity")
+        table.add_column(Text("count", justify="right"))
+        for name in FINDING_COLUMNS[2:]:
+            table.add_column(name)
         for message in self._errors:
-            table.add_row(plain("unusable file"), plain(""), plain(""), plain(""), plain(message))
-        for f in self._findings:
-            table.add_row(*finding_row(f))
-        if not self._findings and not self._errors:
-            table.add_row(plain(""), plain(""), plain(""), plain(""), plain("nothing to report: every row was used"))
+            table.add_row(plain("unusable file"), Text(""), plain(""), plain(""), plain(""), plain(message))
+        table.add_rows(group_row(g, self._findings) for g in self._groups)
+        if not self._groups and not self._errors:
+            table.add_row(plain(""), Text(""), plain(""), plain(""), plain(""),
+                          plain("nothing to report: every row was used"))
         table.focus()
         self._show_detail(0)
 
@@ -108,8 +139,8 @@ class FindingsScreen(Screen):
         k = row - len(self._errors)
         if 0 <= row < len(self._errors):
             detail.update(Text("unusable file\n", style="bold") + plain(self._errors[row]))
-        elif 0 <= k < len(self._findings):
-            detail.update(finding_detail(self._findings[k]))
+        elif 0 <= k < len(self._groups):
+            detail.update(group_detail(self._groups[k], self._findings))
         else:
             detail.update(Text(""))
 
