@@ -100,7 +100,9 @@ class Driver:
         if r < 0.047:  # open something that is not a usable chain, or the files this run wrote
             return ("open", self.rng.choice(OPEN_ATTEMPTS), 0)
         if r < 0.08:  # walks that reach the deeper states: export (twice: the replace question), marks
+            # (the export name carries the minute, so a walk that exports twice reaches the question itself)
             return self.rng.choice([["m", "s", "w", "enter"], ["s", "w", "enter", "y"], ["m", "down", "m"],
+                                    ["m", "s", "w", "enter", "w", "enter", "n"],
                                     ["f", "1", "enter"], ["e", "down", "down"], ["o", "space", "down", "enter"]])
         if r < 0.50:
             return [self.rng.choice(self.binding_pool)]
