@@ -1,8 +1,8 @@
 """Plain-ASCII drawing of Textual's own parts: scroll bars and the column list's check boxes.
 
 Textual draws scroll bars with block characters and check boxes with half blocks; in ASCII
-mode (``a``) the app switches both to ASCII: a scroll bar's thumb is a column of "#" on its
-track, a check box is "[X]". Textual reads these from class attributes, so the switch is
+mode (``a``) the app switches both to ASCII: a scroll bar's handle is a column of "#" on a
+blank run, a check box is "[X]". Textual reads these from class attributes, so the switch is
 process-wide (one app per process).
 """
 
@@ -17,7 +17,7 @@ _UNICODE_RENDERER = ScrollBar.renderer
 
 
 class AsciiScrollBarRender(ScrollBarRender):
-    """A scroll bar of ASCII characters: "#" for the thumb (reverse video too), blank track."""
+    """A scroll bar drawn in ASCII: the handle is a column of "#" (still in inverse colours), the rest blank."""
 
     VERTICAL_BARS = [" "] * 8
     HORIZONTAL_BARS = [" "] * 8
