@@ -113,9 +113,16 @@ def run_events(args: argparse.Namespace) -> int:
         } for est in ts.events]
         frames.append(with_as_of(pd.DataFrame(rows, columns=EVENT_COLUMNS), a, args.format))
     write_out(render(pd.concat(frames, ignore_index=True), args.format))
+    return report_with_events(args, result, annotated, extra, left_out)
+
+
+def report_with_events(args: argparse.Namespace, result, annotated: list, term_findings: list,
+                       events_left_out: bool) -> int:
+    """Findings on stderr (the term structure's after the rest) and the exit status, 1 at least when
+    the events files had rows left out."""
     report_findings(args, result, [a.findings for a in annotated])
     if not args.quiet:
-        for f in extra:
+        for f in term_findings:
             print(one_line(str(f)), file=sys.stderr)
     status = annotated_status(result, [a.findings for a in annotated])
-    return max(status, 1) if left_out else status
+    return max(status, 1) if events_left_out else status

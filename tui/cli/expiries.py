@@ -3,22 +3,19 @@
 from __future__ import annotations
 
 import argparse
-import sys
 
 import pandas as pd
 
 from chaintriage.core.term_structure import snapshot_term_structure
 from chaintriage.tui.cli.annotated_tables import (
-    annotated_status,
     COMMON_NOTES,
     add_table_options,
     load_and_annotate,
     nothing_usable,
-    report_findings,
     with_as_of,
 )
-from chaintriage.tui.cli.common import EXIT_UNUSABLE, error, one_line, write_out
-from chaintriage.tui.cli.events import add_event_options, gather_events
+from chaintriage.tui.cli.common import EXIT_UNUSABLE, error, write_out
+from chaintriage.tui.cli.events import add_event_options, gather_events, report_with_events
 from chaintriage.tui.cli.history import (
     HISTORY_EXPIRY_COLUMNS,
     add_history_options,
@@ -117,10 +114,5 @@ def run_expiries(args: argparse.Namespace) -> int:
             frames.append(frame)
         frame = pd.concat(frames, ignore_index=True)
     write_out(render(frame, args.format))
-    report_findings(args, result, [a.findings for a in annotated])
-    if not args.quiet:
-        for f in extra:
-            print(one_line(str(f)), file=sys.stderr)
-    status = annotated_status(result, [a.findings for a in annotated])
-    status = max(status, 1) if left_out else status
+    status = report_with_events(args, result, annotated, extra, left_out)
     return finish_with_history(args, loads, hist_extra, status)
