@@ -244,17 +244,25 @@ def fmt_count(value: Any, width: int | None = None, ascii_only: bool = False) ->
     return fit(f"{round(x):,d}", width)
 
 
-def fmt_timestamp(value: Any, ascii_only: bool = False) -> str:
-    """A snapshot time as "2026-12-01 14:30 -05:00" (offset kept when the time has one)."""
+def _as_timestamp(value: Any):
+    """A pandas Timestamp, or None for a missing or unreadable value."""
     import pandas as pd
 
     if value is None:
-        return placeholder(ascii_only)
+        return None
     try:
         ts = pd.Timestamp(value)
     except (TypeError, ValueError):
-        return placeholder(ascii_only)
+        return None
     if ts is pd.NaT or pd.isna(ts):
+        return None
+    return ts
+
+
+def fmt_timestamp(value: Any, ascii_only: bool = False) -> str:
+    """A snapshot time as "2026-12-01 14:30 -05:00" (offset kept when the time has one)."""
+    ts = _as_timestamp(value)
+    if ts is None:
         return placeholder(ascii_only)
     text = ts.strftime("%Y-%m-%d %H:%M")
     if ts.tzinfo is not None:
@@ -266,15 +274,8 @@ def fmt_timestamp(value: Any, ascii_only: bool = False) -> str:
 
 def fmt_date(value: Any, ascii_only: bool = False) -> str:
     """An expiry as "2027-01-15"."""
-    import pandas as pd
-
-    if value is None:
-        return placeholder(ascii_only)
-    try:
-        ts = pd.Timestamp(value)
-    except (TypeError, ValueError):
-        return placeholder(ascii_only)
-    if ts is pd.NaT or pd.isna(ts):
+    ts = _as_timestamp(value)
+    if ts is None:
         return placeholder(ascii_only)
     return ts.strftime("%Y-%m-%d")
 

@@ -60,3 +60,34 @@ def build_snapshot(
                 line += 1
     frame = pd.DataFrame(rows, columns=list(CONTRACT_COLUMNS))
     return Snapshot(underlying=underlying, as_of=AS_OF, spot=spot, contracts=frame, sources=("model.csv",))
+
+
+def write_flat_chain_csv(
+    path,
+    expiries: list[str],
+    strike_step: float,
+    *,
+    vol: float,
+    spot: float,
+    half_spread: float = 0.005,
+    underlying: str = "FLTX",
+):
+    """Write a one-vol chain (strikes 30-75, forward growth 3%, discounting 4%, ACT/365) as a snapshot CSV.
+
+    Returns (path, year fractions, forwards) so tests can rebuild the exact model values.
+    """
+    ts = year_fractions(expiries, basis="365")
+    fwd = spot * np.exp(0.03 * ts)
+    dfs = np.exp(-0.04 * ts)
+    strikes = [np.arange(30.0, 75.1, strike_step)] * len(expiries)
+    snap = build_snapshot(
+        expiries, strikes,
+        lambda i, k: ql_black(fwd[i], k, vol, ts[i], dfs[i], True),
+        lambda i, k: ql_black(fwd[i], k, vol, ts[i], dfs[i], False), spot=spot, half_spread=half_spread)
+    frame = snap.contracts.drop(columns=["source_file", "source_line", "iv", "iv_basis"])
+    frame.insert(0, "underlying", underlying)
+    frame.insert(1, "as_of", AS_OF.isoformat())
+    frame.insert(2, "spot", spot)
+    frame["expiry"] = frame["expiry"].dt.strftime("%Y-%m-%d")
+    frame.to_csv(path, index=False, float_format="%.12g")
+    return path, ts, fwd

@@ -22,7 +22,7 @@ from scipy.stats import lognorm
 
 from chaintriage.tui.cli import main as cli
 from chaintriage.tui.cli.targets import TARGETS_COLUMNS
-from tests.core.chain_builders import AS_OF, build_snapshot, ql_black, year_fractions
+from tests.core.chain_builders import write_flat_chain_csv
 
 VOL = 0.3
 SPOT = 50.0
@@ -32,22 +32,8 @@ DEMO = Path(__file__).resolve().parents[2] / "demo_chains"
 
 @pytest.fixture(scope="module")
 def chain_csv(tmp_path_factory):
-    ts = year_fractions(EXPIRIES, basis="365")
-    fwd = SPOT * np.exp(0.03 * ts)
-    dfs = np.exp(-0.04 * ts)
-    strikes = [np.arange(30.0, 75.1, 0.5)] * len(EXPIRIES)
-    snap = build_snapshot(
-        EXPIRIES, strikes,
-        lambda i, k: ql_black(fwd[i], k, VOL, ts[i], dfs[i], True),
-        lambda i, k: ql_black(fwd[i], k, VOL, ts[i], dfs[i], False), spot=SPOT, half_spread=0.01)
-    frame = snap.contracts.drop(columns=["source_file", "source_line", "iv", "iv_basis"])
-    frame.insert(0, "underlying", "FLTX")
-    frame.insert(1, "as_of", AS_OF.isoformat())
-    frame.insert(2, "spot", SPOT)
-    frame["expiry"] = frame["expiry"].dt.strftime("%Y-%m-%d")
     path = tmp_path_factory.mktemp("chain") / "fltx.csv"
-    frame.to_csv(path, index=False, float_format="%.12g")
-    return path, ts, fwd
+    return write_flat_chain_csv(path, EXPIRIES, 0.5, vol=VOL, spot=SPOT, half_spread=0.01)
 
 
 def run(capsys, *argv):
