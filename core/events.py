@@ -23,7 +23,7 @@ import numpy as np
 import pandas as pd
 
 from .exchange_calendar import TZ
-from .findings import WARNING, ChainTriageError, Finding
+from .findings import NOTE, WARNING, ChainTriageError, Finding
 
 AFTER_CLOSE = "after_close"
 BEFORE_OPEN = "before_open"
@@ -141,5 +141,16 @@ def carried(events, settlement: pd.DatetimeIndex) -> np.ndarray:
 
 def past_event_finding(event: Event) -> Finding:
     """The finding for an event that lies before the snapshot time."""
-    return Finding(WARNING, f"{event.name} on {event.date:%Y-%m-%d} ({event.timing_text}) is before the "
-                   "snapshot time; not used", file=event.source or None, underlying=event.underlying)
+    return past_events_finding([event])
+
+
+def past_events_finding(events) -> Finding:
+    """One note for the events that lie before the snapshot time (an events file may list past
+    releases on purpose: with a price history they give the underlying's past moves)."""
+    events = list(events)
+    shown = "; ".join(f"{e.name} on {e.date:%Y-%m-%d} ({e.timing_text})" for e in events[-4:])
+    more = f" and {len(events) - 4} earlier" if len(events) > 4 else ""
+    first = events[0]
+    return Finding(NOTE, f"{shown}{more}: before the snapshot time; not used for the term structure "
+                   "(with a price history they give the past moves)",
+                   file=first.source or None, underlying=first.underlying)

@@ -32,7 +32,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-from .events import BEFORE_OPEN, Event, carried, events_for, past_event_finding
+from .events import BEFORE_OPEN, Event, carried, events_for, past_events_finding
 from .exchange_calendar import TZ, ExchangeCalendar, default_calendar
 from .findings import NOTE, WARNING, Finding
 from .time_to_expiry import year_fraction
@@ -170,12 +170,10 @@ def term_structure(
     # Events: drop the past ones, group those no expiry separates.
     mine = events_for(events, underlying) if underlying else sorted(events, key=lambda e: e.instant())
     as_of_ny = pd.Timestamp(as_of).tz_convert(TZ)
-    live = []
-    for e in mine:
-        if e.instant() <= as_of_ny:
-            findings.append(past_event_finding(e))
-        else:
-            live.append(e)
+    live = [e for e in mine if e.instant() > as_of_ny]
+    past = [e for e in mine if e.instant() <= as_of_ny]
+    if past:
+        findings.append(past_events_finding(past))
     carry = carried(live, settlement)  # [expiry, event]
     groups: list[list[int]] = []
     for j in range(len(live)):

@@ -13,7 +13,9 @@ writes, by default into this package folder:
   expiry).
 - ``messy_export.csv``: a small export of a third invented name, Mirewood
   Cold Storage (MWCS), carrying typical export problems for trying ``check``.
-- ``demo_events.csv``: the events file with OSPX's fictional earnings date.
+- ``demo_events.csv``: the events file with OSPX's fictional earnings date and
+  its past releases (every 13 weeks back to ``PAST_EVENTS_FROM``, the first day
+  of the demo price histories; they serve the past-move comparison).
 
 All three companies, their names and their tickers are invented.
 
@@ -521,12 +523,30 @@ def messy_text() -> str:
 EVENTS_FILE = "demo_events.csv"
 
 
+#: The first day of the demo price histories: past releases are listed from here on.
+PAST_EVENTS_FROM = dt.date(2022, 12, 1)
+
+
+def past_releases(u: Underlying) -> list[dt.date]:
+    """The past releases of an underlying with earnings: every 13 weeks back, oldest first."""
+    if u.earnings is None:
+        return []
+    out = []
+    k = 1
+    while (d := u.earnings.date() - dt.timedelta(days=91 * k)) >= PAST_EVENTS_FROM:
+        out.append(d)
+        k += 1
+    return out[::-1]
+
+
 def events_text() -> str:
-    """The events file: one row per underlying with an earnings date (after the close)."""
+    """The events file: per underlying with earnings, its past releases then the coming one."""
     lines = ["underlying,date,timing,label"]
     for u in UNDERLYINGS:
         if u.earnings is not None:
             timing = "after_close" if u.earnings.hour >= 16 else "before_open"
+            for d in past_releases(u):
+                lines.append(f"{u.ticker},{d:%Y-%m-%d},{timing},quarterly results")
             lines.append(f"{u.ticker},{u.earnings:%Y-%m-%d},{timing},quarterly results")
     return "\n".join(lines) + "\n"
 

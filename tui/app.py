@@ -128,8 +128,14 @@ class ChainTriageApp(App[int]):
                  overrides: SnapshotOverrides | None = None, column_map: ColumnMap | None = None,
                  pipeline_settings: Any = None,
                  system_clipboard: Callable[[str], object] | None = copy_to_system_clipboard,
-                 events: Sequence[Any] | None = None) -> None:
+                 events: Sequence[Any] | None = None, histories: Sequence[str] | None = None,
+                 history_column_map: Any = None) -> None:
         super().__init__()
+        #: Daily price history files (None: the demo's when the demo is shown, else none), their mapping,
+        #: and what reading them gave (read once, in the first loading job).
+        self._history_paths = list(histories) if histories is not None else None
+        self._history_column_map = history_column_map
+        self._history_loads: Any = None
         #: Scheduled events (core.events.Event) of every underlying; None: the demo's when showing the demo.
         self._events = list(events) if events is not None else None
         self._paths = [str(p) for p in paths]
@@ -249,7 +255,10 @@ class ChainTriageApp(App[int]):
             snapshot_loading.import_numerical_modules()
             self.call_from_thread(self.triage.mount_body)
 
+        shown: list[SnapshotView] = []
+
         def on_view(view: SnapshotView, first: bool) -> None:
+            shown.append(view)
             view.finding_groups()  # grouped here, off the screen's thread: the findings screen opens at once
             drawn = threading.Event()
             self.call_from_thread(self._add_view, view, first, drawn)
@@ -257,6 +266,7 @@ class ChainTriageApp(App[int]):
             drawn.wait(2.0)
 
         def on_replace(partial: SnapshotView, whole: SnapshotView) -> None:
+            shown[:] = [whole if v is partial else v for v in shown]
             self.call_from_thread(self._replace_view, partial, whole)
 
         maps = [self._file_maps.get(os.path.realpath(p)) for p in paths] if paths else None
@@ -266,7 +276,41 @@ class ChainTriageApp(App[int]):
             pipeline_settings=self._pipeline_settings, confidence=lambda: self.state.confidence,
             on_busy=lambda text: self.call_from_thread(self.triage.set_busy, text), on_view=on_view,
             on_replace=on_replace)
+        errors += self._history_job(shown)
         self.call_from_thread(self._load_done, errors, added, initial)
+
+    def _history_paths_in_use(self) -> list[str] | None:
+        """History files to read: those given, else the demo's when the demo is shown (None), else none ([])."""
+        if self._history_paths is not None:
+            return self._history_paths
+        demo = not self._paths and self._given_snapshots is None and self._given_views is None
+        return None if demo else []
+
+    def _history_job(self, views: list[SnapshotView]) -> list[str]:
+        """Worker thread: the price histories' figures for ``views`` (after the views are shown)."""
+        from chaintriage.tui import history_view
+
+        paths = self._history_paths_in_use()
+        if paths == [] or not views:
+            return []
+
+        def on_history(view: SnapshotView, vh: Any, findings: list) -> None:
+            self.call_from_thread(self._set_history, view, vh, findings)
+
+        errors, self._history_loads = history_view.attach_histories(
+            views, paths, self.events, column_map=self._history_column_map, loads=self._history_loads,
+            on_busy=lambda text: self.call_from_thread(self.triage.set_busy, text), on_history=on_history)
+        return errors
+
+    def _set_history(self, view: SnapshotView, vh: Any, findings: list) -> None:
+        view.set_history(vh, findings)
+        st = self.state
+        for i, v in enumerate(st.views):
+            if v is view:
+                st._findings_count.pop(i, None)
+                if i == st.view_index:
+                    self.triage.show_expiry()
+        self.triage.refresh_bars()
 
     def _add_view(self, view: SnapshotView, select: bool, drawn: threading.Event | None = None) -> None:
         view.set_events(self.events)
@@ -642,7 +686,8 @@ class ChainTriageApp(App[int]):
 
 
 def open_app(paths: Sequence[str | Path], *, overrides: SnapshotOverrides | None = None,
-             column_map: ColumnMap | None = None, settings=None, events: Sequence[Any] | None = None) -> int:
+             column_map: ColumnMap | None = None, settings=None, events: Sequence[Any] | None = None,
+             histories: Sequence[str] | None = None, history_column_map: Any = None) -> int:
     """Run the app on snapshot files (the demo chains when ``paths`` is empty). Returns an exit status.
 
     Files that do not exist are reported at once; loading runs inside the app.
@@ -660,7 +705,7 @@ def open_app(paths: Sequence[str | Path], *, overrides: SnapshotOverrides | None
         error("nothing to show: no file gave a usable snapshot")
         return EXIT_NOTHING
     app = ChainTriageApp(usable, overrides=overrides, column_map=column_map, pipeline_settings=settings,
-                         events=events)
+                         events=events, histories=histories, history_column_map=history_column_map)
     app.run()
     for message in app.exit_messages:
         error(message)

@@ -287,6 +287,13 @@ class ExpiryInfo:
     #: days with their variance taken out (decimal; NaN without events).
     events: str = ""
     ex_event_vol: float = math.nan
+    #: With a price history: the realised-vol window matched to the expiry (trading days), the
+    #: realised vol over it (decimal) and ATM IV / that vol; None / NaN without one.
+    hist_window: int | None = None
+    hist_vol: float = math.nan
+    iv_rv: float = math.nan
+    #: True when the ranges are on the ex-event vol (the ``n`` toggle) for an expiry that carries events.
+    ex_event_ranges: bool = False
 
     @property
     def sigma_sqrt_t(self) -> float:
@@ -343,6 +350,8 @@ class SnapshotView:
         self._findings_key = -1
         self._groups: Any = None
         self._target_selector: TargetSelector | None = None
+        #: The price history's figures (``history_view.ViewHistory``), once the loading job has them.
+        self.history: Any = None
 
     # --- labels
 
@@ -373,8 +382,35 @@ class SnapshotView:
             out = contracts.iloc[lo:hi]
         else:
             out = contracts[contracts["expiry"] == expiry]
+        if self.history is not None:
+            out = self._with_history_columns(out)
         self._frames[expiry] = out
         return out
+
+    #: Per-contract history columns the ladder can show (``core.history_compare.HISTORY_CONTRACT_COLUMNS``).
+    HISTORY_FIELDS = ("hist_p_beyond", "hist_p_touch", "boot_p_beyond", "boot_p_beyond_se")
+
+    def _with_history_columns(self, frame: pd.DataFrame) -> pd.DataFrame:
+        """``frame`` with the history columns (same rows: core's comparison keeps the contracts' index)."""
+        hist = self.history.comparison.contracts
+        try:
+            part = hist.loc[frame.index, list(self.HISTORY_FIELDS)]
+        except KeyError:
+            return frame
+        out = frame.copy()
+        for c in self.HISTORY_FIELDS:
+            out[c] = part[c].to_numpy()
+        return out
+
+    def set_history(self, history: Any, findings: Sequence[Finding] = ()) -> None:
+        """Attach the price history's figures (``history_view.ViewHistory`` or None) and the findings of
+        the history files about this underlying (they join the snapshot's findings)."""
+        self.history = history
+        self._file_findings.extend(findings)
+        self._findings = None
+        self._groups = None
+        self._frames.clear()
+        self._infos.clear()
 
     def expiry_index(self, expiry: Any) -> int | None:
         try:
@@ -471,6 +507,8 @@ class SnapshotView:
         arb = row.get("arbitrage_free")
         fit_method = str(row.get("fit_method") or "")
         events, ex_event_vol = self._event_marks(index)
+        window, rv, iv_rv = self.history.expiry_figures(index) if self.history is not None else (None, math.nan,
+                                                                                                  math.nan)
         return ExpiryInfo(
             expiry=expiry, index=index, count=len(self.expiries),
             t_years=_float(row.get("t_years")),
@@ -486,6 +524,7 @@ class SnapshotView:
             arbitrage_free=bool(arb) if fit_method else None,
             findings=tuple(res.findings) if res is not None else (),
             events=events, ex_event_vol=ex_event_vol,
+            hist_window=window, hist_vol=rv, iv_rv=iv_rv,
         )
 
     # --- targets

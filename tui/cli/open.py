@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+import os
 
 from chaintriage.core.findings import ChainTriageError
 from chaintriage.tui.cli.common import add_snapshot_options, snapshot_options
@@ -15,6 +16,12 @@ examples:
   chaintriage open morning.csv afternoon.csv --basis 365
   chaintriage open export.csv --columns columns.toml
   chaintriage open chain.csv --events events.csv     (y: vols by expiry, events marked)
+  chaintriage open chain.csv --history prices.csv    (h: realised vol and the cone)
+
+The demo opens with its fictional price histories and events. A history file
+holds daily bars (date, open, high, low, close; adjusted for splits and
+dividends) of the snapshots' underlyings; its rows after a snapshot's day are
+not used. History is not a forecast.
 
 Files bigger than 100 MB together are refused with a message (use check or
 table on them, which read big files block by block, or split them).
@@ -35,6 +42,11 @@ def configure(p: argparse.ArgumentParser) -> None:
                    help="events file (CSV: underlying, date, timing, label); repeatable")
     p.add_argument("--event", action="append", default=[], metavar="UNDERLYING:DATE[:amc|bmo]",
                    help="one event, after the close unless :bmo; repeatable")
+    p.add_argument("--history", action="append", default=[], metavar="HISTORY",
+                   help="daily price history of an underlying (CSV or Parquet): realised vol, the cone and "
+                        "history columns; repeatable")
+    p.add_argument("--history-columns", metavar="MAP.toml",
+                   help="TOML file that maps history column names to the history files' headers")
     p.set_defaults(func=run_open)
 
 
@@ -68,5 +80,16 @@ def run_open(args: argparse.Namespace) -> int:
         for f in findings:
             error(one_line(str(f)))
         events.extend(got)
+    history_map = None
+    if args.history_columns:
+        from chaintriage.core.history_file import load_history_column_map
+
+        history_map = load_history_column_map(args.history_columns)
+    missing = [p for p in args.history if not os.path.isfile(p)]
+    for p in missing:
+        error(f"{p}: no such history file")
+    if missing:
+        return EXIT_UNUSABLE
     return open_app(args.files, overrides=overrides, column_map=column_map, settings=pipeline_settings(args),
-                    events=events)
+                    events=events, histories=args.history if args.history else None,
+                    history_column_map=history_map)

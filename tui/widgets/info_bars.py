@@ -203,6 +203,12 @@ def expiry_pieces(info: ExpiryInfo | None, *, st: BarStyles, ascii_only: bool = 
                (_band(*info.range_plain, ascii_only), st.text),
                ("  smile ", st.dim), (_band(*info.range_smile, ascii_only), st.text), ("  (+/-)", st.dim)),
     ]
+    if math.isfinite(info.hist_vol):
+        ratio = fm.as_finite(info.iv_rv)
+        pieces.append(_piece(("RV ", st.dim), (f"{info.hist_window}d " if info.hist_window else "", st.dim),
+                             (fm.fmt_vol(info.hist_vol, ascii_only=ascii_only), st.text),
+                             ("  IV/RV ", st.dim), (f"{ratio:.2f}" if ratio is not None else ph, st.text),
+                             ("  (h)", st.dim)))
     if info.events:
         pieces.append(_piece(("* " if ascii_only else "◆ ", st.warning), ("carries ", st.dim),
                              (fm.clean_text(info.events), st.warning), ("  (y)", st.dim)))

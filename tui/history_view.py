@@ -1,0 +1,164 @@
+"""Price histories in the app, without Textual: reading the history files (the demo's when the
+demo is shown), matching them to the loaded snapshots by underlying, and the history figures
+of one snapshot (``ViewHistory``), computed by core off the UI thread.
+
+Everything here is numbers from ``chaintriage.core`` (``history_compare``, ``event_moves``,
+``history_odds``); this module only chooses what to ask for and caches it.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import math
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass, field, replace
+from importlib import resources
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from chaintriage.core.event_moves import DEFAULT_LAST, PastEventMoves, past_event_moves
+from chaintriage.core.findings import NOTE, ChainTriageError, Finding
+from chaintriage.core.history_compare import (
+    HistoryComparison,
+    HistorySettings,
+    compare_with_snapshot,
+    summarise_history,
+)
+from chaintriage.core.history_file import HistoryLoads, PriceHistory, load_histories
+
+DEMO_PACKAGE = "chaintriage.demo_chains"
+#: The demo histories' folder inside the demo package.
+DEMO_HISTORY_FOLDER = "history"
+#: Bootstrap paths for the ladder's history columns (each probability carries its standard error).
+LADDER_PATHS = 20_000
+
+
+def demo_history_names() -> list[str]:
+    """Names of the bundled demo price histories (CSV files in ``demo_chains/history``), sorted."""
+    try:
+        root = resources.files(DEMO_PACKAGE) / DEMO_HISTORY_FOLDER
+        return sorted(p.name for p in root.iterdir() if p.name.lower().endswith(".csv"))
+    except (ModuleNotFoundError, FileNotFoundError, NotADirectoryError):
+        return []
+
+
+def read_histories(paths: Sequence[str] | None, *, column_map: Any = None, until=None) -> HistoryLoads:
+    """Read history files (``paths``; None: the bundled demo's) with rows up to ``until``.
+
+    Never raises for a bad file: its error is in ``HistoryLoads.errors``.
+    """
+    if paths is not None:
+        return load_histories(list(paths), column_map=column_map, until=until)
+    names = demo_history_names()
+    root = resources.files(DEMO_PACKAGE) / DEMO_HISTORY_FOLDER
+    with contextlib.ExitStack() as stack:
+        real = [str(stack.enter_context(resources.as_file(root / n))) for n in names]
+        return load_histories(real, until=until)
+
+
+def _snapshot_day(view) -> pd.Timestamp:
+    return pd.Timestamp(view.snapshot.as_of.tz_localize(None).normalize())
+
+
+def history_until(histories: Sequence[PriceHistory], view) -> PriceHistory | None:
+    """The history of ``view``'s underlying cut to the bars before its snapshot's day (None: none, or
+    fewer than three bars left)."""
+    want = view.snapshot.underlying.strip().casefold()
+    for h in histories:
+        if h.underlying.strip().casefold() != want:
+            continue
+        day = _snapshot_day(view)
+        if h.last_date >= day:
+            keep = (h.bars["date"] < day).to_numpy()
+            h = PriceHistory(h.underlying, h.bars[keep].reset_index(drop=True), h.findings, h.source)
+        return h if len(h.bars) >= 3 else None
+    return None
+
+
+@dataclass
+class ViewHistory:
+    """One snapshot's history figures: the summary (estimators by window, the cone), the comparison
+    with the snapshot (per expiry RV and IV/RV; per contract history P(beyond)), the past event moves,
+    and caches of the path pictures (per expiry)."""
+
+    history: PriceHistory
+    comparison: HistoryComparison
+    settings: HistorySettings
+    past_moves: PastEventMoves | None
+    findings: list[Finding] = field(default_factory=list)
+    fans: dict = field(default_factory=dict)
+
+    @property
+    def summary(self):
+        return self.comparison.summary
+
+    def expiry_figures(self, index: int) -> tuple[int | None, float, float]:
+        """(window in trading days, realised vol, IV/RV) of expiry number ``index`` (NaN when unknown)."""
+        e = self.comparison.expiries
+        if not 0 <= index < len(e):
+            return None, math.nan, math.nan
+        row = e.iloc[index]
+        w = row["hist_window"]
+        return (int(w) if np.isfinite(w) else None), float(row["hist_vol"]), float(row["iv_rv"])
+
+
+def build_view_history(view, histories: Sequence[PriceHistory], events: Sequence = (),
+                       paths: int = LADDER_PATHS) -> ViewHistory | None:
+    """The history figures of ``view`` (a ``session.SnapshotView``) from the histories read, or None
+    when none is of its underlying (heavy: call off the UI thread)."""
+    h = history_until(histories, view)
+    if h is None:
+        return None
+    settings = HistorySettings(basis=view.annotated.settings.basis, paths=int(paths))
+    summary = summarise_history(h, settings)
+    comparison = compare_with_snapshot(view.annotated, h, settings, summary=summary)
+    moves = None
+    findings = list(comparison.findings)
+    mine = [e for e in events if e.underlying.strip().casefold() == h.underlying.strip().casefold()]
+    if mine:
+        moves = past_event_moves(h.bars, mine, h.underlying, last=DEFAULT_LAST, before=view.snapshot.as_of)
+        findings += moves.findings
+    return ViewHistory(h, comparison, settings, moves, findings)
+
+
+def attach_histories(views: Sequence, paths: Sequence[str] | None, events: Sequence = (), *,
+                     column_map: Any = None, on_busy: Callable[[str], None] = lambda text: None,
+                     on_history: Callable[[Any, ViewHistory | None, list], None] = lambda v, h, f: None,
+                     loads: HistoryLoads | None = None) -> tuple[list[str], HistoryLoads | None]:
+    """Read the histories (unless ``loads`` holds them already) and hand each view its figures:
+    ``on_history(view, view_history or None, findings)``; the history files' own findings go with
+    the first view of their underlying. Returns (error messages, the loads). Never raises.
+    """
+    errors: list[str] = []
+    if not views:
+        return errors, loads
+    try:
+        first_load = loads is None
+        if loads is None:
+            on_busy("reading price histories")
+            until = max(_snapshot_day(v) for v in views)
+            loads = read_histories(paths, column_map=column_map, until=until)
+            errors.extend(str(e) for e in loads.errors)
+        given = {h.underlying.strip().casefold() for h in loads.histories}
+        file_findings = list(loads.findings) if first_load else []
+        for view in views:
+            und = view.snapshot.underlying
+            on_busy(f"history figures for {und}")
+            mine = [f for f in file_findings
+                    if f.underlying is None or f.underlying.strip().casefold() == und.strip().casefold()]
+            file_findings = [f for f in file_findings if f not in mine]
+            try:
+                vh = build_view_history(view, loads.histories, events)
+            except ChainTriageError as exc:
+                vh = None
+                mine.append(Finding(NOTE, f"price history not used: {exc}", underlying=und))
+            if vh is None and paths is not None and und.strip().casefold() not in given:
+                mine.append(Finding(NOTE, f"no price history for {und!r} among the files given", underlying=und))
+            on_history(view, vh, mine + (vh.findings if vh is not None else []))
+    except ChainTriageError as exc:
+        errors.append(str(exc))
+    except Exception as exc:  # never a traceback on screen
+        errors.append(f"could not use the price histories: {type(exc).__name__}: {exc}")
+    return errors, loads
