@@ -652,7 +652,9 @@ class ChainTriageApp(App[int]):
                 self.triage.show_expiry()
 
         self.push_screen(TermStructureScreen(view.label, ts, view.snapshot.spot, days, self.state.current_expiry,
-                                             choose, theme=self.state.theme, ascii_only=self.state.ascii_only))
+                                             choose, theme=self.state.theme, ascii_only=self.state.ascii_only,
+                                             past_moves=view.history.past_moves if view.history is not None else None,
+                                             with_history=view.history is not None))
 
     def action_load_file(self) -> None:
         from chaintriage.tui.screens.path_prompt import PathPrompt

@@ -139,6 +139,11 @@ COLUMNS: tuple[ColumnHelp, ...] = (
                "bid / (strike - bid) for a cash-secured put, bid / spot for a covered call"),
     ColumnHelp("edge_share_sell", "edge", "what selling at the bid gives up against the mid, as a share of "
                "the bid: (mid - bid) / bid"),
+    ColumnHelp("hist_p_beyond", "RV bey", "with a price history: P(beyond) from a lognormal at the realised vol "
+               "(window matched to the expiry) with the forward's drift"),
+    ColumnHelp("boot_p_beyond", "boot", "with a price history: P(beyond) from 20,000 simulated paths built "
+               "from the underlying's own past days (block bootstrap, centred on the forward)"),
+    ColumnHelp("boot_p_beyond_se", "boot±", "the simulation's standard error of 'boot' (sqrt(p(1-p)/paths))"),
 )
 
 #: The areas of the triage screen, top to bottom.

@@ -73,6 +73,9 @@ COLUMNS: dict[str, ColumnSpec] = {
         ColumnSpec("per_day_sell", "/day", "/day", 7, "premium_per_day_sell", fm.fmt_price),
         ColumnSpec("return_sell_annual", "yr ret", "yr ret", 7, "return_sell_annual", fm.fmt_return),
         ColumnSpec("edge_share_sell", "edge", "edge", 6, "edge_share_sell", fm.fmt_spread),
+        ColumnSpec("hist_p_beyond", "RV bey", "RV bey", 6, "hist_p_beyond", fm.fmt_prob),
+        ColumnSpec("boot_p_beyond", "boot", "boot", 6, "boot_p_beyond", fm.fmt_prob),
+        ColumnSpec("boot_p_beyond_se", "boot±", "boot+-", 6, "boot_p_beyond_se", fm.fmt_prob),
     )
 }
 

@@ -28,6 +28,8 @@ EVENT_COLUMNS = [
     "underlying", "event", "date", "timing", "first_expiry", "event_variance", "move", "expected_abs_move",
     "move_price", "expected_abs_price", "ordinary_vol", "method", "fit_rmse",
 ]
+#: Columns `events --history` adds: the underlying's past moves on its past event dates.
+PAST_MOVE_COLUMNS = ["past_events", "past_mean_abs_move", "past_rms_move", "past_moves"]
 
 EVENTS_EPILOG = """\
 examples:
@@ -47,6 +49,15 @@ deviation of the price, as a fraction); expected_abs_move = sqrt(2/pi) e;
 move_price and expected_abs_price are those at the spot. An implied move is
 the market's price of the event, not a prediction; event dates in files can
 be wrong or move.
+
+With --history FILE (daily price history of the underlying) and past events
+in the events file (or --event), each row also gives the underlying's past
+moves on its event sessions (the close-to-close log return of the session
+that carried the news; it holds one ordinary day besides the event):
+past_events = how many of the last --last (default 8) were found,
+past_mean_abs_move (beside expected_abs_move), past_rms_move (beside move)
+and past_moves, each of them newest first (signed decimals). The past is not
+a forecast either.
 
 """ + COMMON_NOTES
 
@@ -87,6 +98,12 @@ def configure(p: argparse.ArgumentParser) -> None:
     p.epilog = EVENTS_EPILOG
     add_table_options(p)
     add_event_options(p)
+    p.add_argument("--history", action="append", default=[], metavar="HISTORY",
+                   help="daily price history of the underlying: its past moves on past event dates; repeatable")
+    p.add_argument("--history-columns", metavar="MAP.toml",
+                   help="TOML file that maps history column names to the history files' headers")
+    p.add_argument("--last", type=int, default=8, metavar="N",
+                   help="how many of the latest past events the past moves use (default 8)")
     p.set_defaults(func=run_events)
 
 
@@ -97,6 +114,7 @@ def run_events(args: argparse.Namespace) -> int:
     result, annotated = load_and_annotate(args)
     if not annotated:
         return nothing_usable(args, result)
+    loads, past = _past_moves(args, annotated, events)
     frames = []
     extra = []
     for a in annotated:
@@ -111,9 +129,51 @@ def run_events(args: argparse.Namespace) -> int:
             "expected_abs_price": spot * est.expected_abs_move, "ordinary_vol": ts.ordinary_vol,
             "method": est.method, "fit_rmse": ts.fit_rmse / 100.0,
         } for est in ts.events]
-        frames.append(with_as_of(pd.DataFrame(rows, columns=EVENT_COLUMNS), a, args.format))
+        frame = pd.DataFrame(rows, columns=EVENT_COLUMNS)
+        if loads is not None:
+            moves = past.get(id(a))
+            frame["past_events"] = moves.used if moves is not None else 0
+            frame["past_mean_abs_move"] = moves.mean_abs if moves is not None else float("nan")
+            frame["past_rms_move"] = moves.rms if moves is not None else float("nan")
+            frame["past_moves"] = " ".join(f"{m:+.4f}" for m in moves.moves()) if moves is not None else ""
+            if moves is not None:
+                extra.extend(moves.findings)
+        frames.append(with_as_of(frame, a, args.format))
     write_out(render(pd.concat(frames, ignore_index=True), args.format))
-    return report_with_events(args, result, annotated, extra, left_out)
+    status = report_with_events(args, result, annotated, extra, left_out)
+    if loads is not None:
+        from chaintriage.tui.cli.history import history_status, history_summary_line
+
+        if not args.quiet:
+            for f in loads.findings:
+                print(one_line(str(f)), file=sys.stderr)
+        print(history_summary_line(loads), file=sys.stderr)
+        status = max(status, history_status(loads))
+    return status
+
+
+def _past_moves(args: argparse.Namespace, annotated: list, events: list[Event]):
+    """(the history loads or None without --history, {id(annotated): PastEventMoves})."""
+    if not args.history:
+        return None, {}
+    from chaintriage.core.event_moves import past_event_moves
+    from chaintriage.core.history_file import load_histories, load_history_column_map
+
+    if args.last < 1:
+        raise ChainTriageError(f"--last {args.last}: give 1 or more")
+    cmap = load_history_column_map(args.history_columns) if args.history_columns else None
+    until = max(a.snapshot.as_of.tz_localize(None) for a in annotated)
+    loads = load_histories(args.history, column_map=cmap, until=until)
+    for exc in loads.errors:
+        error(str(exc))
+    by_name = {h.underlying.strip().casefold(): h for h in loads.histories}
+    out = {}
+    for a in annotated:
+        h = by_name.get(a.snapshot.underlying.strip().casefold())
+        if h is None:
+            continue
+        out[id(a)] = past_event_moves(h.bars, events, h.underlying, last=args.last, before=a.snapshot.as_of)
+    return loads, out
 
 
 def report_with_events(args: argparse.Namespace, result, annotated: list, term_findings: list,

@@ -40,8 +40,28 @@ def chart_styles(theme: ChainTheme | None) -> ChartStyles:
                        forward=Style(color=c["otm_put"]), event=Style(color=c["warning"], bold=True))
 
 
-def event_lines(ts: TermStructure, spot: float, ascii_only: bool = False) -> list[Text]:
-    """One line per event: letter, name, date and timing, the one-sd and expected absolute move."""
+def past_move_line(moves, ascii_only: bool = False) -> Text:
+    """The underlying's past moves on its past event sessions (``core.event_moves.PastEventMoves``)."""
+    line = Text(" ", no_wrap=True, overflow="ellipsis")
+    if moves is None:
+        line.append("past moves: open with a price history (--history) and past event dates to compare",
+                    style="dim")
+        return line
+    if not moves.used:
+        line.append("past moves: no past event date falls inside the price history", style="dim")
+        return line
+    line.append(f"past moves, last {moves.used} event sessions (close to close): ")
+    line.append(f"mean |move| {100 * moves.mean_abs:.1f}%", style="bold")
+    line.append(f", rms {100 * moves.rms:.1f}%;  newest first ")
+    line.append(" ".join(f"{100 * m:+.1f}" for m in moves.moves()))
+    line.append(" (%)")
+    return line
+
+
+def event_lines(ts: TermStructure, spot: float, ascii_only: bool = False, past_moves=None,
+                with_history: bool = False) -> list[Text]:
+    """One line per event: letter, name, date and timing, the one-sd and expected absolute move; then the
+    past moves on past event dates when a price history is loaded (``with_history``)."""
     lines = []
     pm = "+/-" if ascii_only else "±"
     for i, est in enumerate(ts.events):
@@ -71,6 +91,8 @@ def event_lines(ts: TermStructure, spot: float, ascii_only: bool = False) -> lis
         if ts.events and np.isfinite(ts.fit_rmse):
             fit.append(f", fit {ts.fit_rmse:.2f} vol pts over {ts.fitted_expiries} expiries")
     lines.append(fit)
+    if ts.events and (with_history or past_moves is not None):
+        lines.append(past_move_line(past_moves, ascii_only))
     return lines
 
 
@@ -90,8 +112,11 @@ class TermStructureScreen(Screen):
 
     def __init__(self, title: str, ts: TermStructure, spot: float, trading_days: Sequence[float],
                  current: pd.Timestamp | None, on_choose: Callable[[pd.Timestamp], None], *,
-                 theme: ChainTheme | None = None, ascii_only: bool = False) -> None:
+                 theme: ChainTheme | None = None, ascii_only: bool = False, past_moves=None,
+                 with_history: bool = False) -> None:
         super().__init__()
+        self._past_moves = past_moves
+        self._with_history = with_history
         self._title = title
         self._ts = ts
         self._spot = spot
@@ -108,7 +133,8 @@ class TermStructureScreen(Screen):
         yield Static(Text(""), id="term-chart")
         yield Static(legend(self._ascii, chart_styles(self._theme), with_events=bool(self._ts.events)),
                      id="term-legend")
-        yield Static(Text("\n").join(event_lines(self._ts, self._spot, self._ascii)), id="term-events")
+        yield Static(Text("\n").join(event_lines(self._ts, self._spot, self._ascii, self._past_moves,
+                                                     self._with_history)), id="term-events")
         yield DataTable(id="term-table", cursor_type="row", zebra_stripes=True)
         yield Static(Text(CAUTION, style="dim"), id="term-caution")
         yield Footer(show_command_palette=False)
@@ -142,7 +168,7 @@ class TermStructureScreen(Screen):
     def _draw_chart(self) -> None:
         chart = self.query_one("#term-chart", Static)
         width = max(self.size.width - 2, 20)
-        height = max(min(14, self.size.height - 12 - 2 * len(self._ts.events)), 6)
+        height = max(min(14, self.size.height - 13 - 2 * len(self._ts.events)), 6)
         frame = self._ts.table
         rows = term_chart(frame["t_years"], {"atm": frame["atm_iv"], "ex_event": frame["ex_event_vol"],
                                              "forward": frame["forward_vol"]},
