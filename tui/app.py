@@ -656,6 +656,19 @@ class ChainTriageApp(App[int]):
                                              past_moves=view.history.past_moves if view.history is not None else None,
                                              with_history=view.history is not None))
 
+    def action_toggle_ex_event(self) -> None:
+        """P(beyond) and the ranges on the ex-event vol for expiries that carry events, or back."""
+        st = self.state
+        if not st.ex_event and st.view is not None and not any(
+                st.view.info(i, st.confidence).events for i in range(len(st.view.expiries))):
+            self.notify("no expiry of this snapshot carries a scheduled event (open with --events FILE)",
+                        timeout=3, markup=False)
+            return
+        st.ex_event = not st.ex_event
+        self.triage.show_expiry()
+        self.notify("ex-event view: P(beyond) and ranges on the ex-event vol where an event is carried"
+                    if st.ex_event else "market view: P(beyond) and ranges as priced", timeout=2, markup=False)
+
     def action_load_file(self) -> None:
         from chaintriage.tui.screens.path_prompt import PathPrompt
 

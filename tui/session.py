@@ -294,6 +294,8 @@ class ExpiryInfo:
     iv_rv: float = math.nan
     #: True when the ranges are on the ex-event vol (the ``n`` toggle) for an expiry that carries events.
     ex_event_ranges: bool = False
+    #: True when the ex-event view is on (whether or not this expiry carries an event).
+    ex_event_asked: bool = False
 
     @property
     def sigma_sqrt_t(self) -> float:
@@ -462,14 +464,53 @@ class SnapshotView:
         self._ranges[key] = (plain, smile_band)
         return plain, smile_band
 
-    def info(self, index: int, confidence: float) -> ExpiryInfo:
-        """The header figures of expiry number ``index`` (0-based) at ``confidence``; cached."""
-        key = (int(index), round(float(confidence), 6))
+    def info(self, index: int, confidence: float, ex_event: bool = False) -> ExpiryInfo:
+        """The header figures of expiry number ``index`` (0-based) at ``confidence``; cached.
+
+        ``ex_event``: for an expiry that carries events, the ranges on its ex-event vol.
+        """
+        key = (int(index), round(float(confidence), 6), bool(ex_event))
         cached = self._infos.get(key)
         if cached is not None:
             return cached
-        self._infos[key] = info = self._info(index, confidence)
+        info = self._info(index, confidence)
+        if ex_event:
+            import dataclasses
+
+            info = dataclasses.replace(info, ex_event_asked=True)
+        if ex_event and info.events and math.isfinite(info.ex_event_vol):
+            import dataclasses
+
+            from chaintriage.core.ex_event_odds import ex_event_range
+
+            lo, hi = ex_event_range(info.forward, info.t_years, info.ex_event_vol, confidence)
+            info = dataclasses.replace(info, range_plain=(_float(lo), _float(hi)), range_smile=(math.nan, math.nan),
+                                       ex_event_ranges=True)
+        self._infos[key] = info
         return info
+
+    def ex_event_frame(self, expiry: pd.Timestamp) -> pd.DataFrame:
+        """``frame(expiry)`` with P(beyond) on the expiry's ex-event vol (core.ex_event_odds) when it
+        carries events; the frame as it is otherwise. Cached."""
+        expiry = pd.Timestamp(expiry)
+        key = ("ex_event", expiry)
+        cached = self._frames.get(key)  # type: ignore[call-overload]
+        if cached is not None:
+            return cached
+        frame = self.frame(expiry)
+        index = self.expiry_index(expiry)
+        names, ex_vol = self._event_marks(index) if index is not None else ("", math.nan)
+        if names and math.isfinite(ex_vol) and len(frame):
+            from chaintriage.core.ex_event_odds import ex_event_p_beyond
+
+            row = self.expiry_table.iloc[index]
+            out = frame.copy()
+            out["p_beyond"] = ex_event_p_beyond(_float(row.get("forward")), frame["strike"].to_numpy(dtype=float),
+                                                (frame["kind"] == "call").to_numpy(), _float(row.get("t_years")),
+                                                ex_vol)
+            frame = out
+        self._frames[key] = frame  # type: ignore[index]
+        return frame
 
     # --- scheduled events
 
@@ -478,6 +519,8 @@ class SnapshotView:
         self._events = list(events)
         self._term = None
         self._infos.clear()
+        for key in [k for k in self._frames if isinstance(k, tuple)]:
+            del self._frames[key]
 
     def term_structure(self):
         """core's term structure of this snapshot with its events (``core.term_structure.TermStructure``); cached."""

@@ -52,6 +52,10 @@ class TriageState:
         #: Strikes of the current expiry before the filter.
         self.strike_total = 0
         self._findings_count: dict[int, int] = {}
+        #: The ``n`` toggle: P(beyond) and the ranges on the ex-event vol for expiries that carry events.
+        self.ex_event = False
+        #: The ``p`` toggle: the side pane shows simulated history paths instead of the distribution.
+        self.show_paths = False
 
     @property
     def strike_filter(self) -> StrikeFilter:

@@ -64,6 +64,9 @@ class TriageScreen(Screen):
         Binding("a", "app.toggle_ascii", "ascii", show=False),
         Binding("e", "app.show_findings", "findings"),
         Binding("y", "app.show_terms", "vols by expiry", show=False),
+        Binding("h", "app.show_history", "history", show=False),
+        Binding("p", "app.toggle_paths", "paths", show=False),
+        Binding("n", "app.toggle_ex_event", "ex-event", show=False),
         Binding("l", "app.load_file", "open file", show=False),
         Binding("q", "app.quit", "quit"),
     ]
@@ -172,9 +175,9 @@ class TriageScreen(Screen):
             return
         grid = self.grid
         expiry = st.current_expiry
-        frame = view.frame(expiry)
+        frame = view.ex_event_frame(expiry) if st.ex_event else view.frame(expiry)
         shown, hidden = st.strike_filter.apply(frame)
-        info = view.info(st.expiry_pos, st.confidence)
+        info = view.info(st.expiry_pos, st.confidence, st.ex_event)
         grid.set_rows(shown, info.forward, expiry=expiry, underlying=view.snapshot.underlying, hidden=hidden,
                       keep_highlight=keep_highlight)
         st.strike_total = len(grid.strikes) + hidden
@@ -233,7 +236,7 @@ class TriageScreen(Screen):
                          findings=st.findings_count(), shortlist=len(st.shortlist),
                          busy=st.busy, st=styles, ascii_only=ascii_only)
         self.bar("topbar").set_pieces(top)
-        info = view.info(st.expiry_pos, st.confidence) if view.expiries else None
+        info = view.info(st.expiry_pos, st.confidence, st.ex_event) if view.expiries else None
         reserve = expiry_pieces(info, st=styles, ascii_only=ascii_only, widest=view.header_infos(info)) \
             if info is not None else []
         self.bar("expirybar").set_pieces(expiry_pieces(info, st=styles, ascii_only=ascii_only), reserve=reserve)

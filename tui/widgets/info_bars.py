@@ -201,8 +201,18 @@ def expiry_pieces(info: ExpiryInfo | None, *, st: BarStyles, ascii_only: bool = 
                  if info.events else ())),
         _piece((f"{fmt_confidence(info.confidence)} range ", st.dim),
                (_band(*info.range_plain, ascii_only), st.text),
-               ("  smile ", st.dim), (_band(*info.range_smile, ascii_only), st.text), ("  (+/-)", st.dim)),
+               ("  smile ", st.dim), (_band(*info.range_smile, ascii_only), st.text), ("  (+/-)", st.dim))
+        if not info.ex_event_ranges else
+        _piece((f"{fmt_confidence(info.confidence)} range ", st.dim), ("on ex-event vol ", st.warning),
+               (_band(*info.range_plain, ascii_only), st.text), ("  (+/-)", st.dim)),
     ]
+    if info.ex_event_asked:
+        if info.ex_event_ranges:
+            pieces.insert(0, _piece(("EX-EVENT VIEW (n): ", st.warning),
+                                    ("P(beyond) and range at the ex-event vol (one vol, no skew: compare with 1-vol)", st.text)))
+        else:
+            pieces.insert(0, _piece(("EX-EVENT VIEW (n): ", st.warning),
+                                    ("this expiry carries no event; figures as they are", st.dim)))
     if math.isfinite(info.hist_vol):
         ratio = fm.as_finite(info.iv_rv)
         pieces.append(_piece(("RV ", st.dim), (f"{info.hist_window}d " if info.hist_window else "", st.dim),
