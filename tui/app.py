@@ -656,6 +656,19 @@ class ChainTriageApp(App[int]):
                                              past_moves=view.history.past_moves if view.history is not None else None,
                                              with_history=view.history is not None))
 
+    def action_show_history(self) -> None:
+        from chaintriage.tui.screens.history import HistoryScreen
+
+        view = self.state.view
+        if view is None:
+            return
+        if view.history is None:
+            busy = self.state.loads_running and self._history_paths_in_use() != []
+            self.notify("the price history is still being read" if busy else
+                        "no price history for this underlying (open with --history FILE)", timeout=3, markup=False)
+            return
+        self.push_screen(HistoryScreen(view, view.history, theme=self.state.theme, ascii_only=self.state.ascii_only))
+
     def action_toggle_ex_event(self) -> None:
         """P(beyond) and the ranges on the ex-event vol for expiries that carry events, or back."""
         st = self.state
