@@ -45,6 +45,9 @@ __all__ = [
     "BootstrapOdds",
     "bootstrap_odds",
     "iv_rv_ratio",
+    "FAN_LEVELS",
+    "PathFan",
+    "simulate_fan",
 ]
 
 #: Path-days simulated at once (bounds memory: a few arrays of this many floats).
@@ -305,6 +308,88 @@ def terminal_density(sorted_prices: np.ndarray, edges) -> np.ndarray:
     p = np.asarray(sorted_prices, dtype=float)
     counts = np.diff(np.searchsorted(p, e, side="left"))
     return counts / max(p.size, 1) / np.diff(e)
+
+
+#: Quantile levels of a path fan (outer band, middle half, median).
+FAN_LEVELS: tuple[float, ...] = (0.05, 0.25, 0.5, 0.75, 0.95)
+#: Path-days a fan keeps at once (float32): longer horizons get fewer paths.
+FAN_CELLS = 12_000_000
+
+
+@dataclass
+class PathFan:
+    """Simulated paths summarised for a picture: quantiles per day, the sorted prices at the last day
+    and a few whole paths (price units; day 0 = spot)."""
+
+    steps: int
+    paths: int
+    levels: np.ndarray
+    fan: np.ndarray  # (len(levels), steps + 1)
+    terminal: np.ndarray  # sorted, (paths,)
+    sample: np.ndarray  # (n, steps + 1)
+
+    def p_beyond(self, strike: float, is_call: bool) -> tuple[float, float]:
+        """(P(finish beyond the strike), its Monte Carlo standard error): above for a call, below for a put."""
+        n = self.terminal.size
+        if not (np.isfinite(strike) and n):
+            return float("nan"), float("nan")
+        if is_call:
+            k = n - np.searchsorted(self.terminal, strike, side="right")
+        else:
+            k = np.searchsorted(self.terminal, strike, side="left")
+        p = k / n
+        return float(p), float(np.sqrt(p * (1.0 - p) / n))
+
+    def central_range(self, confidence: float) -> tuple[float, float]:
+        """The central interval of the simulated prices at the last day holding ``confidence`` (0..1)."""
+        c = float(confidence)
+        if not (0.0 < c < 1.0) or not self.terminal.size:
+            return float("nan"), float("nan")
+        lo, hi = np.quantile(self.terminal, [(1.0 - c) / 2.0, (1.0 + c) / 2.0])
+        return float(lo), float(hi)
+
+
+def _quantiles_by_row(x: np.ndarray, levels: np.ndarray) -> np.ndarray:
+    """Quantiles (linear between order statistics, as numpy's default) of each row of ``x``: (levels, rows)."""
+    n = x.shape[1]
+    h = (n - 1) * levels
+    lo = np.floor(h).astype(np.int64)
+    hi = np.minimum(lo + 1, n - 1)
+    part = np.partition(x, np.unique(np.concatenate((lo, hi))), axis=1)
+    w = (h - lo)[:, None]
+    return (part[:, lo] * (1.0 - w.T) + part[:, hi] * w.T).T
+
+
+def simulate_fan(pool: DayPool, spot: float, forward: float, steps: int, *, paths: int = 100_000,
+                 levels=FAN_LEVELS, sample: int = 8, block: int = 5, seed: int = 20261201,
+                 progress=None) -> PathFan:
+    """A path fan from the block bootstrap of ``bootstrap_paths`` (same centring on the forward).
+
+    Paths are capped at FAN_CELLS / steps for long horizons. ``progress(done_share)`` is called
+    after each chunk (for a progress bar). Raises ChainTriageError for a pool too small.
+    """
+    steps = int(steps)
+    if steps < 1 or paths < 1:
+        raise ChainTriageError("a path picture needs at least one step and one path")
+    paths = int(max(1, min(int(paths), FAN_CELLS // steps)))
+    d = _drift_per_day(pool, spot, forward, steps)[0]
+    sampler = _Sampler(pool, block, d, seed)
+    x = np.empty((steps, paths), dtype=np.float32)  # log price relative to spot, one row per day
+    done = 0
+    chunk = max(1_000, min(paths // 10 + 1, CHUNK_CELLS // steps))
+    while done < paths:
+        m = min(chunk, paths - done)
+        x[:, done:done + m] = sampler.closes(m, steps).T
+        done += m
+        if progress is not None:
+            progress(done / paths)
+    lv = np.asarray(levels, dtype=float)
+    q = _quantiles_by_row(x, lv).astype(float)  # (levels, steps)
+    fan = spot * np.exp(np.concatenate((np.zeros((lv.size, 1)), q), axis=1))
+    terminal = np.sort(spot * np.exp(x[-1].astype(float)))
+    n_s = min(int(sample), paths)
+    shown = np.concatenate((np.zeros((n_s, 1)), x[:, :n_s].T.astype(float)), axis=1)
+    return PathFan(steps, paths, lv, fan, terminal, spot * np.exp(shown))
 
 
 def iv_rv_ratio(implied_vol, realised) -> np.ndarray:

@@ -669,6 +669,87 @@ class ChainTriageApp(App[int]):
             return
         self.push_screen(HistoryScreen(view, view.history, theme=self.state.theme, ascii_only=self.state.ascii_only))
 
+    def action_toggle_paths(self) -> None:
+        """The side pane: the distribution at expiry, or a fan of simulated history paths."""
+        if not self.triage.body_ready:
+            return
+        st = self.state
+        st.show_paths = not st.show_paths
+        if not self.triage.plot.display:
+            self.notify("the side pane is hidden (v shows it); it will show "
+                        + ("the paths" if st.show_paths else "the distribution"), timeout=3, markup=False)
+        self.triage.update_plot()
+
+    #: (view, expiry) whose paths are being simulated, so a key press does not start a second run.
+    _fan_running: Any = None
+
+    def show_paths(self) -> None:
+        """Draw the path fan of the current expiry in the side pane; simulate it first (in a worker
+        thread, progress in the pane) when it is not cached."""
+        st = self.state
+        view, expiry, plot = st.view, st.current_expiry, self.triage.plot
+        if view is None or expiry is None:
+            return
+        if view.history is None:
+            busy = st.loads_running and self._history_paths_in_use() != []
+            plot.clear(" reading the price history ..." if busy else
+                       " no price history for this underlying: open with --history FILE to see paths (p: back)")
+            return
+        fan = view.history.fans.get(expiry)
+        if fan is None:
+            if self._fan_running != (id(view), expiry):
+                self._start_fan(view, expiry)
+            return
+        from chaintriage.tui.widgets.path_fan import draw_path_fan
+
+        strike, kind, p_market = self.triage._highlight()
+        info = view.info(st.expiry_pos, st.confidence)
+        dist = view.distribution(expiry)
+        p_hist = fan.p_beyond(strike, kind == "call") if strike is not None else None
+        confidence = st.confidence
+        underlying = view.underlying
+
+        def drawer(width, height, colors, ascii_only):
+            return draw_path_fan(fan, width=width, height=height, colors=colors, ascii_only=ascii_only,
+                                 underlying=underlying, strike=strike, kind=kind, confidence=confidence,
+                                 p_market=p_market, market_range=info.range_smile,
+                                 market_strikes=dist.strikes if dist is not None else None,
+                                 market_density=dist.density if dist is not None else None,
+                                 p_beyond=p_hist, history_range=fan.central_range(confidence))
+
+        plot.show_drawing(drawer)
+
+    def _start_fan(self, view: SnapshotView, expiry) -> None:
+        self._fan_running = (id(view), expiry)
+        plot = self.triage.plot
+        und = view.underlying
+        plot.clear(f" simulating paths from {und}'s days ...")
+
+        def progress(share: float) -> None:
+            if self._fan_running == (id(view), expiry):
+                self.call_from_thread(plot.clear, f" simulating paths from {und}'s days: {100 * share:.0f}%")
+
+        def job() -> None:
+            try:
+                view.history.fan(view, expiry, progress)
+                error = ""
+            except ChainTriageError as exc:
+                error = str(exc)
+            self.call_from_thread(self._fan_done, view, expiry, error)
+
+        self.run_worker(job, thread=True, group="paths", name="paths", exit_on_error=False)
+
+    def _fan_done(self, view: SnapshotView, expiry, error: str) -> None:
+        if self._fan_running == (id(view), expiry):
+            self._fan_running = None
+        st = self.state
+        if not (st.show_paths and st.view is view and st.current_expiry == expiry):
+            return
+        if error or view.history.fans.get(expiry) is None:
+            self.triage.plot.clear(f" no paths: {error or 'this expiry has no trading days or forward'}")
+            return
+        self.show_paths()
+
     def action_toggle_ex_event(self) -> None:
         """P(beyond) and the ranges on the ex-event vol for expiries that carry events, or back."""
         st = self.state

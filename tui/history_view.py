@@ -33,6 +33,8 @@ DEMO_PACKAGE = "chaintriage.demo_chains"
 DEMO_HISTORY_FOLDER = "history"
 #: Bootstrap paths for the ladder's history columns (each probability carries its standard error).
 LADDER_PATHS = 20_000
+#: Simulated paths of the side pane's path picture (fewer for horizons past 120 trading days).
+FAN_PATHS = 100_000
 
 
 def demo_history_names() -> list[str]:
@@ -93,6 +95,31 @@ class ViewHistory:
     @property
     def summary(self):
         return self.comparison.summary
+
+    def fan(self, view, expiry, progress=None, paths: int = FAN_PATHS):
+        """The path fan of ``expiry`` (``core.history_odds.PathFan``), simulated once and cached (heavy:
+        call off the UI thread; ``progress(share)`` is called as it goes). None when the expiry has no
+        trading days or forward."""
+        from chaintriage.core.history_odds import day_pool, simulate_fan
+
+        key = pd.Timestamp(expiry)
+        if key in self.fans:
+            return self.fans[key]
+        exp = view.annotated.expiries
+        hit = np.flatnonzero(pd.DatetimeIndex(exp["expiry"]) == key)
+        if not hit.size:
+            return None
+        row = exp.iloc[int(hit[0])]
+        steps = int(max(round(float(row["trading_days"])), 1)) if np.isfinite(row["trading_days"]) else 0
+        forward = float(row["forward"])
+        if steps < 1 or not (forward > 0):
+            return None
+        b = self.history.bars
+        pool = day_pool(b["high"].to_numpy(float), b["low"].to_numpy(float), b["close"].to_numpy(float))
+        fan = simulate_fan(pool, float(view.snapshot.spot), forward, steps, paths=paths,
+                           block=self.settings.block, seed=self.settings.seed, progress=progress)
+        self.fans[key] = fan
+        return fan
 
     def expiry_figures(self, index: int) -> tuple[int | None, float, float]:
         """(window in trading days, realised vol, IV/RV) of expiry number ``index`` (NaN when unknown)."""

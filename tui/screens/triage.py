@@ -259,6 +259,9 @@ class TriageScreen(Screen):
         view, expiry, plot = st.view, st.current_expiry, self.plot
         if view is None or expiry is None or not plot.display:
             return
+        if st.show_paths:  # the simulated history paths instead (the app runs the simulation)
+            self.app.show_paths()
+            return
         dist = view.distribution(expiry)
         if dist is None:
             plot.clear(" no distribution: this expiry has no smile fit")
@@ -279,6 +282,9 @@ class TriageScreen(Screen):
 
     def highlight_moved(self) -> None:
         if self.body_ready and self.plot.display:
+            if self.state.show_paths:
+                self.app.show_paths()
+                return
             strike, kind, p_beyond = self._highlight()
             self.plot.set_highlight(strike, kind, p_beyond)
 

@@ -404,6 +404,9 @@ class DistributionPlot(Widget):
         self._ascii = ascii_only
         self._inputs: dict[str, Any] | None = None
         self._empty_text = " no expiry selected"
+        #: Another picture drawn in the pane instead (``show_drawing``): called with (width, height, colors,
+        #: ascii_only), returns the rows.
+        self._drawer: Any = None
         self.last_result: PlotResult | None = None
         self._strips: list[Strip] | None = None
         self._strips_size: tuple[int, int] = (0, 0)
@@ -414,6 +417,7 @@ class DistributionPlot(Widget):
                     sigma_sqrt_t: float, highlight_strike: float | None = None,
                     highlight_kind: str = "call", p_beyond: float | None = None) -> None:
         """New inputs (see draw_distribution); redraws."""
+        self._drawer = None
         self._inputs = dict(strikes=strikes, density=density, density_flat=density_flat, forward=forward,
                             sigma_sqrt_t=sigma_sqrt_t, highlight_strike=highlight_strike,
                             highlight_kind=highlight_kind, p_beyond=p_beyond)
@@ -421,14 +425,22 @@ class DistributionPlot(Widget):
 
     def set_highlight(self, strike: float | None, kind: str, p_beyond: float | None) -> None:
         """Move only the highlighted strike (same distribution)."""
-        if self._inputs is not None:
+        if self._inputs is not None and self._drawer is None:
             if (self._inputs["highlight_strike"], self._inputs["highlight_kind"], self._inputs["p_beyond"]) == \
                     (strike, kind, p_beyond):
                 return  # already drawn so: no second frame
             self._inputs.update(highlight_strike=strike, highlight_kind=kind, p_beyond=p_beyond)
             self.refresh()
 
+    def show_drawing(self, drawer: Any) -> None:
+        """Draw another picture in the pane: ``drawer(width, height, colors, ascii_only)`` gives its rows
+        (rich Text). ``update_plot`` or ``clear`` brings the distribution back."""
+        self._inputs = None
+        self._drawer = drawer
+        self.refresh()
+
     def clear(self, message: str = " no expiry selected") -> None:
+        self._drawer = None
         self._inputs = None
         self._empty_text = message
         self.refresh()
@@ -448,6 +460,13 @@ class DistributionPlot(Widget):
     def _draw(self) -> PlotResult:
         width, height = self.size.width, self.size.height
         colors = PlotColors.from_theme(self._theme)
+        if self._drawer is not None:
+            style = Style(color=colors.text, bgcolor=colors.background)
+            try:
+                lines = self._drawer(width, height, colors, self._ascii)
+            except Exception as exc:  # a drawing fault must not take the app down: say it in the pane
+                return _message(f" could not draw: {type(exc).__name__}", width, height, colors)
+            return PlotResult(_pad_lines(lines, width, height, style))
         if self._inputs is None:
             return _message(self._empty_text, width, height, colors)
         return draw_distribution(**self._inputs, colors=colors, width=width, height=height,
