@@ -64,6 +64,15 @@ KEYS: tuple[KeyHelp, ...] = (
     KeyHelp(("y",), "screen", "show_terms",
             "vols by expiry: ATM, ex-event and forward vol, scheduled events and the move each is priced "
             "at (Enter opens an expiry)"),
+    KeyHelp(("h",), "screen", "show_history",
+            "with a price history (--history; the demo has its own): realised vol by estimator and window, "
+            "the volatility cone with today's ATM implied vols, IV/RV per expiry"),
+    KeyHelp(("p",), "screen", "toggle_paths",
+            "side pane: the distribution at expiry, or a fan of 100,000 simulated paths built from the "
+            "underlying's own past days (block bootstrap) with the highlighted strike and both ranges"),
+    KeyHelp(("n",), "screen", "toggle_ex_event",
+            "P(beyond) and the range on the ex-event vol (the event's variance taken out, one vol per "
+            "expiry) for expiries that carry a scheduled event, or back to the market's; the header says so"),
     KeyHelp(("l",), "screen", "load_file",
             "open another snapshot file (asks for its path, and a mapping file for its headers if it needs "
             "one); a file already open is shown, not loaded twice"),
@@ -159,7 +168,8 @@ AREAS: tuple[tuple[str, str], ...] = (
                      "the quotes with a bid; 0 when it runs inside every band; zero-bid quotes are upper "
                      "bounds, not fitted) and whether it is free of butterfly arbitrage (if not, the "
                      "density is negative and P(beyond) not monotone somewhere; the plot says so too); "
-                     "this expiry's findings"),
+                     "this expiry's findings; with a price history, the realised vol (RV) over the window "
+                     "nearest the expiry's trading days and IV/RV"),
     ("filter line", "the filter in force and how many strikes it leaves; on a narrow terminal, the "
                     "columns and the plot left out for lack of width"),
     ("ladder", "calls on the left, the strike in the middle, puts on the right; one row per strike"),
@@ -182,6 +192,10 @@ PLOT: tuple[tuple[str, str], ...] = (
     ("dots", "the one-vol lognormal distribution, for comparison"),
     ("shaded bars", "the area beyond the highlighted strike; its P(beyond) is printed above"),
     ("F, 1, 2", "the forward, and one and two sigmas either side of it"),
+    ("p: paths", "a fan of simulated paths from the underlying's own days: outer band 5% to 95%, "
+                 "shaded middle half, median line, a few single paths; the strike as a line across; the "
+                 "history range at the chosen confidence marked at the right edge; below, the market's "
+                 "distribution (bars) and history's (dots) at expiry on one price axis"),
 )
 
 #: Figures of the command line's table and targets and of the copied summary, with their formulas.
@@ -208,6 +222,8 @@ CAUTIONS: tuple[str, ...] = (
     "Stale, wide or one-sided quotes give unreliable figures: check the spread and the flags.",
     "An event's implied move is the market's price of the event, not a prediction; event dates "
     "in files can be wrong or move.",
+    "History is not a forecast. Realised and implied vol measure different things: implied vol carries "
+    "the premium option sellers ask (the variance risk premium) and the events before the expiry.",
     "P(profit) is risk-neutral and counted at expiry only. Returns leave out commissions, assignment "
     "and margin rules, which depend on the broker and the account.",
     "This is not advice. Decide for yourself.",
