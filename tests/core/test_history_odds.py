@@ -145,3 +145,36 @@ def test_terminal_distribution_and_path_fan_match_the_lognormal():
     assert fan.shape == (5, steps + 1) and (np.diff(fan, axis=0) >= 0).all()
     # the fan's middle band widens like sqrt(time) [C]
     assert fan[3, -1] - fan[1, -1] > fan[3, 10] - fan[1, 10]
+
+
+def test_simulate_fan_against_the_lognormal_and_numpy_quantiles():
+    """The app's path fan: its quantiles are numpy's on the same paths (numpy's default linear
+    quantile [L]); its P(beyond) on lognormal history is the closed form N(d2) within 4 standard
+    errors (REFERENCE.md s.3 [C]); its range holds the confidence of scipy.stats.lognorm [L]."""
+    from scipy.stats import lognorm
+
+    from chaintriage.core.history_odds import bootstrap_paths, simulate_fan
+
+    high, low, close = _lognormal_history(2520, 0.30, seed=11)
+    pool = day_pool(high, low, close)
+    steps, spot, fwd = 60, 100.0, 100.6
+    shares = []
+    fan = simulate_fan(pool, spot, fwd, steps, paths=100_000, block=1, seed=7, progress=shares.append)
+    assert fan.paths == 100_000 and fan.fan.shape == (5, steps + 1) and fan.terminal.size == 100_000
+    assert shares[-1] == 1.0 and shares == sorted(shares)
+    paths = bootstrap_paths(pool, spot, fwd, steps, paths=100_000, block=1, seed=7)
+    np.testing.assert_allclose(fan.fan, np.quantile(paths, fan.levels, axis=0), rtol=2e-6)
+    np.testing.assert_allclose(fan.sample[:, 0], spot)
+    sd = math.sqrt(np.var(pool.ret, ddof=1) * steps)
+    sigma = sd / math.sqrt(steps / 252)
+    for k, call in ((90.0, False), (100.0, True), (112.0, True)):
+        p, se = fan.p_beyond(k, call)
+        closed, _ = lognormal_odds(spot, fwd, k, call, steps / 252, sigma)
+        assert abs(p - float(closed)) < 4 * se, (k, p, float(closed), se)
+    lo, hi = fan.central_range(0.9)
+    law = lognorm(s=sd, scale=fwd * math.exp(-0.5 * sd * sd))
+    assert law.cdf(hi) - law.cdf(lo) == pytest.approx(0.9, abs=0.01)
+    # long horizons keep memory bounded: fewer paths
+    from chaintriage.core.history_odds import FAN_CELLS
+
+    assert simulate_fan(pool, spot, fwd, 400, paths=100_000, seed=1).paths == FAN_CELLS // 400
