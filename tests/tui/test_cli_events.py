@@ -99,3 +99,43 @@ def test_bad_event_values_and_files(event_chain, capsys):
     mixed.write_text("underlying,date\nEVTX,2027-01-12\nEVTX,someday\n", encoding="utf-8")
     code, out, err = run(capsys, "events", str(path), "--events", str(mixed))
     assert code == 1 and "mixed.csv:3" in err and "someday" in err and "EVTX" in out
+
+
+def _history_with_known_event_moves(folder):
+    """EVTX closes flat except on the sessions after two past after-close releases: +7% after
+    2026-07-14 (session 07-15) and -5% after 2026-10-13 (session 10-14) [D: built here]."""
+    days = pd.bdate_range("2026-06-01", "2026-11-30")
+    ret = np.zeros(days.size)
+    ret[days.get_loc(pd.Timestamp("2026-07-15"))] = 0.07
+    ret[days.get_loc(pd.Timestamp("2026-10-14"))] = -0.05
+    close = 80.0 * np.exp(np.cumsum(ret) - ret.sum())
+    path = folder / "evtx_history.csv"
+    pd.DataFrame({"underlying": "EVTX", "date": days.strftime("%Y-%m-%d"), "close": close}).to_csv(
+        path, index=False, float_format="%.12g")
+    return path
+
+
+def test_events_with_history_gives_the_past_moves_by_hand(event_chain, capsys):
+    path, folder = event_chain
+    hist = _history_with_known_event_moves(folder)
+    args = ["events", str(path), "--event", "EVTX:2027-01-12:amc", "--event", "EVTX:2026-07-14:amc",
+            "--event", "EVTX:2026-10-13:amc", "--history", str(hist)]
+    code, out, err = run(capsys, *args, "--format", "json")
+    assert code in (0, 1), err
+    (row,) = json.loads(out)
+    assert row["past_events"] == 2
+    # mean |move| and root mean square, by hand
+    assert row["past_mean_abs_move"] == pytest.approx(0.06, abs=1e-9)
+    assert row["past_rms_move"] == pytest.approx(np.sqrt((0.07**2 + 0.05**2) / 2), abs=1e-9)
+    assert row["past_moves"] == "-0.0500 +0.0700"
+    # the implied move is still the market's (the fixture's e^2 = 0.0064)
+    assert row["event_variance"] == pytest.approx(0.0064, rel=1e-3)
+    code, out, _ = run(capsys, *args, "--format", "csv", "--last", "1")
+    frame = pd.read_csv(__import__("io").StringIO(out))
+    assert frame["past_events"].iat[0] == 1 and frame["past_mean_abs_move"].iat[0] == pytest.approx(0.05)
+    code, out, err = run(capsys, *args)
+    assert "past mean |move|" in out and "6.0%" in out
+    assert "1 history file" in err
+    # without --history the columns are not there
+    code, out, _ = run(capsys, "events", str(path), "--event", "EVTX:2027-01-12:amc", "--format", "json")
+    assert "past_events" not in json.loads(out)[0]
