@@ -142,13 +142,15 @@ def run_events(args: argparse.Namespace) -> int:
     write_out(render(pd.concat(frames, ignore_index=True), args.format))
     status = report_with_events(args, result, annotated, extra, left_out)
     if loads is not None:
-        from chaintriage.tui.cli.history import history_status, history_summary_line
+        from chaintriage.tui.cli.common import EXIT_ROWS_LEFT_OUT
 
         if not args.quiet:
             for f in loads.findings:
                 print(one_line(str(f)), file=sys.stderr)
-        print(history_summary_line(loads), file=sys.stderr)
-        status = max(status, history_status(loads))
+        n = len(loads.files) + len(loads.errors)
+        print(f"{n} history file{'s' if n != 1 else ''}, {loads.rows_read} rows read, "
+              f"{loads.rows_read - loads.rows_left_out} accepted, {loads.rows_left_out} left out", file=sys.stderr)
+        status = max(status, EXIT_UNUSABLE if loads.errors else EXIT_ROWS_LEFT_OUT if loads.rows_left_out else 0)
     return status
 
 
