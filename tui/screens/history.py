@@ -53,12 +53,12 @@ def estimator_table(vh, ascii_only: bool = False) -> Text:
     names = [ESTIMATOR_NAMES[e] for e in ESTIMATORS]
     widths = [max(len(n), 6) for n in names]
     out = Text(no_wrap=True, overflow="crop")
-    out.append("  window  " + "  ".join(f"{n:>{w}}" for n, w in zip(names, widths)) + "\n", style="bold")
+    out.append(" window " + " ".join(f"{n:>{w}}" for n, w in zip(names, widths)) + "\n", style="bold")
     for window in vol.index:
-        out.append(f"  {int(window):>4}d   ")
+        out.append(f" {int(window):>5}d")
         for e, w in zip(ESTIMATORS, widths):
             text = f"{_vol(vol.loc[window, e], ascii_only):>{w}}"
-            out.append("  " + text, style="bold" if e == vh.summary.estimator else None)
+            out.append(" " + text, style="bold" if e == vh.summary.estimator else None)
         out.append("\n")
     return out
 
@@ -100,23 +100,20 @@ class HistoryScreen(Screen):
         vh, a = self._vh, self._ascii
         h = vh.history
         b = h.bars
-        head = Text(" price history: ", style="bold")
-        head.append(fm.clean_text(h.underlying))
-        head.append(f"  {len(b):,} daily bars {b['date'].iat[0]:%Y-%m-%d} to {b['date'].iat[-1]:%Y-%m-%d}, "
-                    f"last close {fm.fmt_price(h.last_close, ascii_only=a)}; basis {vh.settings.basis}; "
-                    "Esc closes")
+        head = Text(" history ", style="bold")
+        head.append(fm.clean_text(h.underlying), style="bold")
+        head.append(f": {len(b):,} days {b['date'].iat[0]:%Y-%m-%d} to {b['date'].iat[-1]:%Y-%m-%d}, "
+                    f"close {fm.fmt_price(h.last_close, ascii_only=a)}, basis {vh.settings.basis}")
         yield Static(head, classes="title")
         with VerticalScroll(id="history-scroll"):
-            yield Static(Text("realised vol by estimator and window (annualised; bold: the one used for the "
-                              "cone and the odds)", style="bold"))
+            yield Static(Text("realised vol by estimator and window (bold: used for the cone and odds)",
+                              style="bold"))
             yield Static(estimator_table(vh, a), id="history-estimators")
             est = ESTIMATOR_NAMES.get(vh.summary.estimator, vh.summary.estimator)
-            yield Static(Text(f"volatility cone of {est} vol (Burghardt-Lane) with today's ATM implied vols",
-                              style="bold"))
+            yield Static(Text(f"volatility cone (Burghardt-Lane), {est}, and today's ATM IVs", style="bold"))
             yield Static(cone_legend(a, cone_styles(self._theme)), id="history-legend")
             yield Static(Text(""), id="history-cone")
-            yield Static(Text("implied against realised, per expiry (the window nearest its trading days)",
-                              style="bold"))
+            yield Static(Text("implied against realised per expiry (window nearest its days)", style="bold"))
             yield Static(expiry_table(self._view, vh, a), id="history-expiries")
             yield Static(Text("\n".join(f"- {c}" for c in CAUTIONS), style="dim"), id="history-cautions")
         yield Footer(show_command_palette=False)

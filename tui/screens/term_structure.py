@@ -40,22 +40,21 @@ def chart_styles(theme: ChainTheme | None) -> ChartStyles:
                        forward=Style(color=c["otm_put"]), event=Style(color=c["warning"], bold=True))
 
 
-def past_move_line(moves, ascii_only: bool = False) -> Text:
+def past_move_lines(moves, ascii_only: bool = False) -> list[Text]:
     """The underlying's past moves on its past event sessions (``core.event_moves.PastEventMoves``)."""
     line = Text(" ", no_wrap=True, overflow="ellipsis")
     if moves is None:
-        line.append("past moves: open with a price history (--history) and past event dates to compare",
-                    style="dim")
-        return line
+        line.append("past moves: give past event dates (--events) with the price history", style="dim")
+        return [line]
     if not moves.used:
         line.append("past moves: no past event date falls inside the price history", style="dim")
-        return line
-    line.append(f"past moves, last {moves.used} event sessions (close to close): ")
+        return [line]
+    line.append(f"past {moves.used} event sessions (close to close): ")
     line.append(f"mean |move| {100 * moves.mean_abs:.1f}%", style="bold")
-    line.append(f", rms {100 * moves.rms:.1f}%;  newest first ")
-    line.append(" ".join(f"{100 * m:+.1f}" for m in moves.moves()))
-    line.append(" (%)")
-    return line
+    line.append(f", rms {100 * moves.rms:.1f}%")
+    each = Text("   newest first: " + " ".join(f"{100 * m:+.1f}" for m in moves.moves()) + " (%)",
+                no_wrap=True, overflow="ellipsis")
+    return [line, each]
 
 
 def event_lines(ts: TermStructure, spot: float, ascii_only: bool = False, past_moves=None,
@@ -92,7 +91,7 @@ def event_lines(ts: TermStructure, spot: float, ascii_only: bool = False, past_m
             fit.append(f", fit {ts.fit_rmse:.2f} vol pts over {ts.fitted_expiries} expiries")
     lines.append(fit)
     if ts.events and (with_history or past_moves is not None):
-        lines.append(past_move_line(past_moves, ascii_only))
+        lines.extend(past_move_lines(past_moves, ascii_only))
     return lines
 
 
@@ -168,7 +167,7 @@ class TermStructureScreen(Screen):
     def _draw_chart(self) -> None:
         chart = self.query_one("#term-chart", Static)
         width = max(self.size.width - 2, 20)
-        height = max(min(14, self.size.height - 13 - 2 * len(self._ts.events)), 6)
+        height = max(min(14, self.size.height - 14 - 2 * len(self._ts.events)), 6)
         frame = self._ts.table
         rows = term_chart(frame["t_years"], {"atm": frame["atm_iv"], "ex_event": frame["ex_event_vol"],
                                              "forward": frame["forward_vol"]},

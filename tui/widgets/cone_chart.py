@@ -20,8 +20,8 @@ from rich.text import Text
 #: Glyphs: (unicode, ascii).
 GLYPHS = {"range": ("·", "."), "quartiles": ("░", ":"), "median": ("─", "-"), "implied": ("●", "o"),
           "current": ("+", "+")}
-NAMES = {"range": "min to max", "quartiles": "quartiles (middle half)", "median": "median",
-         "current": "realised now", "implied": "ATM implied vol per expiry"}
+NAMES = {"range": "min-max", "quartiles": "middle half", "median": "median",
+         "current": "RV now", "implied": "ATM IV by expiry"}
 
 
 @dataclass(frozen=True)
@@ -134,5 +134,5 @@ def cone_legend(ascii_only: bool = False, styles: ConeStyles | None = None) -> T
     for name, style in (("implied", st.implied), ("current", st.current), ("median", st.median),
                         ("quartiles", st.band), ("range", st.dim)):
         out.append(GLYPHS[name][g] + " ", style=style)
-        out.append(NAMES[name] + "   ", style=st.text)
+        out.append(NAMES[name] + "  ", style=st.text)
     return out

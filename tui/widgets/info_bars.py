@@ -209,7 +209,7 @@ def expiry_pieces(info: ExpiryInfo | None, *, st: BarStyles, ascii_only: bool = 
     if info.ex_event_asked:
         if info.ex_event_ranges:
             pieces.insert(0, _piece(("EX-EVENT VIEW (n): ", st.warning),
-                                    ("P(beyond) and range at the ex-event vol (one vol, no skew: compare with 1-vol)", st.text)))
+                                    ("beyond and range at ex-event vol (one vol; cf. 1-vol)", st.text)))
         else:
             pieces.insert(0, _piece(("EX-EVENT VIEW (n): ", st.warning),
                                     ("this expiry carries no event; figures as they are", st.dim)))

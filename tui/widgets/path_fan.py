@@ -60,7 +60,7 @@ def draw_path_fan(fan: Any, *, width: int, height: int, colors: Any, ascii_only:
     rows: list[Text] = []
     head = Text(f" paths: {fan.paths:,} from {fm.clean_text(underlying)}'s own days", style=st_text)
     rows.append(head)
-    rows.append(Text(f" {fan.steps} trading days, block bootstrap ; p: back", style=st_dim))
+    rows.append(Text(f" {fan.steps} trading days, block bootstrap; p: back", style=st_dim))
     dist_rows = 6 if height >= 24 else 0
     foot_rows = 3
     chart_h = height - len(rows) - foot_rows - dist_rows - 1
