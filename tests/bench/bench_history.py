@@ -22,7 +22,7 @@ import pandas as pd
 
 from chaintriage.core.history_compare import HistorySettings, compare_with_snapshot, summarise_history
 from chaintriage.core.history_file import load_history
-from chaintriage.core.history_odds import bootstrap_odds, day_pool
+from chaintriage.core.history_odds import bootstrap_odds, bootstrap_paths, day_pool, path_fan, simulate_fan
 from chaintriage.core.loading import load_file
 from chaintriage.core.pipeline import annotate
 
@@ -86,6 +86,11 @@ def main() -> None:
                                                strikes > snap.spot, 0, paths=100_000, block=5), args.repeat)
         t_sim1 = best_ms(lambda: bootstrap_odds(pool, snap.spot, [snap.spot * 1.006], [60], strikes,
                                                 strikes > snap.spot, 0, paths=100_000, block=1), args.repeat)
+        # the app's path pane: the fan, the terminal prices and a few paths in one pass, against the
+        # whole path matrix and numpy's quantiles over it
+        t_fan = best_ms(lambda: simulate_fan(pool, snap.spot, snap.spot * 1.006, 60, paths=100_000), args.repeat)
+        t_fan_ref = best_ms(lambda: path_fan(bootstrap_paths(pool, snap.spot, snap.spot * 1.006, 60,
+                                                             paths=100_000)), max(2, args.repeat // 2))
         exp = annotated.expiries
         t_table = best_ms(lambda: compare_with_snapshot(annotated, hist, HistorySettings(paths=20_000)),
                           max(2, args.repeat // 2))
@@ -101,6 +106,8 @@ def main() -> None:
         ("all history work (load, estimators, cone, odds)", t_all, TARGET_HISTORY_MS),
         ("bootstrap 100,000 paths x 60 steps, block 5, 50 strikes", t_sim, TARGET_SIM_MS),
         ("bootstrap 100,000 paths x 60 steps, block 1, 50 strikes", t_sim1, TARGET_SIM_MS),
+        ("path pane: simulate_fan 100,000 paths x 60 steps (fan, terminal, sample)", t_fan, TARGET_SIM_MS),
+        ("  the same from bootstrap_paths + path_fan (whole matrix, np.quantile)", t_fan_ref, TARGET_SIM_MS),
         (f"table columns with bootstrap (20,000 paths, {len(exp)} expiries to "
          f"{int(exp['trading_days'].max())} days)", t_table, None),
     ]
