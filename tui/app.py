@@ -444,9 +444,11 @@ class ChainTriageApp(App[int]):
     def action_copy_summary(self) -> None:
         if not self.triage.body_ready:
             return
+        from chaintriage.tui.session import market_figures
+
         view = self.state.view
         grid = self.triage.grid
-        contract = grid.highlighted_contract()
+        contract = market_figures(grid.highlighted_contract())
         if view is None or contract is None:
             self.notify(f"nothing to copy: {self._no_contract_reason()}", severity="warning", markup=False)
             return
@@ -513,8 +515,10 @@ class ChainTriageApp(App[int]):
     def action_toggle_mark(self) -> None:
         if not self.triage.body_ready:
             return
+        from chaintriage.tui.session import market_figures
+
         view = self.state.view
-        contract = self.triage.grid.highlighted_contract()
+        contract = market_figures(self.triage.grid.highlighted_contract())
         if view is None or contract is None:
             self.notify(f"nothing to mark: {self._no_contract_reason()}", severity="warning", markup=False)
             return
@@ -726,8 +730,7 @@ class ChainTriageApp(App[int]):
         plot.clear(f" simulating paths from {und}'s days ...")
 
         def progress(share: float) -> None:
-            if self._fan_running == (id(view), expiry):
-                self.call_from_thread(plot.clear, f" simulating paths from {und}'s days: {100 * share:.0f}%")
+            self.call_from_thread(self._fan_progress, view, expiry, share)
 
         def job() -> None:
             try:
@@ -738,6 +741,11 @@ class ChainTriageApp(App[int]):
             self.call_from_thread(self._fan_done, view, expiry, error)
 
         self.run_worker(job, thread=True, group="paths", name="paths", exit_on_error=False)
+
+    def _fan_progress(self, view: SnapshotView, expiry, share: float) -> None:
+        st = self.state
+        if st.show_paths and st.view is view and st.current_expiry == expiry and self.triage.body_ready:
+            self.triage.plot.clear(f" simulating paths from {view.underlying}'s days: {100 * share:.0f}%")
 
     def _fan_done(self, view: SnapshotView, expiry, error: str) -> None:
         if self._fan_running == (id(view), expiry):

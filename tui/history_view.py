@@ -64,16 +64,25 @@ def _snapshot_day(view) -> pd.Timestamp:
     return pd.Timestamp(view.snapshot.as_of.tz_localize(None).normalize())
 
 
+def _last_bar_day(view) -> tuple[pd.Timestamp, bool]:
+    """(the snapshot's New York date, whether that day's bar is complete: taken at or after the 16:00 close)."""
+    from chaintriage.core.exchange_calendar import TZ
+
+    as_of = pd.Timestamp(view.snapshot.as_of)
+    ny = as_of.tz_convert(TZ) if as_of.tzinfo is not None else as_of
+    return pd.Timestamp(ny.tz_localize(None).normalize()), ny.hour >= 16
+
+
 def history_until(histories: Sequence[PriceHistory], view) -> PriceHistory | None:
-    """The history of ``view``'s underlying cut to the bars before its snapshot's day (None: none, or
-    fewer than three bars left)."""
+    """The history of ``view``'s underlying cut to the bars before its snapshot's day (that day's too when
+    the snapshot was taken after the close); None: none, or fewer than three bars left."""
     want = view.snapshot.underlying.strip().casefold()
     for h in histories:
         if h.underlying.strip().casefold() != want:
             continue
-        day = _snapshot_day(view)
+        day, closed = _last_bar_day(view)
         if h.last_date >= day:
-            keep = (h.bars["date"] < day).to_numpy()
+            keep = ((h.bars["date"] <= day) if closed else (h.bars["date"] < day)).to_numpy()
             h = PriceHistory(h.underlying, h.bars[keep].reset_index(drop=True), h.findings, h.source)
         return h if len(h.bars) >= 3 else None
     return None

@@ -316,6 +316,20 @@ def _float(value: Any) -> float:
 
 # ---------------------------------------------------------------- one loaded snapshot
 
+#: In the ex-event view's frames, the market's P(beyond) kept beside the ex-event one.
+MARKET_P_BEYOND = "p_beyond_market"
+
+
+def market_figures(contract: dict[str, Any] | None) -> dict[str, Any] | None:
+    """A ladder row with the market's P(beyond) back in place (rows of the ex-event view carry both):
+    what is copied or shortlisted is always the market's figure."""
+    if contract is None or MARKET_P_BEYOND not in contract:
+        return contract
+    out = dict(contract)
+    out["p_beyond"] = out.pop(MARKET_P_BEYOND)
+    return out
+
+
 
 class SnapshotView:
     """One annotated snapshot, sliced per expiry, with caches for what the screen asks again.
@@ -505,6 +519,7 @@ class SnapshotView:
 
             row = self.expiry_table.iloc[index]
             out = frame.copy()
+            out[MARKET_P_BEYOND] = frame["p_beyond"]
             out["p_beyond"] = ex_event_p_beyond(_float(row.get("forward")), frame["strike"].to_numpy(dtype=float),
                                                 (frame["kind"] == "call").to_numpy(), _float(row.get("t_years")),
                                                 ex_vol)

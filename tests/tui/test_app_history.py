@@ -94,6 +94,12 @@ def test_demo_opens_with_its_histories_and_h_p_n_work():
         want = norm.cdf(d2) if kind == "call" else norm.cdf(-d2)
         assert app.triage.grid.highlighted_contract()["p_beyond"] == pytest.approx(want, rel=1e-12)
         assert "range on ex-event vol" in bar(app, "expirybar")
+        # what is shortlisted (and copied) keeps the market's figure
+        await pilot.press("m")
+        await pilot.pause(0.1)
+        (entry,) = list(app.state.shortlist)
+        assert entry.figures["p_beyond"] == market
+        await pilot.press("m")
         _goto(app, "2026-12-11")  # before the event: figures as they are
         await pilot.pause()
         assert "carries no event" in bar(app, "expirybar")
