@@ -132,6 +132,21 @@ def test_demo_opens_with_its_histories_and_h_p_n_work():
         await pilot.pause(0.1)
         assert "paths:" not in app.triage.plot.last_result.plain[0]
 
+        # plain ASCII drawing: the path pane and the history screen keep to ASCII
+        await pilot.press("a")
+        await pilot.press("p")
+        await pilot.pause(0.2)
+        text = "\n".join(app.triage.plot.last_result.plain)
+        assert "paths:" in text and text.isascii()
+        await pilot.press("p")
+        await pilot.press("h")
+        await pilot.pause(0.2)
+        for part in ("#history-estimators", "#history-cone", "#history-legend", "#history-expiries"):
+            assert str(app.screen.query_one(part).render()).isascii(), part
+        await pilot.press("escape")
+        await pilot.press("a")
+        await pilot.pause(0.1)
+
         # the column picker's history columns show core's comparison figures
         app.set_columns(["bid", "ask", "p_beyond", "hist_p_beyond", "boot_p_beyond", "boot_p_beyond_se"])
         await pilot.pause(0.1)
