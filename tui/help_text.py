@@ -153,6 +153,10 @@ COLUMNS: tuple[ColumnHelp, ...] = (
     ColumnHelp("boot_p_beyond", "boot", "with a price history: P(beyond) from 20,000 simulated paths built "
                "from the underlying's own past days (block bootstrap, centred on the forward)"),
     ColumnHelp("boot_p_beyond_se", "boot±", "the simulation's standard error of 'boot' (sqrt(p(1-p)/paths))"),
+    ColumnHelp("hist_p_touch", "RV tch", "with a price history: P(touch) from a lognormal at the realised vol "
+               "with the forward's drift (watched continuously)"),
+    ColumnHelp("boot_p_touch", "b.tch", "with a price history: P(touch) from the same simulated paths (a day "
+               "touches when its high or low reaches the strike)"),
 )
 
 #: The areas of the triage screen, top to bottom.

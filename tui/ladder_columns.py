@@ -76,6 +76,8 @@ COLUMNS: dict[str, ColumnSpec] = {
         ColumnSpec("hist_p_beyond", "RV bey", "RV bey", 6, "hist_p_beyond", fm.fmt_prob),
         ColumnSpec("boot_p_beyond", "boot", "boot", 6, "boot_p_beyond", fm.fmt_prob),
         ColumnSpec("boot_p_beyond_se", "boot±", "boot+-", 6, "boot_p_beyond_se", fm.fmt_prob),
+        ColumnSpec("hist_p_touch", "RV tch", "RV tch", 6, "hist_p_touch", fm.fmt_prob),
+        ColumnSpec("boot_p_touch", "b.tch", "b.tch", 6, "boot_p_touch", fm.fmt_prob),
     )
 }
 

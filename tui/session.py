@@ -404,7 +404,7 @@ class SnapshotView:
         return out
 
     #: Per-contract history columns the ladder can show (``core.history_compare.HISTORY_CONTRACT_COLUMNS``).
-    HISTORY_FIELDS = ("hist_p_beyond", "hist_p_touch", "boot_p_beyond", "boot_p_beyond_se")
+    HISTORY_FIELDS = ("hist_p_beyond", "hist_p_touch", "boot_p_beyond", "boot_p_beyond_se", "boot_p_touch")
 
     def _with_history_columns(self, frame: pd.DataFrame) -> pd.DataFrame:
         """``frame`` with the history columns (same rows: core's comparison keeps the contracts' index)."""
