@@ -77,6 +77,10 @@ def test_demo_opens_with_its_histories_and_h_p_n_work():
         cone = str(app.screen.query_one("#history-cone").render())
         assert "trading days (log scale)" in cone and "●" in cone
         assert "not a forecast" in str(app.screen.query_one("#history-cautions").render())
+        past = str(app.screen.query_one("#history-past-moves").render())
+        moves = vh.past_moves
+        assert moves.used == 8 and f"mean |move| {100 * moves.mean_abs:.1f}%" in past
+        assert f"{100 * moves.table['move'].iat[0]:+6.1f}%" in past
         await pilot.press("escape")
         await pilot.pause(0.1)
 

@@ -84,6 +84,23 @@ def expiry_table(view, vh, ascii_only: bool = False) -> Text:
     return out
 
 
+def past_moves_table(moves, ascii_only: bool = False) -> Text:
+    """The last past event sessions (``core.event_moves.PastEventMoves``), newest first, and their summary."""
+    out = Text(no_wrap=True, overflow="crop")
+    if moves is None or not moves.used:
+        out.append("  no past event dates inside the history (give them with --events)", style="dim")
+        return out
+    out.append(f"  last {moves.used}: mean |move| {100 * moves.mean_abs:.1f}%, rms {100 * moves.rms:.1f}% "
+               "(compare with the implied move on y)\n", style="bold")
+    out.append("  event date  timing        session      move   open gap\n", style="bold")
+    t = moves.table.iloc[:moves.used]
+    for row in t.itertuples(index=False):
+        gap = f"{100 * row.gap:+.1f}%" if np.isfinite(row.gap) else fm.placeholder(ascii_only)
+        out.append(f"  {row.date:%Y-%m-%d}  {row.timing:<12}  {row.session:%Y-%m-%d}  {100 * row.move:+6.1f}%"
+                   f"  {gap:>8}\n")
+    return out
+
+
 class HistoryScreen(Screen):
     """Realised vol, the cone and implied against realised for one snapshot's underlying."""
 
@@ -115,6 +132,8 @@ class HistoryScreen(Screen):
             yield Static(Text(""), id="history-cone")
             yield Static(Text("implied against realised per expiry (window nearest its days)", style="bold"))
             yield Static(expiry_table(self._view, vh, a), id="history-expiries")
+            yield Static(Text("past event sessions (close to close, newest first)", style="bold"))
+            yield Static(past_moves_table(vh.past_moves, a), id="history-past-moves")
             yield Static(Text("\n".join(f"- {c}" for c in CAUTIONS), style="dim"), id="history-cautions")
         yield Footer(show_command_palette=False)
 
