@@ -467,7 +467,8 @@ class ChainTriageApp(App[int]):
     def copy_entry(self, entry: ShortlistEntry) -> None:
         k = entry.key
         row = dict(entry.figures, underlying=k.underlying, expiry=k.expiry, strike=k.strike, kind=k.kind)
-        self.copy_text(summarize(row, as_of=k.as_of, ascii_only=self.state.ascii_only))
+        self.copy_text(summarize(row, as_of=k.as_of, ascii_only=self.state.ascii_only,
+                                 spot=entry.figures.get("spot"), forward=entry.figures.get("forward")))
 
     def copy_text(self, text: str) -> None:
         """Copy to the terminal's clipboard and (in a daemon thread) the system's; then say what happened.
@@ -522,9 +523,15 @@ class ChainTriageApp(App[int]):
         if view is None or contract is None:
             self.notify(f"nothing to mark: {self._no_contract_reason()}", severity="warning", markup=False)
             return
+        self._toggle_shortlist(view, contract)
+
+    def _toggle_shortlist(self, view: SnapshotView, contract: dict) -> None:
+        """Set a contract (a contracts-table row) aside, or take it off; spot and its expiry's forward go with it."""
         key = ContractKey.of(view.snapshot.underlying, view.snapshot.as_of, contract["expiry"],
                              contract["strike"], contract["kind"])
-        self.state.shortlist.toggle(key, contract)
+        pos = view.expiry_index(contract["expiry"])
+        forward = view.info(pos, self.state.confidence).forward if pos is not None else None
+        self.state.shortlist.toggle(key, dict(contract, spot=view.snapshot.spot, forward=forward))
         self.shortlist_changed()  # the mark in the ladder and the count in the top line say it
 
     def shortlist_changed(self) -> None:
@@ -770,6 +777,30 @@ class ChainTriageApp(App[int]):
         self.triage.show_expiry()
         self.notify("ex-event view: P(beyond) and ranges on the ex-event vol where an event is carried"
                     if st.ex_event else "market view: P(beyond) and ranges as priced", timeout=2, markup=False)
+
+    def action_show_targets(self) -> None:
+        """The target view: per expiry, the contract nearest a target (key r)."""
+        from chaintriage.tui.screens.target_view import TargetViewScreen, initial_target
+
+        st = self.state
+        view = st.view
+        if view is None or not self.triage.body_ready or not view.expiries:
+            return
+        target = initial_target(st.target, self.triage.grid.selected_kind, st.strike_filter)
+        snap = view.snapshot
+
+        def open_ladder(expiry, strike: float, kind: str) -> None:
+            self.go_to_contract(ContractKey.of(snap.underlying, snap.as_of, expiry, strike, kind))
+
+        def mark(contract: dict) -> None:
+            self._toggle_shortlist(view, contract)
+
+        def remember(chosen) -> None:
+            st.target = chosen
+
+        self.push_screen(TargetViewScreen(view, target, on_open=open_ladder, shortlist=st.shortlist, on_mark=mark,
+                                          on_target=remember, current_expiry=st.current_expiry,
+                                          ascii_only=st.ascii_only))
 
     def action_load_file(self) -> None:
         from chaintriage.tui.screens.path_prompt import PathPrompt

@@ -36,9 +36,13 @@ from . import formatting as fm
 from .files import write_text_atomic
 
 #: Figures kept per contract (contracts-table column names), in export order.
+#: ``p_profit_sell`` / ``p_profit_buy``: the chance a seller at the bid / a buyer at the ask ends expiry
+#: ahead (risk-neutral), at the breakevens ``breakeven_sell`` (strike -/+ bid) and ``breakeven_buy``;
+#: ``spot`` and ``forward`` (the expiry's) as they were when the contract was set aside.
 FIGURES: tuple[str, ...] = (
     "bid", "ask", "mid", "iv", "sigma_distance", "p_beyond", "p_beyond_flat", "p_touch",
     "delta", "breakeven", "p_breakeven", "spread_pct", "open_interest", "volume", "flags",
+    "p_profit_sell", "p_profit_buy", "breakeven_sell", "breakeven_buy", "spot", "forward",
 )
 #: Figures that are text, not numbers.
 TEXT_FIGURES = frozenset({"flags"})
@@ -54,7 +58,9 @@ MARKDOWN_HEADINGS: dict[str, str] = {
     "bid": "bid", "ask": "ask", "mid": "mid", "iv": "IV", "sigma_distance": "σ dist",
     "p_beyond": "P(beyond)", "p_beyond_flat": "P(beyond) 1-vol", "p_touch": "P(touch)", "delta": "delta",
     "breakeven": "BE", "p_breakeven": "P(BE)", "spread_pct": "spread", "open_interest": "OI",
-    "volume": "volume", "flags": "flags",
+    "volume": "volume", "flags": "flags", "p_profit_sell": "P(profit) selling at bid",
+    "p_profit_buy": "P(profit) buying at ask", "breakeven_sell": "BE selling", "breakeven_buy": "BE buying",
+    "spot": "spot", "forward": "forward",
 }
 
 
@@ -229,13 +235,15 @@ def markdown_figure(name: str, value: Any, ascii_only: bool = False) -> str:
     """A figure formatted for reading in the Markdown export."""
     if name in TEXT_FIGURES:
         return markdown_text(value)
-    if name in ("bid", "ask", "mid", "breakeven"):
+    if name in ("bid", "ask", "mid", "breakeven", "breakeven_sell", "breakeven_buy"):
         return fm.fmt_price(value, ascii_only=True)
+    if name in ("spot", "forward"):
+        return fm.fmt_level(value, ascii_only=True)
     if name == "iv":
         return fm.fmt_vol(value, ascii_only=True)
     if name == "sigma_distance":
         return fm.fmt_sigma(value, ascii_only=ascii_only) if fm.as_finite(value) is not None else "--"
-    if name in ("p_beyond", "p_beyond_flat", "p_touch", "p_breakeven"):
+    if name in ("p_beyond", "p_beyond_flat", "p_touch", "p_breakeven", "p_profit_sell", "p_profit_buy"):
         return fm.fmt_prob(value, ascii_only=True)
     if name == "delta":
         return fm.fmt_delta(value, ascii_only=True)

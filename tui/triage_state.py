@@ -56,6 +56,8 @@ class TriageState:
         self.ex_event = False
         #: The ``p`` toggle: the side pane shows simulated history paths instead of the distribution.
         self.show_paths = False
+        #: The target view's last target (a core.targets.Target; None until it is first opened).
+        self.target: Any = None
 
     @property
     def strike_filter(self) -> StrikeFilter:

@@ -30,7 +30,8 @@ def contract(strike=95.0, kind="put", **over):
     r = dict(underlying="QRTZ", expiry=pd.Timestamp("2027-01-15"), strike=strike, kind=kind,
              bid=1.20, ask=1.26, mid=1.23, iv=0.312, sigma_distance=-1.4849, p_beyond=0.081,
              p_beyond_flat=0.07, p_touch=0.159, delta=-0.21, breakeven=93.77, p_breakeven=0.061,
-             spread_pct=0.0488, open_interest=12345.0, volume=678.0, flags="wide")
+             spread_pct=0.0488, open_interest=12345.0, volume=678.0, flags="wide", p_profit_sell=0.9312,
+             p_profit_buy=0.0561, breakeven_sell=93.8, breakeven_buy=93.74, spot=101.52, forward=101.87)
     r.update(over)
     return r
 

@@ -48,14 +48,16 @@ def home_short(path: Path) -> str:
     return text
 
 #: (heading, figure) of the shortlist table, in the order a trader reads them: what and when, the
-#: quotes, then the model's figures, the liquidity, the snapshot time. "days" is calendar days from
+#: quotes, then the model's figures (a seller's at the bid, a buyer's at the ask), the liquidity, spot and the
+#: expiry's forward when it was set aside, the snapshot time. "days" is calendar days from
 #: the snapshot's date to the expiry.
 SHORTLIST_COLUMNS: tuple[tuple[str, str], ...] = (
     ("underlying", "underlying"), ("expiry", "expiry"), ("days", "days"), ("strike", "strike"),
     ("kind", "kind"), ("bid", "bid"), ("ask", "ask"), ("mid", "mid"), ("IV", "iv"),
     ("σ dist", "sigma_distance"), ("delta", "delta"), ("beyond", "p_beyond"), ("touch", "p_touch"),
-    ("BE", "breakeven"), ("P(BE)", "p_breakeven"), ("spread", "spread_pct"), ("OI", "open_interest"),
-    ("flags", "flags"), ("as of", "as_of"),
+    ("BE", "breakeven"), ("P(BE)", "p_breakeven"), ("P sell", "p_profit_sell"), ("BE sell", "breakeven_sell"),
+    ("P buy", "p_profit_buy"), ("BE buy", "breakeven_buy"), ("spread", "spread_pct"), ("OI", "open_interest"),
+    ("spot", "spot"), ("fwd", "forward"), ("flags", "flags"), ("as of", "as_of"),
 )
 #: Columns of text (left-aligned); every other column holds numbers (right-aligned, heading too).
 TEXT_COLUMNS = frozenset({"underlying", "expiry", "kind", "flags", "as_of"})
@@ -64,7 +66,8 @@ _FORMATS = {
     "bid": fm.fmt_price, "ask": fm.fmt_price, "mid": fm.fmt_price, "iv": fm.fmt_vol,
     "sigma_distance": fm.fmt_sigma, "delta": fm.fmt_delta, "p_beyond": fm.fmt_prob, "p_touch": fm.fmt_prob,
     "breakeven": fm.fmt_price, "p_breakeven": fm.fmt_prob, "spread_pct": fm.fmt_spread,
-    "open_interest": fm.fmt_count,
+    "open_interest": fm.fmt_count, "p_profit_sell": fm.fmt_prob, "p_profit_buy": fm.fmt_prob,
+    "breakeven_sell": fm.fmt_price, "breakeven_buy": fm.fmt_price, "spot": fm.fmt_level, "forward": fm.fmt_level,
 }
 
 

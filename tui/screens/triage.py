@@ -67,6 +67,8 @@ class TriageScreen(Screen):
         Binding("h", "app.show_history", "history", show=False),
         Binding("p", "app.toggle_paths", "paths", show=False),
         Binding("n", "app.toggle_ex_event", "ex-event", show=False),
+        Binding("r", "app.show_targets", "targets"),
+        Binding("z", "app.sort_ladder", "sort", show=False),
         Binding("l", "app.load_file", "open file", show=False),
         Binding("q", "app.quit", "quit"),
     ]
