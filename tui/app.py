@@ -800,7 +800,7 @@ class ChainTriageApp(App[int]):
 
         self.push_screen(TargetViewScreen(view, target, on_open=open_ladder, shortlist=st.shortlist, on_mark=mark,
                                           on_target=remember, current_expiry=st.current_expiry,
-                                          ascii_only=st.ascii_only))
+                                          theme=st.theme, ascii_only=st.ascii_only))
 
     def action_load_file(self) -> None:
         from chaintriage.tui.screens.path_prompt import PathPrompt

@@ -165,10 +165,9 @@ def test_typed_values_and_steps():
 
 
 def _table_text(screen) -> list[str]:
-    from chaintriage.tui.widgets.row_table import RowTable
+    from chaintriage.tui.widgets.line_table import LineTable
 
-    table = screen.query_one("#target-table", RowTable)
-    return [" ".join(str(c) for c in table.get_row_at(i)) for i in range(table.row_count)]
+    return screen.query_one("#target-table", LineTable).lines_text()[1:]
 
 
 def test_keys_change_target_side_strike_and_open_the_ladder():
@@ -214,7 +213,7 @@ def test_keys_change_target_side_strike_and_open_the_ladder():
         header, values = csv_lines[0].split(","), csv_lines[1].split(",")
         assert float(values[header.index("p_profit_sell")]) == pytest.approx(contract["p_profit_sell"], rel=1e-9)
         assert float(values[header.index("forward")]) == pytest.approx(entry.figures["forward"], rel=1e-9)
-        assert _table_text(screen)[2].startswith("●")
+        assert _table_text(screen)[2].lstrip().startswith("●")
         expiry, strike = view.expiries[2], screen.table["strike"].iat[2]
         await pilot.press("enter")
         await pilot.pause()

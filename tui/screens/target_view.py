@@ -29,14 +29,14 @@ from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Vertical
 from textual.screen import ModalScreen, Screen
-from textual.widgets import DataTable, Footer, Input, Static
+from textual.widgets import Footer, Input, Static
 
 from chaintriage.core.findings import ChainTriageError
 from chaintriage.core.targets import Target
 from chaintriage.tui import formatting as fm
 from chaintriage.tui.screens.common import close, plain
 from chaintriage.tui.session import SIGMA_LIMIT, SnapshotView
-from chaintriage.tui.widgets.row_table import RowTable
+from chaintriage.tui.widgets.line_table import LineTable
 
 #: Measures in the order keys 1, 2, 3 choose them.
 MEASURE_KEYS = ("sigma", "delta", "beyond")
@@ -85,6 +85,8 @@ TARGET_VIEW_COLUMNS: tuple[ViewColumn, ...] = (
     ViewColumn("IV", "iv"),
     ViewColumn("touch", "p_touch"),
     ViewColumn("touch range", "touch_range"),
+    ViewColumn("event", "events", text=True),
+    ViewColumn("flags", "flags", text=True),
     ViewColumn("P buy", "p_profit_buy"),
     ViewColumn("buy /day", "premium_per_day_buy"),
     ViewColumn("return", "return_sell"),
@@ -95,9 +97,9 @@ TARGET_VIEW_COLUMNS: tuple[ViewColumn, ...] = (
     ViewColumn("spread", "spread_pct"),
     ViewColumn("OI", "open_interest"),
     ViewColumn("nearby", "nearby"),
-    ViewColumn("event", "events", text=True),
-    ViewColumn("flags", "flags", text=True),
 )
+#: Widest event and flags cells (longer text is cut, the help and the ladder have the whole).
+TEXT_WIDTH = 18
 
 _FORMATS: dict[str, Callable[..., str]] = {
     "calendar_days": fm.fmt_count, "strike": fm.fmt_strike, "p_beyond": fm.fmt_prob,
@@ -123,6 +125,15 @@ def describe_target(target: Target, shift: int = 0, ascii_only: bool = False) ->
     if shift:
         n = abs(shift)
         text += f", then {n} strike{'s' if n != 1 else ''} {'up' if shift > 0 else 'down'}"
+    return text
+
+
+def _cut(value: Any, ascii_only: bool) -> str:
+    text = fm.clean_text(value)
+    if ascii_only:
+        text = text.encode("ascii", "replace").decode("ascii")
+    if len(text) > TEXT_WIDTH:
+        text = text[:TEXT_WIDTH - 1] + ("~" if ascii_only else "…")
     return text
 
 
@@ -237,9 +248,9 @@ def format_rows(table: pd.DataFrame, *, events: list[str] | None = None, marked:
             elif key == "nearby":
                 cells.append(f"{strike_text(belows[i])} / {strike_text(aboves[i])}")
             elif key == "events":
-                cells.append(fm.clean_text(events[i]) if events and i < len(events) else "")
+                cells.append(_cut(events[i] if events and i < len(events) else "", ascii_only))
             elif key == "flags":
-                cells.append(fm.clean_text(cols["flags"][i]))
+                cells.append(_cut(cols["flags"][i], ascii_only))
             else:
                 cells.append(_FORMATS[key](cols[key][i], ascii_only=ascii_only))
         out.append(tuple(cells))
@@ -316,8 +327,9 @@ class TargetViewScreen(Screen):
     def __init__(self, view: SnapshotView, target: Target, *, on_open: Callable[[Any, float, str], Any],
                  shortlist: Any = None, on_mark: Callable[[dict], Any] | None = None,
                  on_target: Callable[[Target], None] = lambda t: None, current_expiry: Any = None,
-                 ascii_only: bool = False) -> None:
+                 theme: Any = None, ascii_only: bool = False) -> None:
         super().__init__()
+        self._theme = theme
         self.view = view
         self.target = target
         self.shift = 0
@@ -366,17 +378,16 @@ class TargetViewScreen(Screen):
             head.append(f"  spot {fm.fmt_level(spot, ascii_only=self._ascii)}", style="dim")
         yield Static(head, classes="title")
         yield Static(Text(""), id="target-line", classes="title")
-        yield RowTable(id="target-table", fixed_columns=FIXED_COLUMNS)
+        yield LineTable(id="target-table", fixed=FIXED_COLUMNS, theme=self._theme)
         yield Static(Text(""), id="target-note")
         yield Static(Text(CAUTION, style="dim"), id="target-caution")
         yield Footer(show_command_palette=False)
 
     def on_mount(self) -> None:
-        table = self.query_one("#target-table", RowTable)
+        table = self.query_one("#target-table", LineTable)
         sig = fm.SIGMA_ASCII if self._ascii else fm.SIGMA
-        for c in TARGET_VIEW_COLUMNS:
-            heading = c.heading.replace(fm.SIGMA, sig)
-            table.add_column(Text(heading, justify="left" if c.text else "right"), key=c.key)
+        table.set_columns([c.heading.replace(fm.SIGMA, sig) for c in TARGET_VIEW_COLUMNS],
+                          [not c.text for c in TARGET_VIEW_COLUMNS])
         self.redraw()
         self._touch_queue = [e for e in self.view.expiries if e not in self.view.annotated.touched]
         if self._touch_queue:
@@ -384,8 +395,12 @@ class TargetViewScreen(Screen):
         if self._current_expiry is not None:
             pos = self.view.expiry_index(self._current_expiry)
             if pos is not None and pos < table.row_count:
-                table.move_cursor(row=pos)
+                table.move_cursor(pos)
         table.focus()
+        self.watch(table, "scroll_x", lambda _: self._draw_lines(), init=False)
+
+    def on_resize(self) -> None:
+        self.call_after_refresh(self._draw_lines)
 
     # ------------------------------------------------------------ drawing
 
@@ -408,11 +423,9 @@ class TargetViewScreen(Screen):
         figures = {name: float(contracts[name].iat[row]) for name in ("p_touch", "p_touch_low", "p_touch_high")}
         for name, value in figures.items():
             self.table.loc[self.table.index[pos], name] = value
-        cells = format_rows(self.table.iloc[pos:pos + 1], ascii_only=self._ascii)[0]
-        table = self.query_one("#target-table", RowTable)
-        for c, cell in zip(TARGET_VIEW_COLUMNS, cells):
-            if c.key in ("p_touch", "touch_range"):
-                table.update_cell(str(pos), c.key, Text(cell, justify="right"))
+        cells = format_rows(self.table.iloc[pos:pos + 1], events=self._events[pos:pos + 1],
+                            marked=self._marked_rows(self.table.iloc[pos:pos + 1]), ascii_only=self._ascii)[0]
+        self.query_one("#target-table", LineTable).set_row(pos, cells)
         if not self._touch_queue:
             self._draw_lines()
 
@@ -420,15 +433,9 @@ class TargetViewScreen(Screen):
         """Select the targets again and draw every row (the cursor stays on its expiry)."""
         self.table = target_figures(self.view, self.target, self.shift)
         rows = format_rows(self.table, events=self._events, marked=self._marked_rows(self.table), ascii_only=self._ascii)
-        table = self.query_one("#target-table", RowTable)
-        cursor = table.cursor_row
-        table.clear()
-        for i, cells in enumerate(rows):
-            table.add_row(*[Text(cell, justify="left" if c.text else "right")
-                            for c, cell in zip(TARGET_VIEW_COLUMNS, cells)], key=str(i))
-        if rows and cursor is not None:
-            table.move_cursor(row=min(max(cursor, 0), len(rows) - 1), animate=False)
+        self.query_one("#target-table", LineTable).set_rows(rows)
         self._draw_lines()
+        self.call_after_refresh(self._draw_lines)  # the table's width is known after the next layout
 
     def _draw_lines(self) -> None:
         line = Text(" " + describe_target(self.target, self.shift, self._ascii), style="bold", no_wrap=True,
@@ -442,6 +449,8 @@ class TargetViewScreen(Screen):
         missing = int((table["row"].to_numpy() < 0).sum()) if len(table) else 0
         touch_known = int(np.isfinite(table["p_touch"].to_numpy(dtype=float)).sum()) if len(table) else 0
         parts = []
+        if self.query_one("#target-table", LineTable).more_to_the_right:
+            parts.append("more columns: Ctrl+PgDn")
         if missing:
             parts.append(f"{missing} expir{'ies have' if missing != 1 else 'y has'} no usable {self.target.side}")
         if touch_known < len(table) - missing and getattr(self, "_touch_queue", None):
@@ -490,9 +499,8 @@ class TargetViewScreen(Screen):
 
     def _current_row(self) -> tuple[int, int] | None:
         """(expiry position, contract row) under the cursor; None when the expiry has no contract."""
-        table = self.query_one("#target-table", RowTable)
-        pos = table.cursor_row
-        if pos is None or not 0 <= pos < len(self.table):
+        pos = self.query_one("#target-table", LineTable).cursor_row
+        if not 0 <= pos < len(self.table):
             return None
         row = int(self.table["row"].iat[pos])
         return (pos, row) if row >= 0 else None
@@ -509,7 +517,7 @@ class TargetViewScreen(Screen):
         if close(self):
             self._on_open(self.view.expiries[pos], float(contract["strike"]), str(contract["kind"]))
 
-    def on_data_table_row_selected(self, event: DataTable.RowSelected) -> None:
+    def on_line_table_chosen(self, event: LineTable.Chosen) -> None:
         event.stop()
         self.action_open_ladder()
 
