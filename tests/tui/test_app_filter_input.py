@@ -52,3 +52,74 @@ def test_a_plain_decimal_is_taken_and_shown_without_a_minus_zero():
         assert app.state.strike_filter.sigma == 0 and "-0" not in bar(app, "filterbar")
 
     run(app, scenario)
+
+
+async def _fill(pilot, **values: str):
+    """Open the dialog, set the named fields (ids without "f-"), press Enter in the first one."""
+    await pilot.press("f")
+    dialog = pilot.app.screen
+    assert isinstance(dialog, FilterDialog)
+    for name, text in values.items():
+        dialog.query_one(f"#f-{name}").value = text
+    dialog.query_one("#f-sigma").focus()
+    await pilot.press("enter")
+    await pilot.pause()
+    return dialog
+
+
+@pytest.mark.parametrize("fields, said", [
+    ({"delta": "0,1-0,3"}, "comma"), ({"delta": "0.3-0.1"}, "low end is above"), ({"delta": "1.5"}, "at most"),
+    ({"beyond": "5-150"}, "at most"), ({"beyond": "-"}, "LOW-HIGH"), ({"beyond": "1,5"}, "comma"),
+    ({"side": "straddles"}, "not calls, puts or both"), ({"delta": "0.1-0.2-0.3"}, "not a number"),
+])
+def test_unusable_range_or_side_keeps_the_dialog_open(fields, said):
+    app = make_app()
+
+    async def scenario(pilot):
+        dialog = await _fill(pilot, **fields)
+        assert app.screen is dialog
+        assert said in str(dialog.query_one("#f-error").render())
+        await pilot.press("escape")
+        assert not app.state.strike_filter.active
+
+    run(app, scenario)
+
+
+def test_ranges_side_and_limits_combine_and_reopen_as_typed():
+    """[D] What the dialog makes is StrikeFilter.parse of the typed text (ranges inclusive; P(beyond)
+    in percent); the ladder then shows exactly the strikes that filter keeps; reopening shows the
+    values again in the same form."""
+    from chaintriage.tui.session import StrikeFilter
+
+    app = make_app()
+
+    async def scenario(pilot):
+        await _fill(pilot, sigma="0.5", delta="0.05-0.30", beyond="2-", side="p", spread="25", oi="1,000")
+        flt = app.state.strike_filter
+        assert flt == StrikeFilter(sigma=0.5, delta=(0.05, 0.30), beyond=(0.02, None), side="puts",
+                                   max_spread=0.25, min_open_interest=1000.0)
+        view = app.state.view
+        kept, _ = flt.apply(view.frame(app.state.current_expiry))
+        assert list(app.triage.grid.strikes) == sorted(set(kept["strike"]))
+        assert "puts only" in bar(app, "filterbar") and "P(beyond)" in bar(app, "filterbar")
+        await pilot.press("f")
+        dialog = app.screen
+        shown = {n: dialog.query_one(f"#f-{n}").value for n in ("sigma", "delta", "beyond", "side", "spread", "oi")}
+        assert shown == {"sigma": "0.5", "delta": "0.05-0.3", "beyond": "2-", "side": "puts", "spread": "25",
+                         "oi": "1000"}
+        await pilot.press("enter")  # applying the shown values again gives the same filter
+        await pilot.pause()
+        assert app.state.strike_filter == flt
+        await _fill(pilot, sigma="", delta="", beyond="-10", side="", spread="", oi="")
+        assert app.state.strike_filter == StrikeFilter(beyond=(None, 0.10))
+
+    run(app, scenario)
+
+
+def test_side_words_and_range_text():
+    from chaintriage.tui.screens.filter_dialog import range_text, side_word
+
+    assert [side_word(t) for t in ("", "b", "Calls", " p ", "put", "x")] == ["both", "both", "calls", "puts",
+                                                                           "puts", "x"]
+    assert range_text(None) == "" and range_text((0.1, None)) == "0.1-" and range_text((None, 0.3)) == "-0.3"
+    assert range_text((0.05, 0.2), 100.0) == "5-20"
