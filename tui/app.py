@@ -593,6 +593,23 @@ class ChainTriageApp(App[int]):
         self.triage.refresh_bars()
         self._save_settings()
 
+    def action_sort_ladder(self) -> None:
+        """Sort the ladder by a shown column of the selected side, or back to strike order (key z)."""
+        from chaintriage.tui.screens.sort_chooser import STRIKE_ORDER, SortChooser
+
+        if not self.triage.body_ready or self.state.view is None:
+            return
+        grid = self.triage.grid
+        side = grid.selected_kind
+
+        def done(choice: tuple[str, bool] | None) -> None:
+            if choice is None:
+                return
+            key, descending = choice
+            grid.set_sort(None if key == STRIKE_ORDER else (key, side, descending))
+
+        self.push_screen(SortChooser(grid.columns, side, grid.sort, ascii_only=self.state.ascii_only), done)
+
     def action_toggle_plot(self) -> None:
         if not self.triage.body_ready:
             return

@@ -31,6 +31,8 @@ from chaintriage.tui.screens.findings import FindingsScreen
 from chaintriage.tui.screens.help import HelpScreen
 from chaintriage.tui.screens.path_prompt import PathPrompt
 from chaintriage.tui.screens.shortlist import ShortlistScreen
+from chaintriage.tui.screens.sort_chooser import SortChooser
+from chaintriage.tui.screens.target_view import TargetValuePrompt, TargetViewScreen
 from chaintriage.tui.widgets.strike_grid import StrikeGrid
 
 from .abuse_support import Driver, binding_keys, drive, quick_idle, write_big_chain
@@ -39,7 +41,7 @@ from .app_support import Clipboard, bar, demo_views, wait_ready
 KEYS_PER_SEED = int(os.environ.get("CHAINTRIAGE_ABUSE_KEYS", "340"))
 SEEDS = [int(s) for s in os.environ.get("CHAINTRIAGE_ABUSE_SEEDS", "11,12,13,14,15,16").split(",") if s.strip()]
 BINDINGS = binding_keys(TriageScreen, StrikeGrid, HelpScreen, FindingsScreen, ShortlistScreen, ColumnPicker,
-                        FilterDialog, PathPrompt, ConfirmDialog)
+                        FilterDialog, PathPrompt, ConfirmDialog, TargetViewScreen, TargetValuePrompt, SortChooser)
 BAD_TEXT = re.compile(r"\b(nan|NaN|inf|Inf|Traceback)\b")
 
 #: Figures gathered over the run, printed by the last test (pytest -s shows them).
@@ -137,7 +139,7 @@ def test_the_seeds_together_reach_every_screen_and_enough_keys():
         pytest.skip("needs every seed of this module to have run")
     seen = set().union(*(d.screens_seen for d in FIGURES.values()))
     wanted = {"TriageScreen", "HelpScreen", "FindingsScreen", "ShortlistScreen", "ColumnPicker",
-              "FilterDialog", "PathPrompt", "ConfirmDialog"}
+              "FilterDialog", "PathPrompt", "ConfirmDialog", "TargetViewScreen", "SortChooser"}
     assert wanted <= seen, wanted - seen
     total = sum(d.pressed for d in FIGURES.values())
     if "CHAINTRIAGE_ABUSE_KEYS" not in os.environ and "CHAINTRIAGE_ABUSE_SEEDS" not in os.environ:

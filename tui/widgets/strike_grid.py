@@ -11,6 +11,13 @@ a mark beside the strike.
 
 Filtering is the caller's job: ``set_rows`` receives only the rows to show.
 
+``set_sort`` orders the rows by one column of one side (ascending or
+descending; missing values last, ties in strike order) instead of by strike;
+``set_sort(None)`` goes back to strike order. While sorted the forward line is
+left out (it sits between strikes, which no longer run in order), the side
+label names the sort, and ``g`` still goes to the strike nearest the forward,
+wherever the sort put it.
+
 The widget draws itself line by line (``ScrollView.render_line``) from cached
 ``Strip``s built from plain Segments: text from data is never parsed as markup.
 Rows are formatted lazily, when first drawn, so a new expiry costs only the
@@ -156,6 +163,11 @@ class StrikeGrid(ScrollView, can_focus=True):
         self._kept_key: tuple | None = None
         #: Bumped whenever the looks of every row change (columns, theme, ASCII).
         self._looks = 0
+        #: (column key, side, descending) the rows are sorted by; None: strike order.
+        self._sort: tuple[str, str, bool] | None = None
+        #: Strike index shown on each display row while sorted (and its inverse); None in strike order.
+        self._order: np.ndarray | None = None
+        self._rank: np.ndarray | None = None
         if columns is not None:
             self._columns = self._specs(columns)
         self._update_virtual_size()
@@ -200,6 +212,7 @@ class StrikeGrid(ScrollView, can_focus=True):
             while len(self._kept) > KEEP_EXPIRIES:
                 self._kept.popitem(last=False)
         self._kept_key = key
+        self._apply_sort()
         strikes = self._strikes
         m = len(strikes)
         # Where the highlight goes.
@@ -323,6 +336,67 @@ class StrikeGrid(ScrollView, can_focus=True):
         self._marked = marked
         self._invalidate()
 
+    def set_sort(self, sort: tuple[str, str, bool] | None) -> None:
+        """Order the rows by ``(column key, "call" or "put", descending)``, or by strike with None.
+
+        Missing values go last either way; equal values keep strike order. The
+        highlight stays on its contract, centred.
+        """
+        if sort is not None:
+            key, side, descending = sort
+            if key not in COLUMNS or side not in (CALL, PUT):
+                raise ValueError(f"cannot sort by {key!r} on the {side!r} side")
+            sort = (key, side, bool(descending))
+        if sort == self._sort:
+            return
+        self._sort = sort
+        self._apply_sort()
+        self._header_cache = None
+        self._invalidate()
+        self._update_virtual_size()
+        self._scroll_cursor_into_view(center=True)
+
+    @property
+    def sort(self) -> tuple[str, str, bool] | None:
+        """(column key, side, descending) of the sort, or None in strike order."""
+        return self._sort
+
+    def sort_words(self) -> str:
+        """The sort in plain words, e.g. "by bid, high to low" ("" in strike order)."""
+        if self._sort is None:
+            return ""
+        key, _, descending = self._sort
+        spec = COLUMNS[key]
+        heading = spec.heading_ascii if self._ascii else spec.heading
+        if spec.text:
+            return f"by {heading}, {'Z to A' if descending else 'A to Z'}"
+        return f"by {heading}, {'high to low' if descending else 'low to high'}"
+
+    def _apply_sort(self) -> None:
+        """Work out the display order of the current rows for the sort (None: strike order)."""
+        m = len(self._strikes)
+        if self._sort is None or not m:
+            self._order = self._rank = None
+            return
+        key, side, descending = self._sort
+        values = self._values.get((key, side))
+        index = np.arange(m)
+        if values is None:
+            order = index
+        elif COLUMNS[key].text:
+            texts = [fm.clean_text(v) for v in values]
+            filled = [i for i in range(m) if texts[i]]
+            filled.sort(key=lambda i: texts[i].lower(), reverse=descending)  # stable: ties stay in strike order
+            order = np.array(filled + [i for i in range(m) if not texts[i]], dtype=np.int64)
+        else:
+            v = np.asarray(values, dtype=float)
+            missing = ~np.isfinite(v)
+            v = np.where(missing, 0.0, -v if descending else v)
+            order = np.lexsort((index, v, missing))
+        rank = np.empty(m, dtype=np.int64)
+        rank[order] = index
+        self._order, self._rank = order, rank
+
     def set_theme(self, theme: ChainTheme) -> None:
         """Repaint with ``theme``'s colours."""
         self._theme = theme
@@ -402,13 +476,17 @@ class StrikeGrid(ScrollView, can_focus=True):
         m = len(self._strikes)
         if m == 0:
             return 1  # the "nothing to show" line
-        return m + (1 if self._fwd_pos >= 0 else 0)
+        return m + (1 if self._fwd_pos >= 0 and self._order is None else 0)
 
     def _display_row(self, i: int) -> int:
+        if self._rank is not None:
+            return int(self._rank[i])
         return i + (1 if 0 <= self._fwd_pos <= i else 0)
 
     def _strike_index(self, r: int) -> int | None:
         """Strike index of display row ``r``; None for the forward line."""
+        if self._order is not None:
+            return int(self._order[r])
         if self._fwd_pos >= 0:
             if r == self._fwd_pos:
                 return None
@@ -417,8 +495,8 @@ class StrikeGrid(ScrollView, can_focus=True):
         return r
 
     def forward_line_index(self) -> int | None:
-        """The display row (0 = first row under the header) of the forward line, or None."""
-        return self._fwd_pos if self._fwd_pos >= 0 and len(self._strikes) else None
+        """The display row (0 = first row under the header) of the forward line, or None (also while sorted)."""
+        return self._fwd_pos if self._fwd_pos >= 0 and len(self._strikes) and self._order is None else None
 
     def _update_virtual_size(self) -> None:
         self.virtual_size = Size(self._total_width(), self._display_count() + self.header_lines)
@@ -429,7 +507,7 @@ class StrikeGrid(ScrollView, can_focus=True):
         kept = self._kept.get(self._kept_key) if self._kept_key is not None else None
         if kept is None:
             return {}
-        wanted = (self._looks, frozenset(self._marked))
+        wanted = (self._looks, frozenset(self._marked), self._sort)
         rows = kept["rows"]
         for other in [k for k in rows if k[0] != self._looks]:
             del rows[other]  # drawn with looks that are gone
@@ -576,8 +654,14 @@ class StrikeGrid(ScrollView, can_focus=True):
         # Line 1: side labels, the selected side painted.
         fill = "-" if self._ascii else "─"
 
+        sorted_side = self._sort[1] if self._sort is not None else None
+
         def label(word: str, selected: bool, width: int) -> list[Segment]:
+            if sorted_side is not None and word == sorted_side + "s":
+                word = f"{word} {self.sort_words()}"
             word_text = f" {word} "
+            if len(word_text) > width:
+                word_text = word_text[:max(0, width - 1)] + ("~" if self._ascii else "…")
             left = (width - len(word_text)) // 2
             right = width - len(word_text) - left
             return [Segment(fill * max(0, left), st.header_dim),
@@ -641,23 +725,38 @@ class StrikeGrid(ScrollView, can_focus=True):
         self.refresh()
         self._post_if_changed(before)
 
+    def _step(self, rows: int) -> None:
+        """Move the highlight ``rows`` rows down (up when negative) in the order shown."""
+        if self._order is None or self._cursor < 0:
+            self._move_to(self._cursor + rows)
+            return
+        rank = max(0, min(len(self._order) - 1, int(self._rank[self._cursor]) + rows))
+        self._move_to(int(self._order[rank]))
+
+    def _move_to_row(self, rank: int) -> None:
+        """Highlight the strike on row ``rank`` of the order shown (0 = top)."""
+        if not len(self._strikes):
+            return
+        rank = max(0, min(len(self._strikes) - 1, rank))
+        self._move_to(int(self._order[rank]) if self._order is not None else rank)
+
     def action_cursor_up(self) -> None:
-        self._move_to(self._cursor - 1)
+        self._step(-1)
 
     def action_cursor_down(self) -> None:
-        self._move_to(self._cursor + 1)
+        self._step(1)
 
     def action_cursor_page_up(self) -> None:
-        self._move_to(self._cursor - max(1, self._data_height() - 1))
+        self._step(-max(1, self._data_height() - 1))
 
     def action_cursor_page_down(self) -> None:
-        self._move_to(self._cursor + max(1, self._data_height() - 1))
+        self._step(max(1, self._data_height() - 1))
 
     def action_cursor_first(self) -> None:
-        self._move_to(0)
+        self._move_to_row(0)
 
     def action_cursor_last(self) -> None:
-        self._move_to(len(self._strikes) - 1)
+        self._move_to_row(len(self._strikes) - 1)
 
     def action_cursor_forward(self) -> None:
         """Back to the strike nearest the forward (the at-the-money row), centred."""
