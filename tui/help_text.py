@@ -17,7 +17,7 @@ class KeyHelp:
     the action name the app binds it to, and what it does."""
 
     keys: tuple[str, ...]
-    context: str  # "ladder", "screen", "shortlist", "dialog"
+    context: str  # "ladder", "screen", "targets", "shortlist", "dialog"
     action: str
     description: str
 
@@ -48,8 +48,9 @@ KEYS: tuple[KeyHelp, ...] = (
             "next loaded snapshot (another underlying, or the same one at another time)"),
     KeyHelp(("{",), "screen", "previous_snapshot", "previous loaded snapshot"),
     KeyHelp(("f",), "screen", "set_filter",
-            "show only strikes at least N sigmas out of the money, optionally with spread and "
-            "open-interest limits (asks for them)"),
+            "show only strikes at least N sigmas out of the money, or within an |delta| range or a "
+            "P(beyond) range (any combination), on the calls, the puts or both, optionally with spread "
+            "and open-interest limits (asks for them; ranges as LOW-HIGH, LOW- or -HIGH)"),
     KeyHelp(("x",), "screen", "clear_filter", "show every strike again"),
     KeyHelp(("plus", "minus"), "screen", "confidence_up / confidence_down",
             "widen / narrow the range's confidence (68.27%, 80%, 90%, 95%, 99%); = works as +"),
@@ -73,11 +74,34 @@ KEYS: tuple[KeyHelp, ...] = (
     KeyHelp(("n",), "screen", "toggle_ex_event",
             "P(beyond) and the range on the ex-event vol (the event's variance taken out, one vol per "
             "expiry) for expiries that carry a scheduled event, or back to the market's; the header says so"),
+    KeyHelp(("r",), "screen", "show_targets",
+            "the target view: for every expiry, the call or put nearest a target (a sigma distance, an "
+            "|delta| or a P(beyond)) with its quote, odds and what it is worth at the bid and the ask"),
+    KeyHelp(("z",), "screen", "sort_ladder",
+            "sort the ladder by one of its shown columns on the selected side, low to high or high to low, "
+            "or back to strike order; the side's label names the sort; while sorted the forward line is "
+            "left out and g goes to the strike nearest the forward wherever it sits"),
     KeyHelp(("l",), "screen", "load_file",
             "open another snapshot file (asks for its path, and a mapping file for its headers if it needs "
             "one); a file already open is shown, not loaded twice"),
     KeyHelp(("question_mark",), "screen", "show_help", "this help"),
     KeyHelp(("q",), "screen", "quit", "quit"),
+    # The target view.
+    KeyHelp(("1", "2", "3"), "targets", "measure",
+            "target by sigma distance out of the money / by |delta| / by P(beyond)"),
+    KeyHelp(("plus", "minus"), "targets", "step",
+            "move the target further out / nearer (0.25 sigma, 0.01 of |delta|, 1% of P(beyond))"),
+    KeyHelp(("v",), "targets", "type_value",
+            "type the target: sigmas (negative: in the money), |delta| as a decimal, P(beyond) in percent"),
+    KeyHelp(("left", "right"), "targets", "side", "target the calls / the puts"),
+    KeyHelp(("comma", "full_stop"), "targets", "shift",
+            "every row one listed strike down / up from the nearest (the neighbours, one key away)"),
+    KeyHelp(("up", "k", "down", "j"), "targets", "cursor", "move along the expiries"),
+    KeyHelp(("enter",), "targets", "open_ladder", "open that expiry's ladder on that contract"),
+    KeyHelp(("m",), "targets", "mark", "put that contract on the shortlist, or take it off"),
+    KeyHelp(("ctrl+pageup", "ctrl+pagedown"), "targets", "page_left / page_right",
+            "more columns to the left / right (expiry, days and strike stay)"),
+    KeyHelp(("escape", "r"), "targets", "close", "back to the ladder"),
     # The shortlist.
     KeyHelp(("up", "k", "down", "j"), "shortlist", "cursor_up / cursor_down", "move through the shortlist"),
     KeyHelp(("home", "end"), "shortlist", "scroll_top / scroll_bottom", "first / last contract (findings too)"),
@@ -91,6 +115,7 @@ KEYS: tuple[KeyHelp, ...] = (
     KeyHelp(("enter",), "dialog", "submit", "apply what was typed (filter, path)"),
     KeyHelp(("tab",), "dialog", "focus_next", "next field of the filter dialog"),
     KeyHelp(("space",), "dialog", "toggle", "show or hide a column in the column list"),
+    KeyHelp(("up", "down"), "dialog", "highlight", "move through the sort chooser's list (Enter picks)"),
     KeyHelp(("y", "n"), "dialog", "answer", "yes / no, e.g. to replacing an existing file"),
 )
 
@@ -99,7 +124,7 @@ KEY_LABELS: dict[str, str] = {
     "up": "↑", "down": "↓", "left": "←", "right": "→", "pageup": "PgUp", "pagedown": "PgDn",
     "home": "Home", "end": "End", "ctrl+pageup": "Ctrl+PgUp", "ctrl+pagedown": "Ctrl+PgDn",
     "plus": "+", "minus": "-", "question_mark": "?", "escape": "Esc", "delete": "Del",
-    "enter": "Enter", "tab": "Tab", "space": "Space", "equals_sign": "=",
+    "enter": "Enter", "tab": "Tab", "space": "Space", "equals_sign": "=", "comma": ",", "full_stop": ".",
 }
 KEY_LABELS_ASCII: dict[str, str] = {**KEY_LABELS, "up": "Up", "down": "Down", "left": "Left", "right": "Right"}
 
@@ -157,6 +182,21 @@ COLUMNS: tuple[ColumnHelp, ...] = (
                "with the forward's drift (watched continuously)"),
     ColumnHelp("boot_p_touch", "b.tch", "with a price history: P(touch) from the same simulated paths (a day "
                "touches when its high or low reaches the strike)"),
+)
+
+#: The target view's columns not in the ladder (the others read as there).
+TARGET_COLUMNS: tuple[tuple[str, str], ...] = (
+    ("days", "calendar days to the expiry date (the per-day and yearly figures count the exact time to "
+             "settlement)"),
+    ("strike", "the listed strike of the side nearest the target; nearby: the next strikes below and above"),
+    ("bid x ask", "the quote: a seller gets the bid, a buyer pays the ask"),
+    ("P sell, P buy", "chance a seller at the bid / a buyer at the ask ends expiry ahead"),
+    ("/day, buy /day", "the bid / the ask divided by the days to expiry"),
+    ("return, yr ret", "the seller's simple return on capital, and x 365 / days"),
+    ("BE sell, BE buy", "breakevens at the bid and at the ask"),
+    ("edge, edge %", "ask - mid, and (mid - bid) / bid"),
+    ("touch range", "the touch bounds (filled in while the view is open)"),
+    ("event", "scheduled events before the expiry"),
 )
 
 #: The areas of the triage screen, top to bottom.
@@ -247,7 +287,7 @@ def help_text(ascii_only: bool = False) -> str:
         out.append(f"  {name:<13} {meaning}")
     out += ["", "KEYS"]
     titles = {"ladder": "In the ladder", "screen": "Anywhere on the triage screen",
-              "shortlist": "In the shortlist", "dialog": "In a dialog"}
+              "targets": "In the target view (r)", "shortlist": "In the shortlist", "dialog": "In a dialog"}
     for context, title in titles.items():
         out.append(f"  {title}")
         for k in KEYS:
@@ -258,13 +298,16 @@ def help_text(ascii_only: bool = False) -> str:
     for c in COLUMNS:
         heading = c.heading.replace("σ", "s") if ascii_only else c.heading
         out.append(f"  {heading:<8} {c.meaning}")
+    out += ["", "TARGET VIEW (r: one row per expiry)"]
+    for name, meaning in TARGET_COLUMNS:
+        out.append(f"  {name:<15} {meaning}")
     out += ["", "MARKS"]
     for name, meaning in MARKS:
         out.append(f"  {name:<13} {meaning}")
     out += ["", "DISTRIBUTION PANE"]
     for name, meaning in PLOT:
         out.append(f"  {name:<13} {meaning}")
-    out += ["", "TRADE FIGURES (command line and copied summary)"]
+    out += ["", "TRADE FIGURES (target view, command line, shortlist and copied summary)"]
     for name, meaning in FORMULAS:
         out.append(f"  {name:<13} {meaning}")
     out += ["", "CAUTIONS"]

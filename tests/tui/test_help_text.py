@@ -75,3 +75,21 @@ def test_help_shows_the_trade_formulas_and_their_cautions():
     assert "365 / calendar days" in text and "not compounded" in text
     cautions = " ".join(ht.CAUTIONS).lower()
     assert "risk-neutral" in cautions and "at expiry" in cautions and "margin" in cautions
+
+
+def test_new_keys_are_documented_where_they_work():
+    """[D] r and z on the triage screen, and every key the target view binds, are in the help."""
+    from chaintriage.tui.screens.target_view import TargetViewScreen
+    from chaintriage.tui.screens.triage import TriageScreen
+
+    screen_keys = {key for k in ht.KEYS if k.context == "screen" for key in k.keys}
+    triage_bound = {key for b in TriageScreen.BINDINGS for key in b.key.split(",")}
+    assert {"r", "z"} <= screen_keys and {"r", "z"} <= triage_bound
+    documented = {key for k in ht.KEYS if k.context == "targets" for key in k.keys}
+    for b in TargetViewScreen.BINDINGS:
+        for key in b.key.split(","):
+            if key not in ("q", "question_mark", "equals_sign"):  # q and ? close / help everywhere; = works as +
+                assert key in documented, key
+    text = ht.help_text()
+    assert "In the target view" in text and "TARGET VIEW" in text
+    assert "|delta| range" in text and "P(beyond) range" in text
