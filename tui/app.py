@@ -452,7 +452,11 @@ class ChainTriageApp(App[int]):
         if view is None or contract is None:
             self.notify(f"nothing to copy: {self._no_contract_reason()}", severity="warning", markup=False)
             return
-        index = view.expiry_index(self.state.current_expiry)
+        self.copy_contract(view, contract)
+
+    def copy_contract(self, view: SnapshotView, contract: dict) -> None:
+        """Copy one contract's summary (a contracts-table row of ``view``) with its expiry's forward and days."""
+        index = view.expiry_index(contract["expiry"])
         info = view.info(index, self.state.confidence) if index is not None else None
         text = summarize(contract, as_of=view.snapshot.as_of, underlying=view.snapshot.underlying,
                          ascii_only=self.state.ascii_only, spot=view.snapshot.spot,
@@ -812,10 +816,14 @@ class ChainTriageApp(App[int]):
         def mark(contract: dict) -> None:
             self._toggle_shortlist(view, contract)
 
+        def copy(contract: dict) -> None:
+            self.copy_contract(view, contract)
+
         def remember(chosen) -> None:
             st.target = chosen
 
         self.push_screen(TargetViewScreen(view, target, on_open=open_ladder, shortlist=st.shortlist, on_mark=mark,
+                                          on_copy=copy,
                                           on_target=remember, current_expiry=st.current_expiry,
                                           theme=st.theme, ascii_only=st.ascii_only))
 

@@ -99,6 +99,7 @@ KEYS: tuple[KeyHelp, ...] = (
     KeyHelp(("up", "k", "down", "j"), "targets", "cursor", "move along the expiries"),
     KeyHelp(("enter",), "targets", "open_ladder", "open that expiry's ladder on that contract"),
     KeyHelp(("m",), "targets", "mark", "put that contract on the shortlist, or take it off"),
+    KeyHelp(("c",), "targets", "copy", "copy that contract's one-line summary"),
     KeyHelp(("ctrl+pageup", "ctrl+pagedown"), "targets", "page_left / page_right",
             "more columns to the left / right (expiry, days and strike stay)"),
     KeyHelp(("escape", "r"), "targets", "close", "back to the ladder"),

@@ -545,6 +545,10 @@ class SnapshotView:
             self._term = snapshot_term_structure(self.annotated, self._events)
         return self._term
 
+    def event_names(self, index: int) -> str:
+        """Names of the scheduled events expiry number ``index`` carries (settles after), "" for none."""
+        return self._event_marks(index)[0]
+
     def _event_marks(self, index: int) -> tuple[str, float]:
         """(names of the events expiry ``index`` carries, its ex-event vol); ("", NaN) without events."""
         if not self._events:

@@ -254,3 +254,24 @@ def test_readable_at_both_sizes(size):
         assert np.isfinite(screen.table["p_touch"].to_numpy(dtype=float)).sum() >= len(screen.table) - 1
 
     run(app, scenario, size=size)
+
+
+def test_copy_from_the_view_and_ascii_drawing():
+    """c copies the row's contract summary (its strike and expiry in it); ASCII mode draws ASCII only."""
+    from .app_support import wait_copied
+
+    app = make_app()
+
+    async def scenario(pilot) -> None:
+        await pilot.press("a", "r")  # ASCII drawing first
+        await pilot.pause()
+        screen = app.screen
+        assert all(line.isascii() for line in _table_text(screen))
+        assert str(screen.query_one("#target-line").content).isascii()
+        await pilot.press("home", "j", "c")
+        await wait_copied(app, pilot)
+        text = app._system_clipboard.texts[-1]
+        row = screen.table.iloc[1]
+        assert fm.fmt_strike(row["strike"]) in text and fm.fmt_date(row["expiry"], ascii_only=True) in text
+
+    run(app, scenario)

@@ -10,7 +10,8 @@ economics at the bid (seller) and the ask (buyer) from
 
 Keys: 1 / 2 / 3 choose the measure, + / - step its value, v types a value,
 left / right choose calls or puts, , and . move every row one strike down or
-up, j / k move along the expiries, m sets a contract aside, Enter opens that
+up, j / k move along the expiries, m sets a contract aside, c copies its
+summary, Enter opens that
 expiry's ladder on that strike, Esc closes. This module only lays figures out.
 """
 
@@ -300,6 +301,7 @@ class TargetViewScreen(Screen):
 
     ``on_open(expiry, strike, kind)`` shows that contract in the ladder (True when it could);
     ``on_mark(contract)`` sets a contract-table row (a dict) aside or takes it off ``shortlist``;
+    ``on_copy(contract)`` copies its one-line summary;
     ``on_target(target)`` remembers the target for next time.
     """
 
@@ -321,11 +323,13 @@ class TargetViewScreen(Screen):
         Binding("comma", "shift(-1)", "strike down", show=False),
         Binding("full_stop", "shift(1)", "strike up", show=False),
         Binding("m", "mark", "mark"),
+        Binding("c", "copy", "copy"),
         Binding("question_mark", "app.show_help", "help", show=False),
     ]
 
     def __init__(self, view: SnapshotView, target: Target, *, on_open: Callable[[Any, float, str], Any],
                  shortlist: Any = None, on_mark: Callable[[dict], Any] | None = None,
+                 on_copy: Callable[[dict], Any] | None = None,
                  on_target: Callable[[Target], None] = lambda t: None, current_expiry: Any = None,
                  theme: Any = None, ascii_only: bool = False) -> None:
         super().__init__()
@@ -336,6 +340,7 @@ class TargetViewScreen(Screen):
         self._on_open = on_open
         self._shortlist = shortlist
         self._on_mark = on_mark
+        self._on_copy = on_copy
         self._on_target = on_target
         self._ascii = ascii_only
         self._current_expiry = current_expiry
@@ -365,7 +370,7 @@ class TargetViewScreen(Screen):
         names = []
         for i in range(len(self.view.expiries)):
             try:
-                names.append(self.view._event_marks(i)[0])
+                names.append(self.view.event_names(i))
             except (ChainTriageError, KeyError, ValueError, IndexError):
                 names.append("")
         return names
@@ -528,6 +533,13 @@ class TargetViewScreen(Screen):
             return
         self._on_mark(self.view.annotated.contracts.iloc[got[1]].to_dict())
         self.redraw()
+
+    def action_copy(self) -> None:
+        got = self._current_row()
+        if got is None or self._on_copy is None:
+            self._say(f"nothing to copy: this expiry has no usable {self.target.side}")
+            return
+        self._on_copy(self.view.annotated.contracts.iloc[got[1]].to_dict())
 
     def action_close(self) -> None:
         close(self)
