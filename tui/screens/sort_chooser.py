@@ -31,6 +31,10 @@ MEANING_WIDTH = 44
 class SortChooser(ModalScreen[tuple[str, bool] | None]):
     """Choose a column of ``columns`` (keys of ``COLUMNS``), then the direction (see the module docstring)."""
 
+    DEFAULT_CSS = """
+    SortChooser #sort-list { border: none; height: auto; max-height: 14; padding: 0; margin: 1 0; }
+    """
+
     BINDINGS = [Binding("escape", "back", "back")]
 
     def __init__(self, columns: Sequence[str], side: str, current: tuple[str, str, bool] | None = None,
@@ -44,10 +48,11 @@ class SortChooser(ModalScreen[tuple[str, bool] | None]):
 
     def compose(self) -> ComposeResult:
         with Vertical(classes="dialog"):
-            yield Static(Text(f"sort the ladder by a column of the {self._side}s (the selected side)",
-                              style="bold"), id="sort-title")
+            yield Static(Text(f"sort the ladder by a column of the {self._side}s", style="bold"), id="sort-title")
             yield OptionList(*self._column_options(), id="sort-list")
-            yield Static(Text("Enter chooses, Esc goes back", style="dim"))
+            yield Static(Text(f"the {self._side}s are the selected side (← → in the ladder). Enter chooses, "
+                              "Esc leaves the order as it is".replace("← →", "Left/Right" if self._ascii else "← →"),
+                              style="dim"))
 
     def _column_options(self) -> list[Option]:
         meanings = {c.key: c.meaning for c in COLUMN_HELP}
