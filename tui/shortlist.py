@@ -41,8 +41,8 @@ from .files import write_text_atomic
 #: ``spot`` and ``forward`` (the expiry's) as they were when the contract was set aside.
 FIGURES: tuple[str, ...] = (
     "bid", "ask", "mid", "iv", "sigma_distance", "p_beyond", "p_beyond_flat", "p_touch",
-    "delta", "breakeven", "p_breakeven", "spread_pct", "open_interest", "volume", "flags",
-    "p_profit_sell", "p_profit_buy", "breakeven_sell", "breakeven_buy", "spot", "forward",
+    "delta", "breakeven", "p_breakeven", "spread_pct", "open_interest", "volume",
+    "p_profit_sell", "p_profit_buy", "breakeven_sell", "breakeven_buy", "spot", "forward", "flags",
 )
 #: Figures that are text, not numbers.
 TEXT_FIGURES = frozenset({"flags"})
