@@ -20,6 +20,7 @@ from chaintriage.core.targets import Target, select_targets
 from chaintriage.tui import formatting as fm
 from chaintriage.tui.screens.target_view import (
     TARGET_VIEW_COLUMNS,
+    view_columns,
     TargetViewScreen,
     describe_target,
     format_rows,
@@ -142,6 +143,13 @@ def test_return_figures_by_hand_on_one_contract():
     rows = format_rows(table)
     assert cell(rows, 3, "return_sell_annual") == fm.fmt_return(bid / (k - bid) * 365.0 / days)
     assert cell(rows, 3, "quote") == f"{fm.fmt_price(bid)} × {fm.fmt_price(row['ask'])}"
+
+
+def test_the_measure_column_follows_the_quote():
+    for measure, key in (("sigma", "sigma_distance"), ("delta", "delta"), ("beyond", "p_beyond")):
+        keys = [c.key for c in view_columns(measure)]
+        assert keys[keys.index("quote") + 1] == key
+        assert sorted(keys) == sorted(KEYS)  # every column still there, once
 
 
 def test_typed_values_and_steps():

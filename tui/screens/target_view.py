@@ -99,6 +99,18 @@ TARGET_VIEW_COLUMNS: tuple[ViewColumn, ...] = (
     ViewColumn("OI", "open_interest"),
     ViewColumn("nearby", "nearby"),
 )
+#: The column of each measure: it comes right after the quote while that measure is the target.
+MEASURE_COLUMNS = {"sigma": "sigma_distance", "delta": "delta", "beyond": "p_beyond"}
+
+
+def view_columns(measure: str) -> tuple[ViewColumn, ...]:
+    """TARGET_VIEW_COLUMNS with the target measure's column moved to just after the quote."""
+    key = MEASURE_COLUMNS.get(measure)
+    cols = [c for c in TARGET_VIEW_COLUMNS if c.key != key]
+    at = next(i for i, c in enumerate(cols) if c.key == "quote") + 1
+    return tuple(cols[:at] + [c for c in TARGET_VIEW_COLUMNS if c.key == key] + cols[at:])
+
+
 #: Widest event and flags cells (longer text is cut, the help and the ladder have the whole).
 TEXT_WIDTH = 18
 
@@ -208,8 +220,9 @@ def target_figures(view: SnapshotView, target: Target, shift: int = 0) -> pd.Dat
 
 
 def format_rows(table: pd.DataFrame, *, events: list[str] | None = None, marked: set[int] | None = None,
-                ascii_only: bool = False) -> list[tuple[str, ...]]:
-    """The view's cells (TARGET_VIEW_COLUMNS) per row of ``target_figures``, as plain strings.
+                ascii_only: bool = False,
+                columns: tuple[ViewColumn, ...] = TARGET_VIEW_COLUMNS) -> list[tuple[str, ...]]:
+    """The view's cells (``columns``) per row of ``target_figures``, as plain strings.
 
     ``events``: names of the events before each expiry ("" for none); ``marked``: contract rows on
     the shortlist (marked in the first column).
@@ -218,7 +231,7 @@ def format_rows(table: pd.DataFrame, *, events: list[str] | None = None, marked:
     missing = fm.placeholder(ascii_only)
     mark = "*" if ascii_only else "●"
     times = "x" if ascii_only else "×"
-    cols = {c.key: table[c.key].to_numpy() for c in TARGET_VIEW_COLUMNS if c.key in table.columns}
+    cols = {c.key: table[c.key].to_numpy() for c in columns if c.key in table.columns}
     expiries = pd.DatetimeIndex(table["expiry"])
     rows = table["row"].to_numpy(dtype=np.int64)
     strikes = table["strike"].to_numpy(dtype=float)
@@ -232,7 +245,7 @@ def format_rows(table: pd.DataFrame, *, events: list[str] | None = None, marked:
     out: list[tuple[str, ...]] = []
     for i in range(n):
         cells: list[str] = []
-        for c in TARGET_VIEW_COLUMNS:
+        for c in columns:
             key = c.key
             if key == "mark":
                 cells.append(mark if marked and rows[i] in marked else " ")
@@ -346,6 +359,12 @@ class TargetViewScreen(Screen):
         self._current_expiry = current_expiry
         self._events = self._event_names()
         self.table: pd.DataFrame = pd.DataFrame()
+        self._shown_columns: tuple[ViewColumn, ...] = ()
+
+    @property
+    def columns(self) -> tuple[ViewColumn, ...]:
+        """The columns shown, in order (the target measure's right after the quote)."""
+        return view_columns(self.target.measure)
 
     def _marked_rows(self, table: pd.DataFrame) -> set[int]:
         """Contract rows of ``table`` that are on the shortlist."""
@@ -390,9 +409,6 @@ class TargetViewScreen(Screen):
 
     def on_mount(self) -> None:
         table = self.query_one("#target-table", LineTable)
-        sig = fm.SIGMA_ASCII if self._ascii else fm.SIGMA
-        table.set_columns([c.heading.replace(fm.SIGMA, sig) for c in TARGET_VIEW_COLUMNS],
-                          [not c.text for c in TARGET_VIEW_COLUMNS])
         self.redraw()
         self._touch_queue = [e for e in self.view.expiries if e not in self.view.annotated.touched]
         if self._touch_queue:
@@ -429,7 +445,8 @@ class TargetViewScreen(Screen):
         for name, value in figures.items():
             self.table.loc[self.table.index[pos], name] = value
         cells = format_rows(self.table.iloc[pos:pos + 1], events=self._events[pos:pos + 1],
-                            marked=self._marked_rows(self.table.iloc[pos:pos + 1]), ascii_only=self._ascii)[0]
+                            marked=self._marked_rows(self.table.iloc[pos:pos + 1]), ascii_only=self._ascii,
+                            columns=self.columns)[0]
         self.query_one("#target-table", LineTable).set_row(pos, cells)
         if not self._touch_queue:
             self._draw_lines()
@@ -437,8 +454,15 @@ class TargetViewScreen(Screen):
     def redraw(self) -> None:
         """Select the targets again and draw every row (the cursor stays on its expiry)."""
         self.table = target_figures(self.view, self.target, self.shift)
-        rows = format_rows(self.table, events=self._events, marked=self._marked_rows(self.table), ascii_only=self._ascii)
-        self.query_one("#target-table", LineTable).set_rows(rows)
+        columns = self.columns
+        rows = format_rows(self.table, events=self._events, marked=self._marked_rows(self.table),
+                           ascii_only=self._ascii, columns=columns)
+        table = self.query_one("#target-table", LineTable)
+        if columns != self._shown_columns:
+            sig = fm.SIGMA_ASCII if self._ascii else fm.SIGMA
+            table.set_columns([c.heading.replace(fm.SIGMA, sig) for c in columns], [not c.text for c in columns])
+            self._shown_columns = columns
+        table.set_rows(rows)
         self._draw_lines()
         self.call_after_refresh(self._draw_lines)  # the table's width is known after the next layout
 
