@@ -325,7 +325,7 @@ class TargetViewScreen(Screen):
     BINDINGS = [
         Binding("escape,q,r", "close", "close"),
         Binding("enter", "open_ladder", "ladder"),
-        Binding("1", "measure('sigma')", "σ dist", key_display="1"),
+        Binding("1", "measure('sigma')", "sigmas", key_display="1"),
         Binding("2", "measure('delta')", "|delta|", key_display="2"),
         Binding("3", "measure('beyond')", "P(beyond)", key_display="3"),
         Binding("plus,equals_sign", "step(1)", "further", key_display="+"),
@@ -360,6 +360,8 @@ class TargetViewScreen(Screen):
         self._events = self._event_names()
         self.table: pd.DataFrame = pd.DataFrame()
         self._shown_columns: tuple[ViewColumn, ...] = ()
+        #: Expiries whose touch figures are still to be worked out (one per timer tick while the view is open).
+        self._touch_queue: list[pd.Timestamp] = []
 
     @property
     def columns(self) -> tuple[ViewColumn, ...]:
@@ -409,8 +411,8 @@ class TargetViewScreen(Screen):
 
     def on_mount(self) -> None:
         table = self.query_one("#target-table", LineTable)
-        self.redraw()
         self._touch_queue = [e for e in self.view.expiries if e not in self.view.annotated.touched]
+        self.redraw()
         if self._touch_queue:
             self.set_timer(TOUCH_PAUSE, self._fill_touch)
         if self._current_expiry is not None:
@@ -482,7 +484,7 @@ class TargetViewScreen(Screen):
             parts.append("more columns: Ctrl+PgDn")
         if missing:
             parts.append(f"{missing} expir{'ies have' if missing != 1 else 'y has'} no usable {self.target.side}")
-        if touch_known < len(table) - missing and getattr(self, "_touch_queue", None):
+        if touch_known < len(table) - missing and self._touch_queue:
             parts.append("working out touch figures")
         parts.append("P sell at the bid, P buy at the ask; yr ret = return x 365 / days (? explains)")
         self.query_one("#target-note", Static).update(Text(" " + "; ".join(parts), style="dim", no_wrap=True,
