@@ -231,44 +231,47 @@ def format_rows(table: pd.DataFrame, *, events: list[str] | None = None, marked:
     missing = fm.placeholder(ascii_only)
     mark = "*" if ascii_only else "●"
     times = "x" if ascii_only else "×"
-    cols = {c.key: table[c.key].to_numpy() for c in columns if c.key in table.columns}
-    expiries = pd.DatetimeIndex(table["expiry"])
-    rows = table["row"].to_numpy(dtype=np.int64)
+    rows = table["row"].to_numpy(dtype=np.int64).tolist()
     strikes = table["strike"].to_numpy(dtype=float)
     decimals = fm.strike_decimals(strikes[np.isfinite(strikes)])
-    bids, asks = table["bid"].to_numpy(dtype=float), table["ask"].to_numpy(dtype=float)
-    lows, highs = table["p_touch_low"].to_numpy(dtype=float), table["p_touch_high"].to_numpy(dtype=float)
-    belows, aboves = table["strike_below"].to_numpy(dtype=float), table["strike_above"].to_numpy(dtype=float)
+
+    def floats(name: str) -> list[float]:
+        return table[name].to_numpy(dtype=float).tolist()
 
     def strike_text(x: float) -> str:
-        return fm.fmt_strike(x, decimals, ascii_only=ascii_only) if np.isfinite(x) else missing
-    out: list[tuple[str, ...]] = []
-    for i in range(n):
-        cells: list[str] = []
-        for c in columns:
-            key = c.key
-            if key == "mark":
-                cells.append(mark if marked and rows[i] in marked else " ")
-            elif key == "expiry":
-                cells.append(fm.fmt_date(expiries[i], ascii_only))
-            elif key == "strike":
-                cells.append(strike_text(strikes[i]))
-            elif key == "quote":
-                cells.append(missing if rows[i] < 0 else f"{fm.fmt_price(bids[i], ascii_only=ascii_only)} {times} "
-                                                          f"{fm.fmt_price(asks[i], ascii_only=ascii_only)}")
-            elif key == "touch_range":
-                cells.append(missing if not (np.isfinite(lows[i]) and np.isfinite(highs[i])) else
-                             f"{fm.fmt_prob(lows[i], ascii_only=ascii_only)}-{fm.fmt_prob(highs[i], ascii_only=ascii_only)}")
-            elif key == "nearby":
-                cells.append(f"{strike_text(belows[i])} / {strike_text(aboves[i])}")
-            elif key == "events":
-                cells.append(_cut(events[i] if events and i < len(events) else "", ascii_only))
-            elif key == "flags":
-                cells.append(_cut(cols["flags"][i], ascii_only))
-            else:
-                cells.append(_FORMATS[key](cols[key][i], ascii_only=ascii_only))
-        out.append(tuple(cells))
-    return out
+        return fm.fmt_strike(x, decimals, ascii_only=ascii_only) if math.isfinite(x) else missing
+
+    def figures(name: str) -> list[str]:
+        fmt = _FORMATS[name]
+        return [fmt(x, ascii_only=ascii_only) for x in floats(name)]
+
+    def column(key: str) -> list[str]:
+        """One column's cells for every row (column by column: one branch per column, not per cell)."""
+        if key == "mark":
+            return [mark if marked and r in marked else " " for r in rows]
+        if key == "expiry":
+            return [fm.fmt_date(e, ascii_only) for e in pd.DatetimeIndex(table["expiry"]).tolist()]
+        if key == "strike":
+            return [strike_text(x) for x in strikes.tolist()]
+        if key == "quote":
+            return [missing if r < 0 else f"{fm.fmt_price(b, ascii_only=ascii_only)} {times} "
+                                          f"{fm.fmt_price(a, ascii_only=ascii_only)}"
+                    for r, b, a in zip(rows, floats("bid"), floats("ask"))]
+        if key == "touch_range":
+            return [f"{fm.fmt_prob(lo, ascii_only=ascii_only)}-{fm.fmt_prob(hi, ascii_only=ascii_only)}"
+                    if math.isfinite(lo) and math.isfinite(hi) else missing
+                    for lo, hi in zip(floats("p_touch_low"), floats("p_touch_high"))]
+        if key == "nearby":
+            return [f"{strike_text(lo)} / {strike_text(hi)}"
+                    for lo, hi in zip(floats("strike_below"), floats("strike_above"))]
+        if key == "events":
+            names = list(events or [])
+            return [_cut(names[i] if i < len(names) else "", ascii_only) for i in range(n)]
+        if key == "flags":
+            return [_cut(x, ascii_only) for x in table["flags"].tolist()]
+        return figures(key)
+
+    return list(zip(*(column(c.key) for c in columns))) if n else []
 
 
 class TargetValuePrompt(ModalScreen[float | None]):
