@@ -292,37 +292,59 @@ def polish_batch(k, w, wt, starts, start: np.ndarray, *, max_iter: int = 1000) -
     return p, converged & ~bad
 
 
-def _normal_system(u, k, w, sw, lo, span):
+#: Padded quotes (expiries x quotes) per batch of the normal equations: a batch's temporaries stay in the
+#: processor's cache and are reused, where whole-chunk temporaries would be fresh memory at every step.
+_NORMAL_BATCH = 32768
+
+
+def _normal_system(u, k, w, sw, lo, span, idx=None):
     """J'J (n, 5, 5), J'r (n, 5) and r'r (n,) of the weighted residuals r = sw (w_svi - w) at u.
 
-    Padded rows: ``k``, ``w``, ``sw`` are (n, m) with sw = 0 on padding.
-    Jacobian columns in (v, s, rho, m, sigma), times dx/du of the logistic map.
+    Padded rows: ``k``, ``w``, ``sw`` are (N, m) with sw = 0 on padding; ``idx`` (optional) picks the
+    n rows of them that ``u``, ``lo`` and ``span`` (n, 5) belong to. Jacobian columns in
+    (v, s, rho, m, sigma), times dx/du of the logistic map. Rows are independent, so they are done a
+    few at a time (``_NORMAL_BATCH`` quotes).
     """
+    n = u.shape[0]
     e = 1.0 / (1.0 + np.exp(-np.clip(u, -50.0, 50.0)))
     x = lo + span * e
     dx = span * e * (1.0 - e)
+    a_mat = np.empty((n, 5, 5))
+    grad = np.empty((n, 5))
+    cost = np.empty(n)
+    per = max(1, _NORMAL_BATCH // max(k.shape[1], 1))
+    for b0 in range(0, n, per):
+        b = slice(b0, min(b0 + per, n))
+        rows = b if idx is None else idx[b]
+        m6 = _normal_rows(x[b], dx[b], k[rows], w[rows], sw[rows])
+        a_mat[b], grad[b], cost[b] = m6[:, :5, :5], m6[:, :5, 5], m6[:, 5, 5]
+    return a_mat, grad, cost
+
+
+def _normal_rows(x, dx, k, w, sw):
+    """[J r]' [J r] (n, 6, 6) for box parameters ``x`` (n, 5) with logistic slopes ``dx``, padded quotes (n, m)."""
     v, s, rho, m, sig = (x[:, i, None] for i in range(5))
     d0, d1, d2, d3, d4 = (dx[:, i, None] for i in range(5))
     q = np.sqrt(1.0 - rho * rho)
     inv = 1.0 / (1.0 + np.abs(rho))
     b = 2.0 * s * inv
     sgn = np.where(rho >= 0, 1.0, -1.0)
-    aug = np.empty((6,) + k.shape)  # column-major: each column one contiguous block
-    xk = np.subtract(k, m, out=aug[2])
-    r = np.multiply(xk, xk, out=aug[4])
+    aug = np.empty((k.shape[0], 6, k.shape[1]))  # per row, each column of [J r] one contiguous run
+    xk = np.subtract(k, m, out=aug[:, 2])
+    r = np.multiply(xk, xk, out=aug[:, 4])
     r += sig * sig
     np.sqrt(r, out=r)
-    h = np.multiply(xk, rho, out=aug[1])
+    h = np.multiply(xk, rho, out=aug[:, 1])
     h += r
     h -= sig * q
-    res = np.multiply(h, b, out=aug[5])
+    res = np.multiply(h, b, out=aug[:, 5])
     res += v
     res -= w
     res *= sw
-    c3 = np.divide(xk, r, out=aug[3])  # d/dm = -b (rho + xk/r)
+    c3 = np.divide(xk, r, out=aug[:, 3])  # d/dm = -b (rho + xk/r)
     c3 += rho
     c3 *= sw * (-b * d3)
-    c4 = np.divide(sig, r, out=aug[4])  # d/dsigma = b (sigma/r - q)
+    c4 = np.divide(sig, r, out=aug[:, 4])  # d/dsigma = b (sigma/r - q)
     c4 -= q
     c4 *= sw * (b * d4)
     c2 = xk  # d/drho = b (xk + sigma rho/q) - b sgn h/(1 + |rho|)
@@ -331,10 +353,8 @@ def _normal_system(u, k, w, sw, lo, span):
     c2 -= h * (b * sgn * inv * d2)
     c2 *= sw
     h *= sw * (2.0 * inv * d1)  # d/ds = 2 h/(1 + |rho|)
-    np.multiply(sw, d0, out=aug[0])  # d/dv = 1
-    rows = np.ascontiguousarray(aug.transpose(1, 0, 2))
-    m6 = np.matmul(rows, rows.transpose(0, 2, 1))
-    return m6[:, :5, :5], m6[:, :5, 5], m6[:, 5, 5]
+    np.multiply(sw, d0, out=aug[:, 0])  # d/dv = 1
+    return np.matmul(aug, aug.transpose(0, 2, 1))
 
 
 def _lm(k, w, sw, lo, span, u, max_iter):
@@ -360,7 +380,7 @@ def _lm(k, w, sw, lo, span, u, max_iter):
         dsc = np.where(sc_i > 0, sc_i, 1.0)
         step = np.linalg.solve(a_i + (lam_i[:, None] * dsc)[:, :, None] * eye, -g_i[..., None])[..., 0]
         with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
-            a_new, g_new, c_new = _normal_system(u_i + step, sub(k), sub(w), sub(sw), sub(lo), sub(span))
+            a_new, g_new, c_new = _normal_system(u_i + step, k, w, sw, sub(lo), sub(span), None if every else idx)
             pred = -(step * g_i).sum(axis=1) + lam_i * (dsc * step * step).sum(axis=1)
             ratio = (c_i - c_new) / pred
             take = (np.isfinite(c_new) & (c_new < c_i) & np.all(np.isfinite(a_new), axis=(1, 2))
