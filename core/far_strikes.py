@@ -42,3 +42,36 @@ def far_strikes(expiry: pd.Series | np.ndarray, strike: np.ndarray, spot: float)
     ref = np.where(np.isfinite(ref_near), ref_near, ref_all)
     with np.errstate(invalid="ignore"):
         return np.abs(logk - ref) > limit
+
+
+def far_strikes_grouped(starts: np.ndarray, strike: np.ndarray, spot: float) -> np.ndarray | None:
+    """:func:`far_strikes` for rows already grouped by expiry with strikes ascending in each group.
+
+    ``starts``: first row of each expiry group (in order, the first 0); ``strike``: price units.
+    The same mask as ``far_strikes``, without sorting: in each group the strikes within
+    ``FAR_FACTOR`` of spot are one run of rows, whose middle gives the median. None when a strike
+    is not a finite positive number (``far_strikes`` handles those).
+    """
+    strike = np.asarray(strike, dtype=float)
+    n = strike.size
+    if n == 0:
+        return np.zeros(0, dtype=bool)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        logk = np.log(strike)
+    if not np.all(np.isfinite(logk)):
+        return None
+    starts = np.asarray(starts, dtype=np.int64)
+    size = np.diff(np.append(starts, n))
+    limit = np.log(FAR_FACTOR)
+    if spot > 0 and np.isfinite(spot):
+        near = np.abs(logk - np.log(spot)) <= limit
+        count = np.add.reduceat(near.astype(np.int64), starts)
+        first = np.minimum.reduceat(np.where(near, np.arange(n), n), starts)
+    else:
+        count = np.zeros(starts.size, dtype=np.int64)
+        first = starts
+    use_all = count == 0
+    first = np.where(use_all, starts, first)
+    count = np.where(use_all, size, count)
+    ref = 0.5 * (logk[first + (count - 1) // 2] + logk[first + count // 2])
+    return np.abs(logk - np.repeat(ref, size)) > limit

@@ -14,7 +14,7 @@ smile ranges (``range_smile_rows``) take all expiries in one call, and the
 per-contract figures use each row's own expiry smile (``svi.SviSlices``).
 Python loops over expiries only assemble findings and result objects.
 Before anything else, strikes far outside their expiry's range (typos such as
-1e300) are left out with a finding (``far_strikes``).
+1e300) are left out with a finding (``far_strikes``, read off the sorted rows).
 """
 
 from __future__ import annotations
@@ -36,7 +36,7 @@ from .distribution import (
     terminal_distribution,
 )
 from .exchange_calendar import ExchangeCalendar
-from .far_strikes import FAR_FACTOR, far_strikes
+from .far_strikes import FAR_FACTOR, far_strikes, far_strikes_grouped
 from .findings import LEFT_OUT, NOTE, WARNING, ChainTriageError, Finding
 from .implied_vol import ABOVE_UPPER_BOUND, BELOW_INTRINSIC, STATUS_REASONS, implied_vol
 from .parity_forward import ForwardEstimate, implied_forwards
@@ -311,11 +311,29 @@ def _text_per_expiry(column: pd.Series, order: np.ndarray, starts: np.ndarray, e
     return np.where(found, values, default).astype(object)
 
 
-def _without_far_strikes(snapshot: Snapshot, findings: list[Finding]) -> Snapshot:
-    """The snapshot without strikes far outside their expiry's range (``far_strikes``), each left out
-    with a finding naming its file and line; the same snapshot when there are none."""
+def _far_in_order(contracts: pd.DataFrame, order: np.ndarray, spot: float) -> np.ndarray:
+    """``far_strikes`` of the contracts (mask in their own row order), read off the rows in ``order``
+    (sorted by expiry and strike) without sorting again; ``far_strikes`` itself when a strike or an
+    expiry is missing."""
+    expiry = contracts["expiry"].to_numpy()
+    strike = contracts["strike"].to_numpy(float)
+    sorted_expiry = expiry[order]
+    far_sorted = None
+    if sorted_expiry.dtype.kind == "M" and not np.isnat(sorted_expiry).any():
+        new_exp = np.ones(order.size, dtype=bool)
+        new_exp[1:] = sorted_expiry[1:] != sorted_expiry[:-1]
+        far_sorted = far_strikes_grouped(np.flatnonzero(new_exp), strike[order], spot)
+    if far_sorted is None:
+        return far_strikes(expiry, strike, spot)
+    far = np.zeros(order.size, dtype=bool)
+    far[order] = far_sorted
+    return far
+
+
+def _without_far_strikes(snapshot: Snapshot, findings: list[Finding], far: np.ndarray) -> Snapshot:
+    """The snapshot without the strikes far outside their expiry's range (``far``, from ``_far_in_order``),
+    each left out with a finding naming its file and line; the same snapshot when there are none."""
     contracts = snapshot.contracts
-    far = far_strikes(contracts["expiry"].to_numpy(), contracts["strike"].to_numpy(float), snapshot.spot)
     if not far.any():
         return snapshot
     gone = contracts[far]
@@ -338,9 +356,13 @@ def annotate(snapshot: Snapshot, settings: PipelineSettings | None = None, touch
     settings = settings or PipelineSettings()
     calendar = _calendar(settings.extra_closed)
     findings: list[Finding] = []
-    snapshot = _without_far_strikes(snapshot, findings)
     contracts = snapshot.contracts
     order, is_call, is_put = _sort_order(contracts)
+    far = _far_in_order(contracts, order, snapshot.spot)
+    if far.any():  # rare: leave them out and sort what is left
+        snapshot = _without_far_strikes(snapshot, findings, far)
+        contracts = snapshot.contracts
+        order, is_call, is_put = _sort_order(contracts)
     underlying = snapshot.underlying
     n = order.size
 

@@ -12,7 +12,7 @@ import pandas as pd
 import pytest
 from scipy.stats import norm
 
-from chaintriage.core.far_strikes import FAR_FACTOR, far_strikes
+from chaintriage.core.far_strikes import FAR_FACTOR, far_strikes, far_strikes_grouped
 from chaintriage.core.findings import LEFT_OUT
 from chaintriage.core.pipeline import PipelineSettings, annotate
 from chaintriage.core.snapshot import Snapshot
@@ -75,3 +75,30 @@ def test_each_expiry_has_its_own_reference():
     expiry = np.array([0] * 5 + [1] * 5)
     strikes = np.array([90, 95, 100, 105, 110, 90, 95, 100, 105, 100 * FAR_FACTOR * 1.01])
     assert far_strikes(expiry, strikes, 100.0).tolist() == [False] * 9 + [True]
+
+
+@pytest.mark.parametrize("spot", [100.0, 0.5, float("nan")])
+def test_grouped_form_gives_the_same_mask_as_the_general_one(spot):
+    # [D] far_strikes_grouped reads the median off rows sorted by expiry and strike; far_strikes
+    # takes pandas' group median (numpy.median per group [L] agrees): the same mask on chains with
+    # typos above and below, even and odd group sizes, repeated strikes and groups with no strike near spot.
+    rng = np.random.default_rng(5)
+    sizes = [1, 2, 7, 8, 40, 41, 3]
+    expiry, strikes = [], []
+    for e, n in enumerate(sizes):
+        ks = np.round(100.0 * np.exp(rng.normal(0.0, 0.5, n)), 1)
+        if n > 2:
+            ks[: n // 3] = ks[-1]  # repeated strikes
+            ks[-1] = ks[0] * (FAR_FACTOR * 1.5 if e % 2 else 1 / (FAR_FACTOR * 1.5))
+        if e == 6:
+            ks = ks * 1e5  # a whole expiry far from spot: its own strikes are the reference
+        expiry.append(np.full(n, e))
+        strikes.append(ks)
+    expiry, strikes = np.concatenate(expiry), np.concatenate(strikes)
+    order = np.lexsort((strikes, expiry))
+    starts = np.flatnonzero(np.r_[True, expiry[order][1:] != expiry[order][:-1]])
+    grouped = far_strikes_grouped(starts, strikes[order], spot)
+    assert grouped.tolist() == far_strikes(expiry, strikes, spot)[order].tolist()
+    assert grouped.any()
+    # a strike that is not a finite positive number is left to far_strikes
+    assert far_strikes_grouped(starts, np.where(np.arange(strikes.size) == 3, -1.0, strikes[order]), spot) is None
