@@ -20,6 +20,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .findings import WARNING, Finding
+from .svi import SviParams, SviSlices
 
 #: Standard deviations (of the later expiry's at-the-money total variance) either side of k = 0 checked.
 CHECK_SPAN_SD = 3.0
@@ -61,13 +62,32 @@ def calendar_violations(smiles, t, span_sd: float = CHECK_SPAN_SD, n: int = CHEC
     usable = [i for i, s in enumerate(smiles) if s is not None and np.isfinite(t[i]) and t[i] > 0]
     usable.sort(key=lambda i: t[i])
     out: list[CalendarViolation] = []
-    for a, b in zip(usable[:-1], usable[1:]):
-        if not t[b] > t[a]:
-            continue
+    pairs = [(a, b) for a, b in zip(usable[:-1], usable[1:]) if t[b] > t[a]]
+    if not pairs:
+        return out
+    grid = np.linspace(-span_sd, span_sd, n)
+    if all(isinstance(getattr(smiles[i], "params", None), SviParams) for i in usable):
+        # raw SVI slices: every pair on its own grid in one evaluation (the same numbers as pair by pair)
+        earlier = SviSlices.stack([smiles[a].params for a, _ in pairs])
+        later = SviSlices.stack([smiles[b].params for _, b in pairs])
+        w_atm_all = np.asarray(later.total_variance(0.0), dtype=float)
+        with np.errstate(invalid="ignore"):
+            ok = np.isfinite(w_atm_all) & (w_atm_all > 0)
+            k_all = grid[None, :] * np.sqrt(np.where(ok, w_atm_all, 1.0))[:, None]
+            wa_all = np.asarray(SviSlices(SviParams(*(v[:, None] for v in earlier.params.as_tuple())))
+                                .total_variance(k_all), dtype=float)
+            wb_all = np.asarray(SviSlices(SviParams(*(v[:, None] for v in later.params.as_tuple())))
+                                .total_variance(k_all), dtype=float)
+            any_bad = np.any(wa_all - wb_all > np.maximum(ABS_TOLERANCE, REL_TOLERANCE * np.abs(wa_all)), axis=1)
+        check = [j for j in range(len(pairs)) if ok[j] and any_bad[j]]
+    else:
+        check = range(len(pairs))
+    for j in check:
+        a, b = pairs[j]
         w_atm = float(np.asarray(smiles[b].total_variance(0.0)))
         if not (np.isfinite(w_atm) and w_atm > 0):
             continue
-        k = np.linspace(-span_sd, span_sd, n) * np.sqrt(w_atm)
+        k = grid * np.sqrt(w_atm)
         wa = np.asarray(smiles[a].total_variance(k), dtype=float)
         wb = np.asarray(smiles[b].total_variance(k), dtype=float)
         with np.errstate(invalid="ignore"):
