@@ -585,7 +585,7 @@ def annotate(snapshot: Snapshot, settings: PipelineSettings | None = None, touch
         "arbitrage_note": arb_note,
         "contracts": counts,
         "findings": [len(f) for f in expiry_findings],
-    })
+    }, copy=False)
     for fs in expiry_findings:
         findings.extend(fs)
     annotated = AnnotatedSnapshot(snapshot, settings, out, exp_table, results, findings)

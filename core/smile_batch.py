@@ -153,7 +153,9 @@ def grid_start_batch(k, w, wt, starts) -> np.ndarray:
     normal[..., 1, 1] = syy
     normal[..., 1, 2] = normal[..., 2, 1] = syr
     normal[..., 2, 2] = srr
-    normal += (1e-12 * (s0 + syy + srr))[..., None, None] * np.eye(3)
+    ridge = 1e-12 * (s0 + syy + srr)
+    for i in range(3):  # a tiny ridge on the diagonal
+        normal[..., i, i] += ridge
     swx = s_kw - mm * s_w  # sum wt w (k - m)
     rhs = np.stack([np.broadcast_to(s_w, mm.shape), swx / sg, s_wr / sg], axis=-1)
     sol = np.linalg.solve(normal, rhs[..., None])[..., 0]
