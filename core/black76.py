@@ -40,7 +40,8 @@ def price(forward, strike, sigma, t, discount=1.0, is_call=True):
 def delta(forward, strike, sigma, t, discount=1.0, is_call=True):
     """Forward delta dV/dF divided by the discount factor: N(d1) for calls, N(d1)-1 for puts."""
     d1, _ = d1_d2(forward, strike, sigma, t)
-    return np.where(is_call, ndtr(d1), ndtr(d1) - 1.0)
+    nd1 = ndtr(d1)
+    return np.where(is_call, nd1, nd1 - 1.0)
 
 
 def vega(forward, strike, sigma, t, discount=1.0):

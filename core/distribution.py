@@ -61,8 +61,10 @@ def _log_moneyness(forward, strike):
 
 def _prob_above_k(smile, k):
     """Unclipped P(S_T > F e^k) from the smile at log-moneyness k."""
-    w = np.asarray(smile.total_variance(k), dtype=float)
-    w1 = np.asarray(smile.dw_dk(k), dtype=float)
+    both = getattr(smile, "w_and_dw_dk", None)  # raw SVI slices: w and w' from one x and R
+    w, w1 = both(k) if both is not None else (smile.total_variance(k), smile.dw_dk(k))
+    w = np.asarray(w, dtype=float)
+    w1 = np.asarray(w1, dtype=float)
     with np.errstate(divide="ignore", invalid="ignore"):
         sw = np.sqrt(np.where(w > 0, w, np.nan))
         dm = -k / sw - 0.5 * sw

@@ -131,6 +131,10 @@ class Smile:
         """w'(k)."""
         return svi.dw_dk(self.params, k)
 
+    def w_and_dw_dk(self, k):
+        """(w(k), w'(k)) in one pass."""
+        return svi.w_and_dw_dk(self.params, k)
+
     def d2w_dk2(self, k):
         """w''(k)."""
         return svi.d2w_dk2(self.params, k)

@@ -97,6 +97,10 @@ class SviSlices:
         """w'(k)."""
         return dw_dk(self.params, k)
 
+    def w_and_dw_dk(self, k):
+        """(w(k), w'(k)) in one pass."""
+        return w_and_dw_dk(self.params, k)
+
     def d2w_dk2(self, k):
         """w''(k)."""
         return d2w_dk2(self.params, k)
@@ -111,6 +115,12 @@ def total_variance(p: SviParams, k):
     """Total variance w(k) (dimensionless) at log-moneyness k."""
     x, r = _xr(p, k)
     return p.a + p.b * (p.rho * x + r)
+
+
+def w_and_dw_dk(p: SviParams, k):
+    """(w(k), w'(k)) with x and R computed once: the same numbers as total_variance and dw_dk."""
+    x, r = _xr(p, k)
+    return p.a + p.b * (p.rho * x + r), p.b * (p.rho + x / r)
 
 
 def dw_dk(p: SviParams, k):
