@@ -596,7 +596,7 @@ def annotate(snapshot: Snapshot, settings: PipelineSettings | None = None, touch
 #: processor's cache and the allocator hands the same memory back block after block, where whole-table
 #: temporaries would be fresh memory every time (paid in page faults, more than the arithmetic at a
 #: million rows); large enough that the per-block Python overhead does not show.
-CONTRACT_BLOCK = 16384
+CONTRACT_BLOCK = 32768
 
 
 def _contract_figures(spot, strike, bid, ask, mid, iv, k_row, is_call, exp_code, have_smile, slices, atm_ivs, t_exp,
@@ -616,8 +616,9 @@ def _contract_figures(spot, strike, bid, ask, mid, iv, k_row, is_call, exp_code,
         b = slice(lo, min(lo + CONTRACT_BLOCK, n))
         got = _contract_block(spot, strike[b], bid[b], ask[b], mid[b], iv[b], k_row[b], is_call[b], exp_code[b],
                               have_smile, slices, atm_ivs, t_exp, t_cal, forwards, discounts, per_year)
-        if not out:
-            out = {name: np.empty(n, dtype=v.dtype) for name, v in got.items()}
+        if not out:  # one buffer for every figure, one contiguous row per figure
+            buffer = np.empty((len(got), n))
+            out = dict(zip(got, buffer))
         for name, v in got.items():
             out[name][b] = v
     return out
