@@ -539,7 +539,8 @@ def annotate(snapshot: Snapshot, settings: PipelineSettings | None = None, touch
 
     out = pd.DataFrame({
         "underlying": underlying,
-        "expiry": contracts["expiry"].take(order).reset_index(drop=True),
+        "expiry": (exp_values if exp_values.dtype == contracts["expiry"].dtype
+                   else contracts["expiry"].take(order).reset_index(drop=True)),
         "strike": strike,
         "kind": contracts["kind"].take(order).reset_index(drop=True),
         "bid": bid,
