@@ -6,7 +6,7 @@ docstring for the method). What changes is how the work is laid out: the
 quotes of all expiries sit in one flat array grouped by expiry, and
 
 - the quasi-explicit grid start solves the 3 x 3 normal equations of every
-  (m, sigma) candidate of every expiry in one batched solve;
+  (m, sigma) candidate of every expiry at once, in closed form (LDL', elementwise);
 - the Levenberg-Marquardt polish runs for all expiries together in numpy
   (per-expiry damping and stopping, (E, 5, 5) systems solved with
   ``np.linalg.solve``) in the same box-bounded logistic parametrisation, so
@@ -88,8 +88,10 @@ def grid_start_batch(k, w, wt, starts) -> np.ndarray:
     """Quasi-explicit start of every expiry: (E, 5) raw SVI (a, b, rho, m, sigma).
 
     ``k``, ``w``, ``wt``: quotes grouped by expiry (``starts``: first row of
-    each group). Same 17 x 16 (m, sigma) candidates, linear solve, clipping
-    and choice as ``smile_fit._grid_start``. The sums over quotes that
+    each group). Same 17 x 16 (m, sigma) candidates, normal equations, clipping
+    and choice as ``smile_fit._grid_start``; the symmetric 3 x 3 systems are
+    solved elementwise by LDL' instead of one LU solve each (the same solution
+    to rounding). The sums over quotes that
     involve R = sqrt((k - m)^2 + sigma^2) are one matrix product per expiry;
     every other sum comes from moments of k and w. The weighted cost of each
     candidate is expanded from the same sums (around the weighted mean of w,
@@ -146,20 +148,21 @@ def grid_start_batch(k, w, wt, starts) -> np.ndarray:
     sxr = s_kr - mm * s_r  # sum wt (k - m) R
     syr = sxr / (sg * sg)
     srr = syy + s0
-    normal = np.empty((n_exp, n_grid, 3, 3))
-    normal[..., 0, 0] = s0
-    normal[..., 0, 1] = normal[..., 1, 0] = sy
-    normal[..., 0, 2] = normal[..., 2, 0] = sr
-    normal[..., 1, 1] = syy
-    normal[..., 1, 2] = normal[..., 2, 1] = syr
-    normal[..., 2, 2] = srr
+    # the 3 x 3 normal equations of every candidate, symmetric positive definite with a tiny ridge on the
+    # diagonal, solved elementwise by LDL' (d and c only)
     ridge = 1e-12 * (s0 + syy + srr)
-    for i in range(3):  # a tiny ridge on the diagonal
-        normal[..., i, i] += ridge
+    a00, a11, a22 = s0 + ridge, syy + ridge, srr + ridge
     swx = s_kw - mm * s_w  # sum wt w (k - m)
-    rhs = np.stack([np.broadcast_to(s_w, mm.shape), swx / sg, s_wr / sg], axis=-1)
-    sol = np.linalg.solve(normal, rhs[..., None])[..., 0]
-    d, c = sol[..., 1], sol[..., 2]
+    r1, r2 = swx / sg, s_wr / sg
+    with np.errstate(divide="ignore", invalid="ignore"):
+        l10, l20 = sy / a00, sr / a00
+        d1 = a11 - l10 * sy
+        e12 = syr - l20 * sy
+        l21 = e12 / d1
+        y1 = r1 - l10 * s_w
+        y2 = r2 - l20 * s_w - l21 * y1
+        c = y2 / (a22 - l20 * sr - l21 * e12)
+        d = y1 / d1 - l21 * c
     b = np.maximum(c / sg, 0.0)
     with np.errstate(divide="ignore", invalid="ignore"):
         rho = np.where(c > 0, d / c, 0.0)
