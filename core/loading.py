@@ -570,18 +570,59 @@ def _decode_block(path: str, block: bytes, lines_before: int) -> str:
     return text.replace("\r\n", "\n").replace("\r", "\n")
 
 
-def _read_csv_blocks(path: str, fh, first: bytes) -> _Table:
-    """A big CSV file read block by block; each block ends at a line break outside quotes.
+@dataclass
+class _BlockSpan:
+    """Where one block of a big CSV file lies: bytes ``start:end`` (``end`` None = to the end of the
+    file), the line breaks before it, whether it holds the header, and whether its quotes need the
+    csv module (then it runs to the end of the file)."""
 
-    The header comes from the first block; every later block is read after a
-    stand-in header of the same width, and its line numbers are shifted back,
-    so they are those of the whole file. Bytes are decoded block by block.
+    start: int
+    end: int | None
+    lines_before: int
+    first: bool
+    exact: bool = False
+
+
+def _parse_block(path: str, block: bytes, span: _BlockSpan, headers: list[str] | None, delim: str) -> _Table | None:
+    """One block's rows with the line numbers of the whole file (cells as text); None when its quotes
+    are not plain and the block is not ``exact`` (then it must run to the end of the file).
+
+    The block holding the header is read as it is; every later block is read
+    after a stand-in header of the same width, and its line numbers are shifted back.
     """
-    if first.startswith((b"\xff\xfe", b"\xfe\xff")) or first.startswith(b"PK\x03\x04"):
-        return _read_csv_table(path, first)  # its own message, from the first bytes
+    text = _decode_block(path, block, span.lines_before)
+    if not text.endswith("\n"):
+        text += "\n"
+    if span.first:
+        offset, stand_in = span.lines_before, ""
+    else:
+        offset, stand_in = span.lines_before - 1, delim.join(["h"] * len(headers or [])) + "\n"
+    try:
+        if span.exact:
+            table = _table_csv_module(path, stand_in + text, delim)
+        else:
+            table = _table_fast(path, stand_in + text, delim)
+    except SnapshotFileError as exc:  # a line named in the block: name it in the file
+        raise SnapshotFileError(path, re.sub(r"line (\d+)", lambda m: f"line {int(m.group(1)) + offset}",
+                                             exc.reason)) from None
+    if table is None:
+        return None
+    if headers is not None:
+        table.headers = headers
+    table.line += offset
+    table.end_line += offset
+    return table
+
+
+def _csv_blocks(path: str, fh, first: bytes):
+    """A big CSV file block by block: (table, span, delimiter) triples; each block ends at a line break
+    outside quotes. Bytes are decoded block by block. When a block's quotes are not plain, where a
+    record ends is known only by reading on from there, so the rest of the file is one block, read
+    by the csv module (exact, slower, more memory).
+    """
+    pos = 0
     if first.startswith(b"\xef\xbb\xbf"):
-        first = first[3:]
-    tables: list[_Table] = []
+        first, pos = first[3:], 3
     carry = first
     lines_before = 0  # line breaks in the bytes already read
     headers: list[str] | None = None
@@ -596,47 +637,39 @@ def _read_csv_blocks(path: str, fh, first: bytes) -> _Table:
             carry = buf
             continue
         block, carry = buf[:cut], buf[cut:]
+        span = _BlockSpan(pos, pos + cut, lines_before, headers is None)
+        pos += cut
         if not block.strip():
-            lines_before += block.count(b"\n") + (block.count(b"\r") - block.count(b"\r\n"))
+            lines_before += _line_breaks(block)
             continue
-        text = _decode_block(path, block, lines_before)
-        if not text.endswith("\n"):
-            text += "\n"
-        breaks = text.count("\n")
         if headers is None:
-            delim = _pick_delimiter(text)
-            offset = lines_before
-            stand_in = ""
-        else:
-            stand_in = delim.join(["h"] * len(headers)) + "\n"
-            offset = lines_before - 1
-        try:
-            table = _table_fast(path, stand_in + text, delim)
-            if table is None:
-                # quotes that are not plain: where a record ends is known only by reading on from here,
-                # so the rest of the file is read whole by the csv module (exact, slower, more memory)
-                rest = block + carry + fh.read()
-                carry, at_end = b"", True
-        except SnapshotFileError as exc:  # a line named in the block: name it in the file
-            raise SnapshotFileError(path, re.sub(r"line (\d+)", lambda m: f"line {int(m.group(1)) + offset}",
-                                                 exc.reason)) from None
+            delim = _pick_delimiter(_decode_block(path, block, lines_before))
+        table = _parse_block(path, block, span, headers, delim)
         if table is None:
-            text = _decode_block(path, rest, lines_before)
-            text = text if text.endswith("\n") else text + "\n"
-            try:
-                table = _table_csv_module(path, stand_in + text, delim)
-            except SnapshotFileError as exc:
-                raise SnapshotFileError(path, re.sub(r"line (\d+)", lambda m: f"line {int(m.group(1)) + offset}",
-                                                     exc.reason)) from None
+            block = block + carry + fh.read()
+            carry, at_end = b"", True
+            span = _BlockSpan(span.start, None, lines_before, span.first, exact=True)
+            table = _parse_block(path, block, span, headers, delim)
         if headers is None:
             headers = table.headers
-        table.headers = headers
-        table.line += offset
-        table.end_line += offset
+        lines_before += _line_breaks(block)
+        yield table, span, delim
+
+
+def _line_breaks(block: bytes) -> int:
+    """Line breaks in ``block`` (\\r\\n, \\n and a lone \\r count one each)."""
+    return block.count(b"\n") + block.count(b"\r") - block.count(b"\r\n")
+
+
+def _read_csv_blocks(path: str, fh, first: bytes) -> _Table:
+    """A big CSV file read block by block into one table (every cell kept as a category code)."""
+    if first.startswith((b"\xff\xfe", b"\xfe\xff")) or first.startswith(b"PK\x03\x04"):
+        return _read_csv_table(path, first)  # its own message, from the first bytes
+    tables = []
+    for table, _, _ in _csv_blocks(path, fh, first):
         table.cells = _as_categories(table.cells)
         tables.append(table)
-        lines_before += breaks
-    if headers is None:
+    if not tables:
         raise SnapshotFileError(path, "is empty")
     return _join_tables(tables)
 
@@ -914,6 +947,7 @@ class _FileValidator:
                 self.file_findings.append(Finding(
                     NOTE, f"the column mapping names {mapped!r} for {name}, but the file has no such column",
                     file=self.path))
+        self.index = dict(chosen)
         for name, i in chosen.items():
             self.col[name] = _stripped(self.t.cells[i])
             self.label[name] = self.t.headers[i].strip() or name
@@ -1289,8 +1323,13 @@ class _FileValidator:
             parts.append(self.row_findings(WARNING, sel, msgs, topic, column, strike))
         return FindingTable.concat(parts).sorted_by_line()
 
-    def run(self) -> FileLoad:
+    def run(self, *, file_notes: bool = True, whole: bool = True) -> FileLoad:
+        """Check every row and build the snapshots. ``whole=False`` for a part of a file (some of its
+        underlyings): no error when no row is usable (``self.tally`` counts the reasons instead), and
+        the notes about the file's columns only with ``file_notes``."""
         self.resolve_columns()
+        if not file_notes:
+            self.file_findings = []
         self.check_rows()
         self.resolve_groups()
         self.check_duplicates()
@@ -1298,6 +1337,11 @@ class _FileValidator:
         self.quote_warnings()
         findings = self.findings()
         accepted = int(self.rows.free.sum())
+        if not whole:
+            self.tally = _ReasonTally()
+            self.tally.add(self.rows.reason[~self.rows.free])
+            if accepted == 0:
+                return FileLoad(path=self.path, snapshots=[], findings=findings, rows_read=self.n, rows_accepted=0)
         if accepted == 0:
             if self.n == 0:
                 raise SnapshotFileError(self.path, "no usable row: there are no data rows below the header",
@@ -1375,21 +1419,50 @@ def _reason_kind(reason: str) -> str:
     return re.sub(r"'[^']*'|\"[^\"]*\"|line \d+|\d+(\.\d+)?", "…", reason)
 
 
+class _ReasonTally:
+    """Kinds of reason (see ``_reason_kind``) with their counts and first real example, added a
+    batch of reasons at a time (work per distinct reason, not per row)."""
+
+    def __init__(self) -> None:
+        self.counts: Counter[str] = Counter()
+        self.first: dict[str, str] = {}
+        self.varied: set[str] = set()
+
+    def add(self, reasons: Sequence[str]) -> None:
+        reasons = np.asarray(reasons, dtype=object)
+        if reasons.size == 0:
+            return
+        codes, uniq = pd.factorize(reasons)
+        counts = np.bincount(codes, minlength=len(uniq))
+        for r, c in zip(uniq, counts):
+            key = _reason_kind(r)
+            self.counts[key] += int(c)
+            if key not in self.first:
+                self.first[key] = r
+            elif r != self.first[key]:
+                self.varied.add(key)
+
+    def merge(self, other: _ReasonTally) -> None:
+        for key, c in other.counts.items():
+            self.counts[key] += c
+            if key not in self.first:
+                self.first[key] = other.first[key]
+            elif other.first[key] != self.first[key] or key in other.varied:
+                self.varied.add(key)
+            if key in other.varied:
+                self.varied.add(key)
+
+    def text(self, top: int = 3) -> str:
+        return "; ".join(f"{c} x {self.first[k]}" + (", and the like" if k in self.varied else "")
+                         for k, c in self.counts.most_common(top))
+
+
 def _common_reasons(reasons: Sequence[str], top: int = 3) -> str:
     """The most common kinds of reason with their counts, each shown by its first real example
     ("12 x strike '-5' is not positive, and the like"), never with its numbers masked."""
-    counts: Counter[str] = Counter()
-    first: dict[str, str] = {}
-    varied: set[str] = set()
-    for r in reasons:
-        key = _reason_kind(r)
-        counts[key] += 1
-        if key not in first:
-            first[key] = r
-        elif r != first[key]:
-            varied.add(key)
-    return "; ".join(f"{c} x {first[k]}" + (", and the like" if k in varied else "")
-                     for k, c in counts.most_common(top))
+    tally = _ReasonTally()
+    tally.add(reasons)
+    return tally.text(top)
 
 
 def _tidy(contracts: pd.DataFrame) -> pd.DataFrame:
@@ -1592,3 +1665,244 @@ def _merge(files: list[FileLoad]) -> tuple[list[Snapshot], list[Finding]]:
         out.append(Snapshot(underlying=und, as_of=first.as_of, spot=first.spot, contracts=contracts,
                             findings=snap_findings, sources=sources))
     return out, extra_findings
+
+
+# --------------------------------------------------------------------------- big inputs, a few underlyings at a time
+
+#: Inputs bigger than this many bytes together are read by ``PartLoader`` (a few underlyings at a time) by
+#: the command line's `check` and `table`, so their memory does not grow with the file.
+PART_INPUT_BYTES = BIG_FILE_BYTES
+#: Rows of one part: underlyings are gathered into a part until it holds this many rows (an underlying is
+#: never split: its checks and its snapshot need all its rows).
+PART_ROWS = 1_000_000
+
+
+def inputs_bytes(paths: Iterable[str | Path]) -> int:
+    """Bytes of the regular files among ``paths`` together (others count 0)."""
+    total = 0
+    for p in paths:
+        try:
+            if Path(p).is_file():
+                total += Path(p).stat().st_size
+        except OSError:
+            continue
+    return total
+
+
+def _take_rows(t: _Table, sel: np.ndarray) -> _Table:
+    """The rows ``sel`` (a bool mask) of a table, every cell as a category code."""
+    cells = t.cells[sel].reset_index(drop=True)
+    if not all(isinstance(cells[c].dtype, pd.CategoricalDtype) for c in cells.columns):
+        cells = _as_categories(cells)
+    return _Table(t.headers, cells, t.line[sel], t.end_line[sel], t.nfields[sel], t.extra[sel])
+
+
+@dataclass
+class _FileIndex:
+    """What the first reading of one file found: its underlyings (rows each, in order of first
+    appearance) and where their rows are (per block of a big CSV, or the whole table of a small one)."""
+
+    path: str
+    cmap: ColumnMap
+    headers: list[str]
+    delim: str = ","
+    table: _Table | None = None  # a file read whole: its table (category codes)
+    keys: np.ndarray | None = None  # ... and the underlying key of each of its rows
+    blocks: list = None  # a file read in blocks: (span, set of keys in the block)
+    counts: dict | None = None
+    started: bool = False  # a part of this file has been read (its notes about columns are said once)
+
+
+class PartLoader:
+    """Snapshot files read a few underlyings at a time, for inputs too big to hold at once.
+
+    Creating it reads every file once, block by block, to find which
+    underlyings it holds and where (``errors`` then holds the files that cannot
+    be used at all). Iterating gives one ``LoadResult`` per part: the
+    snapshots of some underlyings (merged across files as ``load_files``
+    does), the findings about their rows, and per-file ``FileLoad``s whose
+    row counts add up, over the parts, to each file's. Each part's files are
+    read again, only the blocks holding its underlyings. After iterating,
+    ``unusable()`` gives the errors of files of which no row was usable.
+
+    Every row belongs to the part of its underlying (rows with an empty one
+    to the part of the empty name), so each check sees exactly the rows it
+    would see in the whole file: the outcome is that of ``load_files``, with
+    findings in the same groups (see ``tests/core/test_loading_parts.py``).
+    """
+
+    def __init__(self, paths: Iterable[str | Path], *, overrides: SnapshotOverrides | None = None,
+                 column_map: ColumnMap | str | Path | None = None, part_rows: int | None = None) -> None:
+        self.ov = (overrides or SnapshotOverrides()).resolved()
+        cmap = _as_column_map(column_map)
+        self.part_rows = PART_ROWS if part_rows is None else part_rows
+        self.errors: list[SnapshotFileError] = []
+        self.repeated: list[Finding] = []
+        self.files: list[_FileIndex] = []
+        self.rows: dict[str, int] = {}
+        self.accepted: dict[str, int] = {}
+        self.tally: dict[str, _ReasonTally] = {}
+        seen: dict[tuple[int, int], str] = {}
+        for p in paths:
+            identity = _file_identity(p)
+            if identity is not None and identity in seen:
+                same = "" if seen[identity] == str(p) else f" (as {seen[identity]})"
+                self.repeated.append(Finding(NOTE, f"{p} is given twice{same}; it is read once"))
+                continue
+            if identity is not None:
+                seen[identity] = str(p)
+            try:
+                self.files.append(self._index(str(p), cmap))
+            except SnapshotFileError as exc:
+                self.errors.append(exc)
+            except MemoryError:
+                self.errors.append(SnapshotFileError(str(p), _too_big(str(p))))
+
+    # -- the first reading
+    def _keys(self, t: _Table, column: int | None) -> np.ndarray:
+        """The underlying of each row as the checks will see it: the override, or the stripped cell."""
+        if self.ov.underlying is not None or column is None:
+            return np.full(len(t.cells), self.ov.underlying or "", dtype=object)
+        return _stripped(t.cells[column]).to_numpy(dtype=object)
+
+    def _columns(self, path: str, headers: list[str], cmap: ColumnMap) -> int | None:
+        """The underlying column's position (raises SnapshotFileError for a header the checks refuse)."""
+        width = len(headers)
+        empty = _Table(headers, pd.DataFrame({i: pd.Series([], dtype=str) for i in range(width)}),
+                       np.zeros(0, np.int64), np.zeros(0, np.int64), np.zeros(0, np.int64), np.zeros(0, bool))
+        v = _FileValidator(path, empty, self.ov, cmap)
+        v.resolve_columns()
+        return v.index.get("underlying")
+
+    def _index(self, path: str, cmap: ColumnMap) -> _FileIndex:
+        counts: dict[str, int] = {}
+        named: dict[str, None] = {}  # underlyings of rows of the right width, for the spot override's check
+
+        def count(t: _Table, keys: np.ndarray) -> set:
+            codes, uniq = pd.factorize(keys)
+            for k, c in zip(uniq, np.bincount(codes, minlength=len(uniq))):
+                counts[k] = counts.get(k, 0) + int(c)
+            if self.ov.spot is not None and self.ov.underlying is None:
+                wide = (t.nfields >= len(t.headers)) & ~t.extra & (keys != "")
+                for k in pd.unique(keys[wide]):
+                    named.setdefault(k)
+            return set(uniq)
+
+        p = Path(path)
+        blocks = None
+        try:
+            if p.is_file() and p.suffix.lower() not in _PARQUET_SUFFIXES and p.stat().st_size > max(
+                    BIG_FILE_BYTES, CHUNK_BYTES):
+                with open(p, "rb") as fh:
+                    head = fh.read(4)
+                    if head != b"PAR1" and not head.startswith((b"\xff\xfe", b"\xfe\xff", b"PK\x03\x04")):
+                        blocks, column, headers, delim = [], None, None, ","
+                        for t, span, delim in _csv_blocks(path, fh, head):
+                            if headers is None:
+                                headers = t.headers
+                                column = self._columns(path, headers, cmap)
+                            blocks.append((span, count(t, self._keys(t, column))))
+                        if headers is None:
+                            raise SnapshotFileError(path, "is empty")
+        except OSError as exc:
+            raise SnapshotFileError(path, f"cannot be read ({exc.strerror or exc})") from None
+        if blocks is not None:
+            index = _FileIndex(path, cmap, headers, delim=delim, blocks=blocks, counts=counts)
+        else:
+            t = _read_table(path)
+            t.cells = _as_categories(t.cells)
+            keys = self._keys(t, self._columns(path, t.headers, cmap))
+            count(t, keys)
+            index = _FileIndex(path, cmap, t.headers, table=t, keys=keys, counts=counts)
+        if len(named) > 1:
+            names = list(named)
+            listed = ", ".join(_show(x, 20) for x in names[:5]) + (" ..." if len(names) > 5 else "")
+            raise SnapshotFileError(
+                path, f"holds {len(names)} underlyings ({listed}); one spot override cannot serve them all "
+                      "(give --underlying too, or split the file)")
+        self.rows[path] = sum(counts.values())
+        self.accepted[path] = 0
+        self.tally[path] = _ReasonTally()
+        return index
+
+    # -- the parts
+    def batches(self) -> list[list[str]]:
+        """The underlyings of each part, in order of first appearance (file by file)."""
+        sizes: dict[str, int] = {}
+        for f in self.files:
+            for k, c in f.counts.items():
+                sizes[k] = sizes.get(k, 0) + c
+        out: list[list[str]] = []
+        rows = 0
+        for k, c in sizes.items():
+            if not out or rows + c > self.part_rows:
+                out.append([])
+                rows = 0
+            out[-1].append(k)
+            rows += c
+        return out
+
+    def _part_table(self, f: _FileIndex, wanted: set) -> _Table | None:
+        """The rows of ``f`` whose underlying is in ``wanted`` (None when there are none)."""
+        if f.table is not None:
+            sel = pd.Series(f.keys, dtype=object).isin(wanted).to_numpy(dtype=bool)
+            return _take_rows(f.table, sel) if sel.any() else None
+        column = self._columns(f.path, f.headers, f.cmap)
+        tables = []
+        try:
+            with open(f.path, "rb") as fh:
+                for span, keys in f.blocks:
+                    if not keys & wanted:
+                        continue
+                    fh.seek(span.start)
+                    data = fh.read() if span.end is None else fh.read(span.end - span.start)
+                    t = _parse_block(f.path, data, span, None if span.first else f.headers, f.delim)
+                    if t is None:  # the file changed since the first reading
+                        raise SnapshotFileError(f.path, "changed while it was being read")
+                    t.headers = f.headers
+                    k = self._keys(t, column)
+                    tables.append(_take_rows(t, pd.Series(k, dtype=object).isin(wanted & keys).to_numpy(dtype=bool)))
+        except OSError as exc:
+            raise SnapshotFileError(f.path, f"cannot be read ({exc.strerror or exc})") from None
+        tables = [t for t in tables if len(t.cells)]
+        return _join_tables(tables) if tables else None
+
+    def __iter__(self):
+        for n, batch in enumerate(self.batches()):
+            wanted = set(batch)
+            loads: list[FileLoad] = []
+            for f in self.files:
+                if not wanted & set(f.counts):
+                    continue
+                t = self._part_table(f, wanted)
+                if t is None:
+                    continue
+                v = _FileValidator(f.path, t, self.ov, f.cmap)
+                try:
+                    fl = v.run(file_notes=not f.started, whole=False)
+                except MemoryError:
+                    raise SnapshotFileError(f.path, _too_big(f.path)) from None
+                f.started = True
+                self.tally[f.path].merge(v.tally)
+                loads.append(fl)
+                del v, t
+            merged, merge_findings = _merge(loads)
+            for fl in loads:
+                self.accepted[fl.path] += fl.rows_accepted
+            extra = self.repeated if n == 0 else []
+            findings = FindingTable.concat([fl.findings for fl in loads] + [extra, merge_findings])
+            yield LoadResult(snapshots=merged, findings=findings, files=loads, errors=[])
+
+    def unusable(self) -> list[SnapshotFileError]:
+        """After iterating: the files of which no row was usable (their findings are in the parts)."""
+        out = []
+        for f in self.files:
+            n = self.rows[f.path]
+            if self.accepted[f.path]:
+                continue
+            if n == 0:
+                out.append(SnapshotFileError(f.path, "no usable row: there are no data rows below the header"))
+            else:
+                out.append(SnapshotFileError(
+                    f.path, f"no usable row: all {n} rows were left out ({self.tally[f.path].text()})", rows_read=n))
+        return out
