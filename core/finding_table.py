@@ -67,6 +67,12 @@ class FindingGroup:
     lines: tuple[tuple[int, int], ...]
     strikes: tuple[float, float] | None
     rows: np.ndarray = field(repr=False, compare=False)
+    first: Finding | None = field(default=None, repr=False, compare=False)
+
+    @property
+    def first_line(self) -> int:
+        """The line of the first member (0 when it names none)."""
+        return int(self.first.line or 0) if self.first is not None else (self.lines[0][0] if self.lines else 0)
 
     def location(self, with_file: bool = True) -> str:
         """Where the group points, e.g. ``chain.csv lines 96-130 [bid] QRTZ 2026-12-04``."""
@@ -254,32 +260,45 @@ class FindingTable(Sequence[Finding]):
         n = len(self)
         if n == 0:
             return []
-        keys = [self.severity]
+        gid = self.severity.astype(np.int64)
         for name in ("file", "underlying", "expiry", "column", "topic"):
-            codes, _ = _factorize(getattr(self, name))
-            keys.append(codes)
-        # one code per distinct key tuple, numbered in order of first appearance
-        stacked = np.stack([k.astype(np.int64) for k in keys], axis=1)
-        _, first, inverse = np.unique(stacked, axis=0, return_index=True, return_inverse=True)
-        inverse = inverse.reshape(-1)
-        order_of_group = np.argsort(first, kind="stable")
-        rank = np.empty_like(order_of_group)
-        rank[order_of_group] = np.arange(order_of_group.size)
-        gid = rank[inverse]
+            codes, uniq = _factorize(getattr(self, name))
+            gid, _ = pd.factorize(gid * max(len(uniq), 1) + codes)  # numbered in order of first appearance
+        n_groups = int(gid.max()) + 1
         members = np.argsort(gid, kind="stable")
-        bounds = np.searchsorted(gid[members], np.arange(order_of_group.size + 1))
+        bounds = np.searchsorted(gid[members], np.arange(n_groups + 1))
+        firsts = members[bounds[:-1]]
+        sizes = np.diff(bounds)
+        # strike range per group (NaN-aware minimum and maximum over each group's run of members)
+        strikes = self.strike[members]
+        lo = np.fmin.reduceat(strikes, bounds[:-1])
+        hi = np.fmax.reduceat(strikes, bounds[:-1])
+        # runs of consecutive line numbers per group, all groups at once: members sorted by (group, line)
+        lines = self.line
+        named = lines > 0
+        by_line = np.lexsort((lines, gid))
+        by_line = by_line[named[by_line]]
+        g_sorted, l_sorted = gid[by_line], lines[by_line]
+        keep = np.ones(by_line.size, dtype=bool)
+        keep[1:] = (g_sorted[1:] != g_sorted[:-1]) | (l_sorted[1:] != l_sorted[:-1])
+        g_sorted, l_sorted = g_sorted[keep], l_sorted[keep]
+        starts = np.ones(l_sorted.size, dtype=bool)
+        starts[1:] = (g_sorted[1:] != g_sorted[:-1]) | (l_sorted[1:] != l_sorted[:-1] + 1)
+        run_first = np.flatnonzero(starts)
+        run_last = np.concatenate((run_first[1:], [l_sorted.size])) - 1
+        run_group = g_sorted[run_first]
+        run_a, run_b = l_sorted[run_first].tolist(), l_sorted[run_last].tolist()
+        run_bounds = np.searchsorted(run_group, np.arange(n_groups + 1)).tolist()
         out = []
-        for g in range(order_of_group.size):
-            rows = members[bounds[g]:bounds[g + 1]]
-            i = int(rows[0])
-            lines = self.line[rows]
-            strikes = self.strike[rows]
-            ok = strikes[np.isfinite(strikes)]
+        for g in range(n_groups):
+            i = int(firsts[g])
+            a, b = run_bounds[g], run_bounds[g + 1]
             out.append(FindingGroup(
                 severity=SEVERITIES[self.severity[i]], topic=self.topic[i], file=self.file[i],
                 underlying=self.underlying[i], expiry=self.expiry[i], column=self.column[i],
-                count=int(rows.size), lines=tuple(_line_ranges(lines[lines > 0])),
-                strikes=(float(ok.min()), float(ok.max())) if ok.size else None, rows=rows))
+                count=int(sizes[g]), lines=tuple(zip(run_a[a:b], run_b[a:b])),
+                strikes=(float(lo[g]), float(hi[g])) if np.isfinite(lo[g]) else None,
+                rows=members[bounds[g]:bounds[g + 1]], first=self._one(i)))
         return out
 
 

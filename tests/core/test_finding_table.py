@@ -65,3 +65,33 @@ def test_loader_gives_one_group_per_expiry_side_and_reason(tmp_path):
     assert [f.line for f in load.findings] == list(range(2, 22)) + [23, 24, 25]
     assert load.findings[0].reason == "zero bid on the 60 put"
     assert load.snapshots[0].findings == load.findings
+
+
+def test_groups_match_grouping_one_finding_at_a_time():
+    """The vectorised grouping against a plain dictionary walk over the findings [D]: same groups in
+    order of first member, counts, runs of lines (repeats and line 0 ignored), strike ranges, members."""
+    rng = np.random.default_rng(3)
+    n = 3000
+    pick = lambda values: np.array(values, dtype=object)[rng.integers(0, len(values), n)]  # noqa: E731
+    strike = rng.choice([np.nan, 90.0, 95.5, 120.0], n)
+    t = FindingTable(rng.integers(0, 3, n).astype(np.int8), pick(["a", "b", "c"]), topic=pick(["t1", "t2"]),
+                     file=pick(["x.csv", None]), line=rng.integers(0, 60, n), column=pick(["bid", None]),
+                     underlying=pick(["QRTZ", "ABC", None]), expiry=pick(["2026-03-20", None]), strike=strike)
+    expected: dict = {}
+    for i in range(n):
+        key = (t.severity[i], t.file[i], t.underlying[i], t.expiry[i], t.column[i], t.topic[i])
+        expected.setdefault(key, []).append(i)
+    groups = t.groups()
+    assert len(groups) == len(expected)
+    for g, (key, rows) in zip(groups, expected.items()):
+        lines = sorted({int(t.line[i]) for i in rows if t.line[i] > 0})
+        runs = []
+        for x in lines:
+            if runs and runs[-1][1] == x - 1:
+                runs[-1][1] = x
+            else:
+                runs.append([x, x])
+        ok = [t.strike[i] for i in rows if np.isfinite(t.strike[i])]
+        assert (g.count, list(g.rows), g.lines, g.strikes, g.first) == (
+            len(rows), rows, tuple(map(tuple, runs)), (min(ok), max(ok)) if ok else None, t[rows[0]])
+        assert (g.file, g.underlying, g.expiry, g.column, g.topic) == key[1:]
