@@ -3,14 +3,19 @@
 from __future__ import annotations
 
 import argparse
+import dataclasses
 import json
 import re
 from collections.abc import Sequence
+from dataclasses import dataclass, field
 from typing import Any, TextIO
 
+import numpy as np
+
 from chaintriage.core.finding_table import FindingGroup, FindingTable, ranges_text
-from chaintriage.core.findings import LEFT_OUT, NOTE, WARNING, Finding
-from chaintriage.core.loading import FileLoad, LoadResult, SnapshotFileError, load_files
+from chaintriage.core import loading
+from chaintriage.core.findings import LEFT_OUT, NOTE, SEVERITIES, WARNING, Finding
+from chaintriage.core.loading import FileLoad, LoadResult, PartLoader, SnapshotFileError, inputs_bytes, load_files
 from chaintriage.tui.cli.common import (
     EXIT_OK,
     EXIT_ROWS_LEFT_OUT,
@@ -69,14 +74,14 @@ def _finding_line(f: Finding, *, with_file: bool = False) -> str:
 WARNING_RUNS_SHOWN = 8
 
 
-def group_line(group: FindingGroup, table: FindingTable, *, with_file: bool = False,
+def group_line(group: FindingGroup, table: FindingTable | None, *, with_file: bool = False,
                severity: bool = False) -> str:
     """One report line for a group: the finding itself when alone, else its topic, count and line ranges.
 
     ``severity`` puts the severity between place and message (``place: warning: message``).
     """
     if group.count == 1:
-        f = table[int(group.rows[0])]
+        f = group.first if group.first is not None else table[int(group.rows[0])]
         where = f.location(with_file=with_file)
         text = f"{f.severity}: {f.reason}" if severity else f.reason
         return one_line(f"{where}: {text}" if where else text)
@@ -94,8 +99,11 @@ def group_line(group: FindingGroup, table: FindingTable, *, with_file: bool = Fa
 
 def write_grouped(findings: FindingTable, out: TextIO, indent: str = "  ") -> None:
     """Findings by severity, each severity's findings grouped per file, underlying, expiry, column and topic."""
-    groups = findings.groups()
-    counts = findings.counts()
+    write_groups(findings.groups(), findings.counts(), out, indent)
+
+
+def write_groups(groups: Sequence[FindingGroup], counts: dict[str, int], out: TextIO, indent: str = "  ") -> None:
+    """Groups of findings by severity (``counts``: findings per severity), as ``write_grouped``."""
     for severity, title in _SEVERITY_TITLES:
         mine = [g for g in groups if g.severity == severity]
         if not mine:
@@ -105,7 +113,7 @@ def write_grouped(findings: FindingTable, out: TextIO, indent: str = "  ") -> No
         head = f"{indent}{title} ({n})" if k == n else f"{indent}{title} ({n}, in {k} group{'s' if k != 1 else ''})"
         print(head, file=out)
         for g in mine:
-            print(f"{indent}  {group_line(g, findings)}", file=out)
+            print(f"{indent}  {group_line(g, None)}", file=out)
 
 
 def _ordered_outcomes(paths: Sequence[str], result: LoadResult) -> list[FileLoad | SnapshotFileError]:
@@ -149,26 +157,80 @@ def summary_line(s: dict[str, int]) -> str:
             f"{s['warnings']} warnings, {s['left_out']} left out")
 
 
+@dataclass
+class FileOutcome:
+    """What the report says about one file: its rows, its findings' groups and counts, and (json only)
+    every finding and its snapshots. ``error`` is the reason when the file is unusable."""
+
+    path: str
+    error: str | None
+    rows_read: int
+    rows_accepted: int
+    groups: list[FindingGroup]
+    counts: dict[str, int]
+    findings: FindingTable | None = None
+    snapshots: list[dict[str, Any]] = field(default_factory=list)
+
+    @property
+    def rows_left_out(self) -> int:
+        return self.rows_read - self.rows_accepted
+
+
+def _snapshot_dicts(snapshots) -> list[dict[str, Any]]:
+    return [{"underlying": s.underlying, "as_of": s.as_of.isoformat(), "spot": s.spot,
+             "contracts": len(s.contracts), "expiries": len(s.expiries())} for s in snapshots]
+
+
+def _outcomes(paths: Sequence[str], result: LoadResult, *, every: bool) -> list[FileOutcome]:
+    out = []
+    for item in _ordered_outcomes(paths, result):
+        t = FindingTable.of(item.findings)
+        if isinstance(item, SnapshotFileError):
+            out.append(FileOutcome(item.path, item.reason, item.rows_read, 0, t.groups(), t.counts(),
+                                   t if every else None))
+        else:
+            out.append(FileOutcome(item.path, None, item.rows_read, item.rows_accepted, t.groups(), t.counts(),
+                                   t if every else None, _snapshot_dicts(item.snapshots)))
+    return out
+
+
+def _outcome_summary(outcomes: Sequence[FileOutcome], across: FindingTable) -> dict[str, int]:
+    return {
+        "files": len(outcomes),
+        "unusable": sum(o.error is not None for o in outcomes),
+        "rows_read": sum(o.rows_read for o in outcomes),
+        "rows_accepted": sum(o.rows_accepted for o in outcomes),
+        "warnings": sum(o.counts[WARNING] for o in outcomes) + across.counts()[WARNING],
+        "left_out": sum(o.rows_left_out for o in outcomes),
+    }
+
+
+def _outcome_status(outcomes: Sequence[FileOutcome]) -> int:
+    if any(o.error is not None for o in outcomes):
+        return EXIT_UNUSABLE
+    return EXIT_ROWS_LEFT_OUT if any(o.rows_left_out for o in outcomes) else EXIT_OK
+
+
 def write_plain_report(paths: Sequence[str], result: LoadResult, out: TextIO) -> None:
     """The `check` report as plain text: findings grouped by file and severity, then a summary line."""
-    for item in _ordered_outcomes(paths, result):
-        if isinstance(item, SnapshotFileError):
-            head = f"{item.path}: unusable"
-            if item.rows_read:
-                head += f" ({item.rows_read} rows read, 0 accepted)"
-            findings = item.findings
+    _write_plain(_outcomes(paths, result, every=False), result.findings.where(file=None), out)
+
+
+def _write_plain(outcomes: Sequence[FileOutcome], across: FindingTable, out: TextIO) -> None:
+    for o in outcomes:
+        if o.error is not None:
+            head = f"{o.path}: unusable"
+            if o.rows_read:
+                head += f" ({o.rows_read} rows read, 0 accepted)"
         else:
-            head = (f"{item.path}: {item.rows_read} rows read, {item.rows_accepted} accepted, "
-                    f"{item.rows_left_out} left out")
-            findings = item.findings
+            head = f"{o.path}: {o.rows_read} rows read, {o.rows_accepted} accepted, {o.rows_left_out} left out"
         print(one_line(head), file=out)
-        write_grouped(FindingTable.of(findings), out)
-    across = [f for f in result.findings.where(file=None)]
-    if across:
+        write_groups(o.groups, o.counts, out)
+    if len(across):
         print("across files", file=out)
         for f in across:
             print(f"  {f.severity}: {_finding_line(f)}", file=out)
-    print(summary_line(_summary(result)), file=out)
+    print(summary_line(_outcome_summary(outcomes, across)), file=out)
 
 
 def json_report(paths: Sequence[str], result: LoadResult) -> dict[str, Any]:
@@ -178,33 +240,76 @@ def json_report(paths: Sequence[str], result: LoadResult) -> dict[str, Any]:
     ``finding_groups`` (the same findings grouped per underlying, expiry,
     column and topic, with a count and line runs as [first, last] pairs).
     """
+    return _json(_outcomes(paths, result, every=True), result.findings.where(file=None))
+
+
+def _json(outcomes: Sequence[FileOutcome], across: FindingTable) -> dict[str, Any]:
     files = []
-    for item in _ordered_outcomes(paths, result):
-        if isinstance(item, SnapshotFileError):
-            files.append({
-                "path": item.path, "usable": False, "error": item.reason,
-                "rows_read": item.rows_read, "rows_accepted": 0, "rows_left_out": item.rows_read,
-                "snapshots": [], "findings": [f.as_dict() for f in item.findings],
-                "finding_groups": [g.as_dict() for g in item.findings.groups()],
-            })
-        else:
-            files.append({
-                "path": item.path, "usable": True, "error": None,
-                "rows_read": item.rows_read, "rows_accepted": item.rows_accepted,
-                "rows_left_out": item.rows_left_out,
-                "snapshots": [{
-                    "underlying": s.underlying, "as_of": s.as_of.isoformat(), "spot": s.spot,
-                    "contracts": len(s.contracts), "expiries": len(s.expiries()),
-                } for s in item.snapshots],
-                "findings": [f.as_dict() for f in item.findings],
-                "finding_groups": [g.as_dict() for g in item.findings.groups()],
-            })
+    for o in outcomes:
+        files.append({
+            "path": o.path, "usable": o.error is None, "error": o.error,
+            "rows_read": o.rows_read, "rows_accepted": o.rows_accepted, "rows_left_out": o.rows_left_out,
+            "snapshots": o.snapshots, "findings": [f.as_dict() for f in (o.findings or [])],
+            "finding_groups": [g.as_dict() for g in o.groups],
+        })
     return {
         "files": files,
-        "findings_across_files": [f.as_dict() for f in result.findings.where(file=None)],
-        "summary": _summary(result),
-        "exit_status": check_status(result),
+        "findings_across_files": [f.as_dict() for f in across],
+        "summary": _outcome_summary(outcomes, across),
+        "exit_status": _outcome_status(outcomes),
     }
+
+
+def read_in_parts(paths: Sequence[str], overrides, column_map, *, every: bool = False,
+                  on_part=None) -> tuple[list[FileOutcome], FindingTable, list[SnapshotFileError]]:
+    """Big inputs read a few underlyings at a time (``PartLoader``), keeping per file only its counts and
+    its findings' groups (and every finding with ``every``, for json). ``on_part(part)`` sees each
+    part (a LoadResult) before it is let go. Returns the outcomes in the order of ``paths``, the
+    findings about no file, and the unusable files' errors."""
+    loader = PartLoader(paths, overrides=overrides, column_map=column_map)
+    per: dict[str, FileOutcome] = {}
+    tables: dict[str, list[FindingTable]] = {}
+    across: list[FindingTable] = []
+    for f in loader.files:
+        per[f.path] = FileOutcome(f.path, None, 0, 0, [], {s: 0 for s in SEVERITIES})
+    for part in loader:
+        for fl in part.files:
+            o = per[fl.path]
+            o.rows_read += fl.rows_read
+            o.rows_accepted += fl.rows_accepted
+            t = FindingTable.of(fl.findings)
+            o.groups.extend(dataclasses.replace(g, rows=_NO_ROWS) for g in t.groups())
+            for sev, c in t.counts().items():
+                o.counts[sev] += c
+            o.snapshots.extend(_snapshot_dicts(fl.snapshots))
+            if every:
+                tables.setdefault(fl.path, []).append(t)
+        across.append(part.findings.where(file=None))
+        if on_part is not None:
+            on_part(part)
+        del part
+    for o in per.values():
+        # groups of all parts in the order of their first finding, as one file's groups come
+        o.groups.sort(key=lambda g: (g.first_line > 0, g.first_line))
+        if every:
+            o.findings = FindingTable.concat(tables.get(o.path, [])).sorted_by_line()
+    errors = list(loader.errors) + loader.unusable()
+    for e in errors:
+        o = per.get(e.path)
+        if o is None:
+            per[e.path] = FileOutcome(e.path, e.reason, 0, 0, [], {s: 0 for s in SEVERITIES},
+                                      FindingTable.empty() if every else None)
+        else:
+            o.error, o.rows_accepted, o.snapshots = e.reason, 0, []
+    ordered = []
+    pending = dict(per)
+    for p in paths:
+        if str(p) in pending:
+            ordered.append(pending.pop(str(p)))
+    return ordered + list(pending.values()), FindingTable.concat(across), errors
+
+
+_NO_ROWS = np.zeros(0, dtype=np.int64)
 
 
 #: Characters json.dumps(ensure_ascii=False) leaves raw that a terminal may act on or that hide text:
@@ -221,13 +326,26 @@ def json_text(report: dict[str, Any], *, ascii_only: bool = False) -> str:
 
 def run_check(args: argparse.Namespace) -> int:
     overrides, column_map = snapshot_options(args)
+    if inputs_bytes(args.files) > loading.PART_INPUT_BYTES:  # big: a few underlyings at a time
+        outcomes, across, errors = read_in_parts(args.files, overrides, column_map, every=args.format == "json")
+        for exc in errors:
+            error(str(exc))
+        if args.format == "json":
+            report = _json(outcomes, across)
+            _write_json(report)
+        else:
+            _write_plain(outcomes, across, StdoutWriter())
+        return _outcome_status(outcomes)
     result = load_files(args.files, overrides=overrides, column_map=column_map)
     for exc in result.errors:
         error(str(exc))
     if args.format == "json":
-        report = json_report(args.files, result)
-        text = json_text(report)
-        StdoutWriter().write(text if can_encode(text) else json_text(report, ascii_only=True))
+        _write_json(json_report(args.files, result))
     else:
         write_plain_report(args.files, result, StdoutWriter())
     return check_status(result)
+
+
+def _write_json(report: dict[str, Any]) -> None:
+    text = json_text(report)
+    StdoutWriter().write(text if can_encode(text) else json_text(report, ascii_only=True))

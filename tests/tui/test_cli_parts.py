@@ -1,0 +1,77 @@
+"""`check` and `table` on big inputs read them a few underlyings at a time: the same report, table,
+findings and exit status as reading them whole.
+
+Oracle: the same commands on the same files read whole [D] (their layout and
+exit codes are pinned by test_cli_check.py, test_cli_tables.py and the rest).
+The size above which inputs are read in parts, the block size and the rows
+per part are forced down, so small files take the big files' path.
+"""
+
+from __future__ import annotations
+
+import json
+
+import pytest
+
+from chaintriage.core import loading
+from chaintriage.tui.cli import main as cli
+
+from ..core.test_loading_parts import HEADER, ROWS
+
+CHAIN = "".join(
+    f"{und},2026-03-02T15:30:00-05:00,{spot},{exp},{k},{kind},{max(0.0, round(p, 2)):.2f},{round(p + 0.1, 2):.2f}\n"
+    for und, spot in (("QRTZ", 100.5), ("ABC", 50.0))
+    for exp in ("2026-03-20", "2026-04-17")
+    for k in range(int(spot * 0.8), int(spot * 1.2) + 1, 2)
+    for kind, p in (("call", max(0.05, spot - k + 1.5)), ("put", max(0.05, k - spot + 1.5))))
+
+
+def outputs(capsys, monkeypatch, argv, parts: bool, part_rows: int = 3, block: int = 50):
+    if parts:
+        monkeypatch.setattr(loading, "PART_INPUT_BYTES", -1)
+        monkeypatch.setattr(loading, "BIG_FILE_BYTES", 0)
+        monkeypatch.setattr(loading, "CHUNK_BYTES", block)
+        monkeypatch.setattr(loading, "PART_ROWS", part_rows)
+    else:
+        monkeypatch.setattr(loading, "PART_INPUT_BYTES", 1 << 40)
+    code = cli.main(list(argv))
+    out, err = capsys.readouterr()
+    monkeypatch.undo()
+    return code, out, sorted(err.splitlines())
+
+
+def same_both_ways(capsys, monkeypatch, *argv, **kw):
+    whole = outputs(capsys, monkeypatch, argv, False)
+    for part_rows in (1, 40, 10 ** 9):
+        assert outputs(capsys, monkeypatch, argv, True, part_rows=part_rows, **kw) == whole, part_rows
+    return whole
+
+
+@pytest.fixture
+def files(tmp_path):
+    a = tmp_path / "a.csv"
+    a.write_text(HEADER + "".join(ROWS))
+    b = tmp_path / "b.csv"
+    b.write_text(HEADER + "".join(ROWS[::3]))
+    bad = tmp_path / "bad.csv"
+    bad.write_text(HEADER + "ZED,x,1,2026-03-20,50,call,1,2\n")
+    chain = tmp_path / "chain.csv"
+    chain.write_text(HEADER.replace(",iv", "") + CHAIN)
+    return str(a), str(b), str(bad), str(chain)
+
+
+def test_check_plain_and_json(files, capsys, monkeypatch):
+    code, out, _ = same_both_ways(capsys, monkeypatch, "check", *files)
+    assert code == 2 and "unusable" in out  # the oracle run exercises every kind of outcome
+    code, out, _ = same_both_ways(capsys, monkeypatch, "check", *files, "--format", "json")
+    assert json.loads(out)["exit_status"] == 2
+    assert same_both_ways(capsys, monkeypatch, "check", files[3])[0] == 0
+
+
+@pytest.mark.parametrize("fmt", ["csv", "plain", "json"])
+def test_table(files, capsys, monkeypatch, fmt):
+    code, out, err = same_both_ways(capsys, monkeypatch, "table", files[3], files[0], "--format", fmt)
+    assert code == 1 and "QRTZ" in out and "ABC" in out
+    same_both_ways(capsys, monkeypatch, "table", files[3], "--format", fmt, "--expiry", "2026-04-17",
+                   "--side", "puts")
+    assert same_both_ways(capsys, monkeypatch, "table", files[2], "--format", fmt)[0] == 2
