@@ -284,8 +284,8 @@ class FindingTable(Sequence[Finding]):
         g_sorted, l_sorted = g_sorted[keep], l_sorted[keep]
         starts = np.ones(l_sorted.size, dtype=bool)
         starts[1:] = (g_sorted[1:] != g_sorted[:-1]) | (l_sorted[1:] != l_sorted[:-1] + 1)
-        run_first = np.flatnonzero(starts)
-        run_last = np.concatenate((run_first[1:], [l_sorted.size])) - 1
+        run_first = np.flatnonzero(starts).astype(np.int64)
+        run_last = np.append(run_first[1:], l_sorted.size)[: run_first.size] - 1
         run_group = g_sorted[run_first]
         run_a, run_b = l_sorted[run_first].tolist(), l_sorted[run_last].tolist()
         run_bounds = np.searchsorted(run_group, np.arange(n_groups + 1)).tolist()

@@ -95,3 +95,8 @@ def test_groups_match_grouping_one_finding_at_a_time():
         assert (g.count, list(g.rows), g.lines, g.strikes, g.first) == (
             len(rows), rows, tuple(map(tuple, runs)), (min(ok), max(ok)) if ok else None, t[rows[0]])
         assert (g.file, g.underlying, g.expiry, g.column, g.topic) == key[1:]
+
+
+def test_groups_of_findings_about_no_line():
+    t = FindingTable.of([Finding(NOTE, "columns not used: 'x'", file="a.csv"), Finding(NOTE, "spot differs")])
+    assert [(g.count, g.lines, g.strikes) for g in t.groups()] == [(1, (), None), (1, (), None)]

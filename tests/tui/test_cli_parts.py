@@ -42,7 +42,7 @@ def outputs(capsys, monkeypatch, argv, parts: bool, part_rows: int = 3, block: i
 
 def same_both_ways(capsys, monkeypatch, *argv, **kw):
     whole = outputs(capsys, monkeypatch, argv, False)
-    for part_rows in (1, 40, 10 ** 9):
+    for part_rows in (1, 10 ** 9):
         assert outputs(capsys, monkeypatch, argv, True, part_rows=part_rows, **kw) == whole, part_rows
     return whole
 

@@ -17,7 +17,7 @@ from chaintriage.core.finding_table import FindingTable
 from chaintriage.core.findings import LEFT_OUT
 from chaintriage.core.loading import LoadResult, load_files
 from chaintriage.core.pipeline import AnnotatedSnapshot, annotate
-from chaintriage.tui.cli.check import _summary, check_status, group_line, summary_line
+from chaintriage.tui.cli.check import _outcome_summary, _summary, check_status, group_line, summary_line
 from chaintriage.tui.cli.common import (
     EXIT_ROWS_LEFT_OUT,
     EXIT_UNUSABLE,
@@ -69,22 +69,41 @@ def report_findings(args, result: LoadResult, model_findings: list,
     expiry in particular) are listed, and the rest counted in one line.
     """
     core = FindingTable.concat(model_findings)
+    groups = FindingTable.concat([result.findings, core]).groups() if not args.quiet else []
+    _report(args, groups, summary_line(_summary(result)), len(core), wanted)
+
+
+def report_groups(args, outcomes, across: FindingTable, model_findings: list,
+                  wanted: list[pd.Timestamp] | None = None) -> None:
+    """``report_findings`` for inputs read in parts: the files' groups (``check.FileOutcome``s, in the
+    order of the files; an unusable file's left out), those about no file, then the model's."""
+    core = FindingTable.concat(model_findings)
+    groups = []
     if not args.quiet:
-        every = FindingTable.concat([result.findings, core])
-        shown = every
+        for o in outcomes:
+            if o.error is None:
+                groups.extend(o.groups)
+        groups.extend(across.groups())
+        groups.extend(core.groups())
+    _report(args, groups, summary_line(_outcome_summary(outcomes, across)), len(core), wanted)
+
+
+def _report(args, groups, summary: str, n_model: int, wanted) -> None:
+    if not args.quiet:
+        shown, rest = groups, []
         if wanted:
-            days = [f"{w:%Y-%m-%d}" for w in wanted]
-            mine = pd.isna(every.expiry) | pd.Series(every.expiry, dtype=object).isin(days).to_numpy(bool)
-            shown, rest = every.take(mine), every.take(~mine)
-        for g in shown.groups():
-            print(group_line(g, shown, with_file=True, severity=True), file=sys.stderr)
-        if wanted and len(rest):
-            n_exp = len(set(rest.expiry))
-            print(f"{len(rest)} more finding{'s' if len(rest) != 1 else ''} about {n_exp} other "
+            days = {f"{w:%Y-%m-%d}" for w in wanted}
+            shown = [g for g in groups if g.expiry is None or g.expiry in days]
+            rest = [g for g in groups if not (g.expiry is None or g.expiry in days)]
+        for g in shown:
+            print(group_line(g, None, with_file=True, severity=True), file=sys.stderr)
+        n_rest = sum(g.count for g in rest)
+        if n_rest:
+            n_exp = len({g.expiry for g in rest})
+            print(f"{n_rest} more finding{'s' if n_rest != 1 else ''} about {n_exp} other "
                   f"expir{'ies' if n_exp != 1 else 'y'} not listed (chaintriage check lists every one)",
                   file=sys.stderr)
-    line = summary_line(_summary(result))
-    print(f"{line}; {len(core)} model findings", file=sys.stderr)
+    print(f"{summary}; {n_model} model findings", file=sys.stderr)
 
 
 def nothing_usable(args, result: LoadResult) -> int:

@@ -6,8 +6,9 @@ import argparse
 
 import pandas as pd
 
-from chaintriage.core.findings import ChainTriageError
-from chaintriage.core.loading import YEAR_MAX, YEAR_MIN, load_files
+from chaintriage.core import loading
+from chaintriage.core.findings import LEFT_OUT, ChainTriageError
+from chaintriage.core.loading import YEAR_MAX, YEAR_MIN, inputs_bytes, load_files
 from chaintriage.core.pipeline import GREEK_COLUMNS, TRADE_COLUMNS, annotate
 from chaintriage.tui.cli.annotated_tables import (
     annotated_status,
@@ -15,9 +16,11 @@ from chaintriage.tui.cli.annotated_tables import (
     add_table_options,
     nothing_usable,
     report_findings,
+    report_groups,
     with_as_of,
 )
-from chaintriage.tui.cli.common import EXIT_UNUSABLE, StdoutWriter, error, snapshot_options
+from chaintriage.tui.cli.check import _outcome_status, read_in_parts
+from chaintriage.tui.cli.common import EXIT_ROWS_LEFT_OUT, EXIT_UNUSABLE, StdoutWriter, error, snapshot_options
 from chaintriage.tui.cli.history import (
     HISTORY_TABLE_COLUMNS,
     add_history_options,
@@ -91,10 +94,83 @@ def _wanted_expiries(args: argparse.Namespace) -> list[pd.Timestamp]:
     return wanted
 
 
+def _selected(a, args: argparse.Namespace, wanted: list[pd.Timestamp]) -> tuple[pd.DataFrame, pd.Series]:
+    """The rows of one annotated snapshot that `table` writes (touch figures computed for them), and
+    the mask that chose them."""
+    for expiry in a.results:  # touch figures are computed per expiry on demand
+        if not wanted or expiry in wanted:
+            a.touch(expiry)
+    c = a.contracts
+    keep = pd.Series(True, index=c.index)
+    if wanted:
+        keep &= c["expiry"].isin(wanted)
+    if args.side != "both":
+        keep &= c["kind"] == args.side[:-1]
+    if args.beyond is not None:
+        keep &= c["otm"] & (c["sigma_distance"].abs() >= args.beyond)
+    return with_as_of(c.loc[keep, TABLE_COLUMNS].copy(), a, args.format), keep
+
+
+def _run_table_in_parts(args: argparse.Namespace, overrides, column_map, settings) -> int:
+    """`table` on big inputs: read a few underlyings at a time, each snapshot annotated, written and let
+    go (with --expiry, the chosen rows are kept until every wanted expiry is known to be there)."""
+    wanted = _wanted_expiries(args)
+    stream = None
+    kept: list[pd.DataFrame] = []
+    present: set = set()
+    model_findings = []
+    seen = [0]
+
+    def on_part(part) -> None:
+        nonlocal stream
+        snapshots = part.snapshots
+        while snapshots:
+            snap = snapshots.pop(0)
+            seen[0] += 1
+            if wanted:
+                present.update(snap.contracts["expiry"].unique())
+            a = annotate(snap, settings)
+            del snap
+            frame, _ = _selected(a, args, wanted)
+            model_findings.append(a.findings)
+            del a
+            if wanted:
+                kept.append(frame)
+                continue
+            if stream is None:
+                stream = TableStream(args.format, StdoutWriter())
+            stream.write(frame)
+
+    outcomes, across, errors = read_in_parts(args.files, overrides, column_map, on_part=on_part)
+    for exc in errors:
+        error(str(exc))
+    if not seen[0]:
+        report_groups(args, outcomes, across, [])
+        error("no usable snapshot")
+        return EXIT_UNUSABLE
+    if wanted:
+        missing = [w for w in wanted if w not in present]
+        if missing:
+            have = ", ".join(sorted(f"{e:%Y-%m-%d}" for e in present))
+            error(f"no contracts expire on {', '.join(f'{m:%Y-%m-%d}' for m in missing)}; expiries: {have}")
+            return EXIT_UNUSABLE
+        stream = TableStream(args.format, StdoutWriter())
+        for frame in kept:
+            stream.write(frame)
+    stream.close()
+    report_groups(args, outcomes, across, model_findings, wanted)
+    status = _outcome_status(outcomes)
+    if status == 0 and any(f.severity == LEFT_OUT for fs in model_findings for f in fs):
+        return EXIT_ROWS_LEFT_OUT
+    return status
+
+
 def run_table(args: argparse.Namespace) -> int:
     """Load, then annotate and write one snapshot at a time (csv and json leave as they are made)."""
     overrides, column_map = snapshot_options(args)
     settings = pipeline_settings(args)
+    if not args.history and inputs_bytes(args.files) > loading.PART_INPUT_BYTES:
+        return _run_table_in_parts(args, overrides, column_map, settings)
     result = load_files(args.files, overrides=overrides, column_map=column_map)
     for exc in result.errors:
         error(str(exc))
@@ -118,24 +194,13 @@ def run_table(args: argparse.Namespace) -> int:
     else:  # one snapshot at a time: annotated, written, let go
         items = ((i, annotate(snap, settings)) for i, snap in enumerate(result.snapshots))
     for i, a in items:
-        for expiry in a.results:  # touch figures are computed per expiry on demand
-            if not wanted or expiry in wanted:
-                a.touch(expiry)
-        c = a.contracts
-        keep = pd.Series(True, index=c.index)
-        if wanted:
-            keep &= c["expiry"].isin(wanted)
-        if args.side != "both":
-            keep &= c["kind"] == args.side[:-1]
-        if args.beyond is not None:
-            keep &= c["otm"] & (c["sigma_distance"].abs() >= args.beyond)
-        frame = with_as_of(c.loc[keep, TABLE_COLUMNS].copy(), a, args.format)
+        frame, keep = _selected(a, args, wanted)
         if loads is not None:
             cmp = history.get(i)
             frame = history_columns(frame, cmp.contracts if cmp else None, keep, HISTORY_TABLE_COLUMNS)
         stream.write(frame)
         model_findings.append(a.findings)
-        del a, c, keep
+        del a, keep
     stream.close()
     report_findings(args, result, model_findings, wanted)
     return finish_with_history(args, loads, extra, annotated_status(result, model_findings))
