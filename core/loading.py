@@ -355,7 +355,9 @@ def _records_fast(path: str, text: str, delim: str):
     return raw, dpos, starts, ends, start_line, end_line, nfields, first_d
 
 
-def _table_fast(path: str, text: str, delim: str) -> _Table | None:
+def _table_fast(path: str, text: str, delim: str, columns: list[int] | None = None) -> _Table | None:
+    """The table of ``text`` (None when its quotes are not plain); ``columns``: read only these
+    (the cells then hold only them, under their positions; the headers are then not read)."""
     rec = _records_fast(path, text, delim)
     if rec is None:
         return None
@@ -370,8 +372,8 @@ def _table_fast(path: str, text: str, delim: str) -> _Table | None:
             sep=delim,
             header=None,
             names=range(maxf),
-            usecols=range(width),
-            dtype=str,
+            usecols=range(width) if columns is None else [c for c in columns if c < width],
+            dtype=object,  # Python strings: no conversion to another string type per block
             keep_default_na=False,
             na_filter=False,
             skip_blank_lines=True,
@@ -393,9 +395,9 @@ def _table_fast(path: str, text: str, delim: str) -> _Table | None:
         fields = next(csv.reader(io.StringIO(tail, newline=""), delimiter=delim, quotechar='"',
                                  doublequote=True, strict=False), [])
         extra[i] = any(x.strip(" \t") for x in fields)
-    headers = [str(h) for h in df.iloc[0].tolist()]
+    headers = [str(h) for h in df.iloc[0].tolist()] if columns is None else []
     cells = df.iloc[1:].reset_index(drop=True)
-    cells.columns = range(width)
+    cells.columns = range(width) if columns is None else [c for c in columns if c < width]
     return _Table(headers, cells, start_line[1:], end_line[1:], nfields[1:].astype(np.int64), extra[1:])
 
 
@@ -540,7 +542,11 @@ def _block_cut(buf: bytes) -> int:
 
 def _as_categories(cells: pd.DataFrame) -> pd.DataFrame:
     """Every column as a categorical (codes plus the distinct texts)."""
-    return pd.DataFrame({c: pd.Categorical(cells[c]) for c in cells.columns}, index=cells.index)
+    def one(values: pd.Series) -> pd.Categorical:
+        codes, uniq = pd.factorize(values.to_numpy(dtype=object))
+        return pd.Categorical.from_codes(codes, pd.Index(np.asarray(uniq, dtype=object), dtype=object))
+
+    return pd.DataFrame({c: one(cells[c]) for c in cells.columns}, index=cells.index)
 
 
 def _join_tables(tables: list[_Table]) -> _Table:
@@ -583,7 +589,8 @@ class _BlockSpan:
     exact: bool = False
 
 
-def _parse_block(path: str, block: bytes, span: _BlockSpan, headers: list[str] | None, delim: str) -> _Table | None:
+def _parse_block(path: str, block: bytes, span: _BlockSpan, headers: list[str] | None, delim: str,
+                 columns: list[int] | None = None) -> _Table | None:
     """One block's rows with the line numbers of the whole file (cells as text); None when its quotes
     are not plain and the block is not ``exact`` (then it must run to the end of the file).
 
@@ -601,7 +608,7 @@ def _parse_block(path: str, block: bytes, span: _BlockSpan, headers: list[str] |
         if span.exact:
             table = _table_csv_module(path, stand_in + text, delim)
         else:
-            table = _table_fast(path, stand_in + text, delim)
+            table = _table_fast(path, stand_in + text, delim, None if span.first else columns)
     except SnapshotFileError as exc:  # a line named in the block: name it in the file
         raise SnapshotFileError(path, re.sub(r"line (\d+)", lambda m: f"line {int(m.group(1)) + offset}",
                                              exc.reason)) from None
@@ -614,9 +621,10 @@ def _parse_block(path: str, block: bytes, span: _BlockSpan, headers: list[str] |
     return table
 
 
-def _csv_blocks(path: str, fh, first: bytes):
+def _csv_blocks(path: str, fh, first: bytes, columns=None):
     """A big CSV file block by block: (table, span, delimiter) triples; each block ends at a line break
-    outside quotes. Bytes are decoded block by block. When a block's quotes are not plain, where a
+    outside quotes. ``columns(headers)``, when given, names the only columns to read after the
+    header's block (see ``_table_fast``). Bytes are decoded block by block. When a block's quotes are not plain, where a
     record ends is known only by reading on from there, so the rest of the file is one block, read
     by the csv module (exact, slower, more memory).
     """
@@ -644,7 +652,7 @@ def _csv_blocks(path: str, fh, first: bytes):
             continue
         if headers is None:
             delim = _pick_delimiter(_decode_block(path, block, lines_before))
-        table = _parse_block(path, block, span, headers, delim)
+        table = _parse_block(path, block, span, headers, delim, None if columns is None else columns(headers))
         if table is None:
             block = block + carry + fh.read()
             carry, at_end = b"", True
@@ -1674,7 +1682,7 @@ def _merge(files: list[FileLoad]) -> tuple[list[Snapshot], list[Finding]]:
 PART_INPUT_BYTES = BIG_FILE_BYTES
 #: Rows of one part: underlyings are gathered into a part until it holds this many rows (an underlying is
 #: never split: its checks and its snapshot need all its rows).
-PART_ROWS = 1_000_000
+PART_ROWS = 500_000
 
 
 def inputs_bytes(paths: Iterable[str | Path]) -> int:
@@ -1690,10 +1698,8 @@ def inputs_bytes(paths: Iterable[str | Path]) -> int:
 
 
 def _take_rows(t: _Table, sel: np.ndarray) -> _Table:
-    """The rows ``sel`` (a bool mask) of a table, every cell as a category code."""
-    cells = t.cells[sel].reset_index(drop=True)
-    if not all(isinstance(cells[c].dtype, pd.CategoricalDtype) for c in cells.columns):
-        cells = _as_categories(cells)
+    """The rows ``sel`` (a bool mask) of a table."""
+    cells = t.cells if sel.all() else t.cells[sel].reset_index(drop=True)
     return _Table(t.headers, cells, t.line[sel], t.end_line[sel], t.nfields[sel], t.extra[sel])
 
 
@@ -1797,10 +1803,12 @@ class PartLoader:
                     head = fh.read(4)
                     if head != b"PAR1" and not head.startswith((b"\xff\xfe", b"\xfe\xff", b"PK\x03\x04")):
                         blocks, column, headers, delim = [], None, None, ","
-                        for t, span, delim in _csv_blocks(path, fh, head):
+                        for t, span, delim in _csv_blocks(path, fh, head, columns=lambda h: [column or 0]):
                             if headers is None:
                                 headers = t.headers
                                 column = self._columns(path, headers, cmap)
+                            else:
+                                t.headers = headers
                             blocks.append((span, count(t, self._keys(t, column))))
                         if headers is None:
                             raise SnapshotFileError(path, "is empty")
@@ -1865,7 +1873,12 @@ class PartLoader:
         except OSError as exc:
             raise SnapshotFileError(f.path, f"cannot be read ({exc.strerror or exc})") from None
         tables = [t for t in tables if len(t.cells)]
-        return _join_tables(tables) if tables else None
+        if not tables:
+            return None
+        cat = np.concatenate
+        return _Table(f.headers, pd.concat([t.cells for t in tables], ignore_index=True),
+                      cat([t.line for t in tables]), cat([t.end_line for t in tables]),
+                      cat([t.nfields for t in tables]), cat([t.extra for t in tables]))
 
     def __iter__(self):
         for n, batch in enumerate(self.batches()):

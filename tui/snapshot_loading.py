@@ -73,11 +73,15 @@ def load_for_app(paths: Sequence[str | Path], *, overrides: SnapshotOverrides | 
     """Load the given files, or the bundled demo chains when ``paths`` is empty.
 
     ``column_maps`` (one per path) gives each file its own mapping instead of ``column_map``.
-    Raises ChainTriageError when there is nothing to load.
+    Raises ChainTriageError when there is nothing to load, or when the files are together bigger
+    than the app opens at once (``loading.OPEN_MAX_BYTES``).
     """
-    from chaintriage.core.loading import load_files
+    from chaintriage.core.loading import load_files, too_big_to_open
 
     if paths:
+        refusal = too_big_to_open(paths)  # the same cap as `open` (the `l` prompt comes here too)
+        if refusal:
+            raise ChainTriageError(refusal)
         return load_files(paths, overrides=overrides, column_map=column_map, column_maps=column_maps)
     names = demo_files()
     if not names:

@@ -53,3 +53,19 @@ def test_out_of_memory_past_loading_is_exit_2_with_a_message(tmp_path, capsys, m
     code = cli.main(["table", str(p), "--format", "csv"])
     err = capsys.readouterr().err
     assert code == 2 and "out of memory" in err and "Traceback" not in err
+
+
+def test_the_apps_open_file_prompt_has_the_same_cap(tmp_path, monkeypatch):
+    """The `l` prompt loads through ``load_views``: above the cap it says why and loads nothing."""
+    from chaintriage.tui import snapshot_loading
+
+    p = tmp_path / "big.csv"
+    p.write_text(HEADER + "\n" + ROW + "\n")
+    monkeypatch.setattr(loading, "OPEN_MAX_BYTES", 50)
+    views = []
+    errors, added = snapshot_loading.load_views([str(p)], on_view=lambda v, first: views.append(v))
+    assert added == 0 and not views and len(errors) == 1
+    assert "more than the app opens at once" in errors[0] and "chaintriage check" in errors[0]
+    monkeypatch.setattr(loading, "OPEN_MAX_BYTES", 10_000)
+    errors, added = snapshot_loading.load_views([str(p)], on_view=lambda v, first: views.append(v))
+    assert errors == [] and added == 1 and views
