@@ -268,3 +268,33 @@ def test_findings_screen_draws_a_row_per_group_not_per_finding():
         assert "lines 2-100001" in detail and "and 99,996 more" in detail
 
     run(app, scenario)
+
+
+def test_findings_screen_with_many_groups_fills_in_after_its_first_frame(monkeypatch):
+    """More groups than the screen makes at opening: the first rows at once, every group soon after,
+    in order, the count line from the first frame [D]."""
+    import numpy as np
+
+    from chaintriage.core.finding_table import FindingTable
+    from chaintriage.core.findings import Finding
+    from chaintriage.tui.screens import findings as findings_screen
+
+    monkeypatch.setattr(findings_screen, "ROWS_AT_OPEN", 7)
+    monkeypatch.setattr(findings_screen, "ROWS_PER_BATCH", 10)
+    k = 45
+    base = FindingTable.of([Finding("warning", "zero bid", file="big.csv", line=2, column="bid", underlying="QRTZ")])
+    big = base.take(np.zeros(2 * k, dtype=np.int64))
+    big.line = np.arange(2, 2 * k + 2)
+    big.expiry = np.array([f"2027-01-{1 + i // 2:02d} #{i // 2}" for i in range(2 * k)], dtype=object)
+    app = make_app()
+
+    async def scenario(pilot):
+        app.push_screen(FindingsScreen("big", big, ()))
+        for _ in range(20):
+            await pilot.pause()
+        table = app.screen.query_one("#findings-table")
+        assert table.row_count == k
+        assert [table.get_row_at(i)[4].plain for i in (0, k - 1)] == ["2027-01-01 #0", f"2027-01-{k:02d} #{k - 1}"]
+        assert "90 findings" in str(app.screen.query_one("#findings-title").render())
+
+    run(app, scenario)

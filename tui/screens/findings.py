@@ -3,8 +3,8 @@ grouped per file, underlying, expiry, column and reason with a count and the run
 
 A big file can give a million findings; the screen shows one row per group (the groups are
 computed once per snapshot, off the screen's thread, by ``SnapshotView.finding_groups``), and a
-finding is built as an object only when the detail pane shows it. Opening the screen costs a
-row per group, not per finding.
+finding is built as an object only when the detail pane shows it. The first screenful of rows is
+there at the first frame and the rest follow in batches, so opening costs the same at any count.
 """
 
 from __future__ import annotations
@@ -30,6 +30,10 @@ RUNS_IN_TABLE = 3
 #: Runs of lines, and example findings, shown in the detail pane.
 RUNS_IN_DETAIL = 12
 EXAMPLES_IN_DETAIL = 4
+#: Group rows put in the table before the screen's first frame (more than a screen holds); the rest
+#: follow in batches of ROWS_PER_BATCH, one per refresh, so opening costs the same at any count.
+ROWS_AT_OPEN = 80
+ROWS_PER_BATCH = 500
 
 
 def _file_name(path: str | None) -> str:
@@ -124,12 +128,26 @@ class FindingsScreen(Screen):
             table.add_column(name)
         for message in self._errors:
             table.add_row(plain("unusable file"), Text(""), plain(""), plain(""), plain(""), plain(message))
-        table.add_rows(group_row(g, self._findings) for g in self._groups)
+        table.add_rows(group_row(g, self._findings) for g in self._groups[:ROWS_AT_OPEN])
+        self._added = min(len(self._groups), ROWS_AT_OPEN)
+        if self._added < len(self._groups):  # the rest after the first frame, a batch per refresh
+            self.call_after_refresh(self._add_more)
         if not self._groups and not self._errors:
             table.add_row(plain(""), Text(""), plain(""), plain(""), plain(""),
                           plain("nothing to report: every row was used"))
         table.focus()
         self._show_detail(0)
+
+    def _add_more(self) -> None:
+        """The next batch of group rows (the screen stays responsive between batches)."""
+        if not self.is_attached:
+            return
+        table = self.query_one("#findings-table", DataTable)
+        stop = min(len(self._groups), self._added + ROWS_PER_BATCH)
+        table.add_rows(group_row(g, self._findings) for g in self._groups[self._added:stop])
+        self._added = stop
+        if stop < len(self._groups):
+            self.call_after_refresh(self._add_more)
 
     def on_data_table_row_highlighted(self, event: DataTable.RowHighlighted) -> None:
         self._show_detail(event.cursor_row)
