@@ -17,7 +17,7 @@ from chaintriage.core.finding_table import FindingTable
 from chaintriage.core.findings import LEFT_OUT
 from chaintriage.core.loading import LoadResult, load_files
 from chaintriage.core.pipeline import AnnotatedSnapshot, annotate
-from chaintriage.tui.cli.check import _outcome_summary, _summary, check_status, group_line, summary_line
+from chaintriage.tui.cli.check import outcome_summary, _summary, check_status, group_line, summary_line
 from chaintriage.tui.cli.common import (
     EXIT_ROWS_LEFT_OUT,
     EXIT_UNUSABLE,
@@ -85,7 +85,7 @@ def report_groups(args, outcomes, across: FindingTable, model_findings: list,
                 groups.extend(o.groups)
         groups.extend(across.groups())
         groups.extend(core.groups())
-    _report(args, groups, summary_line(_outcome_summary(outcomes, across)), len(core), wanted)
+    _report(args, groups, summary_line(outcome_summary(outcomes, across)), len(core), wanted)
 
 
 def _report(args, groups, summary: str, n_model: int, wanted) -> None:

@@ -194,7 +194,7 @@ def _outcomes(paths: Sequence[str], result: LoadResult, *, every: bool) -> list[
     return out
 
 
-def _outcome_summary(outcomes: Sequence[FileOutcome], across: FindingTable) -> dict[str, int]:
+def outcome_summary(outcomes: Sequence[FileOutcome], across: FindingTable) -> dict[str, int]:
     return {
         "files": len(outcomes),
         "unusable": sum(o.error is not None for o in outcomes),
@@ -205,7 +205,7 @@ def _outcome_summary(outcomes: Sequence[FileOutcome], across: FindingTable) -> d
     }
 
 
-def _outcome_status(outcomes: Sequence[FileOutcome]) -> int:
+def outcome_status(outcomes: Sequence[FileOutcome]) -> int:
     if any(o.error is not None for o in outcomes):
         return EXIT_UNUSABLE
     return EXIT_ROWS_LEFT_OUT if any(o.rows_left_out for o in outcomes) else EXIT_OK
@@ -230,7 +230,7 @@ def _write_plain(outcomes: Sequence[FileOutcome], across: FindingTable, out: Tex
         print("across files", file=out)
         for f in across:
             print(f"  {f.severity}: {_finding_line(f)}", file=out)
-    print(summary_line(_outcome_summary(outcomes, across)), file=out)
+    print(summary_line(outcome_summary(outcomes, across)), file=out)
 
 
 def json_report(paths: Sequence[str], result: LoadResult) -> dict[str, Any]:
@@ -255,8 +255,8 @@ def _json(outcomes: Sequence[FileOutcome], across: FindingTable) -> dict[str, An
     return {
         "files": files,
         "findings_across_files": [f.as_dict() for f in across],
-        "summary": _outcome_summary(outcomes, across),
-        "exit_status": _outcome_status(outcomes),
+        "summary": outcome_summary(outcomes, across),
+        "exit_status": outcome_status(outcomes),
     }
 
 
@@ -335,7 +335,7 @@ def run_check(args: argparse.Namespace) -> int:
             _write_json(report)
         else:
             _write_plain(outcomes, across, StdoutWriter())
-        return _outcome_status(outcomes)
+        return outcome_status(outcomes)
     result = load_files(args.files, overrides=overrides, column_map=column_map)
     for exc in result.errors:
         error(str(exc))

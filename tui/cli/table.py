@@ -19,7 +19,7 @@ from chaintriage.tui.cli.annotated_tables import (
     report_groups,
     with_as_of,
 )
-from chaintriage.tui.cli.check import _outcome_status, read_in_parts
+from chaintriage.tui.cli.check import outcome_status, read_in_parts
 from chaintriage.tui.cli.common import EXIT_ROWS_LEFT_OUT, EXIT_UNUSABLE, StdoutWriter, error, snapshot_options
 from chaintriage.tui.cli.history import (
     HISTORY_TABLE_COLUMNS,
@@ -159,7 +159,7 @@ def _run_table_in_parts(args: argparse.Namespace, overrides, column_map, setting
             stream.write(frame)
     stream.close()
     report_groups(args, outcomes, across, model_findings, wanted)
-    status = _outcome_status(outcomes)
+    status = outcome_status(outcomes)
     if status == 0 and any(f.severity == LEFT_OUT for fs in model_findings for f in fs):
         return EXIT_ROWS_LEFT_OUT
     return status
