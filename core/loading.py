@@ -1683,6 +1683,9 @@ PART_INPUT_BYTES = BIG_FILE_BYTES
 #: Rows of one part: underlyings are gathered into a part until it holds this many rows (an underlying is
 #: never split: its checks and its snapshot need all its rows).
 PART_ROWS = 500_000
+#: A big file whose rest (from where quotes stand inside fields) is more than this many bytes gets a
+#: note saying it is read the slower way (the csv module, all at once).
+SLOW_READ_NOTE_BYTES = 16 * 1024 * 1024
 
 
 def inputs_bytes(paths: Iterable[str | Path]) -> int:
@@ -1716,6 +1719,8 @@ class _FileIndex:
     keys: np.ndarray | None = None  # ... and the underlying key of each of its rows
     blocks: list = None  # a file read in blocks: (span, set of keys in the block)
     counts: dict | None = None
+    exact: tuple | None = None  # the rest of the file read by the csv module: (its table, its rows' keys)
+    notes: list | None = None  # findings of the first reading, said with the file's first part
     started: bool = False  # a part of this file has been read (its notes about columns are said once)
 
 
@@ -1796,6 +1801,8 @@ class PartLoader:
 
         p = Path(path)
         blocks = None
+        exact = None
+        notes: list[Finding] = []
         try:
             if p.is_file() and p.suffix.lower() not in _PARQUET_SUFFIXES and p.stat().st_size > max(
                     BIG_FILE_BYTES, CHUNK_BYTES):
@@ -1809,13 +1816,25 @@ class PartLoader:
                                 column = self._columns(path, headers, cmap)
                             else:
                                 t.headers = headers
-                            blocks.append((span, count(t, self._keys(t, column))))
+                            keys = self._keys(t, column)
+                            blocks.append((span, count(t, keys)))
+                            if span.exact:  # read by the csv module: kept, never read that way again
+                                t.cells = _as_categories(t.cells)
+                                exact = (t, keys)
+                                first_line = int(t.line[0]) if len(t.line) else span.lines_before + 1
+                                if p.stat().st_size - span.start > SLOW_READ_NOTE_BYTES:
+                                    notes.append(Finding(
+                                        NOTE, f"quotes stand inside fields (not only around whole fields) at "
+                                              f"or after line {first_line}, so the file from there on is read at "
+                                              "once by the exact reader: slower, and its memory grows with the file",
+                                        file=path))
                         if headers is None:
                             raise SnapshotFileError(path, "is empty")
         except OSError as exc:
             raise SnapshotFileError(path, f"cannot be read ({exc.strerror or exc})") from None
         if blocks is not None:
-            index = _FileIndex(path, cmap, headers, delim=delim, blocks=blocks, counts=counts)
+            index = _FileIndex(path, cmap, headers, delim=delim, blocks=blocks, counts=counts, exact=exact,
+                               notes=notes)
         else:
             t = _read_table(path)
             t.cells = _as_categories(t.cells)
@@ -1862,6 +1881,10 @@ class PartLoader:
                 for span, keys in f.blocks:
                     if not keys & wanted:
                         continue
+                    if span.exact:
+                        t, k = f.exact
+                        tables.append(_take_rows(t, pd.Series(k, dtype=object).isin(wanted).to_numpy(dtype=bool)))
+                        continue
                     fh.seek(span.start)
                     data = fh.read() if span.end is None else fh.read(span.end - span.start)
                     t = _parse_block(f.path, data, span, None if span.first else f.headers, f.delim)
@@ -1895,6 +1918,8 @@ class PartLoader:
                     fl = v.run(file_notes=not f.started, whole=False)
                 except MemoryError:
                     raise SnapshotFileError(f.path, _too_big(f.path)) from None
+                if not f.started and f.notes:
+                    fl.findings = FindingTable.concat([f.notes, fl.findings]).sorted_by_line()
                 f.started = True
                 self.tally[f.path].merge(v.tally)
                 loads.append(fl)

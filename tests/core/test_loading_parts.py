@@ -122,3 +122,19 @@ def test_overrides(tmp_path, monkeypatch):
 def test_shuffled_rows_read_the_same_in_parts(tmp_path, monkeypatch, body, part_rows, block):
     p = write(tmp_path, "f.csv", HEADER, body)
     same_both_ways([p], monkeypatch, blocks=(block,), parts=(part_rows,))
+
+
+def test_a_file_read_the_slow_way_says_so(tmp_path, monkeypatch):
+    """Quotes inside a field make the rest of a big file go to the csv module: a note names the line,
+    and the rest of the outcome is unchanged."""
+    body = ROWS[:6] + ['QRTZ,"a"b",1\n'] + ROWS[6:]
+    p = write(tmp_path, "q.csv", HEADER, body)
+    whole = whole_outcome([p])
+    monkeypatch.setattr(loading, "BIG_FILE_BYTES", 0)
+    monkeypatch.setattr(loading, "CHUNK_BYTES", 40)
+    monkeypatch.setattr(loading, "SLOW_READ_NOTE_BYTES", 0)
+    parts = parts_outcome([p], 2)
+    notes = [k for k in parts[0] if "exact reader" in k[1]]
+    assert len(notes) == 1 and notes[0][0] == "note" and notes[0][2] == p and "at or after line" in notes[0][1]
+    del parts[0][notes[0]]
+    assert parts[:4] == whole[:4]
