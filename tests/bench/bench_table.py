@@ -26,6 +26,7 @@ from __future__ import annotations
 import argparse
 import io
 import os
+import resource
 import subprocess
 import sys
 import tempfile
@@ -64,13 +65,21 @@ PEAK_HOOK = ("import atexit, sys; atexit.register(lambda: sys.stderr.write('\\nP
              "open('/proc/self/status').read().split('VmHWM:')[1].split()[0] + '\\n')); ")
 
 
+#: CPU seconds (user + system) of the last fresh process ``run`` ran (the machine may be loaded by others).
+LAST_CPU = [0.0]
+
+
 def run(argv: list[str]) -> tuple[float, float, int]:
-    """(seconds, peak MB, exit status) of a fresh process running ``python -c CODE ...``, stdout thrown away."""
+    """(seconds, peak MB, exit status) of a fresh process running ``python -c CODE ...``, stdout thrown away;
+    its CPU seconds go to ``LAST_CPU``."""
     argv = [argv[0], argv[1], PEAK_HOOK + argv[2], *argv[3:]]
+    before = resource.getrusage(resource.RUSAGE_CHILDREN)
     t0 = time.perf_counter()
     with open(os.devnull, "w") as null:
         proc = subprocess.run(argv, stdout=null, stderr=subprocess.PIPE)
     seconds = time.perf_counter() - t0
+    after = resource.getrusage(resource.RUSAGE_CHILDREN)
+    LAST_CPU[0] = (after.ru_utime - before.ru_utime) + (after.ru_stime - before.ru_stime)
     err = proc.stderr.decode(errors="replace")
     if proc.returncode not in (0, 1) or "PEAK_KB " not in err:
         raise SystemExit(f"{argv} failed ({proc.returncode}): {err[-500:]}")
@@ -95,8 +104,9 @@ def floor_read_csv(path: Path) -> tuple[float, float, int]:
 
 def commands(path: Path, formats: list[str], label: str) -> None:
     t_pd, m_pd, _ = floor_read_csv(path)
-    print(f"{label}: {path.stat().st_size / 1e6:.0f} MB")
-    print(f"  floor read_csv (fresh process)  {t_pd:7.2f} s  {m_pd:7,.0f} MB")
+    c_pd = LAST_CPU[0]
+    print(f"{label}: {path.stat().st_size / 1e6:.0f} MB; load average {os.getloadavg()[0]:.2f}")
+    print(f"  floor read_csv (fresh process)  {t_pd:7.2f} s  {m_pd:7,.0f} MB   cpu {c_pd:6.2f} s")
     mem = {}
     for rev in ([None, BASELINE] if BASELINE else [None]):
         tag = "" if rev is None else " [baseline]"
@@ -105,10 +115,11 @@ def commands(path: Path, formats: list[str], label: str) -> None:
             mem[fmt] = m
             extra = f"  json memory = {m / mem['csv']:.2f}x csv" if fmt == "json" and "csv" in mem else ""
             print(f"  table --format {fmt:5s}{tag:11s} {t:7.2f} s  {m:7,.0f} MB   time = {t / t_pd:5.1f}x "
-                  f"read_csv, memory = {m / m_pd:4.1f}x{extra}")
+                  f"read_csv, memory = {m / m_pd:4.1f}x{extra}; cpu {LAST_CPU[0]:6.2f} s = "
+                  f"{LAST_CPU[0] / c_pd:5.1f}x read_csv's")
         t, m, _ = run(cli("check", str(path), baseline=rev))
         print(f"  check{tag:11s}                {t:7.2f} s  {m:7,.0f} MB   time = {t / t_pd:5.1f}x read_csv, "
-              f"memory = {m / m_pd:4.1f}x")
+              f"memory = {m / m_pd:4.1f}x; cpu {LAST_CPU[0]:6.2f} s = {LAST_CPU[0] / c_pd:5.1f}x read_csv's")
 
 
 def writers(path: Path) -> None:
