@@ -1,9 +1,16 @@
 """Benchmark: the triage app and the command line's start (run by hand, not collected by pytest).
 
-    python tests/bench/bench_app.py [--quick] [--only help|cold|expiry|big]
+    python tests/bench/bench_app.py [--quick] [--only help|cold|expiry|big] [--baseline REV]
 
 Prints, in milliseconds, each figure beside its floor measured in the same run
-and the ratio to it (medians of several runs; targets from the speed issue):
+and the ratio to it (medians of several runs; targets from the speed issue),
+the CPU time of the process beside its wall time (the machine is shared: CPU
+time says what the work costs, wall time what a user waits), and the load
+average. ``--baseline REV`` measures a git revision's package too (exported to
+a temporary directory, imported ahead of the working tree), alternating run by
+run with the working tree for the spawned figures, so before and after come
+from one run. Child processes write bytecode caches (as an installed package
+has them), so no run pays for compiling the sources:
   help       : `chaintriage --help` in a fresh process, floor `python -c pass`;
                target <= 150 ms;
   cold start : a fresh process that runs the app the way the `chaintriage`
@@ -31,8 +38,10 @@ from __future__ import annotations
 
 import argparse
 import asyncio
+import math
 import os
 import random
+import resource
 import statistics
 import subprocess
 import sys
@@ -42,7 +51,8 @@ import time
 HERE = os.path.dirname(os.path.abspath(__file__))
 
 #: The app as the `chaintriage` command starts it; prints FIRST at the first frame (loading state),
-#: READY at the first frame with data and ALL when every expiry's distribution is computed.
+#: READY at the first frame with data and ALL when every expiry's distribution is computed, each
+#: with the wall clock and the process's CPU time.
 CHILD = r"""
 import sys, time
 import chaintriage.tui.cli.main  # the entry point's own imports
@@ -54,7 +64,7 @@ add_view, screen_ready, load_done = app._add_view, app.screen_ready, app._load_d
 shown = []
 
 def say(word):
-    print(word, f"{time.perf_counter():.6f}", flush=True)
+    print(word, f"{time.perf_counter():.6f}", f"{time.process_time():.6f}", flush=True)
 
 async def first_frame():
     app.call_after_refresh(say, "FIRST")
@@ -82,61 +92,106 @@ app.run(headless=True, size=(160, 50))
 """
 
 
-def spawn_marks(args: list[str], env: dict[str, str]) -> dict[str, float]:
-    """Seconds from spawning CHILD to each mark it prints (FIRST, READY, ALL)."""
+#: One measurement: (wall seconds, CPU seconds of the measured process).
+Sample = tuple[float, float]
+
+
+def child_cpu() -> float:
+    """CPU seconds (user + system) of the children waited for so far."""
+    r = resource.getrusage(resource.RUSAGE_CHILDREN)
+    return r.ru_utime + r.ru_stime
+
+
+def spawn_marks(args: list[str], env: dict[str, str]) -> dict[str, Sample]:
+    """(seconds from spawning CHILD, CPU seconds of the child) at each mark it prints (FIRST, READY, ALL)."""
     t0 = time.perf_counter()
     proc = subprocess.Popen([sys.executable, "-c", CHILD, *args], stdout=subprocess.PIPE,
                             stderr=subprocess.PIPE, text=True, env=env)
-    marks: dict[str, float] = {}
+    marks: dict[str, Sample] = {}
     for line in proc.stdout:
-        word = line.split()[0] if line.strip() else ""
-        if word in ("FIRST", "READY", "ALL"):
-            marks[word] = time.perf_counter() - t0
+        parts = line.split()
+        if parts and parts[0] in ("FIRST", "READY", "ALL"):
+            marks[parts[0]] = (time.perf_counter() - t0, float(parts[2]))
     proc.wait(120)
     if "READY" not in marks:
         raise RuntimeError(f"child never got ready: {proc.stderr.read()[-2000:]}")
     return marks
 
 
-def spawn(code: str, env: dict[str, str], args: tuple[str, ...] = ()) -> float:
+def spawn(code: str, env: dict[str, str], args: tuple[str, ...] = ()) -> Sample:
+    cpu0 = child_cpu()
     t0 = time.perf_counter()
     subprocess.run([sys.executable, "-c", code, *args], check=True, env=env, stdout=subprocess.DEVNULL)
-    return time.perf_counter() - t0
+    return time.perf_counter() - t0, child_cpu() - cpu0
 
 
-def summary(name: str, samples: list[float], target_ms: float | None = None, floor: float | None = None) -> float:
-    ms = sorted(s * 1000 for s in samples)
-    med = statistics.median(ms)
-    ratio = f"  {med / floor:5.2f}x floor" if floor else ""
+def load() -> str:
+    return "load average " + " ".join(f"{x:.2f}" for x in os.getloadavg())
+
+
+def summary(name: str, samples: list, target_ms: float | None = None, floor: Sample | None = None) -> Sample:
+    """Print the median wall (and CPU) time of ``samples`` (Samples, or wall seconds alone), the ratio
+    to ``floor`` (a median Sample) and whether the wall median meets ``target_ms``; return the medians."""
+    walls = sorted(1000 * (s[0] if isinstance(s, tuple) else s) for s in samples)
+    cpus = [1000 * s[1] for s in samples if isinstance(s, tuple)]
+    med = statistics.median(walls)
+    cpu = statistics.median(cpus) if cpus else math.nan
+    cpu_text = f"  cpu {cpu:7.1f}" if cpus else " " * 13
+    ratio = ""
+    if floor:
+        ratio = f"  {med / (1000 * floor[0]):5.2f}x floor"
+        if cpus and floor[1] > 0:
+            ratio += f" (cpu {cpu / (1000 * floor[1]):4.2f}x)"
     verdict = "" if target_ms is None else ("   target met" if med <= target_ms else f"   target {target_ms:.0f} NOT met")
-    print(f"{name:<48} median {med:8.1f} ms   min {ms[0]:8.1f}   max {ms[-1]:8.1f}  (n={len(ms)}){ratio}{verdict}")
-    return med
+    print(f"{name:<52} wall {med:7.1f} ms{cpu_text}   min {walls[0]:7.1f} max {walls[-1]:7.1f} (n={len(walls)})"
+          f"{ratio}{verdict}", flush=True)
+    return med / 1000, cpu / 1000
 
 
-def bench_help(env: dict[str, str], repeats: int) -> None:
-    print("== chaintriage --help")
-    floor = summary("python -c pass (floor)", [spawn("pass", env) for _ in range(repeats)])
-    code = ("import sys\nfrom chaintriage.tui.cli.main import main\nsys.argv = ['chaintriage', '--help']\n"
+def alternate(variants: list[tuple[str, dict[str, str]]], repeats: int, run) -> dict[str, list]:
+    """``run(env)`` ``repeats`` times for each variant, the variants taking turns; samples by label."""
+    out: dict[str, list] = {label: [] for label, _ in variants}
+    for _ in range(repeats):
+        for label, env in variants:
+            out[label].append(run(env))
+    return out
+
+
+def tag(label: str, name: str) -> str:
+    return f"[{label}] {name}" if label else name
+
+
+def bench_help(variants, repeats: int) -> None:
+    print(f"== chaintriage --help   ({load()})")
+    env0 = variants[0][1]
+    floor = summary("python -c pass (floor)", [spawn("pass", env0) for _ in range(repeats)])
+    code = ("import sys\nfrom chaintriage.tui.cli.main import main\nsys.argv = ['chaintriage', %r]\n"
             "try:\n    main()\nexcept SystemExit:\n    pass\n")
-    summary("chaintriage --help", [spawn(code, env) for _ in range(repeats)], 150, floor)
-    check = ("import sys\nfrom chaintriage.tui.cli.main import main\nsys.argv = ['chaintriage', 'check', '--help']\n"
-             "try:\n    main()\nexcept SystemExit:\n    pass\n")
-    summary("chaintriage check --help", [spawn(check, env) for _ in range(repeats)], None, floor)
+    helps = alternate(variants, repeats, lambda env: spawn(code % "--help", env))
+    checks = alternate(variants, repeats, lambda env: spawn(code.replace("%r]", "%r, '--help']") % "check", env))
+    for label, _ in variants:
+        summary(tag(label, "chaintriage --help"), helps[label], 150, floor)
+    for label, _ in variants:
+        summary(tag(label, "chaintriage check --help"), checks[label], None, floor)
 
 
-def bench_cold_start(env: dict[str, str], repeats: int) -> None:
-    print("== cold start: first frame, first frame with the demo chains")
-    summary("python -c pass", [spawn("pass", env) for _ in range(repeats)])
+def bench_cold_start(variants, repeats: int) -> None:
+    print(f"== cold start: first frame, first frame with the demo chains   ({load()})")
+    env0 = variants[0][1]
+    summary("python -c pass", [spawn("pass", env0) for _ in range(repeats)])
     floor_frame = summary("import textual.app (floor of the first frame)",
-                          [spawn("import textual.app", env) for _ in range(repeats)])
+                          [spawn("import textual.app", env0) for _ in range(repeats)])
     floor_data = summary("import textual.app, numpy, pandas (floor of data)",
-                         [spawn("import textual.app, numpy, pandas", env) for _ in range(repeats)])
-    summary("import textual, app, core pipeline (all of it)", [spawn(
-        "import chaintriage.tui.cli.main, chaintriage.tui.app, chaintriage.core.pipeline", env)
-        for _ in range(repeats)])
-    runs = [spawn_marks([], env) for _ in range(repeats)]
-    summary("chaintriage (demo) to first frame", [r["FIRST"] for r in runs], 350, floor_frame)
-    summary("chaintriage (demo) to first data frame", [r["READY"] for r in runs], 600, floor_data)
+                         [spawn("import textual.app, numpy, pandas", env0) for _ in range(repeats)])
+    alls = alternate(variants, repeats, lambda env: spawn(
+        "import chaintriage.tui.cli.main, chaintriage.tui.app, chaintriage.core.pipeline", env))
+    runs = alternate(variants, repeats, lambda env: spawn_marks([], env))
+    for label, _ in variants:
+        summary(tag(label, "import textual, app, core pipeline (all of it)"), alls[label])
+        summary(tag(label, "chaintriage (demo) to first frame"), [r["FIRST"] for r in runs[label]], 350, floor_frame)
+        summary(tag(label, "chaintriage (demo) to first data frame"), [r["READY"] for r in runs[label]], 600,
+                floor_data)
+    print(f"   ({load()})")
 
 
 # ---------------------------------------------------------------- expiry switch
@@ -286,49 +341,96 @@ async def _keys_while_loading(path: str, n_keys: int, seed: int) -> tuple[list[f
     return waits, late, during
 
 
-def bench_big_open(env: dict[str, str], repeats: int, n_keys: int) -> None:
-    print("== opening a 200,000-contract snapshot (100 expiries x 1,000 strikes)")
+def bench_big_open(variants, repeats: int, n_keys: int) -> None:
+    print(f"== opening a 200,000-contract snapshot (100 expiries x 1,000 strikes)   ({load()})")
+    env0 = variants[0][1]
     with tempfile.TemporaryDirectory() as tmp:
         path = os.path.join(tmp, "big.csv")
         n = write_big_csv(path)
         print(f"file: {n:,} contracts, {os.path.getsize(path) / 1e6:.1f} MB")
         floor = summary("floor: import textual, numpy, pandas + read_csv",
-                        [spawn("import sys, textual.app, numpy, pandas; pandas.read_csv(sys.argv[1])", env, (path,))
+                        [spawn("import sys, textual.app, numpy, pandas; pandas.read_csv(sys.argv[1])", env0, (path,))
                          for _ in range(repeats)])
-        runs = [spawn_marks([path], env) for _ in range(repeats)]
-        summary("chaintriage open big.csv to first frame", [r["FIRST"] for r in runs], 350)
-        summary("chaintriage open big.csv to first data frame", [r["READY"] for r in runs], 1000, floor)
-        summary("chaintriage open big.csv to every expiry ready", [r["ALL"] for r in runs], 3000, floor)
-        waits, late, during = asyncio.run(_keys_while_loading(path, n_keys, seed=7))
-        if waits:
-            w = sorted(1000 * x for x in waits)
-            p = lambda q: w[min(len(w) - 1, int(q * len(w)))]  # noqa: E731
-            verdict = "target met" if p(0.99) <= 50 else "target 50 NOT met"
-            print(f"keys while loading: {len(w)} keys ({during} sent while the work ran), wait p50 {p(0.5):.1f} ms,"
-                  f" p99 {p(0.99):.1f} ms, max {w[-1]:.1f} ms   {verdict}")
-        if late:
-            lt = sorted(1000 * x for x in late)
-            print(f"10 ms UI timer: {len(lt)} ticks, lateness p50 {lt[len(lt) // 2]:.1f} ms, "
-                  f"p99 {lt[min(len(lt) - 1, int(0.99 * len(lt)))]:.1f} ms, max {lt[-1]:.1f} ms")
+        runs = alternate(variants, repeats, lambda env: spawn_marks([path], env))
+        for label, _ in variants:
+            summary(tag(label, "chaintriage open big.csv to first frame"), [r["FIRST"] for r in runs[label]], 350)
+            summary(tag(label, "chaintriage open big.csv to first data frame"), [r["READY"] for r in runs[label]],
+                    1000, floor)
+            summary(tag(label, "chaintriage open big.csv to every expiry ready"), [r["ALL"] for r in runs[label]],
+                    3000, floor)
+        for label, env in variants:
+            code = (f"import sys; sys.path.insert(0, {HERE!r}); import bench_app as b; "
+                    f"b.print_key_waits({path!r}, {n_keys}, 7)")
+            subprocess.run([sys.executable, "-c", code], check=True, env=env)
+            if label:
+                print(f"   (the line above: {label})")
+        print(f"   ({load()})")
+
+
+def print_key_waits(path: str, n_keys: int, seed: int) -> None:
+    """Run the seeded keys on the app opening ``path`` (in this process) and print how long they waited."""
+    cpu0 = time.process_time()
+    waits, late, during = asyncio.run(_keys_while_loading(path, n_keys, seed=seed))
+    if waits:
+        w = sorted(1000 * x for x in waits)
+        p = lambda q: w[min(len(w) - 1, int(q * len(w)))]  # noqa: E731
+        verdict = "target met" if p(0.99) <= 50 else "target 50 NOT met"
+        print(f"keys while loading: {len(w)} keys ({during} sent while the work ran), wait p50 {p(0.5):.1f} ms,"
+              f" p99 {p(0.99):.1f} ms, max {w[-1]:.1f} ms   {verdict}   (run's cpu {time.process_time() - cpu0:.1f} s)")
+    if late:
+        lt = sorted(1000 * x for x in late)
+        print(f"10 ms UI timer: {len(lt)} ticks, lateness p50 {lt[len(lt) // 2]:.1f} ms, "
+              f"p99 {lt[min(len(lt) - 1, int(0.99 * len(lt)))]:.1f} ms, max {lt[-1]:.1f} ms", flush=True)
+
+
+def export_revision(rev: str, into: str) -> str:
+    """The package (core, tui, themes, demo_chains) of git revision ``rev`` as an importable
+    ``chaintriage`` under ``into`` (put ahead of the working tree on PYTHONPATH)."""
+    repo = os.path.dirname(os.path.dirname(HERE))
+    pkg = os.path.join(into, "chaintriage")
+    os.makedirs(pkg)
+    with open(os.path.join(pkg, "__init__.py"), "w"):
+        pass
+    archive = subprocess.run(["git", "-C", repo, "archive", rev, "core", "tui", "themes", "demo_chains"],
+                             capture_output=True, check=True)
+    subprocess.run(["tar", "-x", "-C", pkg], input=archive.stdout, check=True)
+    return into
 
 
 def main() -> None:
     ap = argparse.ArgumentParser()
     ap.add_argument("--quick", action="store_true", help="fewer repeats")
     ap.add_argument("--only", choices=("help", "cold", "expiry", "big"), help="run one part")
+    ap.add_argument("--baseline", metavar="REV", help="also measure this git revision, alternating with the tree")
     args = ap.parse_args()
     repeats = 3 if args.quick else 7
+    print(f"bench_app: {os.cpu_count()} CPUs, {load()}")
     with tempfile.TemporaryDirectory() as cfg:
         env = dict(os.environ, XDG_CONFIG_HOME=cfg)  # never touch the real settings
+        env.pop("PYTHONDONTWRITEBYTECODE", None)  # an installed package has its bytecode compiled
         os.environ["XDG_CONFIG_HOME"] = cfg
+        variants = [("", env)]
+        if args.baseline:
+            base = export_revision(args.baseline, os.path.join(cfg, "baseline"))
+            base_env = dict(env, PYTHONPATH=base + os.pathsep + env.get("PYTHONPATH", ""))
+            variants = [(f"base {args.baseline}", base_env), ("now", env)]
+        for _, e in variants:  # compile and cache every module once, outside the timings
+            subprocess.run([sys.executable, "-c", "import chaintriage.tui.app, chaintriage.core.pipeline, "
+                            "chaintriage.tui.cli.main, chaintriage.tui.snapshot_loading as s; "
+                            "s.import_numerical_modules()"], check=True, env=e)
         if args.only in (None, "help"):
-            bench_help(env, repeats)
+            bench_help(variants, repeats)
         if args.only in (None, "cold"):
-            bench_cold_start(env, repeats)
+            bench_cold_start(variants, repeats)
         if args.only in (None, "expiry"):
-            bench_expiry_switch(30 if not args.quick else 12)
+            for label, e in variants:
+                if label:
+                    print(f"-- {label}")
+                code = (f"import sys; sys.path.insert(0, {HERE!r}); import bench_app as b; "
+                        f"b.bench_expiry_switch({30 if not args.quick else 12})")
+                subprocess.run([sys.executable, "-c", code], check=True, env=e)
         if args.only in (None, "big"):
-            bench_big_open(env, repeats if not args.quick else 2, 200 if not args.quick else 80)
+            bench_big_open(variants, repeats if not args.quick else 2, 200 if not args.quick else 80)
 
 
 if __name__ == "__main__":
