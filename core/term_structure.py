@@ -35,6 +35,7 @@ import pandas as pd
 from .events import BEFORE_OPEN, Event, carried, events_for, past_events_finding
 from .exchange_calendar import TZ, ExchangeCalendar, default_calendar
 from .findings import NOTE, WARNING, Finding
+from .nonnegative_least_squares import nnls
 from .time_to_expiry import year_fraction
 
 #: E|X| / sd for a normal X with mean zero: sqrt(2/pi).
@@ -115,9 +116,7 @@ def settlement_times(expiries, settle, calendar: ExchangeCalendar | None = None)
 
 
 def _nnls(a: np.ndarray, b: np.ndarray) -> np.ndarray:
-    from scipy.optimize import nnls  # only the term structure needs it
-
-    return nnls(a, b)[0]
+    return nnls(a, b)
 
 
 def term_structure(
