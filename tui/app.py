@@ -260,6 +260,10 @@ class ChainTriageApp(App[int]):
         def on_view(view: SnapshotView, first: bool) -> None:
             shown.append(view)
             view.finding_groups()  # grouped here, off the screen's thread: the findings screen opens at once
+            # The header's event marks need the term structure: computed here too, not on the screen's thread.
+            view.set_events(self.events)
+            if view.expiries:
+                view.info(0, self.state.confidence)
             drawn = threading.Event()
             self.call_from_thread(self._add_view, view, first, drawn)
             # Let the screen draw before more model work competes with it for the interpreter.

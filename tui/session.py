@@ -359,6 +359,7 @@ class SnapshotView:
         self._dists: dict[pd.Timestamp, Any] = {}
         self._ranges: dict[tuple[pd.Timestamp, float], tuple[tuple[float, float], tuple[float, float]]] = {}
         self._infos: dict[tuple[int, float], ExpiryInfo] = {}
+        self._header_infos: tuple[int, list[ExpiryInfo]] | None = None
         self._file_findings = list(file_findings)
         self._events: list = []
         self._term: Any = None
@@ -531,11 +532,15 @@ class SnapshotView:
 
     def set_events(self, events) -> None:
         """Scheduled events (``core.events.Event``, any underlying): the header marks the expiries that carry one."""
-        self._events = list(events)
+        events = list(events)
+        if events == self._events:
+            return  # already set (e.g. by the loading worker): keep what was computed
+        self._events = events
         self._term = None
         self._infos.clear()
         for key in [k for k in self._frames if isinstance(k, tuple)]:
             del self._frames[key]
+        self._header_infos = None
 
     def term_structure(self):
         """core's term structure of this snapshot with its events (``core.term_structure.TermStructure``); cached."""
@@ -602,25 +607,34 @@ class SnapshotView:
             self._target_selector = TargetSelector(self.annotated.contracts, self.annotated.expiries)
         return self._target_selector.select(target, shift)
 
-    def header_infos(self, current: ExpiryInfo) -> list[ExpiryInfo]:
-        """``current`` as every other expiry's header would read, without computing their ranges
-        (the ranges of ``current`` stand in): for sizing the header once for the whole snapshot."""
-        import dataclasses
-
+    def header_infos(self) -> list[ExpiryInfo]:
+        """Every expiry's header figures without its ranges (NaN: the shown expiry's ranges stand in
+        for them), for sizing the header once for the whole snapshot; cached, made again only when
+        computing touch figures has added findings to an expiry."""
+        key = sum(len(res.findings) for res in self.annotated.results.values())
+        if self._header_infos is not None and self._header_infos[0] == key:
+            return self._header_infos[1]
+        table = self.expiry_table
+        column = {name: table[name].tolist() if name in table.columns else [None] * len(table)
+                  for name in ("trading_days", "calendar_days", "forward", "forward_method", "atm_iv",
+                               "fit_rmse", "fit_method", "arbitrage_free", "t_years")}
+        nan2 = (math.nan, math.nan)
         out = []
         for i, expiry in enumerate(self.expiries):
-            row = self.expiry_table.iloc[i]
             res = self.annotated.results.get(expiry)
-            fit_method = str(row.get("fit_method") or "")
-            out.append(dataclasses.replace(
-                current, expiry=expiry, index=i,
-                trading_days=_int_or_none(row.get("trading_days")),
-                calendar_days=_int_or_none(row.get("calendar_days")),
-                forward=_float(row.get("forward")), forward_method=str(row.get("forward_method") or ""),
-                atm_iv=_float(row.get("atm_iv")), fit_rmse=_float(row.get("fit_rmse")), fit_method=fit_method,
-                arbitrage_free=bool(row.get("arbitrage_free")) if fit_method else None,
+            fit_method = str(column["fit_method"][i] or "")
+            events, ex_event_vol = self._event_marks(i)
+            out.append(ExpiryInfo(
+                expiry=expiry, index=i, count=len(self.expiries), t_years=_float(column["t_years"][i]),
+                trading_days=_int_or_none(column["trading_days"][i]),
+                calendar_days=_int_or_none(column["calendar_days"][i]),
+                forward=_float(column["forward"][i]), forward_method=str(column["forward_method"][i] or ""),
+                atm_iv=_float(column["atm_iv"][i]), confidence=math.nan, range_plain=nan2, range_smile=nan2,
+                fit_rmse=_float(column["fit_rmse"][i]), fit_method=fit_method,
+                arbitrage_free=bool(column["arbitrage_free"][i]) if fit_method else None,
                 findings=tuple(res.findings) if res is not None else (),
-                events=self._event_marks(i)[0]))
+                events=events, ex_event_vol=ex_event_vol))
+        self._header_infos = (key, out)
         return out
 
     # --- findings

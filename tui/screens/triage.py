@@ -239,7 +239,7 @@ class TriageScreen(Screen):
                          busy=st.busy, st=styles, ascii_only=ascii_only)
         self.bar("topbar").set_pieces(top)
         info = view.info(st.expiry_pos, st.confidence, st.ex_event) if view.expiries else None
-        reserve = expiry_pieces(info, st=styles, ascii_only=ascii_only, widest=view.header_infos(info)) \
+        reserve = expiry_pieces(info, st=styles, ascii_only=ascii_only, widest=view.header_infos()) \
             if info is not None else []
         self.bar("expirybar").set_pieces(expiry_pieces(info, st=styles, ascii_only=ascii_only), reserve=reserve)
         hidden_names = [COLUMNS[k].heading_ascii if ascii_only else COLUMNS[k].heading

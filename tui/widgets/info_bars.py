@@ -248,21 +248,53 @@ def expiry_pieces(info: ExpiryInfo | None, *, st: BarStyles, ascii_only: bool = 
     return pieces
 
 
+def _slot(piece: Text) -> str:
+    """The slot of a header piece: its first word (findings and fit pieces come and go)."""
+    word = piece.plain.split(" ")[0] if not piece.plain.startswith("fwd") else "fwd"
+    if word.replace(".", "").isdigit() or word in ("—", "--", "-"):
+        word = "days"
+    if word.endswith("%") or "range" in piece.plain[:16]:
+        word = "range"
+    return word
+
+
+#: The widest piece of each slot over a snapshot's expiries, by (id of the infos, ASCII, id of the styles);
+#: the infos and styles are kept with it (so their ids are not reused) and only the last few are remembered.
+_OTHERS_SLOTS: dict[tuple[int, bool, int], tuple[Sequence[ExpiryInfo], BarStyles, dict[str, Text]]] = {}
+
+
+def _others_slots(others: Sequence[ExpiryInfo], st: BarStyles, ascii_only: bool) -> dict[str, Text]:
+    key = (id(others), bool(ascii_only), id(st))
+    kept = _OTHERS_SLOTS.get(key)
+    if kept is not None and kept[0] is others and kept[1] is st:
+        return kept[2]
+    slots: dict[str, Text] = {}
+    for info in others:
+        for p in expiry_pieces(info, st=st, ascii_only=ascii_only):
+            word = _slot(p)
+            if word != "range" and (word not in slots or p.cell_len > slots[word].cell_len):
+                slots[word] = p
+    while len(_OTHERS_SLOTS) >= 8:
+        _OTHERS_SLOTS.pop(next(iter(_OTHERS_SLOTS)))
+    _OTHERS_SLOTS[key] = (others, st, slots)
+    return slots
+
+
 def _widest_pieces(info: ExpiryInfo, others: Sequence[ExpiryInfo], *, st: BarStyles,
                    ascii_only: bool = False) -> list[Text]:
-    """Each piece of the expiry header at its longest over ``info`` and ``others`` (same order)."""
-    every = [expiry_pieces(i, st=st, ascii_only=ascii_only) for i in (info, *others)]
-    # Findings and fit pieces come and go: keep the slots by their first words.
+    """Each piece of the expiry header at its longest over ``info`` and ``others`` (same order).
+
+    The range piece is ``info``'s (its ranges stand in for every expiry's); the other slots'
+    widest pieces over ``others`` are worked out once per list of infos.
+    """
     slots: dict[str, Text] = {}
-    for pieces in every:
-        for p in pieces:
-            word = p.plain.split(" ")[0] if not p.plain.startswith("fwd") else "fwd"
-            if word.replace(".", "").isdigit() or word in ("—", "--", "-"):
-                word = "days"
-            if word.endswith("%") or "range" in p.plain[:16]:
-                word = "range"
-            if word not in slots or p.cell_len > slots[word].cell_len:
-                slots[word] = p
+    for p in expiry_pieces(info, st=st, ascii_only=ascii_only):
+        word = _slot(p)
+        if word not in slots or p.cell_len > slots[word].cell_len:
+            slots[word] = p
+    for word, p in _others_slots(others, st, ascii_only).items():
+        if word not in slots or p.cell_len > slots[word].cell_len:
+            slots[word] = p
     return list(slots.values())
 
 
