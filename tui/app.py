@@ -10,7 +10,9 @@ rich Text, never markup.
 
 from __future__ import annotations
 
+import contextlib
 import os
+import sys
 import threading
 from collections.abc import Callable, Sequence
 from pathlib import Path
@@ -46,6 +48,31 @@ EXIT_NOTHING = 2
 CLI_DEFAULT_CONFIDENCE = DEFAULT_CONFIDENCE
 #: Seconds of loading before the moving loading indicator appears (the message is there at once).
 SPINNER_DELAY = 0.4
+
+
+#: The interpreter's switch interval (seconds) while loading work runs beside the screen: a thread that
+#: wants the GIL gets it after at most this long (Python's default is 5 ms, paid at every hand-over
+#: while a key is handled and a frame drawn).
+LOADING_SWITCH_INTERVAL = 0.0005
+_loads_lock = threading.Lock()
+_loads_running = [0, 0.005]
+
+
+@contextlib.contextmanager
+def _ui_first():
+    """While loading jobs run, a short switch interval, so the screen's thread waits little for the GIL."""
+    with _loads_lock:
+        if _loads_running[0] == 0:
+            _loads_running[1] = sys.getswitchinterval()
+            sys.setswitchinterval(min(LOADING_SWITCH_INTERVAL, _loads_running[1]))
+        _loads_running[0] += 1
+    try:
+        yield
+    finally:
+        with _loads_lock:
+            _loads_running[0] -= 1
+            if _loads_running[0] == 0:
+                sys.setswitchinterval(_loads_running[1])
 
 
 class ChainTriageApp(App[int]):
@@ -257,13 +284,17 @@ class ChainTriageApp(App[int]):
 
         shown: list[SnapshotView] = []
 
+        def prepare(view: SnapshotView) -> None:
+            """What showing a view needs, worked out here, off the screen's thread."""
+            view.finding_groups()  # the findings screen opens at once
+            view.set_events(self.events)  # the header's event marks need the term structure
+            if view.expiries:
+                view.info(0, self.state.confidence)  # a new view, or a big chain's whole, opens at its first
+                view.header_infos()
+
         def on_view(view: SnapshotView, first: bool) -> None:
             shown.append(view)
-            view.finding_groups()  # grouped here, off the screen's thread: the findings screen opens at once
-            # The header's event marks need the term structure: computed here too, not on the screen's thread.
-            view.set_events(self.events)
-            if view.expiries:
-                view.info(0, self.state.confidence)
+            prepare(view)
             drawn = threading.Event()
             self.call_from_thread(self._add_view, view, first, drawn)
             # Let the screen draw before more model work competes with it for the interpreter.
@@ -271,16 +302,19 @@ class ChainTriageApp(App[int]):
 
         def on_replace(partial: SnapshotView, whole: SnapshotView) -> None:
             shown[:] = [whole if v is partial else v for v in shown]
+            prepare(whole)
             self.call_from_thread(self._replace_view, partial, whole)
 
         maps = [self._file_maps.get(os.path.realpath(p)) for p in paths] if paths else None
-        errors, added = snapshot_loading.load_views(
-            paths, snapshots=snapshots, overrides=overrides, column_map=self._column_map if not paths else None,
-            column_maps=maps, companions=None if initial else self._companions,
-            pipeline_settings=self._pipeline_settings, confidence=lambda: self.state.confidence,
-            on_busy=lambda text: self.call_from_thread(self.triage.set_busy, text), on_view=on_view,
-            on_replace=on_replace)
-        errors += self._history_job(shown)
+        with _ui_first():
+            errors, added = snapshot_loading.load_views(
+                paths, snapshots=snapshots, overrides=overrides,
+                column_map=self._column_map if not paths else None, column_maps=maps,
+                companions=None if initial else self._companions, pipeline_settings=self._pipeline_settings,
+                confidence=lambda: self.state.confidence,
+                on_busy=lambda text: self.call_from_thread(self.triage.set_busy, text), on_view=on_view,
+                on_replace=on_replace)
+            errors += self._history_job(shown)
         self.call_from_thread(self._load_done, errors, added, initial)
 
     def _history_paths_in_use(self) -> list[str] | None:

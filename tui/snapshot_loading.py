@@ -8,6 +8,7 @@ app decides how they reach its thread.
 from __future__ import annotations
 
 import contextlib
+import time
 from collections.abc import Callable, Sequence
 from importlib import resources
 from pathlib import Path
@@ -110,12 +111,21 @@ def annotate_view(snapshot: Snapshot, pipeline_settings: Any, load_findings: Seq
     return view
 
 
-def precompute_view(view: SnapshotView, confidence: float | None, start: int = 0, stop: int | None = None) -> None:
-    """Compute (and cache) the distributions and ranges of expiries ``start:stop``."""
+#: Seconds the background work sleeps between two expiries, so the screen's thread gets the
+#: interpreter (the GIL) at once when it has a key to handle or a frame to draw.
+YIELD_SECONDS = 0.0005
+
+
+def precompute_view(view: SnapshotView, confidence: float | None, start: int = 0, stop: int | None = None,
+                    pause: float = 0.0) -> None:
+    """Compute (and cache) the distributions and ranges of expiries ``start:stop``, sleeping ``pause``
+    seconds after each (background work: see YIELD_SECONDS)."""
     for e in view.expiries[start:stop]:
         view.distribution(e)
         if confidence is not None:
             view.ranges(e, confidence)
+        if pause:
+            time.sleep(pause)
 
 
 def first_expiry_snapshot(snapshot: Snapshot) -> Snapshot | None:
@@ -206,7 +216,7 @@ def load_views(paths: Sequence[str], *, snapshots: Sequence[Snapshot] | None = N
             else:
                 on_view(view, added == 0)
             added += 1
-            precompute_view(view, level(), start=1)
+            precompute_view(view, level(), start=1, pause=YIELD_SECONDS)
     except ChainTriageError as exc:
         errors.append(str(exc))
     except Exception as exc:  # never a traceback on screen: say what failed and go on
