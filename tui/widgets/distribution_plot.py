@@ -386,6 +386,33 @@ def _ascii_line(line: Text) -> Text:
     return out
 
 
+def _line_segments(line: Text, base: Style, console: Any) -> list[Segment]:
+    """The segments of one drawn line with ``base`` under every style: the same as rendering the
+    Text and applying ``base``, straight from its spans when they follow one another without
+    overlapping (as ``draw_distribution`` builds them), which costs a fraction of rendering."""
+    plain = line.plain
+    if not line.spans:  # rendering a Text without spans leaves its own style out
+        return [Segment(plain, base)] if plain else []
+    line_style = line.style
+    if isinstance(line_style, str):
+        return list(Segment.apply_style(line.render(console), style=base))
+    under = base + line_style if line_style else base
+    segments: list[Segment] = []
+    pos = 0
+    for span in line.spans:
+        if span.start < pos or isinstance(span.style, str):
+            return list(Segment.apply_style(line.render(console), style=base))
+        if span.start > pos:
+            segments.append(Segment(plain[pos:span.start], under))
+        end = min(span.end, len(plain))
+        if end > span.start:
+            segments.append(Segment(plain[span.start:end], under + span.style))
+        pos = max(pos, end)
+    if pos < len(plain):
+        segments.append(Segment(plain[pos:], under))
+    return segments
+
+
 class DistributionPlot(Widget):
     """A pane drawing ``draw_distribution`` at its own size; call ``update_plot``
     with the same keyword inputs (minus width/height) to redraw."""
@@ -496,7 +523,7 @@ class DistributionPlot(Widget):
                 # Every segment gets the theme's text and background under its own style: an unstyled
                 # run (axis, notes, padding) would show the terminal's default colours, and Textual's
                 # monochrome filter (NO_COLOR) cannot take a segment without a style.
-                strips = [Strip(list(Segment.apply_style(line.render(console), style=base)), line.cell_len)
+                strips = [Strip(_line_segments(line, base, console), line.cell_len)
                           .extend_cell_length(key[0], base) for line in result.lines]
                 if drawn_key is not None:
                     self._drawn[drawn_key] = (result, strips, self._inputs["strikes"])
