@@ -254,8 +254,15 @@ class ChainTriageApp(App[int]):
         what = "the demo chains" if not paths and snapshots is None else \
             ", ".join(os.path.basename(p) for p in paths) if paths else "the snapshots"
         self.triage.set_busy(f"loading {what}")
-        self.run_worker(lambda: self._load_job(list(paths), snapshots, initial, overrides),
-                        thread=True, group="load", name="load", exit_on_error=False)
+
+        def start() -> None:
+            self.run_worker(lambda: self._load_job(list(paths), snapshots, initial, overrides),
+                            thread=True, group="load", name="load", exit_on_error=False)
+
+        if initial:  # after the first frame: the worker's imports would hold the GIL while it is drawn
+            self.call_after_refresh(start)
+        else:
+            start()
 
     def _companions(self, snapshot: Snapshot) -> list[tuple[str, ColumnMap | None]]:
         """Files (with their mappings) of a snapshot already shown at ``snapshot``'s underlying and instant."""
