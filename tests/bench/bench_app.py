@@ -227,11 +227,11 @@ async def _expiry_switch(size: tuple[int, int], repeats: int) -> None:
         for i in range(repeats):
             step = app.action_next_expiry if (i // (n - 1)) % 2 == 0 else app.action_previous_expiry
             await pilot.pause()
-            t0 = time.perf_counter()
+            t0, c0 = time.perf_counter(), time.thread_time()
             step()
-            actions.append(time.perf_counter() - t0)
+            actions.append((time.perf_counter() - t0, time.thread_time() - c0))
             _frame(screen)
-            composed.append(time.perf_counter() - t0)
+            composed.append((time.perf_counter() - t0, time.thread_time() - c0))
         # The app's own frames: every screen update written to the (headless) terminal is counted.
         drawn: list[float] = []
         real_display = app._display
@@ -264,7 +264,7 @@ async def _expiry_switch(size: tuple[int, int], repeats: int) -> None:
 
 
 def bench_expiry_switch(repeats: int) -> None:
-    print("== switching expiry, 400 strikes")
+    print(f"== switching expiry, 400 strikes   ({load()}; cpu: this thread's)")
     for size in ((160, 50), (200, 50)):
         asyncio.run(_expiry_switch(size, repeats))
 
