@@ -298,6 +298,7 @@ class ChainTriageApp(App[int]):
             if view.expiries:
                 view.info(0, self.state.confidence)  # a new view, or a big chain's whole, opens at its first
                 view.header_infos()
+                view.frame(view.expiries[0])  # its touch figures (the view is not on screen yet: no one else reads it)
 
         def on_view(view: SnapshotView, first: bool) -> None:
             shown.append(view)
