@@ -292,13 +292,16 @@ class ChainTriageApp(App[int]):
         shown: list[SnapshotView] = []
 
         def prepare(view: SnapshotView) -> None:
-            """What showing a view needs, worked out here, off the screen's thread."""
+            """What showing a view needs, worked out here, off the screen's thread (all of it cached)."""
             view.finding_groups()  # the findings screen opens at once
-            view.set_events(self.events)  # the header's event marks need the term structure
-            if view.expiries:
-                view.info(0, self.state.confidence)  # a new view, or a big chain's whole, opens at its first
-                view.header_infos()
-                view.frame(view.expiries[0])  # its touch figures (the view is not on screen yet: no one else reads it)
+            try:
+                view.set_events(self.events)  # the header's event marks need the term structure
+                if view.expiries:
+                    view.info(0, self.state.confidence)  # a new view, or a big chain's whole, opens at its first
+                    view.header_infos()
+                    view.frame(view.expiries[0])  # its touch figures (not on screen yet: no one else reads it)
+            except Exception:  # noqa: BLE001 - the screen works it out again and says what is wrong, as before
+                pass
 
         def on_view(view: SnapshotView, first: bool) -> None:
             shown.append(view)
