@@ -159,10 +159,11 @@ class ChainTriageApp(App[int]):
                  history_column_map: Any = None) -> None:
         super().__init__()
         #: Daily price history files (None: the demo's when the demo is shown, else none), their mapping,
-        #: and what reading them gave (read once, in the first loading job).
+        #: and the files as read (``history_view.HistoryFiles``: read once, by the first view that needs them).
         self._history_paths = list(histories) if histories is not None else None
         self._history_column_map = history_column_map
-        self._history_loads: Any = None
+        self._history_files: Any = None  # history_view.HistoryFiles, made by the first load that needs it
+        self._history_files_lock = threading.Lock()
         #: Scheduled events (core.events.Event) of every underlying; None: the demo's when showing the demo.
         self._events = list(events) if events is not None else None
         self._paths = [str(p) for p in paths]
@@ -289,7 +290,7 @@ class ChainTriageApp(App[int]):
             snapshot_loading.import_numerical_modules()
             self.call_from_thread(self.triage.mount_body)
 
-        shown: list[SnapshotView] = []
+        errors: list[str] = []
 
         def prepare(view: SnapshotView) -> None:
             """What showing a view needs, worked out here, off the screen's thread (all of it cached)."""
@@ -304,29 +305,33 @@ class ChainTriageApp(App[int]):
                 pass
 
         def on_view(view: SnapshotView, first: bool) -> None:
-            shown.append(view)
             prepare(view)
             drawn = threading.Event()
             self.call_from_thread(self._add_view, view, first, drawn)
             # Let the screen draw before more model work competes with it for the interpreter.
             drawn.wait(2.0)
+            # Its price history next, before the other expiries' background work.
+            figures = self._history_figures(view, errors)
+            if figures is not None:
+                self.call_from_thread(self._set_history, view, *figures)
 
         def on_replace(partial: SnapshotView, whole: SnapshotView) -> None:
-            shown[:] = [whole if v is partial else v for v in shown]
+            figures = self._history_figures(whole, errors)
+            if figures is not None:  # not on screen yet: attached here, so the swap keeps the history shown
+                whole.set_history(*figures)
             prepare(whole)
             self.call_from_thread(self._replace_view, partial, whole)
 
         maps = [self._file_maps.get(os.path.realpath(p)) for p in paths] if paths else None
         with _ui_first():
-            errors, added = snapshot_loading.load_views(
+            load_errors, added = snapshot_loading.load_views(
                 paths, snapshots=snapshots, overrides=overrides,
                 column_map=self._column_map if not paths else None, column_maps=maps,
                 companions=None if initial else self._companions, pipeline_settings=self._pipeline_settings,
                 confidence=lambda: self.state.confidence,
                 on_busy=lambda text: self.call_from_thread(self.triage.set_busy, text), on_view=on_view,
                 on_replace=on_replace)
-            errors += self._history_job(shown)
-        self.call_from_thread(self._load_done, errors, added, initial)
+        self.call_from_thread(self._load_done, load_errors + errors, added, initial)
 
     def _history_paths_in_use(self) -> list[str] | None:
         """History files to read: those given, else the demo's when the demo is shown (None), else none ([])."""
@@ -335,21 +340,21 @@ class ChainTriageApp(App[int]):
         demo = not self._paths and self._given_snapshots is None and self._given_views is None
         return None if demo else []
 
-    def _history_job(self, views: list[SnapshotView]) -> list[str]:
-        """Worker thread: the price histories' figures for ``views`` (after the views are shown)."""
+    def _history_figures(self, view: SnapshotView, errors: list[str]) -> tuple[Any, list] | None:
+        """Worker thread: ``view``'s price history figures and findings (the files are read by the first
+        call, once; each snapshot is cut to its own day), None when no history files are in use. The
+        reading's error messages are added to ``errors``."""
+        paths = self._history_paths_in_use()
+        if paths == []:
+            return None
         from chaintriage.tui import history_view
 
-        paths = self._history_paths_in_use()
-        if paths == [] or not views:
-            return []
-
-        def on_history(view: SnapshotView, vh: Any, findings: list) -> None:
-            self.call_from_thread(self._set_history, view, vh, findings)
-
-        errors, self._history_loads = history_view.attach_histories(
-            views, paths, self.events, column_map=self._history_column_map, loads=self._history_loads,
-            on_busy=lambda text: self.call_from_thread(self.triage.set_busy, text), on_history=on_history)
-        return errors
+        with self._history_files_lock:
+            if self._history_files is None:
+                self._history_files = history_view.HistoryFiles(paths, column_map=self._history_column_map)
+            files = self._history_files
+        errors += files.read()
+        return files.figures(view, self.events)
 
     def _set_history(self, view: SnapshotView, vh: Any, findings: list) -> None:
         view.set_history(vh, findings)

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import contextlib
 import math
+import threading
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field, replace
 from importlib import resources
@@ -88,6 +89,14 @@ def history_until(histories: Sequence[PriceHistory], view) -> PriceHistory | Non
     return None
 
 
+def _bars_after_cut(histories: Sequence[PriceHistory], cut: PriceHistory) -> int:
+    """How many bars of ``cut``'s underlying ``history_until`` left out (after the snapshot's day)."""
+    for h in histories:
+        if h.underlying == cut.underlying:
+            return max(len(h.bars) - len(cut.bars), 0)
+    return 0
+
+
 @dataclass
 class ViewHistory:
     """One snapshot's history figures: the summary (estimators by window, the cone), the comparison
@@ -152,6 +161,11 @@ def build_view_history(view, histories: Sequence[PriceHistory], events: Sequence
     comparison = compare_with_snapshot(view.annotated, h, settings, summary=summary)
     moves = None
     findings = list(comparison.findings)
+    later = _bars_after_cut(histories, h)
+    if later:
+        findings.append(Finding(NOTE, f"{later:,} daily bar{'s' if later != 1 else ''} of the price history "
+                                f"after {h.last_date.date()} not used (the snapshot is earlier)",
+                                file=h.source, underlying=h.underlying))
     mine = [e for e in events if e.underlying.strip().casefold() == h.underlying.strip().casefold()]
     if mine:
         moves = past_event_moves(h.bars, mine, h.underlying, last=DEFAULT_LAST, before=view.snapshot.as_of)
@@ -159,42 +173,65 @@ def build_view_history(view, histories: Sequence[PriceHistory], events: Sequence
     return ViewHistory(h, comparison, settings, moves, findings)
 
 
-def attach_histories(views: Sequence, paths: Sequence[str] | None, events: Sequence = (), *,
-                     column_map: Any = None, on_busy: Callable[[str], None] = lambda text: None,
-                     on_history: Callable[[Any, ViewHistory | None, list], None] = lambda v, h, f: None,
-                     loads: HistoryLoads | None = None) -> tuple[list[str], HistoryLoads | None]:
-    """Read the histories (unless ``loads`` holds them already) and hand each view its figures:
-    ``on_history(view, view_history or None, findings)``; the history files' own findings go with
-    the first view of their underlying. Returns (error messages, the loads). Never raises.
+class HistoryFiles:
+    """The price history files of an app session, read once (every row: each snapshot's figures use
+    the bars up to its own day, see ``history_until``), and the figures of each snapshot from them.
+
+    Safe to call from several worker threads; never call it on the UI thread (it reads files).
+    ``paths`` None: the bundled demo's histories.
     """
-    errors: list[str] = []
-    if not views:
-        return errors, loads
-    try:
-        first_load = loads is None
-        if loads is None:
+
+    def __init__(self, paths: Sequence[str] | None, *, column_map: Any = None) -> None:
+        self.paths = None if paths is None else list(paths)
+        self.column_map = column_map
+        self.loads: HistoryLoads | None = None
+        #: The files' own findings not yet handed to a snapshot (each goes with the first of its underlying).
+        self._file_findings: list[Finding] = []
+        self._lock = threading.Lock()
+
+    def read(self, on_busy: Callable[[str], None] = lambda text: None) -> list[str]:
+        """Read the files unless read already; returns the error messages of this read (never raises)."""
+        with self._lock:
+            if self.loads is not None:
+                return []
             on_busy("reading price histories")
-            until = max(_snapshot_day(v) for v in views)
-            loads = read_histories(paths, column_map=column_map, until=until)
-            errors.extend(str(e) for e in loads.errors)
-        given = {h.underlying.strip().casefold() for h in loads.histories}
-        file_findings = list(loads.findings) if first_load else []
-        for view in views:
-            und = view.snapshot.underlying
-            on_busy(f"history figures for {und}")
-            mine = [f for f in file_findings
-                    if f.underlying is None or f.underlying.strip().casefold() == und.strip().casefold()]
-            file_findings = [f for f in file_findings if f not in mine]
             try:
-                vh = build_view_history(view, loads.histories, events)
+                loads = read_histories(self.paths, column_map=self.column_map)
             except ChainTriageError as exc:
-                vh = None
-                mine.append(Finding(NOTE, f"price history not used: {exc}", underlying=und))
-            if vh is None and paths is not None and und.strip().casefold() not in given:
-                mine.append(Finding(NOTE, f"no price history for {und!r} among the files given", underlying=und))
-            on_history(view, vh, mine + (vh.findings if vh is not None else []))
-    except ChainTriageError as exc:
-        errors.append(str(exc))
-    except Exception as exc:  # never a traceback on screen
-        errors.append(f"could not use the price histories: {type(exc).__name__}: {exc}")
-    return errors, loads
+                loads = HistoryLoads([], [])
+                self.loads = loads
+                return [str(exc)]
+            except Exception as exc:  # never a traceback on screen
+                self.loads = HistoryLoads([], [])
+                return [f"could not use the price histories: {type(exc).__name__}: {exc}"]
+            self.loads = loads
+            self._file_findings = list(loads.findings)
+            return [str(e) for e in loads.errors]
+
+    def _take_file_findings(self, underlying: str) -> list[Finding]:
+        with self._lock:
+            want = underlying.strip().casefold()
+            mine = [f for f in self._file_findings
+                    if f.underlying is None or f.underlying.strip().casefold() == want]
+            self._file_findings = [f for f in self._file_findings if f not in mine]
+            return mine
+
+    def figures(self, view, events: Sequence = ()) -> tuple[ViewHistory | None, list[Finding]]:
+        """(``view``'s history figures or None, the findings that go with them), reading the files first
+        if need be (heavy: off the UI thread). Never raises."""
+        self.read()
+        loads = self.loads
+        und = view.snapshot.underlying
+        mine = self._take_file_findings(und)
+        try:
+            vh = build_view_history(view, loads.histories, events)
+        except ChainTriageError as exc:
+            vh = None
+            mine.append(Finding(NOTE, f"price history not used: {exc}", underlying=und))
+        except Exception as exc:  # never a traceback on screen
+            vh = None
+            mine.append(Finding(NOTE, f"price history not used: {type(exc).__name__}: {exc}", underlying=und))
+        given = {h.underlying.strip().casefold() for h in loads.histories}
+        if vh is None and self.paths is not None and und.strip().casefold() not in given:
+            mine.append(Finding(NOTE, f"no price history for {und!r} among the files given", underlying=und))
+        return vh, mine + (vh.findings if vh is not None else [])
