@@ -127,3 +127,32 @@ def test_a_table_written_in_pieces_equals_the_table_written_whole(fmt):
     stream.write(f.iloc[:0])
     stream.close()
     assert empty.getvalue() == to.render(f.iloc[:0], fmt)
+
+
+def test_plain_past_its_kept_rows_streams_with_columns_that_only_widen(monkeypatch):
+    """Past ``PLAIN_WIDTH_ROWS`` rows plain writes each piece as it comes: every row shows the same
+    cells as the whole table's [D], the rows kept first are laid out as that piece alone would be, and
+    each later row is aligned to the widest cells seen up to its piece (columns never narrow)."""
+    monkeypatch.setattr(to, "PLAIN_WIDTH_ROWS", 250)
+    f = frame(900)
+    cuts = [f.iloc[:200], f.iloc[200:300], f.iloc[300:600], f.iloc[600:]]
+    buf = io.StringIO()
+    stream = to.TableStream("plain", buf)
+    for piece in cuts:
+        stream.write(piece)
+    stream.close()
+    got = buf.getvalue().splitlines()
+    whole = to.to_plain(f).splitlines()
+    assert len(got) == len(whole)
+    assert [r.split() for r in got[2:]] == [r.split() for r in whole[2:]]
+    first = to.to_plain(f.iloc[:300]).splitlines()
+    assert got[:302] == first  # the kept rows (over the limit at the second piece) with their own widths
+    widths = [len(c) for c in first[1].split("  ")]
+    kinds = [to._PLAIN.get(c, (c, "text"))[1] for c in f.columns]
+    left = [k in ("text", "date") for k in kinds]
+    for piece, start in ((cuts[2], 302), (cuts[3], 602)):
+        cells = [[to._fmt(v, k) for v, k in zip(row, kinds)] for row in piece.itertuples(index=False, name=None)]
+        widths = [max([w] + [len(r[j]) for r in cells]) for j, w in enumerate(widths)]
+        expected = ["  ".join(v.ljust(w) if lft else v.rjust(w) for v, w, lft in zip(r, widths, left)).rstrip()
+                    for r in cells]
+        assert got[start:start + len(piece)] == expected

@@ -297,19 +297,32 @@ def _plain_kinds(frame: pd.DataFrame) -> tuple[list[str], list[str]]:
 
 def write_plain(frame: pd.DataFrame, out: TextIO) -> None:
     """A fixed-width, right-aligned (text left-aligned) table for reading."""
+    headings, _ = _plain_kinds(frame)
+    coded, widths, left = _plain_coded(frame)
+    _plain_heading(headings, widths, left, out)
+    _plain_rows(coded, widths, left, len(frame), out)
+
+
+def _plain_coded(frame: pd.DataFrame) -> tuple[list, list[int], list[bool]]:
+    """Each column's (codes, texts), the widths of its heading and widest text, and which are left-aligned."""
     headings, kinds = _plain_kinds(frame)
     coded = [_format_codes(frame.iloc[:, j], k) for j, k in enumerate(kinds)]
     widths = [max([len(h)] + [len(t) for t in texts]) if len(codes) else len(h)
               for h, (codes, texts) in zip(headings, coded)]
-    left = [k in ("text", "date") for k in kinds]
+    return coded, widths, [k in ("text", "date") for k in kinds]
 
+
+def _plain_heading(headings: list[str], widths: list[int], left: list[bool], out: TextIO) -> None:
     def line(values: list[str]) -> str:
         return "  ".join(v.ljust(w) if lft else v.rjust(w) for v, w, lft in zip(values, widths, left)).rstrip()
 
     out.write(line(headings) + "\n" + line(["-" * w for w in widths]) + "\n")
+
+
+def _plain_rows(coded: list, widths: list[int], left: list[bool], n: int, out: TextIO) -> None:
     padded = [(codes, np.array([t.ljust(w) if lft else t.rjust(w) for t in texts], dtype=object))
               for (codes, texts), w, lft in zip(coded, widths, left)]
-    for a in range(0, len(frame), BLOCK_ROWS):
+    for a in range(0, n, BLOCK_ROWS):
         block = [texts[codes[a:a + BLOCK_ROWS]].tolist() for codes, texts in padded]
         out.write("\n".join(r.rstrip() for r in map("  ".join, zip(*block))) + "\n")
 
@@ -461,11 +474,20 @@ def to_csv(frame: pd.DataFrame) -> str:
 _WRITERS = {"csv": write_csv, "json": write_json, "plain": write_plain}
 
 
-class TableStream:
-    """One table written piece by piece: csv and json go out as each piece comes (memory: one piece);
-    plain keeps the pieces, because its column widths need every row, and writes them at ``close``.
+#: Rows plain output keeps to size its columns to every one of them; past them it streams (``TableStream``).
+PLAIN_WIDTH_ROWS = 200_000
 
-    The text equals ``write(pd.concat(pieces), fmt)``.
+
+class TableStream:
+    """One table written piece by piece: csv and json go out as each piece comes (memory: one piece).
+
+    plain keeps the pieces while they hold at most ``PLAIN_WIDTH_ROWS`` rows
+    and writes them at ``close``, its columns as wide as their widest cell:
+    the text then equals ``write(pd.concat(pieces), fmt)``. Past that many
+    rows, the kept rows are written with their widths and each later piece
+    as it comes, its columns widened (never narrowed) where one of its cells
+    is wider than the column so far, so rows before a widening keep the
+    narrower layout (memory: one piece, whatever the table's size).
     """
 
     def __init__(self, fmt: str, out: TextIO | None = None) -> None:
@@ -474,11 +496,19 @@ class TableStream:
         self.rows = 0
         self.pieces = 0
         self._kept: list[pd.DataFrame] = []
+        self._kept_rows = 0
+        self._widths: list[int] | None = None  # plain, once streaming: the widths so far
 
     def write(self, frame: pd.DataFrame) -> None:
         """Add rows (every piece has the same columns)."""
         if self.fmt == "plain":
-            self._kept.append(frame)
+            if self._widths is not None:
+                self._plain_piece(frame)
+            else:
+                self._kept.append(frame)
+                self._kept_rows += len(frame)
+                if self._kept_rows > PLAIN_WIDTH_ROWS:
+                    self._flush_kept()
         elif self.fmt == "csv":
             write_csv(frame, self.out, header=self.pieces == 0)
         elif len(frame):
@@ -488,12 +518,28 @@ class TableStream:
         self.rows += len(frame)
         self.pieces += 1
 
+    def _flush_kept(self) -> None:
+        """The kept rows written (heading first); from here on plain streams."""
+        kept = pd.concat(self._kept, ignore_index=True) if len(self._kept) > 1 else self._kept[0]
+        self._kept = []
+        headings, _ = _plain_kinds(kept)
+        coded, widths, left = _plain_coded(kept)
+        _plain_heading(headings, widths, left, self.out)
+        _plain_rows(coded, widths, left, len(kept), self.out)
+        self._widths = widths
+
+    def _plain_piece(self, frame: pd.DataFrame) -> None:
+        coded, widths, left = _plain_coded(frame)
+        self._widths = [max(a, b) for a, b in zip(self._widths, widths)]
+        _plain_rows(coded, self._widths, left, len(frame), self.out)
+
     def close(self) -> None:
         """Finish the table."""
         if self.fmt == "plain":
             if self._kept:
                 write_plain(pd.concat(self._kept, ignore_index=True) if len(self._kept) > 1 else self._kept[0],
                             self.out)
+                self._kept = []
         elif self.fmt == "json":
             self.out.write("[]\n" if self.rows == 0 else "\n]\n")
 
