@@ -75,3 +75,27 @@ def test_table(files, capsys, monkeypatch, fmt):
     same_both_ways(capsys, monkeypatch, "table", files[3], "--format", fmt, "--expiry", "2026-04-17",
                    "--side", "puts")
     assert same_both_ways(capsys, monkeypatch, "table", files[2], "--format", fmt)[0] == 2
+
+
+def test_check_json_on_an_output_that_holds_only_ascii(files, monkeypatch):
+    """Big inputs' json report streamed to an ASCII-only output: the text ``json_text`` gives with
+    every non-ASCII character escaped (as ``json.dumps(ensure_ascii=True)`` [L]), as a whole reading."""
+    import io
+
+    from chaintriage.core.loading import load_files
+    from chaintriage.tui.cli import check
+
+    paths = files[:3]
+    expected = check.json_text(check.json_report(paths, load_files(paths)), ascii_only=True)
+    monkeypatch.setattr(loading, "PART_INPUT_BYTES", -1)
+    monkeypatch.setattr(loading, "BIG_FILE_BYTES", 0)
+    monkeypatch.setattr(loading, "CHUNK_BYTES", 50)
+    monkeypatch.setattr(loading, "PART_ROWS", 1)
+    spill = check.FindingSpill()
+    outcomes, across, _ = check.read_in_parts(paths, None, None, spill=spill)
+    buf = io.BytesIO()
+    out = io.TextIOWrapper(buf, encoding="ascii", newline="\n")
+    check.write_json_streamed(outcomes, across, spill, out)
+    spill.close()
+    out.flush()
+    assert "\\u00e9" in expected and buf.getvalue().decode("ascii") == expected

@@ -4,9 +4,12 @@ from __future__ import annotations
 
 import argparse
 import dataclasses
+import heapq
 import json
 import re
-from collections.abc import Sequence
+import tempfile
+from pathlib import Path
+from collections.abc import Iterator, Sequence
 from dataclasses import dataclass, field
 from typing import Any, TextIO
 
@@ -260,15 +263,14 @@ def _json(outcomes: Sequence[FileOutcome], across: FindingTable) -> dict[str, An
     }
 
 
-def read_in_parts(paths: Sequence[str], overrides, column_map, *, every: bool = False,
+def read_in_parts(paths: Sequence[str], overrides, column_map, *, spill: FindingSpill | None = None,
                   on_part=None) -> tuple[list[FileOutcome], FindingTable, list[SnapshotFileError]]:
     """Big inputs read a few underlyings at a time (``PartLoader``), keeping per file only its counts and
-    its findings' groups (and every finding with ``every``, for json). ``on_part(part)`` sees each
-    part (a LoadResult) before it is let go. Returns the outcomes in the order of ``paths``, the
+    its findings' groups (every finding goes to ``spill``, for json, when given). ``on_part(part)`` sees
+    each part (a LoadResult) before it is let go. Returns the outcomes in the order of ``paths``, the
     findings about no file, and the unusable files' errors."""
     loader = PartLoader(paths, overrides=overrides, column_map=column_map)
     per: dict[str, FileOutcome] = {}
-    tables: dict[str, list[FindingTable]] = {}
     across: list[FindingTable] = []
     for f in loader.files:
         per[f.path] = FileOutcome(f.path, None, 0, 0, [], {s: 0 for s in SEVERITIES})
@@ -282,8 +284,8 @@ def read_in_parts(paths: Sequence[str], overrides, column_map, *, every: bool = 
             for sev, c in t.counts().items():
                 o.counts[sev] += c
             o.snapshots.extend(_snapshot_dicts(fl.snapshots))
-            if every:
-                tables.setdefault(fl.path, []).append(t)
+            if spill is not None:
+                spill.add(fl.path, t)
         across.append(part.findings.where(file=None))
         if on_part is not None:
             on_part(part)
@@ -291,14 +293,11 @@ def read_in_parts(paths: Sequence[str], overrides, column_map, *, every: bool = 
     for o in per.values():
         # groups of all parts in the order of their first finding, as one file's groups come
         o.groups.sort(key=lambda g: (g.first_line > 0, g.first_line))
-        if every:
-            o.findings = FindingTable.concat(tables.get(o.path, [])).sorted_by_line()
     errors = list(loader.errors) + loader.unusable()
     for e in errors:
         o = per.get(e.path)
         if o is None:
-            per[e.path] = FileOutcome(e.path, e.reason, 0, 0, [], {s: 0 for s in SEVERITIES},
-                                      FindingTable.empty() if every else None)
+            per[e.path] = FileOutcome(e.path, e.reason, 0, 0, [], {s: 0 for s in SEVERITIES})
         else:
             o.error, o.rows_accepted, o.snapshots = e.reason, 0, []
     ordered = []
@@ -310,6 +309,56 @@ def read_in_parts(paths: Sequence[str], overrides, column_map, *, every: bool = 
 
 
 _NO_ROWS = np.zeros(0, dtype=np.int64)
+
+
+#: Indent of one finding of a file in the json report (``json.dumps(report, indent=2)``).
+_FINDING_INDENT = " " * 8
+
+
+class FindingSpill:
+    """Every finding of big inputs, kept on disk (a temporary folder) instead of in memory, for the json
+    report: each part's findings of a file, sorted by line, as the report's text of each finding; read
+    back merged by line (``texts``), the order ``FindingTable.concat(parts).sorted_by_line()`` gives."""
+
+    def __init__(self) -> None:
+        self._dir = tempfile.TemporaryDirectory(prefix="chaintriage-check-")
+        self._segments: dict[str, list[Path]] = {}
+        self._written = 0
+
+    def add(self, path: str, table: FindingTable) -> None:
+        """One part's findings of the file ``path``."""
+        if not len(table):
+            return
+        t = table.sorted_by_line()
+        segments = self._segments.setdefault(path, [])
+        self._written += 1
+        name = Path(self._dir.name) / str(self._written)
+        lines = t.line.tolist()
+        with open(name, "wb") as fh:
+            for a in range(0, len(t), 10_000):
+                rows = []
+                for i in range(a, min(a + 10_000, len(t))):
+                    text = json.dumps(t[i].as_dict(), indent=2, ensure_ascii=False)
+                    # json escapes every control character inside strings: NUL stands for the layout's line breaks
+                    rows.append(f"{int(lines[i] > 0)} {lines[i]} {text.replace(chr(10), chr(0))}\n")
+                fh.write("".join(rows).encode("utf-8", "surrogatepass"))
+        segments.append(name)
+
+    @staticmethod
+    def _read(name: Path) -> Iterator[tuple[int, int, str]]:
+        with open(name, "rb") as fh:
+            for raw in fh:
+                flag, line, text = raw.decode("utf-8", "surrogatepass").rstrip("\n").split(" ", 2)
+                yield int(flag), int(line), text
+
+    def texts(self, path: str) -> Iterator[str]:
+        """The file's findings as the report writes them (indented), in line order (stable across parts)."""
+        merged = heapq.merge(*(self._read(n) for n in self._segments.get(path, [])), key=lambda r: r[:2])
+        for _, _, text in merged:
+            yield _FINDING_INDENT + text.replace("\0", "\n" + _FINDING_INDENT)
+
+    def close(self) -> None:
+        self._dir.cleanup()
 
 
 #: Characters json.dumps(ensure_ascii=False) leaves raw that a terminal may act on or that hide text:
@@ -324,17 +373,61 @@ def json_text(report: dict[str, Any], *, ascii_only: bool = False) -> str:
     return _UNSAFE_IN_JSON.sub(lambda m: f"\\u{ord(m.group()):04x}", text) + "\n"
 
 
+def _ascii_escaped(text: str) -> str:
+    """Every non-ASCII character as ``\\uXXXX`` (a pair for those above U+FFFF), as ``json.dumps`` escapes."""
+    def esc(m: re.Match) -> str:
+        c = ord(m.group())
+        if c < 0x10000:
+            return f"\\u{c:04x}"
+        c -= 0x10000
+        return f"\\u{0xd800 | (c >> 10):04x}\\u{0xdc00 | (c & 0x3ff):04x}"
+    return re.sub("[^\x00-\x7f]", esc, text)
+
+
+def write_json_streamed(outcomes: Sequence[FileOutcome], across: FindingTable, spill: FindingSpill,
+                        out: TextIO) -> None:
+    """The json report of big inputs, each file's findings streamed from ``spill``: the text of
+    ``json_text`` (each piece's non-ASCII escaped only when the output cannot hold that piece)."""
+    def emit(text: str) -> None:
+        text = _UNSAFE_IN_JSON.sub(lambda m: f"\\u{ord(m.group()):04x}", text)
+        out.write(text if can_encode(text, out) else _ascii_escaped(text))
+
+    report = _json([dataclasses.replace(o, findings=None) for o in outcomes], across)
+    empty = '\n      "findings": []'  # each file's (the only key at that indent: strings hold no line break)
+    pieces = json.dumps(report, indent=2, ensure_ascii=False).split(empty)
+    emit(pieces[0])
+    for o, rest in zip(outcomes, pieces[1:]):
+        items = spill.texts(o.path)
+        first = next(items, None)
+        if first is None:
+            emit(empty)
+        else:
+            batch = ['\n      "findings": [\n' + first]
+            for text in items:
+                batch.append(text)
+                if len(batch) >= 5_000:
+                    emit(",\n".join(batch) + ",\n")
+                    batch = []
+            emit(",\n".join(batch) + "\n      ]")
+        emit(rest)
+    emit("\n")
+
+
 def run_check(args: argparse.Namespace) -> int:
     overrides, column_map = snapshot_options(args)
     if inputs_bytes(args.files) > loading.PART_INPUT_BYTES:  # big: a few underlyings at a time
-        outcomes, across, errors = read_in_parts(args.files, overrides, column_map, every=args.format == "json")
-        for exc in errors:
-            error(str(exc))
-        if args.format == "json":
-            report = _json(outcomes, across)
-            _write_json(report)
-        else:
-            _write_plain(outcomes, across, StdoutWriter())
+        spill = FindingSpill() if args.format == "json" else None
+        try:
+            outcomes, across, errors = read_in_parts(args.files, overrides, column_map, spill=spill)
+            for exc in errors:
+                error(str(exc))
+            if spill is not None:
+                write_json_streamed(outcomes, across, spill, StdoutWriter())
+            else:
+                _write_plain(outcomes, across, StdoutWriter())
+        finally:
+            if spill is not None:
+                spill.close()
         return outcome_status(outcomes)
     result = load_files(args.files, overrides=overrides, column_map=column_map)
     for exc in result.errors:
