@@ -99,3 +99,19 @@ def test_check_json_on_an_output_that_holds_only_ascii(files, monkeypatch):
     spill.close()
     out.flush()
     assert "\\u00e9" in expected and buf.getvalue().decode("ascii") == expected
+
+
+def test_table_with_history(capsys, monkeypatch):
+    """--history on big inputs (read twice: first for the latest snapshot time) gives the table, the
+    findings and the status of a whole reading, the note about an underlying without history too."""
+    from importlib.resources import files as package_files
+    from pathlib import Path
+
+    demo = Path(str(package_files("chaintriage.demo_chains")))
+    chains = [str(demo / "ospx_2026-12-01.csv"), str(demo / "tsbh_2026-12-01.csv")]
+    hist = str(demo / "history" / "ospx_history.csv")
+    code, out, err = same_both_ways(capsys, monkeypatch, "table", *chains, "--history", hist, "--paths", "300",
+                                    "--format", "csv", "--expiry", "2027-02-19", block=1 << 16)
+    assert code == 0 and "hist_p_beyond" in out and any("no price history for 'TSBH'" in e for e in err)
+    assert same_both_ways(capsys, monkeypatch, "table", *chains, "--history", hist, "--expiry", "2031-01-17",
+                          block=1 << 16)[0] == 2

@@ -265,29 +265,45 @@ def history_for(args: argparse.Namespace, annotated: list) -> tuple[dict[int, ob
     Returns ({} , None, []) when --history was not given. Histories match snapshots by underlying name;
     rows dated after a snapshot's date are left out.
     """
-    from chaintriage.core.history_compare import compare_with_snapshot  # only when asked for
-
     if not args.history:
         return {}, None, []
     until = max(a.snapshot.as_of.tz_localize(None) for a in annotated) if annotated else None
-    loads = load_history_files(args.history, args, until=until)
-    by_name = {h.underlying: h for h in loads.histories}
+    compare = HistoryComparer(args, until)
     out: dict[int, object] = {}
-    extra: list[Finding] = []
     for i, a in enumerate(annotated):
-        settings = history_settings(args, a.settings.basis, paths=args.paths)
-        h = by_name.get(a.snapshot.underlying)
+        cmp = compare(a)
+        if cmp is not None:
+            out[i] = cmp
+    return out, compare.loads, compare.extra
+
+
+class HistoryComparer:
+    """The --history files loaded once (rows after ``until``, the latest snapshot time, left out), then
+    called with one annotated snapshot at a time: its comparison with its underlying's history, or None.
+    ``extra`` collects the findings of the comparisons (and a note per snapshot without a history)."""
+
+    def __init__(self, args: argparse.Namespace, until) -> None:
+        self.args = args
+        self.loads = load_history_files(args.history, args, until=until)
+        self.by_name = {h.underlying: h for h in self.loads.histories}
+        self.extra: list[Finding] = []
+
+    def __call__(self, a):
+        from chaintriage.core.history_compare import compare_with_snapshot  # only when asked for
+
+        settings = history_settings(self.args, a.settings.basis, paths=self.args.paths)
+        h = self.by_name.get(a.snapshot.underlying)
         if h is None:
-            extra.append(Finding("note", f"no price history for {a.snapshot.underlying!r}: history columns are "
-                                         f"blank (histories given for: {', '.join(map(repr, by_name)) or 'none'})",
-                                 underlying=a.snapshot.underlying))
-            continue
+            self.extra.append(Finding(
+                "note", f"no price history for {a.snapshot.underlying!r}: history columns are blank "
+                        f"(histories given for: {', '.join(map(repr, self.by_name)) or 'none'})",
+                underlying=a.snapshot.underlying))
+            return None
         if h.last_date > a.snapshot.as_of.tz_localize(None).normalize():
             keep = h.bars["date"] <= a.snapshot.as_of.tz_localize(None).normalize()
             h = type(h)(h.underlying, h.bars[keep].reset_index(drop=True), h.findings, h.source)
             if len(h.bars) < 3:
-                continue
+                return None
         cmp = compare_with_snapshot(a, h, settings)
-        out[i] = cmp
-        extra.extend(cmp.findings)
-    return out, loads, extra
+        self.extra.extend(cmp.findings)
+        return cmp

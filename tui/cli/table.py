@@ -23,6 +23,7 @@ from chaintriage.tui.cli.check import outcome_status, read_in_parts
 from chaintriage.tui.cli.common import EXIT_ROWS_LEFT_OUT, EXIT_UNUSABLE, StdoutWriter, error, snapshot_options
 from chaintriage.tui.cli.history import (
     HISTORY_TABLE_COLUMNS,
+    HistoryComparer,
     add_history_options,
     finish_with_history,
     history_columns,
@@ -111,10 +112,35 @@ def _selected(a, args: argparse.Namespace, wanted: list[pd.Timestamp]) -> tuple[
     return with_as_of(c.loc[keep, TABLE_COLUMNS].copy(), a, args.format), keep
 
 
+def _latest_snapshot(args: argparse.Namespace, overrides, column_map, wanted) -> tuple[object, set]:
+    """A first reading for --history (the history files' rows after the latest snapshot time are left
+    out): the latest snapshot time (naive, as a whole reading takes it) and the expiries present."""
+    latest = [None]
+    present: set = set()
+
+    def on_part(part) -> None:
+        for snap in part.snapshots:
+            t = snap.as_of.tz_localize(None)
+            latest[0] = t if latest[0] is None else max(latest[0], t)
+            if wanted:
+                present.update(snap.contracts["expiry"].unique())
+
+    read_in_parts(args.files, overrides, column_map, on_part=on_part)
+    return latest[0], present
+
+
 def _run_table_in_parts(args: argparse.Namespace, overrides, column_map, settings) -> int:
     """`table` on big inputs: read a few underlyings at a time, each snapshot annotated, written and let
-    go (with --expiry, the chosen rows are kept until every wanted expiry is known to be there)."""
+    go (with --expiry, the chosen rows are kept until every wanted expiry is known to be there). With
+    --history the files are read twice: first for the latest snapshot time, which the history files
+    are read up to, then to annotate and write."""
     wanted = _wanted_expiries(args)
+    compare = None
+    if args.history:
+        latest, present = _latest_snapshot(args, overrides, column_map, wanted)
+        missing = [w for w in wanted if w not in present]
+        if latest is not None and not missing:  # else the second reading reports what is wrong
+            compare = HistoryComparer(args, latest)
     stream = None
     kept: list[pd.DataFrame] = []
     present: set = set()
@@ -131,9 +157,12 @@ def _run_table_in_parts(args: argparse.Namespace, overrides, column_map, setting
                 present.update(snap.contracts["expiry"].unique())
             a = annotate(snap, settings)
             del snap
-            frame, _ = _selected(a, args, wanted)
+            frame, keep = _selected(a, args, wanted)
+            if compare is not None:
+                cmp = compare(a)
+                frame = history_columns(frame, cmp.contracts if cmp else None, keep, HISTORY_TABLE_COLUMNS)
             model_findings.append(a.findings)
-            del a
+            del a, keep
             if wanted:
                 kept.append(frame)
                 continue
@@ -161,15 +190,17 @@ def _run_table_in_parts(args: argparse.Namespace, overrides, column_map, setting
     report_groups(args, outcomes, across, model_findings, wanted)
     status = outcome_status(outcomes)
     if status == 0 and any(f.severity == LEFT_OUT for fs in model_findings for f in fs):
-        return EXIT_ROWS_LEFT_OUT
-    return status
+        status = EXIT_ROWS_LEFT_OUT
+    if compare is None:
+        return status
+    return finish_with_history(args, compare.loads, compare.extra, status)
 
 
 def run_table(args: argparse.Namespace) -> int:
     """Load, then annotate and write one snapshot at a time (csv and json leave as they are made)."""
     overrides, column_map = snapshot_options(args)
     settings = pipeline_settings(args)
-    if not args.history and inputs_bytes(args.files) > loading.PART_INPUT_BYTES:
+    if inputs_bytes(args.files) > loading.PART_INPUT_BYTES:
         return _run_table_in_parts(args, overrides, column_map, settings)
     result = load_files(args.files, overrides=overrides, column_map=column_map)
     for exc in result.errors:
