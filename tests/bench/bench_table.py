@@ -15,7 +15,7 @@ with zero bids), printed in one run:
   (the plain write floor) with the ratio.
 
 --big adds a 5,000,000-row file (25 underlyings of the same chain): check and
-table csv, time and peak memory against read_csv. --baseline DIR runs the
+table in each format, time and peak memory against read_csv. --baseline DIR runs the
 commands of another revision beside these (DIR holds its ``chaintriage``
 package, e.g. the core/, tui/, themes/ and demo_chains/ of ``git archive REV``
 copied into DIR/chaintriage/).
@@ -117,9 +117,10 @@ def commands(path: Path, formats: list[str], label: str) -> None:
             print(f"  table --format {fmt:5s}{tag:11s} {t:7.2f} s  {m:7,.0f} MB   time = {t / t_pd:5.1f}x "
                   f"read_csv, memory = {m / m_pd:4.1f}x{extra}; cpu {LAST_CPU[0]:6.2f} s = "
                   f"{LAST_CPU[0] / c_pd:5.1f}x read_csv's")
-        t, m, _ = run(cli("check", str(path), baseline=rev))
-        print(f"  check{tag:11s}                {t:7.2f} s  {m:7,.0f} MB   time = {t / t_pd:5.1f}x read_csv, "
-              f"memory = {m / m_pd:4.1f}x; cpu {LAST_CPU[0]:6.2f} s = {LAST_CPU[0] / c_pd:5.1f}x read_csv's")
+        for fmt in ("plain", "json"):
+            t, m, _ = run(cli("check", str(path), "--format", fmt, baseline=rev))
+            print(f"  check --format {fmt:5s}{tag:11s} {t:7.2f} s  {m:7,.0f} MB   time = {t / t_pd:5.1f}x read_csv, "
+                  f"memory = {m / m_pd:4.1f}x; cpu {LAST_CPU[0]:6.2f} s = {LAST_CPU[0] / c_pd:5.1f}x read_csv's")
 
 
 def writers(path: Path) -> None:
@@ -153,7 +154,7 @@ def main() -> None:
     ap.add_argument("--contracts", type=int, default=200_000)
     ap.add_argument("--expiries", type=int, default=100)
     ap.add_argument("--formats", nargs="*", default=["csv", "plain", "json"])
-    ap.add_argument("--big", action="store_true", help="also 5,000,000 rows: check and table csv")
+    ap.add_argument("--big", action="store_true", help="also 5,000,000 rows: check and table in each format")
     ap.add_argument("--no-writers", action="store_true")
     ap.add_argument("--baseline", metavar="DIR",
                     help="a folder with another revision's chaintriage package (e.g. from `git archive`), "
@@ -170,7 +171,7 @@ def main() -> None:
         if args.big:
             big = Path(tmp) / "big.csv"
             repeat_underlyings(path, big, -(-5_000_000 // args.contracts))
-            commands(big, ["csv"], "5,000,000 contracts (25 underlyings)")
+            commands(big, args.formats, "5,000,000 contracts (25 underlyings)")
 
 
 if __name__ == "__main__":
