@@ -83,7 +83,7 @@ def test_file_text_is_literal_or_stripped_everywhere(tmp_path):
         clean([app.clipboard] + clip.texts, "clipboard from the shortlist")
         await pilot.press("escape", "e")
         table = app.screen.query_one("#findings-table")
-        rows = [[c.plain for c in table.get_row_at(r)] for r in range(table.row_count)]
+        rows = [list(table.row_cells(r)) for r in range(table.row_count)]
         assert any("[bold]x" in r[-1] for r in rows), rows  # the quoted cell, literally
         clean([c for r in rows for c in r], "findings table")
         for _ in range(table.row_count):

@@ -252,7 +252,7 @@ def test_opening_another_file_from_inside_the_app(tmp_path):
         assert [v.snapshot.underlying for v in app.state.views] == ["OSPX", "TSBH", "QRTZ"]
         await pilot.press("e")  # the file errors are listed with the findings
         table = app.screen.query_one("#findings-table")
-        assert any(table.get_row_at(i)[0].plain == "unusable file" for i in range(table.row_count))
+        assert any(table.row_cells(i)[0] == "unusable file" for i in range(table.row_count))
 
     run(app, scenario)
 

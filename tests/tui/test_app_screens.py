@@ -156,11 +156,11 @@ def test_findings_screen_lists_the_snapshots_findings():
         # One row per group of like findings (per file, expiry, column and reason), with its count.
         groups = view.finding_groups()
         assert table.row_count == len(groups) < len(findings)
-        counts = [int(table.get_row_at(i)[1].plain.replace(",", "")) for i in range(table.row_count)]
+        counts = [int(table.row_cells(i)[1].replace(",", "")) for i in range(table.row_count)]
         assert sum(counts) == len(findings)
         singles = {f.reason for g in groups if g.count == 1 for f in findings.take(g.rows)}
-        assert singles <= {table.get_row_at(i)[5].plain for i in range(table.row_count)}
-        severities = {table.get_row_at(i)[0].plain for i in range(table.row_count)}
+        assert singles <= {table.row_cells(i)[5] for i in range(table.row_count)}
+        severities = {table.row_cells(i)[0] for i in range(table.row_count)}
         assert severities <= {"left-out", "warning", "note"}
         await pilot.press("escape")
         assert app.screen is app.triage
@@ -183,7 +183,7 @@ def test_findings_of_a_file_show_file_line_and_column(tmp_path):
     async def scenario(pilot):
         await pilot.press("e")
         table = app.screen.query_one("#findings-table")
-        rows = [[c.plain for c in table.get_row_at(i)] for i in range(table.row_count)]
+        rows = [list(table.row_cells(i)) for i in range(table.row_count)]
         bad = [i for i, r in enumerate(rows) if r[2] == f"chain.csv line {len(lines)}"]
         assert bad and rows[bad[0]][0] == "left-out" and rows[bad[0]][3] == "bid" and rows[bad[0]][1] == "1"
         table.move_cursor(row=bad[0])
@@ -263,24 +263,24 @@ def test_findings_screen_draws_a_row_per_group_not_per_finding():
         await pilot.pause()
         table = app.screen.query_one("#findings-table")
         assert table.row_count == len(big.groups()) == 2
-        assert [table.get_row_at(i)[1].plain for i in range(2)] == ["100,000", "100,000"]
+        assert [table.row_cells(i)[1] for i in range(2)] == ["100,000", "100,000"]
         detail = str(app.screen.query_one("#finding-detail").render())
         assert "lines 2-100001" in detail and "and 99,996 more" in detail
 
     run(app, scenario)
 
 
-def test_findings_screen_with_many_groups_fills_in_after_its_first_frame(monkeypatch):
-    """More groups than the screen makes at opening: the first rows at once, every group soon after,
-    in order, the count line from the first frame [D]."""
+def test_findings_screen_with_many_groups_has_every_row_from_its_first_frame(monkeypatch):
+    """More groups than the screen shows: every group is a row from the first frame, in order, each
+    made when first drawn or read (the rest in small batches after the first frame), the count line
+    from the first frame [D]."""
     import numpy as np
 
     from chaintriage.core.finding_table import FindingTable
     from chaintriage.core.findings import Finding
-    from chaintriage.tui.screens import findings as findings_screen
+    from chaintriage.tui.widgets import line_table
 
-    monkeypatch.setattr(findings_screen, "ROWS_AT_OPEN", 7)
-    monkeypatch.setattr(findings_screen, "ROWS_PER_BATCH", 10)
+    monkeypatch.setattr(line_table, "FILL_BATCH", 10)
     k = 45
     base = FindingTable.of([Finding("warning", "zero bid", file="big.csv", line=2, column="bid", underlying="QRTZ")])
     big = base.take(np.zeros(2 * k, dtype=np.int64))
@@ -290,11 +290,15 @@ def test_findings_screen_with_many_groups_fills_in_after_its_first_frame(monkeyp
 
     async def scenario(pilot):
         app.push_screen(FindingsScreen("big", big, ()))
-        for _ in range(20):
-            await pilot.pause()
+        await pilot.pause()
         table = app.screen.query_one("#findings-table")
         assert table.row_count == k
-        assert [table.get_row_at(i)[4].plain for i in (0, k - 1)] == ["2027-01-01 #0", f"2027-01-{k:02d} #{k - 1}"]
         assert "90 findings" in str(app.screen.query_one("#findings-title").render())
+        for _ in range(20):
+            await pilot.pause()
+        assert [table.row_cells(i)[4] for i in (0, k - 1)] == ["2027-01-01 #0", f"2027-01-{k:02d} #{k - 1}"]
+        await pilot.press("end")
+        assert table.cursor_row == k - 1
+        assert f"2027-01-{k:02d} #{k - 1}" in str(app.screen.query_one("#finding-detail").render())
 
     run(app, scenario)

@@ -61,7 +61,7 @@ def test_end_in_findings_goes_to_the_last_finding_and_the_detail_follows():
         assert table.cursor_row == table.row_count - 1
         assert table.scroll_x == 0  # not sideways into blank space
         detail = str(screen.query_one("#finding-detail").render())
-        last_reason = table.get_row_at(table.row_count - 1)[-1].plain
+        last_reason = table.row_cells(table.row_count - 1)[-1]
         assert last_reason[:30] in detail.replace("\n", " ")
 
     run(app, scenario, size=(80, 24))

@@ -103,3 +103,41 @@ def test_sideways_by_whole_columns_with_the_first_fixed():
         assert table.scroll_offset.x == 0
 
     drive(scenario)
+
+
+def test_a_row_source_makes_the_rows_on_screen_first_and_the_rest_after(monkeypatch):
+    """100,000 rows from a function: before the first frame only the rows on screen (and at most one
+    batch) are made; every row soon after, between turns of the event loop; the columns widen to
+    the widest cell made, however far down it is [D]."""
+    from chaintriage.tui.widgets import line_table
+
+    monkeypatch.setattr(line_table, "FILL_BATCH", 5000)
+    n = 100_000
+    made: list[int] = []
+    at_first_frame: list[int] = []
+
+    def row_at(i: int) -> tuple[str, ...]:
+        made.append(i)
+        wide = "x" * 30 if i == n - 1 else ""
+        return (f"row{i}", str(i), wide, "", "", "", "")
+
+    async def scenario(app, table, pilot) -> None:
+        table.set_row_source(n, row_at)
+        table.call_after_refresh(lambda: at_first_frame.append(len(made)))
+        await pilot.pause()
+        assert table.row_count == n
+        assert at_first_frame and at_first_frame[0] <= table.size.height + line_table.FILL_BATCH < n
+        assert table.render_line(1).text.startswith(" row0 ")
+        for _ in range(200):
+            if len(made) == n:
+                break
+            await pilot.pause()
+        assert sorted(made) == list(range(n))  # every row made, once
+        assert table.row_cells(n - 1)[2] == "x" * 30
+        await pilot.press("end")
+        assert table.cursor_row == n - 1
+        shown = [table.render_line(y).text for y in range(table.scrollable_content_region.height)]
+        assert any(f" row{n - 1} " in line for line in shown)
+        assert "x" * 30 in table.lines_text()[-1]
+
+    drive(scenario)

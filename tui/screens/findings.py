@@ -3,49 +3,51 @@ grouped per file, underlying, expiry, column and reason with a count and the run
 
 A big file can give a million findings; the screen shows one row per group (the groups are
 computed once per snapshot, off the screen's thread, by ``SnapshotView.finding_groups``), and a
-finding is built as an object only when the detail pane shows it. The first screenful of rows is
-there at the first frame and the rest follow in batches, so opening costs the same at any count.
+finding is built as an object only when the detail pane shows it. The list is a ``LineTable``
+fed by a row source: only the rows on screen are made before the first frame (the others follow
+in batches), so opening costs the same at any count, 20,000 groups included.
 """
 
 from __future__ import annotations
 
 import os
-from typing import Sequence
+from typing import Any, Sequence
 
 from rich.text import Text
 from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.screen import Screen
-from textual.widgets import DataTable, Footer, Static
+from textual.widgets import Footer, Static
 
 from chaintriage.core.finding_table import FindingGroup, FindingTable, ranges_text
 from chaintriage.core.findings import SEVERITIES, Finding
 from chaintriage.tui import formatting as fm
 from chaintriage.tui.screens.common import close, plain
-from chaintriage.tui.widgets.row_table import RowTable
+from chaintriage.tui.widgets.line_table import LineTable
 
 FINDING_COLUMNS = ("severity", "count", "where", "column", "expiry", "reason")
+#: Right-aligned columns (the count).
+RIGHT_ALIGNED = (False, True, False, False, False, False)
 #: Runs of lines shown in the table's "where" cell (the detail pane shows more).
 RUNS_IN_TABLE = 3
 #: Runs of lines, and example findings, shown in the detail pane.
 RUNS_IN_DETAIL = 12
 EXAMPLES_IN_DETAIL = 4
-#: Group rows put in the table before the screen's first frame (each costs about 1.5 ms to draw); the rest
-#: follow in batches of ROWS_PER_BATCH, one per refresh, so opening costs the same at any count.
-ROWS_AT_OPEN = 24
-ROWS_PER_BATCH = 500
+NOTHING_TO_REPORT = "nothing to report: every row was used"
 
 
 def _file_name(path: str | None) -> str:
     return "" if path is None else (os.path.basename(path) or path)
 
 
-def group_row(group: FindingGroup, table: FindingTable) -> tuple[Text, ...]:
-    """One findings-table row: severity, count, file name and line runs, column, expiry, reason."""
+def group_row(group: FindingGroup, table: FindingTable) -> tuple[str, ...]:
+    """One findings-table row as data text (control characters removed): severity, count, file name
+    and line runs, column, expiry, reason."""
     where = " ".join(p for p in (_file_name(group.file), ranges_text(group.lines, limit=RUNS_IN_TABLE)) if p)
     one = table.reason[int(group.rows[0])] if group.count == 1 else None
-    return (plain(group.severity), Text(f"{group.count:,}", justify="right"), plain(where),
-            plain(group.column or ""), plain(group.expiry or ""), plain(group.summary(one)))
+    clean = fm.clean_text
+    return (clean(group.severity), f"{group.count:,}", clean(where), clean(group.column or ""),
+            clean(group.expiry or ""), clean(group.summary(one)))
 
 
 def group_detail(group: FindingGroup, table: FindingTable) -> Text:
@@ -73,9 +75,12 @@ class FindingsScreen(Screen):
     BINDINGS = [Binding("escape,q,e", "close", "close")]
 
     def __init__(self, title: str, findings: Sequence[Finding] | FindingTable,
-                 file_errors: Sequence[str] = (), groups: Sequence[FindingGroup] | None = None) -> None:
-        """``groups`` are ``findings``' groups when already computed (else they are computed here)."""
+                 file_errors: Sequence[str] = (), groups: Sequence[FindingGroup] | None = None,
+                 theme: Any = None) -> None:
+        """``groups`` are ``findings``' groups when already computed (else they are computed here);
+        ``theme`` the table's colours (default: the app's current theme)."""
         super().__init__()
+        self._theme = theme
         self._title = title
         self._findings = FindingTable.of(findings)
         self._groups = list(groups) if groups is not None else self._findings.groups()
@@ -99,7 +104,8 @@ class FindingsScreen(Screen):
         head.append(fm.clean_text(self._title))
         self._head = head
         yield Static(head, classes="title", id="findings-title")
-        yield RowTable(id="findings-table")
+        theme = self._theme or getattr(getattr(self.app, "state", None), "theme", None)
+        yield LineTable(id="findings-table", theme=theme)
         yield Static(Text(""), id="finding-detail")
         yield Footer(show_command_palette=False)
 
@@ -121,36 +127,25 @@ class FindingsScreen(Screen):
 
     def on_mount(self) -> None:
         self._fit_title()
-        table = self.query_one("#findings-table", DataTable)
-        table.add_column("severity")
-        table.add_column(Text("count", justify="right"))
-        for name in FINDING_COLUMNS[2:]:
-            table.add_column(name)
-        for message in self._errors:
-            table.add_row(plain("unusable file"), Text(""), plain(""), plain(""), plain(""), plain(message))
-        table.add_rows(group_row(g, self._findings) for g in self._groups[:ROWS_AT_OPEN])
-        self._added = min(len(self._groups), ROWS_AT_OPEN)
-        if self._added < len(self._groups):  # the rest after the first frame, a batch per refresh
-            self.call_after_refresh(self._add_more)
-        if not self._groups and not self._errors:
-            table.add_row(plain(""), Text(""), plain(""), plain(""), plain(""),
-                          plain("nothing to report: every row was used"))
-        table.focus()
+        table = self.query_one("#findings-table", LineTable)
+        table.set_columns(FINDING_COLUMNS, RIGHT_ALIGNED)
+        count = len(self._errors) + len(self._groups)
+        table.set_row_source(count or 1, self._row)
+        if self.focused is not table:
+            table.focus()
         self._show_detail(0)
 
-    def _add_more(self) -> None:
-        """The next batch of group rows (the screen stays responsive between batches)."""
-        if not self.is_attached:
-            return
-        table = self.query_one("#findings-table", DataTable)
-        stop = min(len(self._groups), self._added + ROWS_PER_BATCH)
-        table.add_rows(group_row(g, self._findings) for g in self._groups[self._added:stop])
-        self._added = stop
-        if stop < len(self._groups):
-            self.call_after_refresh(self._add_more)
+    def _row(self, i: int) -> tuple[str, ...]:
+        """Table row ``i``: the unusable files first, then one row per group."""
+        k = i - len(self._errors)
+        if i < len(self._errors):
+            return ("unusable file", "", "", "", "", fm.clean_text(self._errors[i]))
+        if k < len(self._groups):
+            return group_row(self._groups[k], self._findings)
+        return ("", "", "", "", "", NOTHING_TO_REPORT)
 
-    def on_data_table_row_highlighted(self, event: DataTable.RowHighlighted) -> None:
-        self._show_detail(event.cursor_row)
+    def on_line_table_highlighted(self, event: LineTable.Highlighted) -> None:
+        self._show_detail(event.row)
 
     def _show_detail(self, row: int) -> None:
         detail = self.query_one("#finding-detail", Static)

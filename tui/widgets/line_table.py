@@ -7,18 +7,24 @@ Each line is one ``Strip`` of plain Segments (text is never markup), built when
 first drawn and kept until the rows change: a redraw of every row costs the
 text, not a widget per cell (Textual's DataTable renders each cell through
 Rich, too slow for a view redrawn on every key).
+
+A long list can be given as a row count and a function that makes one row
+(``set_row_source``): only the rows on screen are made before a frame, so
+opening costs the same at any count; the others are made after the first
+frame, a batch per turn of the event loop (keys are handled in between), and
+the columns widen to the widest cell made so far.
 """
 
 from __future__ import annotations
 
-from typing import Sequence
+from typing import Callable, Sequence
 
 from rich.cells import cell_len, set_cell_size
 from rich.segment import Segment
 from rich.style import Style
 from textual.binding import Binding
 from textual.events import Click
-from textual.geometry import Size
+from textual.geometry import Region, Size
 from textual.message import Message
 from textual.scroll_view import ScrollView
 from textual.strip import Strip
@@ -27,12 +33,15 @@ from chaintriage.tui.themes import FALLBACK_THEME, ChainTheme
 
 #: Cells between two columns.
 GAP = 2
+#: Rows of a row source made per turn of the event loop after the first frame.
+FILL_BATCH = 500
 
 
 class LineTable(ScrollView, can_focus=True):
     """Rows of text under a heading line; see the module docstring. Public API: ``set_columns``,
-    ``set_rows``, ``set_theme``, ``cursor_row``, ``move_cursor``, ``row_count``, ``lines_text``;
-    messages ``LineTable.Highlighted`` and ``LineTable.Chosen`` (Enter)."""
+    ``set_rows``, ``set_row_source``, ``set_row``, ``set_theme``, ``cursor_row``, ``move_cursor``,
+    ``row_count``, ``row_cells``, ``lines_text``; messages ``LineTable.Highlighted`` and
+    ``LineTable.Chosen`` (Enter)."""
 
     DEFAULT_CSS = """
     LineTable { height: 1fr; width: 1fr; }
@@ -72,7 +81,11 @@ class LineTable(ScrollView, can_focus=True):
         self._fixed = max(0, int(fixed))
         self._headings: list[str] = []
         self._right: list[bool] = []
-        self._rows: list[tuple[str, ...]] = []
+        #: One tuple of cells per row; None for a row of the row source not made yet.
+        self._rows: list[tuple[str, ...] | None] = []
+        self._row_at: Callable[[int], Sequence[str]] | None = None
+        self._unmade = 0  # rows of the source before this one are all made
+        self._source = 0  # which row source the fill works for (a new one stops the old fill)
         self._widths: list[int] = []
         self._cursor = 0
         self._cache: dict[int, tuple[str, str]] = {}
@@ -92,22 +105,90 @@ class LineTable(ScrollView, can_focus=True):
         """Headings and, per column, True to align it (heading too) to the right."""
         self._headings = list(headings)
         self._right = list(right)
-        self.set_rows(self._rows)
+        if self._row_at is not None:
+            self.set_row_source(len(self._rows), self._row_at)
+        elif self._rows or self._widths:
+            self.set_rows(self._rows)  # type: ignore[arg-type]
+        else:
+            self._widths = [cell_len(h) for h in self._headings]
 
     def set_rows(self, rows: Sequence[Sequence[str]]) -> None:
         """Show these rows (one string per column); the cursor stays on its row number."""
+        self._source += 1
+        self._row_at = None
         self._rows = [tuple(r) for r in rows]
-        widths = [cell_len(h) for h in self._headings]
-        for row in self._rows:
+        self._unmade = len(self._rows)
+        self._widths = [cell_len(h) for h in self._headings]
+        self._widen(self._rows)  # type: ignore[arg-type]
+        self._relayout()
+
+    def set_row_source(self, count: int, row_at: Callable[[int], Sequence[str]]) -> None:
+        """Show ``count`` rows, row ``i`` being ``row_at(i)`` (one string per column), each made when
+        first drawn or read: a screenful now (so the first frame has its column widths), the rest
+        once the screen has settled, ``FILL_BATCH`` per turn of the event loop. The cursor stays on
+        its row number."""
+        self._source += 1
+        self._row_at = row_at
+        self._rows = [None] * max(0, int(count))
+        self._unmade = 0
+        self._widths = [cell_len(h) for h in self._headings]
+        top = int(self.scroll_offset.y)
+        self._make(top, top + max(self.size.height, self.app.size.height if self.is_attached else 0))
+        self._relayout()
+        if self._rows:
+            source = self._source
+            self.call_after_refresh(lambda: self.call_after_refresh(self._fill, source))
+
+    def _widen(self, rows: Sequence[tuple[str, ...]]) -> bool:
+        """Widen the columns to these rows' cells; True if any column grew."""
+        widths = self._widths
+        grew = False
+        for row in rows:
             for i, text in enumerate(row[:len(widths)]):
                 n = cell_len(text)
                 if n > widths[i]:
                     widths[i] = n
-        self._widths = widths
+                    grew = True
+        return grew
+
+    def _relayout(self) -> None:
+        """After the rows or the widths changed: lines drawn again, the scroll area resized."""
         self._cache.clear()
         self._cursor = min(self._cursor, max(0, len(self._rows) - 1))
         self.virtual_size = Size(self._line_width(), len(self._rows) + 1)
         self.refresh()
+
+    def _make(self, start: int, stop: int) -> None:
+        """Make the rows of the source in [start, stop) not made yet (widening the columns)."""
+        rows = self._rows
+        start, stop = max(0, start), min(len(rows), stop)
+        if self._row_at is None or start >= stop:
+            return
+        made = []
+        for i in range(start, stop):
+            if rows[i] is None:
+                row = rows[i] = tuple(self._row_at(i))
+                made.append(row)
+        if made and self._widen(made):
+            self._relayout()
+
+    def _fill(self, source: int) -> None:
+        """Make the next batch of rows not made yet; again on the next turn until every row is made."""
+        if source != self._source or not self.is_attached:
+            return
+        rows = self._rows
+        at = self._unmade
+        while at < len(rows) and rows[at] is not None:
+            at += 1
+        self._make(at, at + FILL_BATCH)
+        self._unmade = at = min(len(rows), at + FILL_BATCH)
+        if at < len(rows):
+            self.call_later(self._fill, source)
+
+    def render_lines(self, crop: Region) -> list[Strip]:
+        top = int(self.scroll_offset.y)
+        self._make(top, top + self.size.height)  # the rows on screen, before any line is drawn
+        return super().render_lines(crop)
 
     def set_row(self, index: int, cells: Sequence[str]) -> None:
         """Replace one row's cells (a wider cell than its column is cut to the column)."""
@@ -119,6 +200,14 @@ class LineTable(ScrollView, can_focus=True):
     @property
     def row_count(self) -> int:
         return len(self._rows)
+
+    def row_cells(self, index: int) -> tuple[str, ...]:
+        """The cells of row ``index`` as given (made now if not yet)."""
+        row = self._rows[index]
+        if row is None:
+            self._make(index, index + 1)
+            row = self._rows[index]
+        return row  # type: ignore[return-value]
 
     @property
     def cursor_row(self) -> int:
@@ -138,6 +227,7 @@ class LineTable(ScrollView, can_focus=True):
 
     def lines_text(self) -> list[str]:
         """The heading line and every row as plain text (whole width, for tests and copying)."""
+        self._make(0, len(self._rows))
         return [self._texts(-1)[0] + self._texts(-1)[1]] + \
             [a + b for a, b in (self._texts(i) for i in range(len(self._rows)))]
 
@@ -154,7 +244,7 @@ class LineTable(ScrollView, can_focus=True):
         got = self._cache.get(r)
         if got is not None:
             return got
-        cells = self._headings if r < 0 else self._rows[r]
+        cells = self._headings if r < 0 else self.row_cells(r)
         parts = []
         for i, w in enumerate(self._widths):
             text = cells[i] if i < len(cells) else ""
