@@ -1,4 +1,4 @@
-"""A table of rows for the list screens (shortlist, findings): the keys move between rows.
+"""A table of rows for the shortlist screen: the keys move between rows.
 
 ``RowTable`` is Textual's DataTable with a row cursor where j/k move like the
 arrows, Home/End go to the first/last row (not sideways: a list screen is read
