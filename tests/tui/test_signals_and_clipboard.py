@@ -84,3 +84,82 @@ def test_stop_all_ends_a_hanging_tool_at_once(tmp_path):
         assert results == []  # nothing is reported after quitting
     finally:
         clipboard.reset()
+
+
+def test_a_stuck_exit_is_ended_by_the_watchdog_after_the_grace(monkeypatch):
+    """The app is asked to exit; when the process is still there after the grace, it is ended by hand."""
+    ended = []
+    monkeypatch.setattr(terminal_signals, "_end_now", ended.append)
+    app = FakeApp()
+    on_signal = terminal_signals.signal_handler(app, grace=0.2)
+    try:
+        on_signal(signal.SIGHUP)
+        assert app.codes == [128 + signal.SIGHUP] and ended == []  # asked first, not ended at once
+        for _ in range(300):
+            if ended:
+                break
+            time.sleep(0.01)
+        assert ended == [signal.SIGHUP]
+    finally:
+        terminal_signals.uninstall()
+
+
+def test_no_watchdog_for_a_headless_app_and_uninstall_cancels_one(monkeypatch):
+    ended = []
+    monkeypatch.setattr(terminal_signals, "_end_now", ended.append)
+    headless = FakeApp()
+    headless.is_headless = True
+
+    async def main():
+        assert terminal_signals.install(headless)
+        try:
+            os.kill(os.getpid(), signal.SIGTERM)
+            for _ in range(100):
+                await asyncio.sleep(0.01)
+                if headless.codes:
+                    break
+            assert not terminal_signals._watchdogs
+        finally:
+            terminal_signals.uninstall()
+
+    asyncio.run(main())
+    on_signal = terminal_signals.signal_handler(FakeApp(), grace=0.2)
+    on_signal(signal.SIGTERM)
+    terminal_signals.uninstall()
+    time.sleep(0.4)
+    assert ended == [] and headless.codes == [128 + signal.SIGTERM]
+
+
+STUCK_PROCESS = r"""
+import asyncio, os, signal, sys, threading
+from chaintriage.tui import terminal_signals
+
+class StuckApp:  # its ordinary exit never finishes, and a worker thread waits for ever
+    is_headless = False
+    def exit(self, return_code=0):
+        pass
+
+async def main():
+    assert terminal_signals.install(StuckApp())
+    threading.Thread(target=threading.Event().wait).start()  # not a daemon: holds the interpreter
+    print("ready", flush=True)
+    await asyncio.Event().wait()
+
+asyncio.run(main())
+"""
+
+
+def test_a_process_whose_exit_hangs_still_ends_on_sighup_with_129():
+    """[C] status 128 + N for signal N; the process must not outlive its terminal."""
+    import subprocess
+
+    proc = subprocess.Popen([sys.executable, "-c", STUCK_PROCESS], stdout=subprocess.PIPE,
+                            stderr=subprocess.DEVNULL, text=True)
+    try:
+        assert proc.stdout.readline().strip() == "ready"
+        proc.send_signal(signal.SIGHUP)
+        status = proc.wait(timeout=terminal_signals.STOP_GRACE_S + 20)
+    finally:
+        if proc.poll() is None:
+            proc.kill()
+    assert status == 128 + signal.SIGHUP
