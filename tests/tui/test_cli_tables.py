@@ -163,3 +163,11 @@ def test_numbers_near_the_float_limit_print_no_numpy_warnings(tmp_path):
     assert "nan" not in (out + err).lower() and "inf " not in (out + err).lower()
     # every cell stays short: huge numbers in scientific notation, not hundreds of digits
     assert max(len(cell) for cell in out.split()) < 20
+
+
+def test_table_names_an_asked_expiry_that_no_contract_has(chain_csv, capsys):
+    """[C] asking for an expiry the file lacks is an unusable request: status 2, the expiries there listed."""
+    path, _, _ = chain_csv
+    code, out, err = run(capsys, "table", str(path), "--expiry", "2027-03-19", "--format", "csv")
+    assert code == 2 and out == ""
+    assert "no contracts expire on 2027-03-19; expiries: 2027-01-15, 2027-02-19" in err

@@ -178,10 +178,7 @@ def _run_table_in_parts(args: argparse.Namespace, overrides, column_map, setting
         error("no usable snapshot")
         return EXIT_UNUSABLE
     if wanted:
-        missing = [w for w in wanted if w not in present]
-        if missing:
-            have = ", ".join(sorted(f"{e:%Y-%m-%d}" for e in present))
-            error(f"no contracts expire on {', '.join(f'{m:%Y-%m-%d}' for m in missing)}; expiries: {have}")
+        if _say_missing_expiries(wanted, present):
             return EXIT_UNUSABLE
         stream = TableStream(args.format, StdoutWriter())
         for frame in kept:
@@ -194,6 +191,15 @@ def _run_table_in_parts(args: argparse.Namespace, overrides, column_map, setting
     if compare is None:
         return status
     return finish_with_history(args, compare.loads, compare.extra, status)
+
+
+def _say_missing_expiries(wanted, present) -> bool:
+    """Print which asked expiries no contract has (and those that exist); True when any is missing."""
+    missing = [w for w in wanted if w not in present]
+    if missing:
+        have = ", ".join(sorted(f"{e:%Y-%m-%d}" for e in present))
+        error(f"no contracts expire on {', '.join(f'{m:%Y-%m-%d}' for m in missing)}; expiries: {have}")
+    return bool(missing)
 
 
 def run_table(args: argparse.Namespace) -> int:
@@ -210,10 +216,7 @@ def run_table(args: argparse.Namespace) -> int:
     wanted = _wanted_expiries(args)
     if wanted:
         present = {e for s in result.snapshots for e in s.contracts["expiry"].unique()}
-        missing = [w for w in wanted if w not in present]
-        if missing:
-            have = ", ".join(sorted(f"{e:%Y-%m-%d}" for e in present))
-            error(f"no contracts expire on {', '.join(f'{m:%Y-%m-%d}' for m in missing)}; expiries: {have}")
+        if _say_missing_expiries(wanted, present):
             return EXIT_UNUSABLE
     stream = TableStream(args.format, StdoutWriter())
     model_findings = []

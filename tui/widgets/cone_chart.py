@@ -17,6 +17,8 @@ import numpy as np
 from rich.style import Style
 from rich.text import Text
 
+from chaintriage.tui.widgets.chart_grid import grid_lines
+
 #: Glyphs: (unicode, ascii).
 GLYPHS = {"range": ("·", "."), "quartiles": ("░", ":"), "median": ("─", "-"), "implied": ("●", "o"),
           "current": ("+", "+")}
@@ -89,20 +91,7 @@ def cone_chart(columns_days: np.ndarray, quantiles: dict[str, np.ndarray], windo
         if np.isfinite(d) and np.isfinite(v) and d > 0:
             cells[row_of(float(v))][col_of(float(d))] = (GLYPHS["implied"][g], st.implied)
 
-    rows: list[Text] = []
-    label_rows = {0: hi, plot_h // 2: (hi + lo) / 2, plot_h - 1: lo}
-    bar = "|" if ascii_only else "│"
-    for r in range(plot_h):
-        line = Text(no_wrap=True, overflow="crop")
-        label = f"{100 * label_rows[r]:5.1f}%" if r in label_rows else ""
-        line.append(f"{label:>6}", style=st.dim)
-        line.append(bar, style=st.dim)
-        for ch, style in cells[r]:
-            line.append(ch, style=style)
-        rows.append(line)
-    axis = Text(no_wrap=True, overflow="crop")
-    axis.append(" " * 6 + ("+" if ascii_only else "└") + ("-" if ascii_only else "─") * plot_w, style=st.dim)
-    rows.append(axis)
+    rows = grid_lines(cells, hi, lo, st.dim, ascii_only)
     under = [" "] * (plot_w + 8)
     for w in windows:
         label = f"{int(w)}"

@@ -16,6 +16,8 @@ import numpy as np
 from rich.style import Style
 from rich.text import Text
 
+from chaintriage.tui.widgets.chart_grid import grid_lines
+
 #: Glyphs per series: (unicode, ascii).
 GLYPHS = {"atm": ("●", "o"), "ex_event": ("◆", "+"), "forward": ("·", ".")}
 EVENT_COLUMN = ("┊", ":")
@@ -92,20 +94,7 @@ def term_chart(t_years: Sequence[float], series: dict[str, Sequence[float]], eve
             if np.isfinite(x) and x > 0 and np.isfinite(v):
                 cells[row_of(float(v))][col_of(float(x))] = (glyph, style)
 
-    rows: list[Text] = []
-    label_rows = {0: hi, plot_h // 2: (hi + lo) / 2, plot_h - 1: lo}
-    bar = "|" if ascii_only else "│"
-    for r in range(plot_h):
-        line = Text(no_wrap=True, overflow="crop")
-        label = f"{100 * label_rows[r]:5.1f}%" if r in label_rows else ""
-        line.append(f"{label:>6}", style=st.dim)
-        line.append(bar, style=st.dim)
-        for ch, style in cells[r]:
-            line.append(ch, style=style)
-        rows.append(line)
-    axis = Text(no_wrap=True, overflow="crop")
-    axis.append(" " * 6 + ("+" if ascii_only else "└") + ("-" if ascii_only else "─") * plot_w, style=st.dim)
-    rows.append(axis)
+    rows = grid_lines(cells, hi, lo, st.dim, ascii_only)
     under = [" "] * plot_w
     days_label = f"{t_max:.2f}y"
     for c, letter in letters:
