@@ -15,6 +15,8 @@ import sys
 import threading
 import time
 
+import pytest
+
 from chaintriage.tui import clipboard, files, terminal_signals
 from chaintriage.tui.clipboard import CopyOutcome, copy_in_background, run_tools
 
@@ -24,6 +26,14 @@ def _tool(tmp_path, name, body):
     path.write_text(f"#!{sys.executable}\n{body}\n", encoding="utf-8")
     path.chmod(path.stat().st_mode | stat.S_IXUSR)
     return str(path)
+
+
+@pytest.fixture(autouse=True)
+def copies_allowed_after_each_test():
+    """A signal stops clipboard copies for the whole process: allow them again for the tests after."""
+    yield
+    terminal_signals.uninstall()
+    clipboard.reset()
 
 
 class FakeApp:
@@ -102,6 +112,7 @@ def test_a_stuck_exit_is_ended_by_the_watchdog_after_the_grace(monkeypatch):
         assert ended == [signal.SIGHUP]
     finally:
         terminal_signals.uninstall()
+        clipboard.reset()  # the signal stopped clipboard copies for this process
 
 
 def test_no_watchdog_for_a_headless_app_and_uninstall_cancels_one(monkeypatch):
@@ -126,6 +137,7 @@ def test_no_watchdog_for_a_headless_app_and_uninstall_cancels_one(monkeypatch):
     on_signal = terminal_signals.signal_handler(FakeApp(), grace=0.2)
     on_signal(signal.SIGTERM)
     terminal_signals.uninstall()
+    clipboard.reset()  # the signals stopped clipboard copies for this process
     time.sleep(0.4)
     assert ended == [] and headless.codes == [128 + signal.SIGTERM]
 
