@@ -555,20 +555,24 @@ class TargetViewScreen(Screen):
         event.stop()
         self.action_open_ladder()
 
-    def action_mark(self) -> None:
+    def _row_contract(self, verb: str, handler: Callable | None) -> dict | None:
+        """The highlighted row's contract as a dict, or None (and say so) when there is none or no ``handler``."""
         got = self._current_row()
-        if got is None or self._on_mark is None:
-            self._say(f"nothing to mark: this expiry has no usable {self.target.side}")
-            return
-        self._on_mark(self.view.annotated.contracts.iloc[got[1]].to_dict())
-        self.redraw()
+        if got is None or handler is None:
+            self._say(f"nothing to {verb}: this expiry has no usable {self.target.side}")
+            return None
+        return self.view.annotated.contracts.iloc[got[1]].to_dict()
+
+    def action_mark(self) -> None:
+        contract = self._row_contract("mark", self._on_mark)
+        if contract is not None:
+            self._on_mark(contract)
+            self.redraw()
 
     def action_copy(self) -> None:
-        got = self._current_row()
-        if got is None or self._on_copy is None:
-            self._say(f"nothing to copy: this expiry has no usable {self.target.side}")
-            return
-        self._on_copy(self.view.annotated.contracts.iloc[got[1]].to_dict())
+        contract = self._row_contract("copy", self._on_copy)
+        if contract is not None:
+            self._on_copy(contract)
 
     def action_close(self) -> None:
         close(self)
