@@ -107,3 +107,15 @@ async def wait_copied(app: ChainTriageApp, pilot, timeout: float = 10.0) -> list
             return titles
         await pilot.pause(0.02)
     raise AssertionError("the app never said what the copy did")
+
+
+async def type_export_path(app: ChainTriageApp, pilot, path) -> None:
+    """From the shortlist: `w`, type ``path`` into the export prompt, Enter."""
+    from chaintriage.tui.screens.path_prompt import PathPrompt
+
+    await pilot.press("w")
+    prompt = app.screen
+    assert isinstance(prompt, PathPrompt)
+    prompt.query_one("#path-input").value = str(path)
+    await pilot.press("enter")
+    await pilot.pause()

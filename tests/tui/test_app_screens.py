@@ -16,12 +16,11 @@ from chaintriage.tui.screens.column_picker import ColumnPicker
 from chaintriage.tui.screens.confirm_dialog import ConfirmDialog
 from chaintriage.tui.screens.findings import FindingsScreen
 from chaintriage.tui.screens.help import HelpScreen
-from chaintriage.tui.screens.path_prompt import PathPrompt
 from chaintriage.tui.screens.shortlist import ShortlistScreen
 from chaintriage.tui.settings import load_settings
 from chaintriage.tui.widgets.strike_grid import COLUMNS
 
-from .app_support import bar, demo_annotated, make_app, notes, run
+from .app_support import bar, demo_annotated, make_app, notes, run, type_export_path
 
 
 async def mark(pilot, *keys):
@@ -82,18 +81,10 @@ def test_export_writes_csv_and_markdown_and_asks_before_replacing(tmp_path):
     target = tmp_path / "picks.csv"
     md = tmp_path / "picks.md"
 
-    async def type_path(pilot, path):
-        await pilot.press("w")
-        prompt = app.screen
-        assert isinstance(prompt, PathPrompt)
-        prompt.query_one("#path-input").value = str(path)
-        await pilot.press("enter")
-        await pilot.pause()
-
     async def scenario(pilot):
         await mark(pilot)
         await pilot.press("s")
-        await type_path(pilot, target)
+        await type_export_path(app, pilot, target)
         rows = list(csv.DictReader(target.open(newline="", encoding="utf-8")))
         assert len(rows) == 1 and rows[0]["underlying"] == "OSPX"
         oracle = demo_annotated()[0].contracts
@@ -105,16 +96,16 @@ def test_export_writes_csv_and_markdown_and_asks_before_replacing(tmp_path):
         before = target.read_bytes()
         # a second contract, then the same path: a question, and "no" keeps the file
         await pilot.press("escape", "down", "m", "s")
-        await type_path(pilot, target)
+        await type_export_path(app, pilot, target)
         assert isinstance(app.screen, ConfirmDialog)
         await pilot.press("n")
         assert target.read_bytes() == before
-        await type_path(pilot, target)
+        await type_export_path(app, pilot, target)
         assert isinstance(app.screen, ConfirmDialog)
         await pilot.press("y")
         await pilot.pause()
         assert len(list(csv.DictReader(target.open(newline="", encoding="utf-8")))) == 2
-        await type_path(pilot, md)
+        await type_export_path(app, pilot, md)
         text = md.read_text(encoding="utf-8")
         assert text.startswith("| underlying |") and text.count("\n| OSPX |") == 2
 

@@ -19,7 +19,7 @@ from chaintriage.tui.screens.confirm_dialog import ConfirmDialog
 from chaintriage.tui.screens.path_prompt import PathPrompt
 from chaintriage.tui.shortlist import ContractKey, Shortlist, default_export_path, package_folders
 
-from .app_support import demo_paths, make_app, notes, run
+from .app_support import demo_paths, make_app, notes, run, type_export_path
 
 
 def test_shortlist_csv_writes_numbers_as_table_csv_does(capsys):
@@ -63,15 +63,6 @@ def test_default_export_path_is_dated_and_never_inside_the_package(tmp_path):
     assert default_export_path(now, cwd=package_folders()[0], home=home).parent == home
 
 
-async def _type_export(app, pilot, path):
-    await pilot.press("w")
-    prompt = app.screen
-    assert isinstance(prompt, PathPrompt)
-    prompt.query_one("#path-input").value = str(path)
-    await pilot.press("enter")
-    await pilot.pause()
-
-
 def test_export_prompt_proposes_a_dated_name_and_says_where(tmp_path, monkeypatch):
     monkeypatch.chdir(tmp_path)
     app = make_app()
@@ -96,14 +87,14 @@ def test_a_txt_name_writes_a_markdown_table_and_an_unknown_ending_is_asked(tmp_p
 
     async def scenario(pilot):
         await pilot.press("m", "s")
-        await _type_export(app, pilot, tmp_path / "picks.txt")
+        await type_export_path(app, pilot, tmp_path / "picks.txt")
         assert (tmp_path / "picks.txt").read_text(encoding="utf-8").startswith("| underlying |")
         assert any("as a Markdown table" in n for n in notes(app))
-        await _type_export(app, pilot, tmp_path / "picks.dat")
+        await type_export_path(app, pilot, tmp_path / "picks.dat")
         assert isinstance(app.screen, ConfirmDialog)
         await pilot.press("n")
         assert not (tmp_path / "picks.dat").exists()
-        await _type_export(app, pilot, tmp_path / "picks.dat")
+        await type_export_path(app, pilot, tmp_path / "picks.dat")
         await pilot.press("y")
         await pilot.pause()
         assert (tmp_path / "picks.dat").read_text(encoding="utf-8").startswith("underlying,as_of,")
