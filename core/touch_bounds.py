@@ -35,6 +35,8 @@ from .distribution import prob_above
 #: Grid of y for the upper bound: this many points over +/- ``Y_SPAN_SD`` at-the-money standard deviations.
 Y_POINTS = 801
 Y_SPAN_SD = 8.0
+#: Levels per block of the upper-bound minimum (keeps each block's ratios in the processor's cache).
+RATIO_BLOCK = 64
 
 
 def _undiscounted_black(forward: float, strike: np.ndarray, w: np.ndarray, is_call: bool) -> np.ndarray:
@@ -46,6 +48,39 @@ def _undiscounted_black(forward: float, strike: np.ndarray, w: np.ndarray, is_ca
         if is_call:
             return forward * ndtr(d1) - strike * ndtr(d2)
         return strike * ndtr(-d2) - forward * ndtr(-d1)
+
+
+def _lowest_ratio(price: np.ndarray, y: np.ndarray, h: np.ndarray, puts: bool) -> np.ndarray:
+    """min over the grid ``y`` of price(y) / |y - h| for each level ``h``: y > h with puts, y < h with calls.
+
+    inf where no grid point lies on that side; NaN where a price on that side
+    is NaN. Levels go in blocks of ``RATIO_BLOCK``, each reading only the part
+    of the grid that some level of the block can use (y is sorted).
+    """
+    out = np.full(h.size, np.inf)
+    if not h.size:
+        return out
+    order = np.argsort(h)
+    hs = h[order]
+    got = np.empty(h.size)
+    for a in range(0, h.size, RATIO_BLOCK):
+        hb = hs[a:a + RATIO_BLOCK]
+        if puts:  # columns right of the block's lowest level
+            j = int(np.searchsorted(y, hb[0], side="right"))
+            yb, pb = y[j:], price[j:]
+        else:  # columns left of its highest level
+            j = int(np.searchsorted(y, hb[-1], side="left"))
+            yb, pb = y[:j], price[:j]
+        if not yb.size:
+            got[a:a + hb.size] = np.inf
+            continue
+        with np.errstate(divide="ignore", invalid="ignore"):
+            gap = (yb[None, :] - hb[:, None]) if puts else (hb[:, None] - yb[None, :])
+            ratio = np.full(gap.shape, np.inf)
+            np.divide(pb[None, :], gap, out=ratio, where=gap > 0)
+        got[a:a + hb.size] = ratio.min(axis=1)
+    out[order] = got
+    return out
 
 
 def touch_bounds(smile, forward: float, spot: float, levels) -> tuple[np.ndarray, np.ndarray]:
@@ -77,11 +112,9 @@ def touch_bounds(smile, forward: float, spot: float, levels) -> tuple[np.ndarray
     w = np.asarray(smile.total_variance(k), dtype=float)
     put = _undiscounted_black(forward, y, w, False)
     call = _undiscounted_black(forward, y, w, True)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        gap = y[None, :] - h_eff[:, None]  # y - H'
-        r_put = np.where(gap > 0, put[None, :] / gap, np.inf)
-        r_call = np.where(gap < 0, call[None, :] / -gap, np.inf)
-    hi = np.where(below, r_put.min(axis=1), r_call.min(axis=1))
+    hi = np.empty(h.size)
+    hi[below] = _lowest_ratio(put, y, h_eff[below], True)
+    hi[~below] = _lowest_ratio(call, y, h_eff[~below], False)
     hi = np.clip(hi, 0.0, 1.0)
     lo = np.clip(lo, 0.0, 1.0)
     hi = np.fmax(hi, lo)
