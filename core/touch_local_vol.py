@@ -144,21 +144,27 @@ def _solve_levels(surface: LocalVolSurface, t_end: float, lv: np.ndarray, lo: fl
     coef[0, :, 1:-1] = var / (hm * (hm + hp)) - drift * hp / (hm * (hm + hp))
     coef[1, :, 1:-1] = -var / (hm * hp) + drift * (hp - hm) / (hm * hp)
     coef[2, :, 1:-1] = var / (hp * (hm + hp)) + drift * hm / (hp * (hm + hp))
-    A, B, C = coef[:, :, node] * dt  # (n_time, total) each, already times dt
-    A[:, starts] *= 0.0  # couplings across block edges are boundary values, kept apart below
-    bc = np.zeros((n_time, total))
-    bc[:, starts] = coef[0][:, node[starts]] * dt * left_bc
-    bc[:, ends] += coef[2][:, node[ends]] * dt * right_bc
-    C[:, ends] = 0.0
+    a_n, b_n, c_n = coef * dt  # (n_time, n) each, times dt, per grid node
     theta = np.where(np.arange(n_time) < RANNACHER_STEPS, 1.0, 0.5)[:, None]
     ex = 1.0 - theta
     # (I - theta dt L) u_new = (I + (1 - theta) dt L) u + dt (boundary terms; theta + (1 - theta) = 1).
-    dl = -theta * A[:, 1:]
-    du = -theta * C[:, :-1]
-    diag = 1.0 - theta * B
-    e0 = 1.0 + ex * B
-    em = ex * A
-    ep = ex * C
+    # Every factor is formed per grid node and then read out per unknown (a node appears in many blocks).
+    dl = (-theta * a_n)[:, node[1:]]
+    du = (-theta * c_n)[:, node[:-1]]
+    diag = (1.0 - theta * b_n)[:, node]
+    e0 = (1.0 + ex * b_n)[:, node]
+    em = (ex * a_n)[:, node]
+    ep = (ex * c_n)[:, node]
+    # Couplings across block edges are boundary values, kept apart: no sub-diagonal at a block's first
+    # unknown, no super-diagonal at its last.
+    a_first = a_n[:, node[starts]] * 0.0
+    dl[:, starts[1:] - 1] = -theta * a_first[:, 1:]
+    em[:, starts] = ex * a_first
+    du[:, ends[:-1]] = -theta * 0.0
+    ep[:, ends] = ex * 0.0
+    bc = np.zeros((n_time, total))
+    bc[:, starts] = a_n[:, node[starts]] * left_bc
+    bc[:, ends] += c_n[:, node[ends]] * right_bc
 
     u = np.zeros(total)
     for k in range(n_time):
