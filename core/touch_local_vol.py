@@ -106,9 +106,40 @@ def _time_grid(surface: LocalVolSurface, t_end: float, n_time: int) -> np.ndarra
     return np.unique(np.concatenate([s, knots]).clip(0.0, t_end))
 
 
-def _solve_levels(surface: LocalVolSurface, t_end: float, lv: np.ndarray, lo: float, hi: float,
-                  near: float, alpha: float, n_space: int, n_time: int) -> tuple[np.ndarray, float]:
-    """u(0, 0) for each level lv (ln(H/S_0), nonzero, inside (lo, hi)); and the guarded share."""
+@dataclass
+class _Levels:
+    """One expiry's solved levels laid out for time stepping: the grid, its blocks and per-node factors.
+
+    The unknowns of level b are grid nodes ``node[starts[b]] .. node[ends[b]]``;
+    ``a``, ``b``, ``c`` are the stencil's sub-, main- and super-diagonal
+    factors times dt, shape (steps, nodes); ``theta`` the implicitness of each
+    step (1 for the first ``RANNACHER_STEPS``, then 1/2).
+    """
+
+    node: np.ndarray
+    starts: np.ndarray
+    ends: np.ndarray
+    left_bc: np.ndarray
+    right_bc: np.ndarray
+    read: np.ndarray
+    a: np.ndarray
+    b: np.ndarray
+    c: np.ndarray
+    theta: np.ndarray
+    guarded: float
+
+    @property
+    def steps(self) -> int:
+        return self.a.shape[0]
+
+    @property
+    def unknowns(self) -> int:
+        return self.node.size
+
+
+def _lay_out(surface: LocalVolSurface, t_end: float, lv: np.ndarray, lo: float, hi: float,
+             near: float, alpha: float, n_space: int, n_time: int) -> _Levels:
+    """Grid, blocks and stencil factors for each level lv (ln(H/S_0), nonzero, inside (lo, hi))."""
     x = _grid(lv, lo, hi, n_space, alpha)
     n = x.size
     i0 = int(np.searchsorted(x, 0.0))
@@ -144,38 +175,89 @@ def _solve_levels(surface: LocalVolSurface, t_end: float, lv: np.ndarray, lo: fl
     coef[0, :, 1:-1] = var / (hm * (hm + hp)) - drift * hp / (hm * (hm + hp))
     coef[1, :, 1:-1] = -var / (hm * hp) + drift * (hp - hm) / (hm * hp)
     coef[2, :, 1:-1] = var / (hp * (hm + hp)) + drift * hm / (hp * (hm + hp))
-    a_n, b_n, c_n = coef * dt  # (n_time, n) each, times dt, per grid node
+    a, b, c = coef * dt  # (n_time, n) each, times dt, per grid node
     theta = np.where(np.arange(n_time) < RANNACHER_STEPS, 1.0, 0.5)[:, None]
-    ex = 1.0 - theta
-    # (I - theta dt L) u_new = (I + (1 - theta) dt L) u + dt (boundary terms; theta + (1 - theta) = 1).
-    # Every factor is formed per grid node and then read out per unknown (a node appears in many blocks).
-    dl = (-theta * a_n)[:, node[1:]]
-    du = (-theta * c_n)[:, node[:-1]]
-    diag = (1.0 - theta * b_n)[:, node]
-    e0 = (1.0 + ex * b_n)[:, node]
-    em = (ex * a_n)[:, node]
-    ep = (ex * c_n)[:, node]
-    # Couplings across block edges are boundary values, kept apart: no sub-diagonal at a block's first
-    # unknown, no super-diagonal at its last.
-    a_first = a_n[:, node[starts]] * 0.0
-    dl[:, starts[1:] - 1] = -theta * a_first[:, 1:]
-    em[:, starts] = ex * a_first
-    du[:, ends[:-1]] = -theta * 0.0
-    ep[:, ends] = ex * 0.0
-    bc = np.zeros((n_time, total))
-    bc[:, starts] = a_n[:, node[starts]] * left_bc
-    bc[:, ends] += c_n[:, node[ends]] * right_bc
+    return _Levels(node, starts, ends, left_bc, right_bc, read, a, b, c, theta, guarded)
 
-    u = np.zeros(total)
-    for k in range(n_time):
-        rhs = e0[k] * u + bc[k]
-        rhs[1:] += em[k, 1:] * u[:-1]
-        rhs[:-1] += ep[k, :-1] * u[1:]
-        *_, sol, info = dgtsv(dl[k], diag[k], du[k], rhs[:, None], 1, 1, 1, 1)
+
+#: The seven step arrays, in the order ``_write_steps`` fills them.
+_STEP_ARRAYS = ("dl", "diag", "du", "e0", "em", "ep", "bc")
+
+
+def _write_steps(lev: _Levels, out: dict, rows: slice, cols: slice) -> None:
+    """Write one expiry's step factors into ``out[name][rows, cols]`` (rows: its steps, cols: its unknowns).
+
+    (I - theta dt L) u_new = (I + (1 - theta) dt L) u + dt (boundary terms; theta + (1 - theta) = 1):
+    ``diag``, ``dl`` (coupling of unknown i to i - 1), ``du`` (to i + 1) form the left side,
+    ``e0``, ``em``, ``ep`` and ``bc`` the right. Couplings across block edges are boundary values,
+    kept apart (in ``bc``): none from a block's first unknown to the left, none from its last to the
+    right, so blocks, and expiries written side by side, never mix. Each factor is formed per grid
+    node and read out per unknown (a node appears in many blocks).
+    """
+    theta = lev.theta
+    ex = 1.0 - theta
+    node, starts, ends = lev.node, lev.starts, lev.ends
+    view = {name: out[name][rows, cols] for name in _STEP_ARRAYS}
+    for name, per_node in (("dl", -theta * lev.a), ("diag", 1.0 - theta * lev.b), ("du", -theta * lev.c),
+                           ("e0", 1.0 + ex * lev.b), ("em", ex * lev.a), ("ep", ex * lev.c)):
+        np.take(per_node, node, axis=1, out=view[name], mode="clip")  # node is in range: clip never acts
+    a_first = lev.a[:, node[starts]] * 0.0
+    view["dl"][:, starts] = -theta * a_first
+    view["em"][:, starts] = ex * a_first
+    view["du"][:, ends] = -theta * 0.0
+    view["ep"][:, ends] = ex * 0.0
+    view["dl"][:, 0] = 0.0  # nothing left of the expiry's first unknown
+    view["em"][:, 0] = 0.0
+    bc = view["bc"]
+    bc[...] = 0.0
+    bc[:, starts] = lev.a[:, node[starts]] * lev.left_bc
+    bc[:, ends] += lev.c[:, node[ends]] * lev.right_bc
+
+
+def _march(levels: list[_Levels]) -> list[np.ndarray] | None:
+    """u(0, 0) per level of each expiry, all expiries stepped side by side in one tridiagonal system.
+
+    Expiries are placed longest first and aligned on their last step, so at
+    every step the ones already under way form a prefix of the unknowns and
+    one ``dgtsv`` call solves them all. None when LAPACK reports a singular
+    system or a value is not finite (the caller then steps each expiry alone).
+    """
+    order = sorted(range(len(levels)), key=lambda j: -levels[j].steps)
+    n_steps = levels[order[0]].steps
+    width = np.cumsum([0] + [levels[j].unknowns for j in order])
+    out = {name: np.empty((n_steps, int(width[-1]))) for name in _STEP_ARRAYS}
+    for at, j in enumerate(order):
+        _write_steps(levels[j], out, slice(n_steps - levels[j].steps, None), slice(width[at], width[at + 1]))
+    begins = np.array([n_steps - levels[j].steps for j in order])
+    active = width[1:][np.searchsorted(begins, np.arange(n_steps), side="right") - 1]
+    dl, diag, du, e0, em, ep, bc = (out[name] for name in _STEP_ARRAYS)
+    u = np.zeros(int(width[-1]))
+    for k in range(n_steps):
+        p = int(active[k])
+        uk = u[:p]
+        rhs = e0[k, :p] * uk + bc[k, :p]
+        rhs[1:] += em[k, 1:p] * uk[:-1]
+        rhs[:-1] += ep[k, :p - 1] * uk[1:]
+        *_, sol, info = dgtsv(dl[k, 1:p], diag[k, :p], du[k, :p - 1], rhs[:, None], 1, 1, 1, 1)
         if info != 0:
-            return np.full(lv.size, np.nan), 1.0
-        u = sol[:, 0]
-    return np.clip(u[read], 0.0, 1.0), guarded
+            return None
+        u[:p] = sol[:, 0]
+    got = [None] * len(levels)
+    for at, j in enumerate(order):
+        got[j] = u[width[at]:width[at + 1]][levels[j].read]
+    if len(levels) > 1 and not all(np.isfinite(g).all() for g in got):
+        return None
+    return got
+
+
+def _solve_levels(surface: LocalVolSurface, t_end: float, lv: np.ndarray, lo: float, hi: float,
+                  near: float, alpha: float, n_space: int, n_time: int) -> tuple[np.ndarray, float]:
+    """u(0, 0) for each level lv (ln(H/S_0), nonzero, inside (lo, hi)); and the guarded share."""
+    lev = _lay_out(surface, t_end, lv, lo, hi, near, alpha, n_space, n_time)
+    got = _march([lev])
+    if got is None:
+        return np.full(lv.size, np.nan), 1.0
+    return np.clip(got[0], 0.0, 1.0), lev.guarded
 
 
 def _pick(xs: np.ndarray, scale: float, most: int) -> np.ndarray:
