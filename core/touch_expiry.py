@@ -20,6 +20,8 @@ Units: ``t`` years on the smiles' clock; prices in price units.
 
 from __future__ import annotations
 
+import os
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -28,7 +30,7 @@ from .findings import NOTE, WARNING, Finding
 from .local_vol import LocalVolSurface
 from .touch import prob_touch_smile
 from .touch_bounds import touch_bounds
-from .touch_local_vol import touch_local_vol
+from .touch_local_vol import touch_local_vol_many
 
 #: Above this share of guarded local-variance points near the forward, the one-vol figure is used instead.
 MAX_GUARDED_SHARE = 0.25
@@ -71,26 +73,69 @@ def expiry_touch(strikes, spot: float, t: np.ndarray, forwards: np.ndarray, smil
     units, smile or None); only expiries with a smile and 0 < t <= t[index]
     build the surface. ``smile_vol``: the smile's vol at each strike (for the one-vol fallback).
     """
-    strikes = np.asarray(strikes, dtype=float)
-    smile = smiles[index]
-    t_e = float(t[index])
-    low, high = touch_bounds(smile, float(forwards[index]), spot, strikes)
+    return expiries_touch([strikes], spot, t, forwards, smiles, [index], [smile_vol], underlying, [label])[0]
+
+
+def expiries_touch(strikes: list, spot: float, t, forwards, smiles: list, indices: list, smile_vols: list,
+                   underlying: str | None = None, labels: list | None = None,
+                   workers: int = 1) -> list[ExpiryTouch]:
+    """``expiry_touch`` for several expiries of one snapshot (``strikes[j]``, ``smile_vols[j]`` of expiry ``indices[j]``).
+
+    The same figures as one ``expiry_touch`` call per expiry, faster: the
+    local-vol time stepping of all of them runs side by side
+    (``touch_local_vol_many``). ``workers`` >= 2 computes the model-free
+    bounds in a second thread meanwhile (numpy releases the GIL in their
+    large array operations); at most ``os.cpu_count()`` threads in all.
+    """
+    t = np.asarray(t, dtype=float)
+    fw = np.asarray(forwards, dtype=float)
+    labels = list(labels) if labels is not None else [None] * len(indices)
+    strikes = [np.asarray(k, dtype=float) for k in strikes]
+    threads = max(1, min(int(workers), os.cpu_count() or 1))
+
+    def bounds(j: int) -> tuple[np.ndarray, np.ndarray]:
+        i = indices[j]
+        return touch_bounds(smiles[i], float(fw[i]), spot, strikes[j])
+
+    pool = ThreadPoolExecutor(1) if threads >= 2 and len(indices) > 1 else None
+    try:
+        pending = [pool.submit(bounds, j) for j in range(len(indices))] if pool else None
+        got_bounds = None if pool else [bounds(j) for j in range(len(indices))]
+        has_smile = np.fromiter((sm is not None for sm in smiles), dtype=bool, count=len(smiles))
+        with np.errstate(invalid="ignore"):
+            usable = has_smile & np.isfinite(t) & (t > 0) & np.isfinite(fw) & (fw > 0)
+        cases, solved = [], []
+        for j, i in enumerate(indices):
+            if getattr(smiles[i], "method", "") in FALLBACK_SMILES:
+                continue
+            use = np.flatnonzero(usable & (t <= t[i]))
+            use = use[np.lexsort((use == i, t[use]))]  # by time, this expiry last among equal times
+            surface = LocalVolSurface.build(t[use], fw[use], spot, [smiles[u] for u in use])
+            cases.append((surface, float(t[i]), strikes[j]))
+            solved.append(j)
+        solutions = dict(zip(solved, touch_local_vol_many(cases)))
+        if pool:
+            got_bounds = [f.result() for f in pending]
+    finally:
+        if pool:
+            pool.shutdown()
+    return [_assemble(strikes[j], spot, float(fw[i]), float(t[i]), smile_vols[j], *got_bounds[j],
+                      solutions.get(j), underlying, labels[j]) for j, i in enumerate(indices)]
+
+
+def _assemble(strikes: np.ndarray, spot: float, forward: float, t_e: float, smile_vol, low: np.ndarray,
+              high: np.ndarray, solution, underlying: str | None, label: str | None) -> ExpiryTouch:
+    """One expiry's figures from its bounds and local-vol solution (None: the smile is a fallback)."""
     findings: list[Finding] = []
 
     def one_vol(reason: str) -> ExpiryTouch:
         findings.append(Finding(WARNING, f"touch: {reason}; P(touch) is the one-vol figure at each strike's "
                                 "smile vol", underlying=underlying, expiry=label))
-        p = prob_touch_smile(spot, float(forwards[index]), strikes, t_e, smile_vol, low)
+        p = prob_touch_smile(spot, forward, strikes, t_e, smile_vol, low)
         return ExpiryTouch(np.asarray(p, dtype=float), low, high, ONE_VOL, findings=findings)
 
-    if getattr(smile, "method", "") in FALLBACK_SMILES:
+    if solution is None:
         return one_vol("this expiry's smile is a fallback, so no local volatility is built from it")
-    use = [i for i in range(len(smiles)) if smiles[i] is not None and np.isfinite(t[i]) and 0 < t[i] <= t_e
-           and np.isfinite(forwards[i]) and forwards[i] > 0]
-    use.sort(key=lambda i: (t[i], i == index))
-    surface = LocalVolSurface.build([t[i] for i in use], [forwards[i] for i in use], spot,
-                                    [smiles[i] for i in use])
-    solution = touch_local_vol(surface, t_e, strikes)
     if solution.guarded_share > MAX_GUARDED_SHARE:
         return one_vol(f"local variance floored or capped at {solution.guarded_share:.0%} of the grid near "
                        "the forward (calendar or butterfly arbitrage in the smiles)")

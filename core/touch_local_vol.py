@@ -17,7 +17,8 @@ two fully implicit (Rannacher) steps, time steps shrinking towards expiry
 level's equation lives on its own part of the grid (from the level to the far
 edge); all of them are stacked into one block-diagonal tridiagonal system and
 solved together by LAPACK's ``dgtsv`` at every time step, so the Python loop
-runs over time steps only. The far edge, ``SPAN_SD`` standard deviations from
+runs over time steps only; ``touch_local_vol_many`` puts several expiries'
+systems side by side in the same way (one call per time step for all of them). The far edge, ``SPAN_SD`` standard deviations from
 spot, has u = 0.
 
 Not every strike gets its own equation: at most ``SOLVED_PER_SIDE`` levels on
@@ -55,6 +56,8 @@ RANNACHER_STEPS = 2
 SOLVED_PER_SIDE = 8
 #: |ln(H/S_0)| below this counts as a level at spot.
 AT_SPOT = 1e-9
+#: Largest side-by-side system of ``touch_local_vol_many`` (time steps x unknowns; 7 float arrays of it).
+BATCH_CELLS = 500_000
 #: Width of the dense part of the grid around spot, in at-the-money standard deviations.
 GRID_CONCENTRATION = 0.5
 
@@ -250,16 +253,6 @@ def _march(levels: list[_Levels]) -> list[np.ndarray] | None:
     return got
 
 
-def _solve_levels(surface: LocalVolSurface, t_end: float, lv: np.ndarray, lo: float, hi: float,
-                  near: float, alpha: float, n_space: int, n_time: int) -> tuple[np.ndarray, float]:
-    """u(0, 0) for each level lv (ln(H/S_0), nonzero, inside (lo, hi)); and the guarded share."""
-    lev = _lay_out(surface, t_end, lv, lo, hi, near, alpha, n_space, n_time)
-    got = _march([lev])
-    if got is None:
-        return np.full(lv.size, np.nan), 1.0
-    return np.clip(got[0], 0.0, 1.0), lev.guarded
-
-
 def _pick(xs: np.ndarray, scale: float, most: int) -> np.ndarray:
     """Indices of the sorted one-sided ``xs`` (ln(H/S_0)) solved by their own equation.
 
@@ -343,16 +336,25 @@ def far_side_probability(surface: LocalVolSurface, t_end: float, x: np.ndarray) 
     return np.where(x < 0, 1.0 - above, above)
 
 
-def touch_local_vol(surface: LocalVolSurface, t_end: float, levels, n_space: int = N_SPACE,
-                    n_time: int = N_TIME, solved_per_side: int = SOLVED_PER_SIDE) -> TouchSolution:
-    """P(the underlying trades at each level at some time in (0, t_end]) under the surface's local vol.
+@dataclass
+class _Plan:
+    """What ``touch_local_vol`` has decided for one expiry before the time stepping, and what it needs after."""
 
-    ``levels``: price units (any shape; duplicates are solved once). At most
-    ``solved_per_side`` levels on each side of spot (spread by rank, nearest
-    and furthest included) get their own equation; the others are
-    interpolated between them (``_interp_side``). ``None``
-    solves every level.
-    """
+    out: np.ndarray
+    ok: np.ndarray
+    ux: np.ndarray
+    inverse: np.ndarray
+    p_unique: np.ndarray
+    sides: list
+    picks: list
+    far: np.ndarray
+    far_spot: np.ndarray
+    levels: _Levels | None
+
+
+def _plan(surface: LocalVolSurface, t_end: float, levels, n_space: int, n_time: int,
+          solved_per_side: int | None) -> TouchSolution | _Plan:
+    """The levels to solve and their grid (a ``_Plan``), or the answer when nothing needs solving."""
     levels = np.asarray(levels, dtype=float)
     out = np.full(levels.shape, np.nan)
     spot = float(np.exp(surface.log_spot))
@@ -382,15 +384,82 @@ def touch_local_vol(surface: LocalVolSurface, t_end: float, levels, n_space: int
     chosen = np.concatenate(picks)
     far = far_side_probability(surface, t_end, ux)
     far_spot = far_side_probability(surface, t_end, np.array([-1e-12, 1e-12]))
-    guarded = 0.0
+    lev = None
     if chosen.size:
-        p_chosen, guarded = _solve_levels(surface, t_end, ux[chosen], lo, hi, 3.0 * sd_atm + abs(carry),
-                                          GRID_CONCENTRATION * sd_atm, n_space, n_time)
+        lev = _lay_out(surface, t_end, ux[chosen], lo, hi, 3.0 * sd_atm + abs(carry),
+                       GRID_CONCENTRATION * sd_atm, n_space, n_time)
+    return _Plan(out, ok, ux, inverse, p_unique, sides, picks, far, far_spot, lev)
+
+
+def _finish(plan: _Plan, u_read: np.ndarray | None) -> TouchSolution:
+    """P(touch) of every level from the solved ones' u(0, 0) (None: the stepping failed, all NaN)."""
+    guarded = 0.0
+    p_unique = plan.p_unique
+    if plan.levels is not None:
+        if u_read is None:
+            p_chosen, guarded = np.full(plan.levels.read.size, np.nan), 1.0
+        else:
+            p_chosen, guarded = np.clip(u_read, 0.0, 1.0), plan.levels.guarded
         at = 0
-        for side, pick, f0 in zip(sides, picks, far_spot):
+        for side, pick, f0 in zip(plan.sides, plan.picks, plan.far_spot):
             p_side = p_chosen[at:at + pick.size]
             at += pick.size
             if side.size:
-                p_unique[side] = _interp_side(ux[pick], p_side, ux[side], far[pick], far[side], f0)
-    out[ok] = p_unique[inverse[ok]]
-    return TouchSolution(out, guarded)
+                p_unique[side] = _interp_side(plan.ux[pick], p_side, plan.ux[side], plan.far[pick],
+                                              plan.far[side], f0)
+    plan.out[plan.ok] = p_unique[plan.inverse[plan.ok]]
+    return TouchSolution(plan.out, guarded)
+
+
+def touch_local_vol(surface: LocalVolSurface, t_end: float, levels, n_space: int = N_SPACE,
+                    n_time: int = N_TIME, solved_per_side: int = SOLVED_PER_SIDE) -> TouchSolution:
+    """P(the underlying trades at each level at some time in (0, t_end]) under the surface's local vol.
+
+    ``levels``: price units (any shape; duplicates are solved once). At most
+    ``solved_per_side`` levels on each side of spot (spread by rank, nearest
+    and furthest included) get their own equation; the others are
+    interpolated between them (``_interp_side``). ``None``
+    solves every level.
+    """
+    return touch_local_vol_many([(surface, t_end, levels)], n_space, n_time, solved_per_side)[0]
+
+
+def touch_local_vol_many(cases, n_space: int = N_SPACE, n_time: int = N_TIME,
+                         solved_per_side: int | None = SOLVED_PER_SIDE,
+                         batch_cells: int = BATCH_CELLS) -> list[TouchSolution]:
+    """``touch_local_vol`` for several (surface, t_end, levels) cases, their time stepping run together.
+
+    The same figures as one call per case: cases are stepped side by side in
+    one tridiagonal system (``_march``) while the system stays under
+    ``batch_cells`` (time steps x unknowns, which bounds the memory: 7 arrays
+    of that many floats); a batch whose stepping fails is stepped case by case.
+    """
+    got: list = [None] * len(cases)
+    batch: list[tuple[int, _Plan]] = []
+
+    def run() -> None:
+        u = _march([plan.levels for _, plan in batch])
+        for at, (i, plan) in enumerate(batch):
+            if u is None and len(batch) > 1:
+                alone = _march([plan.levels])
+                got[i] = _finish(plan, None if alone is None else alone[0])
+            else:
+                got[i] = _finish(plan, None if u is None else u[at])
+        batch.clear()
+
+    for i, (surface, t_end, levels) in enumerate(cases):
+        plan = _plan(surface, t_end, levels, n_space, n_time, solved_per_side)
+        if isinstance(plan, TouchSolution):
+            got[i] = plan
+            continue
+        if plan.levels is None:
+            got[i] = _finish(plan, None)
+            continue
+        if batch:
+            steps = max(plan.levels.steps, *(p.levels.steps for _, p in batch))
+            if steps * (plan.levels.unknowns + sum(p.levels.unknowns for _, p in batch)) > batch_cells:
+                run()
+        batch.append((i, plan))
+    if batch:
+        run()
+    return got
