@@ -56,8 +56,8 @@ RANNACHER_STEPS = 2
 SOLVED_PER_SIDE = 8
 #: |ln(H/S_0)| below this counts as a level at spot.
 AT_SPOT = 1e-9
-#: Largest side-by-side system of ``touch_local_vol_many`` (time steps x unknowns; 7 float arrays of it).
-BATCH_CELLS = 500_000
+#: Largest side-by-side system of ``touch_local_vol_many`` (time steps x unknowns; 5 float arrays of it).
+BATCH_CELLS = 600_000
 #: Width of the dense part of the grid around spot, in at-the-money standard deviations.
 GRID_CONCENTRATION = 0.5
 
@@ -183,34 +183,33 @@ def _lay_out(surface: LocalVolSurface, t_end: float, lv: np.ndarray, lo: float, 
     return _Levels(node, starts, ends, left_bc, right_bc, read, a, b, c, theta, guarded)
 
 
-#: The seven step arrays, in the order ``_write_steps`` fills them.
-_STEP_ARRAYS = ("dl", "diag", "du", "e0", "em", "ep", "bc")
+#: The step arrays, in the order ``_write_steps`` fills them.
+_STEP_ARRAYS = ("dl", "diag", "du", "e0", "bc")
 
 
 def _write_steps(lev: _Levels, out: dict, rows: slice, cols: slice) -> None:
     """Write one expiry's step factors into ``out[name][rows, cols]`` (rows: its steps, cols: its unknowns).
 
     (I - theta dt L) u_new = (I + (1 - theta) dt L) u + dt (boundary terms; theta + (1 - theta) = 1):
-    ``diag``, ``dl`` (coupling of unknown i to i - 1), ``du`` (to i + 1) form the left side,
-    ``e0``, ``em``, ``ep`` and ``bc`` the right. Couplings across block edges are boundary values,
-    kept apart (in ``bc``): none from a block's first unknown to the left, none from its last to the
-    right, so blocks, and expiries written side by side, never mix. Each factor is formed per grid
-    node and read out per unknown (a node appears in many blocks).
+    ``diag``, ``dl`` (coupling of unknown i to i - 1), ``du`` (to i + 1) form the left side, ``e0``
+    and ``bc`` the right; on Crank-Nicolson steps (theta = 1/2) the right side's couplings are
+    -dl and -du exactly, on fully implicit ones there are none (``_march``). Couplings across block
+    edges are boundary values, kept apart (in ``bc``): none from a block's first unknown to the
+    left, none from its last to the right, so blocks, and expiries written side by side, never
+    mix. Each factor is formed per grid node and copied block by block (a block is a run of nodes).
     """
     theta = lev.theta
-    ex = 1.0 - theta
     node, starts, ends = lev.node, lev.starts, lev.ends
     view = {name: out[name][rows, cols] for name in _STEP_ARRAYS}
+    runs = list(zip(node[starts].tolist(), starts.tolist(), (ends + 1).tolist()))
     for name, per_node in (("dl", -theta * lev.a), ("diag", 1.0 - theta * lev.b), ("du", -theta * lev.c),
-                           ("e0", 1.0 + ex * lev.b), ("em", ex * lev.a), ("ep", ex * lev.c)):
-        np.take(per_node, node, axis=1, out=view[name], mode="clip")  # node is in range: clip never acts
-    a_first = lev.a[:, node[starts]] * 0.0
-    view["dl"][:, starts] = -theta * a_first
-    view["em"][:, starts] = ex * a_first
+                           ("e0", 1.0 + (1.0 - theta) * lev.b)):
+        dst = view[name]
+        for first, lo, hi in runs:
+            dst[:, lo:hi] = per_node[:, first:first + hi - lo]
+    view["dl"][:, starts] = -theta * (lev.a[:, node[starts]] * 0.0)
     view["du"][:, ends] = -theta * 0.0
-    view["ep"][:, ends] = ex * 0.0
     view["dl"][:, 0] = 0.0  # nothing left of the expiry's first unknown
-    view["em"][:, 0] = 0.0
     bc = view["bc"]
     bc[...] = 0.0
     bc[:, starts] = lev.a[:, node[starts]] * lev.left_bc
@@ -221,9 +220,11 @@ def _march(levels: list[_Levels]) -> list[np.ndarray] | None:
     """u(0, 0) per level of each expiry, all expiries stepped side by side in one tridiagonal system.
 
     Expiries are placed longest first and aligned on their last step, so at
-    every step the ones already under way form a prefix of the unknowns and
-    one ``dgtsv`` call solves them all. None when LAPACK reports a singular
-    system or a value is not finite (the caller then steps each expiry alone).
+    every step the ones already under way form a prefix of the unknowns (and
+    those still in their fully implicit first steps the end of that prefix)
+    and one ``dgtsv`` call solves them all. None when LAPACK reports a
+    singular system or a value is not finite (the caller then steps each
+    expiry alone).
     """
     order = sorted(range(len(levels)), key=lambda j: -levels[j].steps)
     n_steps = levels[order[0]].steps
@@ -232,15 +233,18 @@ def _march(levels: list[_Levels]) -> list[np.ndarray] | None:
     for at, j in enumerate(order):
         _write_steps(levels[j], out, slice(n_steps - levels[j].steps, None), slice(width[at], width[at + 1]))
     begins = np.array([n_steps - levels[j].steps for j in order])
-    active = width[1:][np.searchsorted(begins, np.arange(n_steps), side="right") - 1]
-    dl, diag, du, e0, em, ep, bc = (out[name] for name in _STEP_ARRAYS)
+    k_all = np.arange(n_steps)
+    active = width[np.searchsorted(begins, k_all, side="right")].tolist()
+    crank = width[np.searchsorted(begins, k_all - RANNACHER_STEPS, side="right")].tolist()
+    dl, diag, du, e0, bc = (out[name] for name in _STEP_ARRAYS)
     u = np.zeros(int(width[-1]))
     for k in range(n_steps):
-        p = int(active[k])
+        p, c = active[k], crank[k]  # unknowns under way; of them, those past the fully implicit steps
         uk = u[:p]
         rhs = e0[k, :p] * uk + bc[k, :p]
-        rhs[1:] += em[k, 1:p] * uk[:-1]
-        rhs[:-1] += ep[k, :p - 1] * uk[1:]
+        if c > 1:  # Crank-Nicolson: the right side's couplings are -dl, -du (theta = 1 - theta = 1/2)
+            rhs[1:c] -= dl[k, 1:c] * uk[:c - 1]
+            rhs[:c - 1] -= du[k, :c - 1] * uk[1:c]
         *_, sol, info = dgtsv(dl[k, 1:p], diag[k, :p], du[k, :p - 1], rhs[:, None], 1, 1, 1, 1)
         if info != 0:
             return None
@@ -431,7 +435,7 @@ def touch_local_vol_many(cases, n_space: int = N_SPACE, n_time: int = N_TIME,
 
     The same figures as one call per case: cases are stepped side by side in
     one tridiagonal system (``_march``) while the system stays under
-    ``batch_cells`` (time steps x unknowns, which bounds the memory: 7 arrays
+    ``batch_cells`` (time steps x unknowns, which bounds the memory: 5 arrays
     of that many floats); a batch whose stepping fails is stepped case by case.
     """
     got: list = [None] * len(cases)
