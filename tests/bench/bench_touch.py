@@ -1,6 +1,6 @@
 """Benchmark: touch probability accuracy against the oracles, and its speed (run by hand, not by pytest).
 
-    python tests/bench/bench_touch.py [--quick]
+    python tests/bench/bench_touch.py [--quick] [--baseline REV] [--speed-only]
 
 Accuracy, in one run:
 - flat surfaces: the local-vol equation vs the reflection-principle closed form (REFERENCE.md s.3);
@@ -12,13 +12,24 @@ Accuracy, in one run:
 Speed: one expiry's touch (Heston chain; a 200-strike expiry of the pipeline benchmark chain), the
 20,000-contract pipeline warm (touch on demand, so not in it) with its ratio to the 60 ms target,
 and every expiry's touch of that chain.
+
+``--baseline REV`` adds a before/after table of the touch step alone, from one
+run (child processes alternating between the core/ of git revision REV and
+the working tree, best of each): one expiry at 200 strikes (the 20,000-contract
+chain) and at 1,000 strikes, and all 100 expiries of a 200,000-contract chain
+(100 expiries x 1,000 strikes x 2 kinds) one expiry after another
+(``touch``) and together (``touch_many``, single-threaded and with a second
+thread), wall and CPU time. ``--speed-only`` skips the accuracy part.
 """
 
 from __future__ import annotations
 
 import argparse
+import json
 import os
+import subprocess
 import sys
+import tempfile
 import time
 from pathlib import Path
 
@@ -28,7 +39,7 @@ ROOT = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(ROOT))
 sys.path.insert(0, str(Path(__file__).parent))
 
-from bench_pipeline import best_of, synthetic_snapshot  # noqa: E402
+from bench_pipeline import best_of, child_env, export_revision, load_text, synthetic_snapshot  # noqa: E402
 
 from chaintriage.core.local_vol import LocalVolSurface  # noqa: E402
 from chaintriage.core.pipeline import PipelineSettings, annotate  # noqa: E402
@@ -168,15 +179,103 @@ def speed(quick: bool) -> None:
           f"every expiry's touch {all_ms:.0f} ms")
 
 
+def _clock(fn) -> tuple[float, float]:
+    """(wall, process CPU) seconds of one call."""
+    w0, c0 = time.perf_counter(), time.process_time()
+    fn()
+    return time.perf_counter() - w0, time.process_time() - c0
+
+
+def touch_step_times(repeats: int) -> dict:
+    """Touch-step times (ms, as [wall, cpu]) of this process's chaintriage: the figures of ``--baseline``.
+
+    Per expiry: the median over a spread of expiries of the best of ``repeats``
+    (the expiry's kept result dropped before each run). All expiries: best of
+    ``repeats`` on a fresh annotation each time.
+    """
+    out = {}
+    for label, n, n_exp in (("200", 20_000, 50), ("1000", 200_000, 100)):
+        a = annotate(synthetic_snapshot(n, n_exp), PipelineSettings())
+        es = list(a.results)[:: max(1, len(a.results) // 10)]
+        per = []
+        for e in es:
+            best = [float("inf"), float("inf")]
+            for _ in range(repeats):
+                a.touched.pop(e, None)
+                w, c = _clock(lambda e=e: a.touch(e))
+                best = [min(best[0], w), min(best[1], c)]
+            per.append(best)
+        out[f"one expiry, {label} strikes"] = [float(np.median([p[0] for p in per]) * 1e3),
+                                              float(np.median([p[1] for p in per]) * 1e3)]
+        if label != "1000":
+            continue
+        snap = a.snapshot
+        ways = {"all 100 expiries, one by one (touch)": lambda a: [a.touch(e) for e in a.results]}
+        if hasattr(a, "touch_many"):
+            ways["all 100 expiries together (touch_many)"] = lambda a: a.touch_many()
+            ways["all 100 expiries together, 2 threads"] = lambda a: a.touch_many(workers=2)
+        for name, way in ways.items():
+            best = [float("inf"), float("inf")]
+            for _ in range(max(2, repeats - 1)):
+                fresh = annotate(snap, PipelineSettings())
+                w, c = _clock(lambda: way(fresh))
+                best = [min(best[0], w), min(best[1], c)]
+            out[name] = [best[0] * 1e3, best[1] * 1e3]
+    return out
+
+
+def _core_dir() -> str:
+    import chaintriage.core as core
+
+    return str(Path(core.__file__).parent)
+
+
+def _child_times(core_root: str | None, repeats: int) -> dict:
+    code = ("import json, sys; sys.path.insert(0, %r); import bench_touch as b; "
+            "print(json.dumps(dict(b.touch_step_times(%d), core=b._core_dir())))") % (str(Path(__file__).parent), repeats)
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True,
+                         env=child_env(core_root))
+    return json.loads(out.stdout.strip().splitlines()[-1])
+
+
+def compare_with(rev: str, repeats: int) -> None:
+    """Before (core/ of ``rev``) and after (the working tree) touch-step times from one run, alternating."""
+    with tempfile.TemporaryDirectory() as tmp:
+        root = export_revision(rev, tmp)
+        print(f"touch step, baseline = {rev}; start: {load_text()}")
+        rounds = {"baseline": [], "now": []}
+        for _ in range(2):
+            rounds["baseline"].append(_child_times(root, repeats))
+            rounds["now"].append(_child_times(None, repeats))
+    print("core/ read from: " + ", ".join(f"{k} {v[0].pop('core')}" for k, v in rounds.items()))
+    for v in rounds.values():
+        for r in v[1:]:
+            r.pop("core")
+    best = {k: {name: [min(r[name][i] for r in v) for i in (0, 1)] for name in v[0]} for k, v in rounds.items()}
+    print(f"end: {load_text()}; best of 2 alternating rounds, each best of {repeats}")
+    print(f"{'':42s} {'baseline wall':>13s} {'cpu':>9s} {'now wall':>10s} {'cpu':>9s} {'ratio wall':>10s} {'cpu':>6s}")
+    one_by_one = best["baseline"]["all 100 expiries, one by one (touch)"]
+    for name, (w_now, c_now) in best["now"].items():
+        w_b, c_b = best["baseline"].get(name, one_by_one if name.startswith("all") else [float("nan")] * 2)
+        print(f"{name:42s} {w_b:11.1f}ms {c_b:7.1f}ms {w_now:8.1f}ms {c_now:7.1f}ms "
+              f"{w_b / w_now:9.2f}x {c_b / c_now:5.2f}x")
+    print("(the baseline has no touch_many: its 'together' rows compare with its one-by-one time)")
+
+
 def main() -> None:
     ap = argparse.ArgumentParser()
     ap.add_argument("--quick", action="store_true", help="fewer Monte Carlo paths and repeats")
+    ap.add_argument("--baseline", metavar="REV", help="also time the touch step of this git revision's core/")
+    ap.add_argument("--speed-only", action="store_true", help="skip the accuracy checks")
     args = ap.parse_args()
     paths = 40_000 if args.quick else 200_000
-    flat_cases()
-    ssvi_cases(paths // 2)
-    heston_cases(paths)
+    if not args.speed_only:
+        flat_cases()
+        ssvi_cases(paths // 2)
+        heston_cases(paths)
     speed(args.quick)
+    if args.baseline:
+        compare_with(args.baseline, 3 if args.quick else 5)
 
 
 if __name__ == "__main__":

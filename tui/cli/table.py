@@ -98,9 +98,8 @@ def _wanted_expiries(args: argparse.Namespace) -> list[pd.Timestamp]:
 def _selected(a, args: argparse.Namespace, wanted: list[pd.Timestamp]) -> tuple[pd.DataFrame, pd.Series]:
     """The rows of one annotated snapshot that `table` writes (touch figures computed for them), and
     the mask that chose them."""
-    for expiry in a.results:  # touch figures are computed per expiry on demand
-        if not wanted or expiry in wanted:
-            a.touch(expiry)
+    # touch figures are computed on demand: the asked expiries together
+    a.touch_many([expiry for expiry in a.results if not wanted or expiry in wanted])
     c = a.contracts
     keep = pd.Series(True, index=c.index)
     if wanted:
