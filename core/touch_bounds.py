@@ -54,8 +54,14 @@ def _lowest_ratio(price: np.ndarray, y: np.ndarray, h: np.ndarray, puts: bool) -
     """min over the grid ``y`` of price(y) / |y - h| for each level ``h``: y > h with puts, y < h with calls.
 
     inf where no grid point lies on that side; NaN where a price on that side
-    is NaN. Levels go in blocks of ``RATIO_BLOCK``, each reading only the part
-    of the grid that some level of the block can use (y is sorted).
+    is NaN. Levels go in sorted blocks of ``RATIO_BLOCK``; a block reads only
+    the grid points on some level's side that can hold a level's minimum. The
+    ratio grows as the level nears the point (rounded subtraction and division
+    keep that order), so a point's ratio at the block's level furthest from
+    it is a floor for all the block's levels, and the minimum at the level
+    nearest to the points is a cap on every level's minimum; a point whose
+    floor is above the cap is never the minimum and is skipped (exactly the
+    same result).
     """
     out = np.full(h.size, np.inf)
     if not h.size:
@@ -63,22 +69,32 @@ def _lowest_ratio(price: np.ndarray, y: np.ndarray, h: np.ndarray, puts: bool) -
     order = np.argsort(h)
     hs = h[order]
     got = np.empty(h.size)
-    for a in range(0, h.size, RATIO_BLOCK):
-        hb = hs[a:a + RATIO_BLOCK]
-        if puts:  # columns right of the block's lowest level
-            j = int(np.searchsorted(y, hb[0], side="right"))
-            yb, pb = y[j:], price[j:]
-        else:  # columns left of its highest level
-            j = int(np.searchsorted(y, hb[-1], side="left"))
-            yb, pb = y[:j], price[:j]
-        if not yb.size:
-            got[a:a + hb.size] = np.inf
-            continue
-        with np.errstate(divide="ignore", invalid="ignore"):
+    with np.errstate(divide="ignore", invalid="ignore"):
+        for a in range(0, h.size, RATIO_BLOCK):
+            hb = hs[a:a + RATIO_BLOCK]
+            if puts:  # columns right of the block's lowest level
+                j = int(np.searchsorted(y, hb[0], side="right"))
+                yb, pb = y[j:], price[j:]
+                cap_level, floor_level = hb[-1], hb[0]
+                capped = yb > cap_level
+                gap_cap = yb - cap_level
+            else:  # columns left of its highest level
+                j = int(np.searchsorted(y, hb[-1], side="left"))
+                yb, pb = y[:j], price[:j]
+                cap_level, floor_level = hb[0], hb[-1]
+                capped = yb < cap_level
+                gap_cap = cap_level - yb
+            if not yb.size:
+                got[a:a + hb.size] = np.inf
+                continue
+            cap = (pb[capped] / gap_cap[capped]).min() if capped.any() else np.inf
+            floor = pb / ((yb - floor_level) if puts else (floor_level - yb))
+            keep = ~(floor > cap)  # NaN prices stay (they make the minimum NaN)
+            yb, pb = yb[keep], pb[keep]
             gap = (yb[None, :] - hb[:, None]) if puts else (hb[:, None] - yb[None, :])
             ratio = np.full(gap.shape, np.inf)
             np.divide(pb[None, :], gap, out=ratio, where=gap > 0)
-        got[a:a + hb.size] = ratio.min(axis=1)
+            got[a:a + hb.size] = ratio.min(axis=1) if yb.size else np.inf
     out[order] = got
     return out
 

@@ -36,6 +36,7 @@ spot) gets NaN; a level at spot gets 1.
 
 from __future__ import annotations
 
+import threading
 from dataclasses import dataclass
 
 import numpy as np
@@ -57,7 +58,9 @@ SOLVED_PER_SIDE = 8
 #: |ln(H/S_0)| below this counts as a level at spot.
 AT_SPOT = 1e-9
 #: Largest side-by-side system of ``touch_local_vol_many`` (time steps x unknowns; 5 float arrays of it).
-BATCH_CELLS = 600_000
+BATCH_CELLS = 250_000
+#: Step arrays up to this many cells each stay allocated for the next call (5 arrays: 10 MB).
+KEEP_CELLS = 250_000
 #: Width of the dense part of the grid around spot, in at-the-money standard deviations.
 GRID_CONCENTRATION = 0.5
 
@@ -216,6 +219,21 @@ def _write_steps(lev: _Levels, out: dict, rows: slice, cols: slice) -> None:
     bc[:, ends] += lev.c[:, node[ends]] * lev.right_bc
 
 
+_SCRATCH = threading.local()
+
+
+def _scratch(size: int) -> np.ndarray:
+    """A float buffer of ``size`` for this thread's step arrays, kept between calls up to ``KEEP_CELLS``
+    cells per array (fresh memory costs page faults that can exceed the arithmetic written into it)."""
+    buf = getattr(_SCRATCH, "buf", None)
+    if buf is not None and buf.size >= size:
+        return buf
+    buf = np.empty(size)
+    if size <= len(_STEP_ARRAYS) * KEEP_CELLS:
+        _SCRATCH.buf = buf
+    return buf
+
+
 def _march(levels: list[_Levels]) -> list[np.ndarray] | None:
     """u(0, 0) per level of each expiry, all expiries stepped side by side in one tridiagonal system.
 
@@ -229,7 +247,10 @@ def _march(levels: list[_Levels]) -> list[np.ndarray] | None:
     order = sorted(range(len(levels)), key=lambda j: -levels[j].steps)
     n_steps = levels[order[0]].steps
     width = np.cumsum([0] + [levels[j].unknowns for j in order])
-    out = {name: np.empty((n_steps, int(width[-1]))) for name in _STEP_ARRAYS}
+    cells = n_steps * int(width[-1])
+    buf = _scratch(len(_STEP_ARRAYS) * cells)
+    out = {name: buf[i * cells:(i + 1) * cells].reshape(n_steps, int(width[-1]))
+           for i, name in enumerate(_STEP_ARRAYS)}
     for at, j in enumerate(order):
         _write_steps(levels[j], out, slice(n_steps - levels[j].steps, None), slice(width[at], width[at + 1]))
     begins = np.array([n_steps - levels[j].steps for j in order])
