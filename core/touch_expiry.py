@@ -91,7 +91,7 @@ def expiries_touch(strikes: list, spot: float, t, forwards, smiles: list, indice
     fw = np.asarray(forwards, dtype=float)
     labels = list(labels) if labels is not None else [None] * len(indices)
     strikes = [np.asarray(k, dtype=float) for k in strikes]
-    threads = max(1, min(int(workers), os.cpu_count() or 1))
+    threads = 1 if int(workers) <= 1 else min(int(workers), os.cpu_count() or 1)
 
     def bounds(j: int) -> tuple[np.ndarray, np.ndarray]:
         i = indices[j]
