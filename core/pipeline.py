@@ -142,7 +142,8 @@ class AnnotatedSnapshot:
     Touch figures (``p_touch``, ``p_touch_low``, ``p_touch_high``) are computed
     per expiry on demand: ``annotate`` leaves them NaN, ``touch(expiry)``
     computes one expiry (once; later calls return the kept result) and writes
-    its rows of ``contracts``, ``fill_touch()`` does every expiry. Findings of
+    its rows of ``contracts``, ``touch_many(expiries)`` several at once (the
+    same figures, faster), ``fill_touch()`` every expiry. Findings of
     the touch step are added to ``findings`` and the expiry's result when it runs.
     """
 

@@ -18,7 +18,8 @@ level's equation lives on its own part of the grid (from the level to the far
 edge); all of them are stacked into one block-diagonal tridiagonal system and
 solved together by LAPACK's ``dgtsv`` at every time step, so the Python loop
 runs over time steps only; ``touch_local_vol_many`` puts several expiries'
-systems side by side in the same way (one call per time step for all of them). The far edge, ``SPAN_SD`` standard deviations from
+systems side by side in the same way (one call per time step for all of
+them, the same figures). The far edge, ``SPAN_SD`` standard deviations from
 spot, has u = 0.
 
 Not every strike gets its own equation: at most ``SOLVED_PER_SIDE`` levels on
