@@ -223,8 +223,8 @@ class AnnotatedSnapshot:
                     where = np.flatnonzero(expiry_days == np.datetime64(expiry.to_datetime64(), "ns"))
                     self.expiries.loc[self.expiries.index[where], "findings"] = len(res.findings)
                 self.touched[expiry] = got
-            for name in cols:
-                self.contracts[name] = cols[name].copy()  # a whole-column swap is much cheaper than a row-wise write
+            for name in cols:  # a whole-column swap is much cheaper than a row-wise write; pandas copies the
+                self.contracts[name] = cols[name]  # array it is given, so later writes to cols stay ours
         return {e: self.touched.get(e) for e in asked}
 
     def fill_touch(self, workers: int = 1) -> "AnnotatedSnapshot":

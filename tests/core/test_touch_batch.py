@@ -148,3 +148,17 @@ def test_touch_many_gives_the_columns_and_findings_of_touch_one_by_one(workers):
         assert g.method == got[e].method and g.clipped == got[e].clipped and g.max_cross == got[e].max_cross
     assert many.touch_many() == {e: many.touched[e] for e in many.results}  # kept, not recomputed
     assert many.touch_many(["2001-01-01"]) == {pd.Timestamp("2001-01-01"): None}  # unknown expiry
+
+
+def test_touch_columns_taken_earlier_do_not_change_with_later_expiries():
+    """[C] A touch column read before another expiry is computed keeps its values (the frame's column is
+    replaced, never written in place): a view held by the app stays what it was."""
+    snap = heston_snapshot()[0]
+    a = annotate(snap, PipelineSettings(basis="365"))
+    first, second = list(a.results)[:2]
+    a.touch(first)
+    held = a.contracts["p_touch"]
+    values = held.to_numpy().copy()
+    a.touch(second)
+    assert _same(held.to_numpy(), values)
+    assert not _same(a.contracts["p_touch"].to_numpy(), values)  # the new column has the second expiry
