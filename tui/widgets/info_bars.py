@@ -80,9 +80,13 @@ class InfoBar(Widget):
                 [p.spans for p in new] == [p.spans for p in self._pieces] and \
                 [p.plain for p in res] == [p.plain for p in self._reserve]:
             return
+        width = self.size.width
+        before = self._height(width) if width else None
         self._pieces = new
         self._reserve = res
-        self.refresh(layout=True)
+        # A new layout only when the bar's height changes: a layout pass makes Textual update every
+        # scrolling widget's scroll bars, which draws a second frame after this one.
+        self.refresh(layout=before is None or self._height(width) != before)
 
     @property
     def plain(self) -> str:
@@ -92,9 +96,13 @@ class InfoBar(Widget):
     def _lines(self, width: int) -> list[Text]:
         return pack_pieces(self._pieces, width)
 
-    def get_content_height(self, container: Size, viewport: Size, width: int) -> int:
+    def _height(self, width: int) -> int:
+        """Lines the bar takes at ``width`` cells."""
         reserved = len(pack_pieces(self._reserve, width)) if self._reserve else 0
         return max(len(self._lines(width)), reserved)
+
+    def get_content_height(self, container: Size, viewport: Size, width: int) -> int:
+        return self._height(width)
 
     def render(self) -> Text:
         return Text("\n").join(self._lines(self.size.width))
