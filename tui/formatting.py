@@ -199,6 +199,20 @@ def fmt_strike(value: Any, decimals: int | None = None, width: int | None = None
     return fit(f"{x:.{d}f}", width)
 
 
+def strike_column_width(strikes: Any) -> int:
+    """Cells of the ladder's strike column for ``strikes`` (ascending or not): the longest of the
+    lowest and highest at the fewest decimals that show every strike, a space each side, at least 8."""
+    import numpy as np
+
+    x = np.asarray(strikes, dtype=float).ravel()
+    x = x[np.isfinite(x)]
+    if not x.size:
+        return 8
+    decimals = strike_decimals(x)
+    longest = max(len(fmt_strike(float(v), decimals)) for v in (x.min(), x.max()))
+    return max(8, longest + 2)
+
+
 def fmt_sigma(value: Any, width: int | None = None, ascii_only: bool = False) -> str:
     """Sigma distance with its sign: 1.523 -> "+1.52σ" ("+1.52s" in ASCII mode)."""
     x = as_finite(value)

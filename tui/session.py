@@ -367,6 +367,7 @@ class SnapshotView:
         self._findings_key = -1
         self._groups: Any = None
         self._target_selector: TargetSelector | None = None
+        self._strike_width: int | None = None
         #: The price history's figures (``history_view.ViewHistory``), once the loading job has them.
         self.history: Any = None
 
@@ -445,6 +446,13 @@ class SnapshotView:
             return 0
         gaps = [abs((e - target).total_seconds()) for e in self.expiries]
         return int(np.argmin(gaps))
+
+    def strike_width(self) -> int:
+        """Cells of the ladder's strike column that every expiry's strikes fit in (cached)."""
+        if self._strike_width is None:
+            self._strike_width = fm.strike_column_width(
+                pd.to_numeric(self.annotated.contracts["strike"], errors="coerce").to_numpy(dtype=float))
+        return self._strike_width
 
     def distribution(self, expiry: pd.Timestamp):
         """core's terminal Distribution of one expiry (None when there is none); cached."""

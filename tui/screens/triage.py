@@ -181,7 +181,7 @@ class TriageScreen(Screen):
         shown, hidden = st.strike_filter.apply(frame)
         info = view.info(st.expiry_pos, st.confidence, st.ex_event)
         grid.set_rows(shown, info.forward, expiry=expiry, underlying=view.snapshot.underlying, hidden=hidden,
-                      keep_highlight=keep_highlight)
+                      keep_highlight=keep_highlight, strike_width=view.strike_width())
         st.strike_total = len(grid.strikes) + hidden
         self.mark_grid()
         self.update_layout()

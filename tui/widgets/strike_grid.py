@@ -185,14 +185,17 @@ class StrikeGrid(ScrollView, can_focus=True):
         return tuple(specs)
 
     def set_rows(self, expiry_frame: pd.DataFrame, forward: float, *, expiry: Any = None,
-                 underlying: str | None = None, hidden: int = 0, keep_highlight: bool = True) -> None:
+                 underlying: str | None = None, hidden: int = 0, keep_highlight: bool = True,
+                 strike_width: int = 0) -> None:
         """Show these contracts (one expiry, both kinds, already filtered by the caller).
 
         ``forward`` in price units places the forward line (NaN: no line);
         ``hidden`` is how many strikes the caller's filter left out (shown in the title).
         The highlight stays on the nearest strike to the one highlighted before, or
         goes to the strike nearest the forward (always, with ``keep_highlight=False``,
-        e.g. for another underlying).
+        e.g. for another underlying). ``strike_width``: the least width of the strike column (the
+        caller's widest over every expiry keeps the ladder's width, and so the screen's layout, while
+        paging through them).
         """
         before = self._highlight_key()
         prev_strike = self.highlighted[0] if (self.highlighted and keep_highlight) else None
@@ -212,6 +215,7 @@ class StrikeGrid(ScrollView, can_focus=True):
             while len(self._kept) > KEEP_EXPIRIES:
                 self._kept.popitem(last=False)
         self._kept_key = key
+        self._strike_width = max(self._strike_width, int(strike_width))
         self._apply_sort()
         strikes = self._strikes
         m = len(strikes)
@@ -310,8 +314,7 @@ class StrikeGrid(ScrollView, can_focus=True):
         self._underlying = fm.clean_text(underlying) if underlying is not None else ""
         self._hidden = int(hidden)
         self._strike_decimals = fm.strike_decimals(strikes)
-        longest = max((len(fm.fmt_strike(s, self._strike_decimals)) for s in (strikes[:1].tolist() + strikes[-1:].tolist())), default=4)
-        self._strike_width = max(8, longest + 2)
+        self._strike_width = fm.strike_column_width(strikes)
 
     def set_columns(self, columns: Sequence[str]) -> None:
         """Choose the per-side columns by key (see COLUMNS), in display order."""
