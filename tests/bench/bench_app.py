@@ -242,6 +242,11 @@ async def _expiry_switch(size: tuple[int, int], repeats: int) -> None:
             return result
 
         app._display = counting_display
+        # Back to the first expiry, so the run below pages like the one above and never reaches an end
+        # of the list (there the key shows a notice instead of switching).
+        while app.state.expiry_pos > 0:
+            app.action_previous_expiry()
+            await pilot.pause()
         for i in range(repeats):
             step = app.action_next_expiry if (i // (n - 1)) % 2 == 0 else app.action_previous_expiry
             await pilot.pause()
