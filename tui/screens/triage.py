@@ -278,9 +278,7 @@ class TriageScreen(Screen):
         hl = self.grid.highlighted
         if hl is None:
             return None, "call", None
-        contract = self.grid.highlighted_contract()
-        p = fm.as_finite(contract.get("p_beyond")) if contract else None
-        return hl[0], hl[1], p
+        return hl[0], hl[1], fm.as_finite(self.grid.highlighted_value("p_beyond"))
 
     def highlight_moved(self) -> None:
         if self.body_ready and self.plot.display:

@@ -10,9 +10,11 @@ from __future__ import annotations
 import math
 from typing import TYPE_CHECKING, Sequence
 
+from rich.segment import Segment
 from rich.style import Style
 from rich.text import Text
 from textual.geometry import Size
+from textual.strip import Strip
 from textual.widget import Widget
 
 from chaintriage.core.findings import LEFT_OUT, WARNING, Finding
@@ -57,7 +59,11 @@ def pack_pieces(pieces: Sequence[Text], width: int, sep: str = SEP, indent: str 
 
 
 class InfoBar(Widget):
-    """One or more lines of pieces; its height follows the packed line count."""
+    """One or more lines of pieces; its height follows the packed line count.
+
+    The lines are drawn straight to segments (``render_line``), kept until the pieces, the width or
+    the widget's own colours change: a header line costs a fraction of rendering its Text.
+    """
 
     DEFAULT_CSS = """
     InfoBar {
@@ -71,6 +77,9 @@ class InfoBar(Widget):
         self._pieces: list[Text] = []
         self._reserve: list[Text] = []
         self._right: Text | None = None
+        #: The drawn lines and what they were drawn for: (width, the widget's base style).
+        self._strips: list[Strip] | None = None
+        self._strips_key: tuple | None = None
 
     def set_pieces(self, pieces: Sequence[Text], reserve: Sequence[Text] = ()) -> None:
         """Show ``pieces``; the bar is at least as tall as ``reserve`` would make it (a steady height)."""
@@ -84,6 +93,7 @@ class InfoBar(Widget):
         before = self._height(width) if width else None
         self._pieces = new
         self._reserve = res
+        self._strips = None
         # A new layout only when the bar's height changes: a layout pass makes Textual update every
         # scrolling widget's scroll bars, which draws a second frame after this one.
         self.refresh(layout=before is None or self._height(width) != before)
@@ -104,8 +114,25 @@ class InfoBar(Widget):
     def get_content_height(self, container: Size, viewport: Size, width: int) -> int:
         return self._height(width)
 
-    def render(self) -> Text:
-        return Text("\n").join(self._lines(self.size.width))
+    def render_line(self, y: int) -> Strip:
+        """Line ``y`` of the packed pieces on the bar's own colours (blank below the last)."""
+        width = self.size.width
+        base = self.rich_style
+        key = (width, base)
+        if self._strips is None or self._strips_key != key:
+            console = self.app.console
+            strips = []
+            for line in self._lines(width):
+                segments = Segment.apply_style(line.render(console, end=""), style=base)
+                strips.append(Strip(segments).crop_extend(0, width, base))
+            self._strips, self._strips_key = strips, key
+        if 0 <= y < len(self._strips):
+            return self._strips[y]
+        return Strip.blank(width, base)
+
+    def notify_style_update(self) -> None:
+        super().notify_style_update()
+        self._strips = None
 
 
 # ---------------------------------------------------------------- styles from a theme

@@ -453,6 +453,14 @@ class StrikeGrid(ScrollView, can_focus=True):
             return None
         return self._frame.iloc[pos].to_dict()
 
+    def highlighted_value(self, field: str) -> Any:
+        """One column of the highlighted contract's row (None when that side has no contract at the
+        highlighted strike or the rows have no such column): cheaper than the whole row."""
+        if self.highlighted is None or field not in self._frame.columns:
+            return None
+        pos = int(self._pos[self._side][self._cursor])
+        return self._frame[field].iat[pos] if pos >= 0 else None
+
     def cursor_to_strike(self, strike: float, kind: str | None = None) -> None:
         """Highlight the strike nearest ``strike`` (and select ``kind`` if given)."""
         if not len(self._strikes):
