@@ -233,12 +233,12 @@ async def _expiry_switch(size: tuple[int, int], repeats: int) -> None:
             _frame(screen)
             composed.append((time.perf_counter() - t0, time.thread_time() - c0))
         # The app's own frames: every screen update written to the (headless) terminal is counted.
-        drawn: list[float] = []
+        drawn: list[tuple[float, float]] = []
         real_display = app._display
 
         def counting_display(*args, **kwargs):
             result = real_display(*args, **kwargs)
-            drawn.append(time.perf_counter())
+            drawn.append((time.perf_counter(), time.thread_time()))
             return result
 
         app._display = counting_display
@@ -252,13 +252,13 @@ async def _expiry_switch(size: tuple[int, int], repeats: int) -> None:
             await pilot.pause()
             await asyncio.sleep(0.05)
             drawn.clear()
-            t0 = time.perf_counter()
+            t0, c0 = time.perf_counter(), time.thread_time()
             step()
             await pilot.pause()
             await asyncio.sleep(0.1)  # a frame that follows late is counted too
             frames.append(len(drawn))
             if drawn:
-                settled.append(drawn[-1] - t0)
+                settled.append((drawn[-1][0] - t0, drawn[-1][1] - c0))
         print(f"-- {size[0]}x{size[1]}: {strikes} strikes per expiry, plot "
               f"{'shown' if app.triage.plot.display else 'hidden'}"
               f" ({app.triage.plot.size.width}x{app.triage.plot.size.height})")
