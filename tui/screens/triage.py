@@ -79,6 +79,8 @@ class TriageScreen(Screen):
         self.is_up = False
         self.body_ready = False
         self._bar_styles = BarStyles(state.theme)
+        #: The expiry header's pieces by (info, the widest infos, styles, ASCII), with those kept alive.
+        self._expiry_bars: dict[tuple, tuple] = {}
 
     def compose(self) -> ComposeResult:
         st = self.state
@@ -239,9 +241,7 @@ class TriageScreen(Screen):
                          busy=st.busy, st=styles, ascii_only=ascii_only)
         self.bar("topbar").set_pieces(top)
         info = view.info(st.expiry_pos, st.confidence, st.ex_event) if view.expiries else None
-        reserve = expiry_pieces(info, st=styles, ascii_only=ascii_only, widest=view.header_infos()) \
-            if info is not None else []
-        self.bar("expirybar").set_pieces(expiry_pieces(info, st=styles, ascii_only=ascii_only), reserve=reserve)
+        self.bar("expirybar").set_pieces(*self._expiry_bar(info, view.header_infos() if info is not None else None))
         hidden_names = [COLUMNS[k].heading_ascii if ascii_only else COLUMNS[k].heading
                         for k in st.left_out_columns]
         plot_note = ""
@@ -252,6 +252,23 @@ class TriageScreen(Screen):
         self.bar("filterbar").set_pieces(filter_pieces(
             st.strike_filter, shown=len(self.grid.strikes), total=st.strike_total,
             hidden_columns=hidden_names, plot_note=plot_note, st=styles, ascii_only=ascii_only))
+
+    def _expiry_bar(self, info, widest) -> tuple[list[Text], list[Text]]:
+        """(pieces, reserve) of the expiry header for ``info``, kept per info (paging back to an
+        expiry builds nothing again)."""
+        styles, ascii_only = self._bar_styles, self.state.ascii_only
+        if info is None:
+            return expiry_pieces(None, st=styles, ascii_only=ascii_only), []
+        key = (id(info), id(widest), id(styles), ascii_only)
+        kept = self._expiry_bars.get(key)
+        if kept is not None and kept[0] is info and kept[1] is widest and kept[2] is styles:
+            return kept[3], kept[4]
+        pieces = expiry_pieces(info, st=styles, ascii_only=ascii_only)
+        reserve = expiry_pieces(info, st=styles, ascii_only=ascii_only, widest=widest)
+        if len(self._expiry_bars) >= 64:
+            self._expiry_bars.pop(next(iter(self._expiry_bars)))
+        self._expiry_bars[key] = (info, widest, styles, pieces, reserve)
+        return pieces, reserve
 
     def update_plot(self) -> None:
         """Draw the current expiry's distribution in the side pane (when it is shown)."""

@@ -80,6 +80,8 @@ class InfoBar(Widget):
         #: The drawn lines and what they were drawn for: (width, the widget's base style).
         self._strips: list[Strip] | None = None
         self._strips_key: tuple | None = None
+        #: Lines the bar takes, by width (for the pieces shown now).
+        self._heights: dict[int, int] = {}
 
     def set_pieces(self, pieces: Sequence[Text], reserve: Sequence[Text] = ()) -> None:
         """Show ``pieces``; the bar is at least as tall as ``reserve`` would make it (a steady height)."""
@@ -94,6 +96,7 @@ class InfoBar(Widget):
         self._pieces = new
         self._reserve = res
         self._strips = None
+        self._heights = {}
         # A new layout only when the bar's height changes: a layout pass makes Textual update every
         # scrolling widget's scroll bars, which draws a second frame after this one.
         self.refresh(layout=before is None or self._height(width) != before)
@@ -108,8 +111,11 @@ class InfoBar(Widget):
 
     def _height(self, width: int) -> int:
         """Lines the bar takes at ``width`` cells."""
-        reserved = len(pack_pieces(self._reserve, width)) if self._reserve else 0
-        return max(len(self._lines(width)), reserved)
+        height = self._heights.get(width)
+        if height is None:
+            reserved = len(pack_pieces(self._reserve, width)) if self._reserve else 0
+            height = self._heights[width] = max(len(self._lines(width)), reserved)
+        return height
 
     def get_content_height(self, container: Size, viewport: Size, width: int) -> int:
         return self._height(width)
