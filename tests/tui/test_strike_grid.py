@@ -16,6 +16,7 @@ import numpy as np
 import pandas as pd
 from textual.app import App, ComposeResult
 
+from chaintriage.tui import formatting as fm
 from chaintriage.tui.widgets.strike_grid import COLUMNS, DEFAULT_COLUMNS, HEADER_LINES, StrikeGrid
 from chaintriage.tui.themes import load_themes
 
@@ -413,4 +414,44 @@ def test_otm_column_from_data_wins_and_missing_values_fall_back_to_the_forward()
         y105 = HEADER_LINES + next(i for i, t in enumerate(lines) if strike_of_line(t) == 105.0)
         assert sides(grid, y95)[0].style.color.name == THEME.color("otm_call")
         assert sides(grid, y105)[0].style.color.name == THEME.color("otm_call")
+    run(body)
+
+
+def test_a_given_strike_width_keeps_the_ladder_as_wide_for_shorter_strikes():
+    """[D] The strike column fits the longest strike at the fewest decimals that show them all, with
+    a space each side (at least 8 cells); a caller's wider width (its widest expiry) is kept, so the
+    columns stay put when the next expiry's strikes are shorter."""
+    long_strikes = [995.5, 1000.0, 1004.5]  # "1004.5": 6 characters -> 8 cells
+    longer_strikes = [9995.25, 10000.0]  # "10000.00": 8 characters -> 10 cells
+    assert fm.strike_column_width(long_strikes) == 8
+    assert fm.strike_column_width(longer_strikes) == 10
+    assert fm.strike_column_width(longer_strikes + [float("nan")]) == 10
+    assert fm.strike_column_width([]) == 8
+
+    async def body(app, grid, pilot):
+        grid.set_rows(presentation_chain(long_strikes, 1000.0), 1000.0)
+        assert grid.strike_width == 8
+        narrow = grid.virtual_size.width
+        grid.set_rows(presentation_chain(longer_strikes, 10000.0), 10000.0)
+        assert grid.strike_width == 10 and grid.virtual_size.width == narrow + 2
+        grid.set_rows(presentation_chain(long_strikes, 1000.0), 1000.0, strike_width=10)
+        await pilot.pause()
+        assert grid.strike_width == 10 and grid.virtual_size.width == narrow + 2
+        line = next(t for t in data_lines(grid) if strike_of_line(t) == 1004.5)
+        assert len(line.split("│")[1]) == 10  # the strike centred in the wider column
+    run(body)
+
+
+def test_highlighted_value_reads_one_column_of_the_highlighted_contract():
+    """[D] ``highlighted_value`` is the whole row's value for that column (None where the side has
+    no contract, or the rows no such column)."""
+    async def body(app, grid, pilot):
+        frame = presentation_chain(STRIKES, FORWARD, drop=[(95.0, "put")])
+        frame.loc[(frame["strike"] == 95.0) & (frame["kind"] == "call"), "p_beyond"] = 0.42
+        grid.set_rows(frame, FORWARD)
+        grid.cursor_to_strike(95.0, "call")
+        assert grid.highlighted_value("p_beyond") == grid.highlighted_contract()["p_beyond"] == 0.42
+        assert grid.highlighted_value("no_such_column") is None
+        grid.cursor_to_strike(95.0, "put")
+        assert grid.highlighted_contract() is None and grid.highlighted_value("p_beyond") is None
     run(body)

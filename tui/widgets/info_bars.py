@@ -122,19 +122,26 @@ class InfoBar(Widget):
 
     def render_line(self, y: int) -> Strip:
         """Line ``y`` of the packed pieces on the bar's own colours (blank below the last)."""
+        if self.text_selection is not None:  # Textual draws the selection itself
+            return super().render_line(y)
         width = self.size.width
         base = self.rich_style
         key = (width, base)
         if self._strips is None or self._strips_key != key:
             console = self.app.console
             strips = []
-            for line in self._lines(width):
+            for row, line in enumerate(self._lines(width)):
                 segments = Segment.apply_style(line.render(console, end=""), style=base)
-                strips.append(Strip(segments).crop_extend(0, width, base))
+                # The offsets let the mouse select the text, as in a line Textual draws itself.
+                strips.append(Strip(segments).apply_offsets(0, row).crop_extend(0, width, base))
             self._strips, self._strips_key = strips, key
         if 0 <= y < len(self._strips):
             return self._strips[y]
         return Strip.blank(width, base)
+
+    def render(self) -> Text:
+        """The lines as one Text (what Textual's text selection reads; drawing goes by ``render_line``)."""
+        return Text("\n").join(self._lines(self.size.width))
 
     def notify_style_update(self) -> None:
         super().notify_style_update()

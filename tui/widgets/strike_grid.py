@@ -21,7 +21,9 @@ wherever the sort put it.
 The widget draws itself line by line (``ScrollView.render_line``) from cached
 ``Strip``s built from plain Segments: text from data is never parsed as markup.
 Rows are formatted lazily, when first drawn, so a new expiry costs only the
-visible rows.
+visible rows. Switching expiry draws one frame: the vertical scroll bar is
+always there (an empty track when every row fits) and a new row count updates
+it without a layout pass (see ``_update_virtual_size``).
 """
 
 from __future__ import annotations
@@ -95,6 +97,7 @@ class StrikeGrid(ScrollView, can_focus=True):
     StrikeGrid {
         height: 1fr;
         width: 1fr;
+        overflow-y: scroll;
     }
     """
 
@@ -510,7 +513,19 @@ class StrikeGrid(ScrollView, can_focus=True):
         return self._fwd_pos if self._fwd_pos >= 0 and len(self._strikes) and self._order is None else None
 
     def _update_virtual_size(self) -> None:
-        self.virtual_size = Size(self._total_width(), self._display_count() + self.header_lines)
+        size = Size(self._total_width(), self._display_count() + self.header_lines)
+        if size == self.virtual_size:
+            return
+        if size.width != self.virtual_size.width or not self.is_mounted or not hasattr(self, "_scroll_update"):
+            self.virtual_size = size  # Textual lays the screen out again
+            return
+        # Only the row count changed (another expiry): no layout pass. A layout pass makes Textual
+        # update the scroll bars after the frame, which draws a second frame (or more). The scroll
+        # bars are updated here instead, before the frame (the vertical bar is always shown, an empty
+        # track when every row fits, so paging never shows or hides it, which would lay out again).
+        self.set_reactive(StrikeGrid.virtual_size, size)
+        self._scroll_update(size)
+        self.refresh()
 
     def _rows_for_current(self) -> dict[tuple[int, int], Strip]:
         """The drawn-rows cache of the rows shown now, with the current looks and marks (kept per
