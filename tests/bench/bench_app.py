@@ -8,9 +8,10 @@ the CPU time of the process beside its wall time (the machine is shared: CPU
 time says what the work costs, wall time what a user waits), and the load
 average. ``--baseline REV`` measures a git revision's package too (exported to
 a temporary directory, imported ahead of the working tree), alternating run by
-run with the working tree for the spawned figures, so before and after come
-from one run. Child processes write bytecode caches (as an installed package
-has them), so no run pays for compiling the sources:
+run with the working tree for the spawned figures (process by process, twice,
+for the expiry switch), so before and after come from one run. Child processes
+write bytecode caches (as an installed package has them), so no run pays for
+compiling the sources:
   help       : `chaintriage --help` in a fresh process, floor `python -c pass`;
                target <= 150 ms;
   cold start : a fresh process that runs the app the way the `chaintriage`
@@ -268,10 +269,14 @@ async def _expiry_switch(size: tuple[int, int], repeats: int) -> None:
     print(f"  frames per switch: mean {statistics.mean(frames):.2f}, min {min(frames)}, max {max(frames)}; target 1")
 
 
-def bench_expiry_switch(repeats: int) -> None:
+#: Terminal sizes of the expiry-switch figures.
+EXPIRY_SIZES = ((160, 50), (200, 50))
+
+
+def bench_expiry_switch(repeats: int, sizes=EXPIRY_SIZES) -> None:
     print(f"== switching expiry, 400 strikes   ({load()}; cpu: this thread's)")
-    for size in ((160, 50), (200, 50)):
-        asyncio.run(_expiry_switch(size, repeats))
+    for size in sizes:
+        asyncio.run(_expiry_switch(tuple(size), repeats))
 
 
 # ---------------------------------------------------------------- a big chain
@@ -438,12 +443,17 @@ def main() -> None:
         if args.only in (None, "cold"):
             bench_cold_start(variants, repeats)
         if args.only in (None, "expiry"):
-            for label, e in variants:
-                if label:
-                    print(f"-- {label}")
-                code = (f"import sys; sys.path.insert(0, {HERE!r}); import bench_app as b; "
-                        f"b.bench_expiry_switch({30 if not args.quick else 12})")
-                subprocess.run([sys.executable, "-c", code], check=True, env=e)
+            # One process per size and variant, the variants taking turns (twice with a baseline),
+            # so a change in the machine's load falls on both.
+            rounds = 2 if args.baseline else 1
+            for size in EXPIRY_SIZES:
+                for _ in range(rounds):
+                    for label, e in variants:
+                        if label:
+                            print(f"-- {label}")
+                        code = (f"import sys; sys.path.insert(0, {HERE!r}); import bench_app as b; "
+                                f"b.bench_expiry_switch({30 if not args.quick else 12}, [{size!r}])")
+                        subprocess.run([sys.executable, "-c", code], check=True, env=e)
         if args.only in (None, "big"):
             bench_big_open(variants, repeats if not args.quick else 2, 200 if not args.quick else 80)
 
