@@ -13,6 +13,8 @@ import asyncio
 
 from rich.text import Text
 from textual.app import App, ComposeResult
+from textual.geometry import Offset
+from textual.selection import Selection
 
 from chaintriage.tui.widgets.info_bars import InfoBar
 
@@ -89,5 +91,28 @@ def test_a_bar_asks_for_a_layout_only_when_its_height_changes():
             # The drawn lines are the packed pieces, padded to the bar's width.
             assert [bar.render_line(y).text for y in range(2)] == [" " + "x" * 20 + " " * 19,
                                                                   " " + "y" * 20 + " " * 19]
+
+    asyncio.run(main())
+
+
+def test_a_bar_keeps_textual_text_selection():
+    """[L: Textual's Selection] the drawn lines carry the offsets a mouse selection starts from;
+    while a selection is shown Textual draws the bar and reads the selected text itself."""
+    async def main():
+        app = BarApp()
+        async with app.run_test(size=(40, 10)) as pilot:
+            bar = app.query_one(InfoBar)
+            bar.set_pieces(_pieces("alpha", "beta"))
+            await pilot.pause()
+            first = bar.render_line(0)
+            starts = [seg.style.meta.get("offset") for seg in first if seg.text.strip()]
+            assert starts and all(o is not None for o in starts)
+            app.screen.selections = {bar: Selection(Offset(1, 0), Offset(6, 0))}
+            await pilot.pause()
+            assert bar.render_line(0).text.startswith(" alpha  beta")
+            assert app.screen.get_selected_text() == "alpha"
+            app.screen.selections = {}
+            await pilot.pause()
+            assert bar.render_line(0).text == first.text
 
     asyncio.run(main())
