@@ -27,6 +27,8 @@ import numpy as np
 
 import pandas as pd
 
+from chaintriage.core.number_text import general_bytes
+from chaintriage.core.text_rows import join_lines, text_bytes
 from chaintriage.tui.cli.common import one_line, plain
 from chaintriage.tui.shortlist import neutralise_formula
 from chaintriage.tui.formatting import (
@@ -368,7 +370,12 @@ def _csv_scalar(v: object) -> str:
     return str(v)
 
 
+#: Significant digits of decimals in csv (printf ``%.10g``).
+CSV_PRECISION = 10
+
+
 def _csv_column(s: pd.Series) -> np.ndarray:
+    """One column's csv cells as strings (object array), each text computed once per distinct value."""
     if pd.api.types.is_float_dtype(s.dtype):
         x = s.to_numpy(dtype=float, na_value=np.nan)
         codes, uniq = pd.factorize(x, use_na_sentinel=False)
@@ -377,6 +384,27 @@ def _csv_column(s: pd.Series) -> np.ndarray:
     if _is_text(s):
         return _once_per_value(s.astype(object), _csv_cell_text)
     return _once_per_value(s, _csv_scalar)
+
+
+def _csv_cells(s: pd.Series) -> np.ndarray:
+    """One column's csv cells as a byte matrix with holes (``core.text_rows``): decimals formatted
+    at once (``core.number_text``, ``%.10g``, NaN empty), other cells once per distinct value."""
+    if pd.api.types.is_float_dtype(s.dtype):
+        return general_bytes(s.to_numpy(dtype=float, na_value=np.nan), CSV_PRECISION, nan="")
+    text = _is_text(s)
+    codes, uniq = pd.factorize(s.astype(object) if text else s, use_na_sentinel=False)
+    fn = _csv_cell_text if text else _csv_scalar
+    return text_bytes([fn(u) for u in uniq])[codes]
+
+
+def _csv_block(block: pd.DataFrame) -> str:
+    """The csv lines of a block of rows (each ended by a line break)."""
+    try:
+        cells = [_csv_cells(block.iloc[:, j]) for j in range(block.shape[1])]
+    except ValueError:  # a cell's text holds a NUL character: string by string
+        cols = [_csv_column(block.iloc[:, j]).tolist() for j in range(block.shape[1])]
+        return "\n".join(map(",".join, zip(*cols))) + "\n"
+    return join_lines(cells).decode("utf-8")
 
 
 def _csv_header(name: object) -> str:
@@ -393,11 +421,10 @@ def write_csv(frame: pd.DataFrame, out: TextIO, header: bool = True) -> None:
         out.write(",".join(_csv_header(c) for c in frame.columns) + "\n")
     for a in range(0, len(frame), BLOCK_ROWS):
         block = frame.iloc[a:a + BLOCK_ROWS]
-        cols = [_csv_column(block.iloc[:, j]) for j in range(block.shape[1])]
-        if not cols:
+        if block.shape[1] == 0:
             out.write("\n" * len(block))
             continue
-        out.write("\n".join(map(",".join, zip(*[c.tolist() for c in cols]))) + "\n")
+        out.write(_csv_block(block))
 
 
 def _json_scalar(v: object) -> str:

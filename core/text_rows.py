@@ -1,0 +1,50 @@
+"""Lines of text cells laid out at once, as bytes: cells as byte matrices with holes.
+
+A cell column is a uint8 matrix, one row per line, whose row holds the
+cell's UTF-8 bytes in order with zero bytes anywhere among them (holes, not
+text): ``core.number_text`` writes numbers so, ``text_bytes`` writes given
+strings so (left-aligned). ``join_lines`` lays the columns side by side with
+a separator and a line end and keeps every nonzero byte in order: the lines,
+in one pass over the bytes. Text holding a NUL character cannot be a cell.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+
+def text_bytes(texts: list[str]) -> np.ndarray:
+    """The UTF-8 bytes of each text, left-aligned in a zero-padded uint8 matrix (one row per text).
+
+    Raises ValueError when a text holds a NUL character (it would read as a hole).
+    """
+    encoded = [t.encode("utf-8") for t in texts]
+    width = max(map(len, encoded), default=0)
+    if any(b"\0" in b for b in encoded):
+        raise ValueError("a text cell holds a NUL character")
+    if width == 0:
+        return np.zeros((len(encoded), 0), dtype=np.uint8)
+    flat = b"".join(b.ljust(width, b"\0") for b in encoded)
+    return np.frombuffer(flat, dtype=np.uint8).reshape(len(encoded), width)
+
+
+def join_lines(columns: list[np.ndarray], sep: bytes = b",", end: bytes = b"\n") -> bytes:
+    """Each row's cells (the matrices of ``columns``, equal row counts) joined by ``sep``, ended by
+    ``end``: the bytes of all the lines. ``sep`` and ``end`` hold no NUL byte."""
+    if not columns:
+        return b""
+    n = columns[0].shape[0]
+    seps = np.frombuffer(sep, dtype=np.uint8)
+    ends = np.frombuffer(end, dtype=np.uint8)
+    widths = [c.shape[1] for c in columns]
+    total = sum(widths) + len(sep) * (len(columns) - 1) + len(end)
+    lines = np.empty((n, total), dtype=np.uint8)
+    at = 0
+    for j, (cells, w) in enumerate(zip(columns, widths)):
+        if j:
+            lines[:, at:at + len(sep)] = seps
+            at += len(sep)
+        lines[:, at:at + w] = cells
+        at += w
+    lines[:, at:] = ends
+    return lines.tobytes().translate(None, b"\0")
