@@ -38,9 +38,12 @@ _POW10 = np.array([float(Fraction(10) ** k) for k in range(-300, 301)])
 
 _ZERO, _POINT, _MINUS, _PLUS, _E = 48, 46, 45, 43, 101
 
-def general_bytes(values, precision: int = 10, nan: str = "nan") -> np.ndarray:
+def general_bytes(values, precision: int = 10, nan: str = "nan", trim: bool = True) -> np.ndarray:
     """``'%.{precision}g' % v`` of every value as a uint8 matrix with holes: row i's nonzero bytes,
-    in order, are value i's text (ASCII). Columns that are zero in every row are left out.
+    in order, are value i's text (ASCII). Columns that are zero in every row are left out (kept
+    when ``trim`` is false). The
+    matrix is the transpose of a C-contiguous (byte position, value) array: ``.T`` of it gives
+    each byte position's bytes for all values contiguously.
 
     ``values``: anything numpy turns into float64 (1-d). ``precision``: 1..``MAX_PRECISION``.
     ``nan``: the text of NaN (ASCII, at most 8 characters; "" leaves the row empty).
@@ -48,41 +51,43 @@ def general_bytes(values, precision: int = 10, nan: str = "nan") -> np.ndarray:
     if not 1 <= precision <= MAX_PRECISION:
         raise ValueError(f"precision {precision} outside 1..{MAX_PRECISION}")
     x = np.ascontiguousarray(values, dtype=np.float64).ravel()
-    if x.size > CHUNK:
-        parts = [general_bytes(x[i:i + CHUNK], precision, nan) for i in range(0, x.size, CHUNK)]
-        width = max(part.shape[1] for part in parts)
-        out = np.zeros((x.size, width), dtype=np.uint8)
-        for i, part in zip(range(0, x.size, CHUNK), parts):
-            out[i:i + part.shape[0], :part.shape[1]] = part
-        return out
     p = precision
-    a = np.abs(x)
-    with np.errstate(invalid="ignore"):
-        fast = (a > _LOW) & (a < _HIGH)
-    every = fast.all()
-    out, lone = _fast(x if every else np.where(fast, x, 1.0), p)
-    width = out.shape[1]  # 2p + 10: holds any of the texts below too
-    slow = lone if every else (lone | ~fast)
-    if not every:
-        nans = np.isnan(x)
-        for mask, text in ((nans, nan), (x == np.inf, "inf"), (x == -np.inf, "-inf"),
-                           ((x == 0) & ~np.signbit(x), "0"), ((x == 0) & np.signbit(x), "-0")):
-            if mask.any():
-                out[mask] = np.frombuffer(text.encode("ascii").ljust(width, b"\0"), dtype=np.uint8)
-                slow &= ~mask
-    rows = np.flatnonzero(slow)
-    if rows.size:
-        # near-ties and extremes: Python's own printf, left-aligned in the row
-        fmt = f"%.{p}g"
-        texts = [(fmt % v).encode("ascii").ljust(width, b"\0") for v in x[rows].tolist()]
-        out[rows] = np.frombuffer(b"".join(texts), dtype=np.uint8).reshape(-1, width)
-    used = out.any(axis=0)
-    return out if used.all() else out[:, used]
+    width = 2 * p + 10  # the fast layout (see _fast); holds any of the texts below too
+    by_position = np.empty((width, x.size), dtype=np.uint8)
+    out = by_position.T
+    for a in range(0, x.size, CHUNK):
+        part = x[a:a + CHUNK]
+        abs_part = np.abs(part)
+        with np.errstate(invalid="ignore"):
+            fast = (abs_part > _LOW) & (abs_part < _HIGH)
+        every = fast.all()
+        lone = _fast(part if every else np.where(fast, part, 1.0), p, by_position[:, a:a + part.size])
+        slow = lone | ~fast
+        if not every:  # zeros, nan and inf by their fixed texts (by byte position: whole rows at once)
+            odd = np.flatnonzero(~fast)
+            v = part[odd]
+            for mask, text in ((np.isnan(v), nan), (v == np.inf, "inf"), (v == -np.inf, "-inf"),
+                               ((v == 0) & ~np.signbit(v), "0"), ((v == 0) & np.signbit(v), "-0")):
+                if mask.any():
+                    pattern = np.frombuffer(text.encode("ascii").ljust(width, b"\0"), dtype=np.uint8)
+                    by_position[:, a + odd[mask]] = pattern[:, None]
+                    slow[odd[mask]] = False
+        rows = np.flatnonzero(slow)
+        if rows.size:
+            # near-ties and extremes: Python's own printf, left-aligned in the row
+            fmt = f"%.{p}g"
+            texts = [(fmt % v).encode("ascii").ljust(width, b"\0") for v in part[rows].tolist()]
+            out[a + rows] = np.frombuffer(b"".join(texts), dtype=np.uint8).reshape(-1, width)
+    if not trim:
+        return out
+    used = by_position.any(axis=1)
+    return out if used.all() else by_position[used].T
 
 
-def _fast(x: np.ndarray, p: int) -> tuple[np.ndarray, np.ndarray]:
-    """Text of finite values well inside float64's range (matrix with holes), and ``lone``: the
-    values too near a tie or a power of ten for float arithmetic to decide (their rows are junk).
+def _fast(x: np.ndarray, p: int, by_position: np.ndarray) -> np.ndarray:
+    """Text of finite values well inside float64's range, written into ``by_position`` (2p + 10 byte
+    positions x values), and ``lone``: the values too near a rounding tie for float arithmetic to
+    decide (their text is junk).
 
     One layout serves every value, a column per possible byte: sign; "0.000" before the digits of
     a fixed-notation value below 1; each digit followed by a possible point; "e-308". A byte that
@@ -139,10 +144,9 @@ def _fast(x: np.ndarray, p: int) -> tuple[np.ndarray, np.ndarray]:
              (sci & (ae >= 100), (ae // np.uint32(100)).astype(np.uint8) + np.uint8(_ZERO)),
              (sci, (ae // np.uint32(10) % np.uint32(10)).astype(np.uint8) + np.uint8(_ZERO)),
              (sci, (ae % np.uint32(10)).astype(np.uint8) + np.uint8(_ZERO))]
-    out = np.empty((len(rows), n), dtype=np.uint8)  # one byte position per row here; transposed below
     for j, (mask, byte) in enumerate(rows):
-        np.multiply(mask.view(np.uint8), np.uint8(byte) if np.isscalar(byte) else byte, out=out[j])
-    return out.T, lone
+        np.multiply(mask.view(np.uint8), np.uint8(byte) if np.isscalar(byte) else byte, out=by_position[j])
+    return lone
 
 
 def as_strings(matrix: np.ndarray) -> np.ndarray:

@@ -386,25 +386,37 @@ def _csv_column(s: pd.Series) -> np.ndarray:
     return _once_per_value(s, _csv_scalar)
 
 
-def _csv_cells(s: pd.Series) -> np.ndarray:
-    """One column's csv cells as a byte matrix with holes (``core.text_rows``): decimals formatted
-    at once (``core.number_text``, ``%.10g``, NaN empty), other cells once per distinct value."""
-    if pd.api.types.is_float_dtype(s.dtype):
-        return general_bytes(s.to_numpy(dtype=float, na_value=np.nan), CSV_PRECISION, nan="")
-    text = _is_text(s)
-    codes, uniq = pd.factorize(s.astype(object) if text else s, use_na_sentinel=False)
-    fn = _csv_cell_text if text else _csv_scalar
-    return text_bytes([fn(u) for u in uniq])[codes]
+def _coded_cells(s: pd.Series, fn) -> tuple[np.ndarray, np.ndarray]:
+    """(codes, matrix): ``fn`` of each distinct value of a column as UTF-8 bytes (``core.text_rows``),
+    ``matrix[codes]`` being the column's cells."""
+    codes, uniq = pd.factorize(s.astype(object) if _is_text(s) else s, use_na_sentinel=False)
+    return codes, text_bytes([fn(u) for u in uniq])
 
 
-def _csv_block(block: pd.DataFrame) -> str:
-    """The csv lines of a block of rows (each ended by a line break)."""
-    try:
-        cells = [_csv_cells(block.iloc[:, j]) for j in range(block.shape[1])]
-    except ValueError:  # a cell's text holds a NUL character: string by string
-        cols = [_csv_column(block.iloc[:, j]).tolist() for j in range(block.shape[1])]
-        return "\n".join(map(",".join, zip(*cols))) + "\n"
-    return join_lines(cells).decode("utf-8")
+def _csv_lines(frame: pd.DataFrame, out: TextIO) -> None:
+    """The csv lines of ``frame`` (no heading), block by block: the decimals of a block formatted at
+    once (``core.number_text``, ``%.10g``, NaN empty), other cells once per distinct value."""
+    floats = [j for j in range(frame.shape[1]) if pd.api.types.is_float_dtype(frame.dtypes.iloc[j])]
+    numbers = [frame.iloc[:, j].to_numpy(dtype=float, na_value=np.nan) for j in floats]
+    slot = {j: i for i, j in enumerate(floats)}
+    coded = {j: _coded_cells(frame.iloc[:, j], _csv_cell_text if _is_text(frame.iloc[:, j]) else _csv_scalar)
+             for j in range(frame.shape[1]) if j not in slot}
+    for a in range(0, len(frame), BLOCK_ROWS):
+        rows = min(BLOCK_ROWS, len(frame) - a)
+        if floats:  # one call for every decimal of the block, column after column
+            block = np.empty((len(floats), rows))
+            for i, x in enumerate(numbers):
+                block[i] = x[a:a + rows]
+            by_position = general_bytes(block.ravel(), CSV_PRECISION, nan="", trim=False).T
+        cells = []
+        for j in range(frame.shape[1]):
+            if j in slot:
+                bp = by_position[:, slot[j] * rows:(slot[j] + 1) * rows]
+                cells.append(bp[bp.any(axis=1)].T)
+            else:
+                codes, matrix = coded[j]
+                cells.append(matrix[codes[a:a + rows]])
+        out.write(join_lines(cells).decode("utf-8"))
 
 
 def _csv_header(name: object) -> str:
@@ -419,12 +431,16 @@ def write_csv(frame: pd.DataFrame, out: TextIO, header: bool = True) -> None:
     """
     if header:
         out.write(",".join(_csv_header(c) for c in frame.columns) + "\n")
-    for a in range(0, len(frame), BLOCK_ROWS):
-        block = frame.iloc[a:a + BLOCK_ROWS]
-        if block.shape[1] == 0:
-            out.write("\n" * len(block))
-            continue
-        out.write(_csv_block(block))
+    if frame.shape[1] == 0:
+        out.write("\n" * len(frame))
+        return
+    try:
+        _csv_lines(frame, out)
+    except ValueError:  # a cell's text holds a NUL character (``text_bytes``): string by string
+        for a in range(0, len(frame), BLOCK_ROWS):
+            block = frame.iloc[a:a + BLOCK_ROWS]
+            cols = [_csv_column(block.iloc[:, j]).tolist() for j in range(block.shape[1])]
+            out.write("\n".join(map(",".join, zip(*cols))) + "\n")
 
 
 def _json_scalar(v: object) -> str:
