@@ -164,3 +164,29 @@ def as_strings(matrix: np.ndarray) -> np.ndarray:
 def general_strings(values, precision: int = 10) -> np.ndarray:
     """``'%.{precision}g' % v`` of every value, as an object array of str."""
     return as_strings(general_bytes(values, precision))
+
+
+def fixed_bytes(units, decimals: int, sign, suffix: bytes = b"") -> np.ndarray:
+    """Fixed-point text of whole numbers of steps ``10**-decimals``: ``units`` 12345 with 2 decimals
+    -> "123.45" (what ``f"{v:.{decimals}f}"`` prints for any ``v`` that rounds to those units).
+
+    ``units``: integers (int64, |units| < 1e15). ``sign``: per value the byte put first (0 for
+    none, e.g. ord("-") or ord("+")). ``suffix``: bytes after the number ("%"). Returns a uint8
+    matrix with holes, as ``general_bytes``.
+    """
+    u = np.abs(np.asarray(units, dtype=np.int64))
+    n = u.size
+    digits = 15
+    rows = [np.asarray(sign, dtype=np.uint8) * np.ones(n, dtype=np.uint8)]
+    place = [u // np.int64(10 ** (digits - 1 - k)) % 10 for k in range(digits)]
+    started = np.zeros(n, dtype=bool)
+    for k in range(digits):
+        # a leading zero of the integer part is a hole; its last digit always shows
+        started = started | (place[k] != 0) | (k >= digits - 1 - decimals)
+        if k == digits - decimals and decimals:
+            rows.append(np.full(n, _POINT, dtype=np.uint8))
+        rows.append((place[k] + _ZERO).astype(np.uint8) * started)
+    rows.extend(np.full(n, b, dtype=np.uint8) for b in suffix)
+    by_position = np.stack(rows)
+    used = by_position.any(axis=1)
+    return by_position[used].T

@@ -18,21 +18,32 @@ def text_bytes(texts: list[str]) -> np.ndarray:
 
     Raises ValueError when a text holds a NUL character (it would read as a hole).
     """
-    encoded = [t.encode("utf-8") for t in texts]
-    width = max(map(len, encoded), default=0)
-    if any(b"\0" in b for b in encoded):
+    if not texts:
+        return np.zeros((0, 0), dtype=np.uint8)
+    wide = np.array(texts, dtype=str)
+    try:
+        narrow = wide.astype(bytes)  # ASCII only, at C speed
+    except UnicodeEncodeError:
+        encoded = [t.encode("utf-8") for t in texts]
+        width = max(map(len, encoded))
+        if any(b"\0" in b for b in encoded):
+            raise ValueError("a text cell holds a NUL character") from None
+        if width == 0:
+            return np.zeros((len(encoded), 0), dtype=np.uint8)
+        flat = b"".join(b.ljust(width, b"\0") for b in encoded)
+        return np.frombuffer(flat, dtype=np.uint8).reshape(len(encoded), width)
+    width = narrow.dtype.itemsize
+    if width == 0 or narrow.size == 0:
+        return np.zeros((len(texts), 0), dtype=np.uint8)
+    matrix = narrow.view(np.uint8).reshape(len(texts), width)
+    if np.any(np.char.str_len(wide) != (matrix != 0).sum(axis=1)):
         raise ValueError("a text cell holds a NUL character")
-    if width == 0:
-        return np.zeros((len(encoded), 0), dtype=np.uint8)
-    flat = b"".join(b.ljust(width, b"\0") for b in encoded)
-    return np.frombuffer(flat, dtype=np.uint8).reshape(len(encoded), width)
+    return matrix
 
 
-def join_lines(columns: list[np.ndarray], sep: bytes = b",", end: bytes = b"\n") -> bytes:
-    """Each row's cells (the matrices of ``columns``, equal row counts) joined by ``sep``, ended by
-    ``end``: the bytes of all the lines. ``sep`` and ``end`` hold no NUL byte."""
-    if not columns:
-        return b""
+def line_matrix(columns: list[np.ndarray], sep: bytes = b",", end: bytes = b"\n") -> np.ndarray:
+    """Each row's cells (the matrices of ``columns``, equal row counts) side by side, ``sep`` between
+    them and ``end`` after: one row per line, with holes. ``sep`` and ``end`` hold no NUL byte."""
     n = columns[0].shape[0]
     seps = np.frombuffer(sep, dtype=np.uint8)
     ends = np.frombuffer(end, dtype=np.uint8)
@@ -47,4 +58,30 @@ def join_lines(columns: list[np.ndarray], sep: bytes = b",", end: bytes = b"\n")
         lines[:, at:at + w] = cells
         at += w
     lines[:, at:] = ends
+    return lines
+
+
+def strip_line_ends(lines: np.ndarray, end: int = 1) -> np.ndarray:
+    """``lines`` (from ``line_matrix``) with the spaces before each line's last ``end`` bytes made
+    holes: ``str.rstrip(" ")`` of every line, in place."""
+    body = lines[:, :lines.shape[1] - end]
+    if body.shape[1] == 0:
+        return lines
+    kept = (body != 32) & (body != 0)
+    last = body.shape[1] - np.argmax(kept[:, ::-1], axis=1)  # one past the last kept byte
+    last[~kept.any(axis=1)] = 0
+    body[np.arange(body.shape[1])[None, :] >= last[:, None]] = 0
+    return lines
+
+
+def compact(lines: np.ndarray) -> bytes:
+    """The nonzero bytes of a matrix with holes, row after row."""
     return lines.tobytes().translate(None, b"\0")
+
+
+def join_lines(columns: list[np.ndarray], sep: bytes = b",", end: bytes = b"\n") -> bytes:
+    """Each row's cells (the matrices of ``columns``, equal row counts) joined by ``sep``, ended by
+    ``end``: the bytes of all the lines. ``sep`` and ``end`` hold no NUL byte."""
+    if not columns:
+        return b""
+    return compact(line_matrix(columns, sep, end))

@@ -21,7 +21,7 @@ from chaintriage.tui.shortlist import neutralise_formula
 from chaintriage.tui.cli.common import plain
 from chaintriage.tui.cli import table_output as to
 
-KINDS = ["price", "level", "strike", "vol", "prob", "spread", "delta", "count", "signed", "points", "g", "f4",
+KINDS = ["price", "level", "strike", "vol", "prob", "spread", "delta", "count", "signed", "points", "g", "f4", "pct2",
          "f6"]
 
 

@@ -27,8 +27,8 @@ import numpy as np
 
 import pandas as pd
 
-from chaintriage.core.number_text import general_bytes
-from chaintriage.core.text_rows import join_lines, text_bytes
+from chaintriage.core.number_text import as_strings, fixed_bytes, general_bytes
+from chaintriage.core.text_rows import compact, join_lines, line_matrix, strip_line_ends, text_bytes
 from chaintriage.tui.cli.common import one_line, plain
 from chaintriage.tui.shortlist import neutralise_formula
 from chaintriage.tui.formatting import (
@@ -194,7 +194,18 @@ BLOCK_ROWS = 20_000
 #: Per plain formatter: how many units of the value one step of the last shown digit is,
 #: and the values that have a text of their own (special branches of the formatter).
 _STEP = {"prob": 1000.0, "vol": 1000.0, "spread": 1000.0, "delta": 100.0, "signed": 100.0,
-         "points": 10000.0, "count": 1.0, "g": None, "f4": 10000.0, "f6": 1e6}
+         "points": 10000.0, "count": 1.0, "g": None, "f4": 10000.0, "f6": 1e6, "pct2": 10000.0}
+
+#: Per plain formatter whose ordinary text is a fixed-point number: (decimals, None for the
+#: per-value decimals of prices and strikes; whether a plus sign shows; suffix).
+_FIXED = {"prob": (1, False, b"%"), "vol": (1, False, b"%"), "spread": (1, False, b"%"),
+          "delta": (2, True, b""), "signed": (2, True, b""), "points": (2, False, b""),
+          "f4": (4, False, b""), "f6": (6, False, b""), "pct2": (2, False, b"%"),
+          "price": (None, False, b""), "strike": (None, False, b"")}
+
+#: Scaled values at least this large are formatted one by one (the float product's error could
+#: pass the tie margin).
+_SCALED_LIMIT = 1e9
 
 
 def _special(x: np.ndarray, kind: str) -> np.ndarray:
@@ -206,6 +217,8 @@ def _special(x: np.ndarray, kind: str) -> np.ndarray:
             code[(x >= 0.9995) & (x < 1.0)] = 2
         if kind == "spread":
             code[x >= 9.995] = 3
+        if kind in ("f4", "pct2"):
+            code[~(np.abs(x) < 1e6)] = 5  # scientific notation from there
         code[~np.isfinite(x * 100.0)] = 4
     return code
 
@@ -231,6 +244,7 @@ def _format_codes(values, kind: str) -> tuple[np.ndarray, np.ndarray]:
     special ranges (tiny, huge, non-finite) are keyed by their exact value.
     """
     n = len(values)
+    worded = None
     if kind in ("text", "date", "bool") or n == 0:
         arr = np.asarray(values, dtype=object) if kind != "date" else values
         codes, uniq = pd.factorize(pd.Series(arr), use_na_sentinel=False)
@@ -241,49 +255,70 @@ def _format_codes(values, kind: str) -> tuple[np.ndarray, np.ndarray]:
         if kind in ("price", "strike"):
             decimals = _decimals(x, kind)
             scale = 10.0 ** decimals
-            lone = ~(np.abs(x) < 1e9)  # scaled rounding is exact enough only well below HUGE
-            if kind == "price":  # Python's round() decides the decimals: ties at 2-4 decimals on their own
-                for k in (100.0, 1000.0, 10000.0):
-                    yk = x * k
-                    lone |= np.abs(np.abs(yk - np.floor(yk)) - 0.5) < 1e-6
+            # the decimals compare roundings 1e-9 apart: float error stays far below that under 1e5
+            lone = ~(np.abs(x) < 1e5)
+            if kind == "price":
+                # Python's round() decides the decimals against the value to 4 decimals: a tie there on its
+                # own (a tie at 2 or 3 decimals leaves the value 5e-4 or more from those roundings, either way)
+                y4 = x * 10000.0
+                lone |= np.abs(np.abs(y4 - np.floor(y4)) - 0.5) < 1e-6
         elif _STEP.get(kind) is not None:
             scale = np.full(n, _STEP[kind])
-            lone = _special(x, kind) > 0
+            special = _special(x, kind)
+            lone = special > 0
+            worded = (special >= 1) & (special <= 3)  # "<0.1%", ">99.9%", ">999%": one text per word
         else:  # shown digits depend on the value itself: one text per distinct value
             scale = None
             lone = np.ones(n, dtype=bool)
-        # tiny values print in scientific notation (or special words): each one by the formatter itself
-        lone |= (x != 0) & (np.abs(x) < TINY)
+        if decimals is not None:  # tiny prices and strikes print in scientific notation: each by the formatter
+            lone |= (x != 0) & (np.abs(x) < TINY)
         if scale is not None:
             y = x * scale
-            lone |= (np.abs(np.abs(y - np.floor(y)) - 0.5) < 1e-6) | ~(np.abs(y) < 1e14)
+            lone |= (np.abs(np.abs(y - np.floor(y)) - 0.5) < 1e-6) | ~(np.abs(y) < _SCALED_LIMIT)
             zero = np.round(y) == 0
             key = np.round(y) / scale if decimals is None else np.round(y) * 8 + decimals  # decimals apart
         else:
             key = x
             zero = x == 0
         key = np.where(lone, x, key)
+        if worded is not None:
+            key = np.where(worded, special, key)
     # a lone row is keyed by its exact value, apart from the rounded keys; a key of zero from a
     # negative value apart too (factorize takes -0.0 for 0.0, but some formats show "-0")
     negz = (zero & ~lone | (x == 0)) & np.signbit(x)
     codes = np.empty(n, dtype=np.int64)
     texts: list[str] = []
-    for rows in (np.flatnonzero(~lone & ~negz), np.flatnonzero(lone & ~negz), np.flatnonzero(negz)):
+    worded = np.zeros(n, dtype=bool) if worded is None else worded
+    for rows in (np.flatnonzero(~lone & ~negz), np.flatnonzero(worded), np.flatnonzero(lone & ~negz & ~worded),
+                 np.flatnonzero(negz)):
         if rows.size == 0:
             continue
         c, uniq = pd.factorize(key[rows], use_na_sentinel=False)
-        order = np.argsort(c, kind="stable")
-        first = rows[order[np.searchsorted(c[order], np.arange(len(uniq)))]]
+        # factorize numbers keys in order of first appearance: a first is where the running maximum rises
+        top = np.maximum.accumulate(c)
+        first = rows[np.flatnonzero(np.concatenate([[True], top[1:] > top[:-1]]))]
         codes[rows] = c + len(texts)
-        if decimals is not None and not lone[rows[0]]:
-            # finite prices and strikes below HUGE: the formatter's own f-string, with its decimals
-            made = [f"{v:.{d}f}" for v, d in zip(x[first].tolist(), decimals[first].tolist())]
-            if kind == "price":
-                made = [tidy_zero(t) if t[0] == "-" else t for t in made]
-            texts.extend(made)
+        if kind in _FIXED and not lone[rows[0]] and not negz[rows[0]]:
+            texts.extend(_fixed_texts(np.round(y[first]), kind, None if decimals is None else decimals[first]))
         else:
             texts.extend(_fmt(x[i], kind) for i in first)
     return codes, np.array(texts, dtype=object)
+
+
+def _fixed_texts(units: np.ndarray, kind: str, decimals: np.ndarray | None) -> list[str]:
+    """The plain text of rounded values (whole steps of the shown last digit; never a rounding tie,
+    never a special branch), as the formatter of ``kind`` prints them: fixed decimals, a sign
+    (plus too for deltas and sigmas; none on zero), the suffix."""
+    places, plus, suffix = _FIXED[kind]
+    k = units.astype(np.int64)
+    sign = np.where(k < 0, np.uint8(ord("-")), np.uint8(ord("+") if plus else 0))
+    if places is not None:
+        return as_strings(fixed_bytes(k, places, sign, suffix)).tolist()
+    out = np.empty(k.size, dtype=object)
+    for d in np.unique(decimals).tolist():
+        at = np.flatnonzero(decimals == d)
+        out[at] = as_strings(fixed_bytes(k[at], d, sign[at], suffix))
+    return out.tolist()
 
 
 def format_column(values, kind: str) -> np.ndarray:
@@ -309,7 +344,7 @@ def _plain_coded(frame: pd.DataFrame) -> tuple[list, list[int], list[bool]]:
     """Each column's (codes, texts), the widths of its heading and widest text, and which are left-aligned."""
     headings, kinds = _plain_kinds(frame)
     coded = [_format_codes(frame.iloc[:, j], k) for j, k in enumerate(kinds)]
-    widths = [max([len(h)] + [len(t) for t in texts]) if len(codes) else len(h)
+    widths = [max(len(h), int(np.char.str_len(texts.astype(str)).max())) if len(codes) else len(h)
               for h, (codes, texts) in zip(headings, coded)]
     return coded, widths, [k in ("text", "date") for k in kinds]
 
@@ -322,6 +357,35 @@ def _plain_heading(headings: list[str], widths: list[int], left: list[bool], out
 
 
 def _plain_rows(coded: list, widths: list[int], left: list[bool], n: int, out: TextIO) -> None:
+    if not coded:
+        out.write("\n" * n)
+        return
+    try:
+        cells = [_plain_cells(texts, w, lft) for (codes, texts), w, lft in zip(coded, widths, left)]
+    except ValueError:  # a text Python's rstrip would treat otherwise than bytes (NUL, other blanks)
+        _plain_rows_as_strings(coded, widths, left, n, out)
+        return
+    for a in range(0, n, BLOCK_ROWS):
+        lines = line_matrix([m[codes[a:a + BLOCK_ROWS]] for (codes, _), m in zip(coded, cells)], sep=b"  ")
+        out.write(compact(strip_line_ends(lines)).decode("utf-8"))
+
+
+def _plain_cells(texts: np.ndarray, width: int, left: bool) -> np.ndarray:
+    """Each distinct text of a column padded with spaces to ``width`` characters (left- or
+    right-aligned), as a byte matrix with holes (``core.text_rows``).
+
+    Raises ValueError for a text with a NUL or ending in a blank other than a space.
+    """
+    listed = texts.tolist()
+    if left and any(t.rstrip(" ") != t.rstrip() for t in listed):  # (right-aligned: our own number texts)
+        raise ValueError("a text ends in a blank other than a space")
+    body = text_bytes(listed)
+    short = width - np.char.str_len(np.array(listed, dtype=str)).astype(np.int64)
+    pad = np.where(np.arange(max(width, 0))[None, :] < short[:, None], np.uint8(32), np.uint8(0))
+    return np.concatenate([body, pad] if left else [pad, body], axis=1)
+
+
+def _plain_rows_as_strings(coded: list, widths: list[int], left: list[bool], n: int, out: TextIO) -> None:
     padded = [(codes, np.array([t.ljust(w) if lft else t.rjust(w) for t in texts], dtype=object))
               for (codes, texts), w, lft in zip(coded, widths, left)]
     for a in range(0, n, BLOCK_ROWS):
