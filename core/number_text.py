@@ -176,7 +176,7 @@ def fixed_bytes(units, decimals: int, sign, suffix: bytes = b"") -> np.ndarray:
     """
     u = np.abs(np.asarray(units, dtype=np.int64))
     n = u.size
-    digits = 15
+    digits = max(len(str(int(u.max()))) if n else 1, decimals + 1)
     rows = [np.asarray(sign, dtype=np.uint8) * np.ones(n, dtype=np.uint8)]
     place = [u // np.int64(10 ** (digits - 1 - k)) % 10 for k in range(digits)]
     started = np.zeros(n, dtype=bool)

@@ -365,9 +365,12 @@ def _plain_rows(coded: list, widths: list[int], left: list[bool], n: int, out: T
     except ValueError:  # a text Python's rstrip would treat otherwise than bytes (NUL, other blanks)
         _plain_rows_as_strings(coded, widths, left, n, out)
         return
+    # a line ends in spaces only where its last cell may: left-aligned, or an empty or blank-ended text
+    last = coded[-1][1].tolist()
+    strip = left[-1] or any(t[-1:] in ("", " ") for t in last)
     for a in range(0, n, BLOCK_ROWS):
         lines = line_matrix([m[codes[a:a + BLOCK_ROWS]] for (codes, _), m in zip(coded, cells)], sep=b"  ")
-        out.write(compact(strip_line_ends(lines)).decode("utf-8"))
+        out.write(compact(strip_line_ends(lines) if strip else lines).decode("utf-8"))
 
 
 def _plain_cells(texts: np.ndarray, width: int, left: bool) -> np.ndarray:
@@ -379,10 +382,21 @@ def _plain_cells(texts: np.ndarray, width: int, left: bool) -> np.ndarray:
     listed = texts.tolist()
     if left and any(t.rstrip(" ") != t.rstrip() for t in listed):  # (right-aligned: our own number texts)
         raise ValueError("a text ends in a blank other than a space")
-    body = text_bytes(listed)
-    short = width - np.char.str_len(np.array(listed, dtype=str)).astype(np.int64)
-    pad = np.where(np.arange(max(width, 0))[None, :] < short[:, None], np.uint8(32), np.uint8(0))
-    return np.concatenate([body, pad] if left else [pad, body], axis=1)
+    wide = np.array(listed, dtype=str)
+    padded = np.strings.ljust(wide, width) if left else np.strings.rjust(wide, width)
+    try:
+        narrow = padded.astype(bytes)  # ASCII: every cell exactly ``width`` bytes, no holes
+    except UnicodeEncodeError:
+        body = text_bytes(listed)
+        short = width - np.char.str_len(wide).astype(np.int64)
+        pad = np.where(np.arange(max(width, 0))[None, :] < short[:, None], np.uint8(32), np.uint8(0))
+        return np.concatenate([body, pad] if left else [pad, body], axis=1)
+    if narrow.dtype.itemsize == 0 or width == 0:
+        return np.zeros((len(listed), 0), dtype=np.uint8)
+    cells = narrow.view(np.uint8).reshape(len(listed), narrow.dtype.itemsize)
+    if cells.shape[1] != width or not cells.all():
+        raise ValueError("a text cell holds a NUL character")
+    return cells
 
 
 def _plain_rows_as_strings(coded: list, widths: list[int], left: list[bool], n: int, out: TextIO) -> None:
