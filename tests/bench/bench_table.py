@@ -123,30 +123,62 @@ def commands(path: Path, formats: list[str], label: str) -> None:
                   f"memory = {m / m_pd:4.1f}x; cpu {LAST_CPU[0]:6.2f} s = {LAST_CPU[0] / c_pd:5.1f}x read_csv's")
 
 
+#: Times ``render`` of a pickled frame in each format (best of 3): wall and CPU seconds, one line per format.
+WRITER_TIMING = """
+import pickle, sys, time
+from chaintriage.tui.cli.table_output import render
+frame = pickle.load(open(sys.argv[1], "rb"))
+for fmt in sys.argv[2:]:
+    wall = cpu = float("inf")
+    for _ in range(3):
+        t0, c0 = time.perf_counter(), time.process_time()
+        render(frame, fmt)
+        wall, cpu = min(wall, time.perf_counter() - t0), min(cpu, time.process_time() - c0)
+    print(fmt, wall, cpu)
+"""
+
+
+def writer_times(frame_path: str, formats: list[str], baseline: str | None) -> dict[str, tuple[float, float]]:
+    """{format: (wall s, CPU s)} of the writers of this revision or ``baseline``'s, in a fresh process."""
+    code = ""
+    if baseline:
+        code = ("import sys; sys.meta_path[:] = [f for f in sys.meta_path if 'Editable' not in "
+                f"getattr(f, '__name__', '')]; sys.path.insert(0, {baseline!r})\n")
+    out = subprocess.run([sys.executable, "-c", code + WRITER_TIMING, frame_path, *formats],
+                         capture_output=True, text=True, check=True).stdout
+    return {f: (float(w), float(c)) for f, w, c in (line.split() for line in out.splitlines())}
+
+
 def writers(path: Path) -> None:
     from chaintriage.core.loading import load_files
     from chaintriage.core.pipeline import PipelineSettings, annotate
     from chaintriage.tui.cli.table import TABLE_COLUMNS
-    from chaintriage.tui.cli.table_output import render
 
     snap = load_files([path]).snapshots[0]
     frame = annotate(snap, PipelineSettings()).contracts[TABLE_COLUMNS].copy()
     frame.insert(1, "as_of", snap.as_of.isoformat())
+    frame_path = str(path) + ".frame.pickle"
+    frame.to_pickle(frame_path)
 
-    def best(fn, repeat=3):
-        out = float("inf")
-        for _ in range(repeat):
-            t0 = time.perf_counter()
-            fn()
-            out = min(out, time.perf_counter() - t0)
-        return out
-
-    t_floor = best(lambda: frame.to_csv(io.StringIO(), index=False))
-    print(f"writers alone on the annotated frame ({len(frame):,} rows x {frame.shape[1]} columns), best of 3:")
-    print(f"  floor DataFrame.to_csv          {t_floor:7.2f} s")
-    for fmt in ("csv", "plain", "json"):
-        t = best(lambda: render(frame, fmt))
-        print(f"  {fmt:5s} writer                    {t:7.2f} s   = {t / t_floor:4.2f}x to_csv")
+    t0, c0 = time.perf_counter(), time.process_time()
+    best_wall = best_cpu = float("inf")
+    for _ in range(3):
+        t0, c0 = time.perf_counter(), time.process_time()
+        frame.to_csv(io.StringIO(), index=False)
+        best_wall, best_cpu = min(best_wall, time.perf_counter() - t0), min(best_cpu, time.process_time() - c0)
+    print(f"writers alone on the annotated frame ({len(frame):,} rows x {frame.shape[1]} columns), best of 3, "
+          f"each revision in a fresh process; load average {os.getloadavg()[0]:.2f}:")
+    print(f"  floor DataFrame.to_csv          {best_wall:7.2f} s   cpu {best_cpu:6.2f} s")
+    formats = ["csv", "plain", "json"]
+    ours = writer_times(frame_path, formats, None)
+    base = writer_times(frame_path, formats, BASELINE) if BASELINE else {}
+    for fmt in formats:
+        w, c = ours[fmt]
+        line = f"  {fmt:5s} writer                    {w:7.2f} s   cpu {c:6.2f} s   = {w / best_wall:4.2f}x to_csv"
+        if fmt in base:
+            bw, bc = base[fmt]
+            line += f";  baseline {bw:6.2f} s cpu {bc:6.2f} s: {bc / c:4.1f}x less cpu ({bw / w:4.1f}x wall)"
+        print(line)
 
 
 def main() -> None:

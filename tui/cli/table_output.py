@@ -557,14 +557,52 @@ def write_json(frame: pd.DataFrame, out: TextIO) -> None:
 
 def _json_records(frame: pd.DataFrame, out: TextIO, first: bool) -> None:
     """The records of ``frame``, comma-separated (a leading comma unless ``first``)."""
+    if frame.shape[1] == 0:
+        for a in range(0, len(frame), BLOCK_ROWS):
+            rows = [" {}"] * len(frame.iloc[a:a + BLOCK_ROWS])
+            out.write(("" if a == 0 and first else ",\n") + ",\n".join(rows))
+        return
+    floats = [pd.api.types.is_float_dtype(t) for t in frame.dtypes]
+    keys = [np.frombuffer(((" {\n" if j == 0 else ",\n") + "  " + json.dumps(str(c)) + ": ").encode("ascii"),
+                          dtype=np.uint8) for j, c in enumerate(frame.columns)]
+    try:  # other cells once per distinct value of the whole table; decimals (mostly distinct) per block
+        coded = {j: _json_cells(frame.iloc[:, j]) for j in range(frame.shape[1]) if not floats[j]}
+        for a in range(0, len(frame), BLOCK_ROWS):
+            block = frame.iloc[a:a + BLOCK_ROWS]
+            cells = []
+            for j in range(frame.shape[1]):
+                codes, matrix = coded[j] if j in coded else _json_cells(block.iloc[:, j])
+                cells += [np.broadcast_to(keys[j], (len(block), keys[j].size)),
+                          matrix[codes[a:a + len(block)] if j in coded else codes]]
+            lines = line_matrix(cells, sep=b"", end=b"\n },\n")
+            text = compact(lines)[:-2].decode("utf-8")  # records joined by ",\n"
+            out.write(("" if a == 0 and first else ",\n") + text)
+    except ValueError:  # a text with a NUL character (``text_bytes``): string by string
+        _json_records_as_strings(frame, out, first)
+
+
+def _json_cells(s: pd.Series) -> tuple[np.ndarray, np.ndarray]:
+    """(codes, matrix): the JSON text of each distinct value of a column as a byte matrix
+    (``core.text_rows``), ``matrix[codes]`` being the column's cells."""
+    if pd.api.types.is_float_dtype(s.dtype):
+        x = s.to_numpy(dtype=float, na_value=np.nan)
+        codes, uniq = pd.factorize(x, use_na_sentinel=False)
+        finite = np.isfinite(uniq)
+        texts = np.full(len(uniq), "null", dtype=object)
+        texts[finite] = list(map(float.__repr__, uniq[finite].tolist()))  # Python's shortest round-trip text
+        texts = texts.tolist()
+    else:
+        codes, uniq = pd.factorize(s.astype(object) if _is_text(s) else s, use_na_sentinel=False)
+        texts = [_json_scalar(u) for u in uniq]
+    return codes, text_bytes(texts)
+
+
+def _json_records_as_strings(frame: pd.DataFrame, out: TextIO, first: bool) -> None:
     keys = ['  ' + json.dumps(str(c)) + ": " for c in frame.columns]
     for a in range(0, len(frame), BLOCK_ROWS):
         block = frame.iloc[a:a + BLOCK_ROWS]
-        if block.shape[1] == 0:
-            rows = [" {}"] * len(block)
-        else:
-            cols = [(keys[j] + _json_column(block.iloc[:, j])).tolist() for j in range(block.shape[1])]
-            rows = [" {\n" + r + "\n }" for r in map(",\n".join, zip(*cols))]
+        cols = [(keys[j] + _json_column(block.iloc[:, j])).tolist() for j in range(block.shape[1])]
+        rows = [" {\n" + r + "\n }" for r in map(",\n".join, zip(*cols))]
         out.write(("" if a == 0 and first else ",\n") + ",\n".join(rows))
 
 
