@@ -591,6 +591,10 @@ def _json_cells(s: pd.Series) -> tuple[np.ndarray, np.ndarray]:
         texts = np.full(len(uniq), "null", dtype=object)
         texts[finite] = list(map(float.__repr__, uniq[finite].tolist()))  # Python's shortest round-trip text
         texts = texts.tolist()
+        negative_zero = (x == 0) & np.signbit(x)  # factorize takes -0.0 for 0.0
+        if negative_zero.any():
+            codes = np.where(negative_zero, len(texts), codes)
+            texts.append("-0.0")
     else:
         codes, uniq = pd.factorize(s.astype(object) if _is_text(s) else s, use_na_sentinel=False)
         texts = [_json_scalar(u) for u in uniq]
