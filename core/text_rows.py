@@ -20,14 +20,13 @@ def text_bytes(texts: list[str]) -> np.ndarray:
     """
     if not texts:
         return np.zeros((0, 0), dtype=np.uint8)
-    wide = np.array(texts, dtype=str)
+    if "\0" in "".join(texts):
+        raise ValueError("a text cell holds a NUL character")
     try:
-        narrow = wide.astype(bytes)  # ASCII only, at C speed
+        narrow = np.array(texts, dtype=bytes)  # ASCII only, at C speed
     except UnicodeEncodeError:
         encoded = [t.encode("utf-8") for t in texts]
         width = max(map(len, encoded))
-        if any(b"\0" in b for b in encoded):
-            raise ValueError("a text cell holds a NUL character") from None
         if width == 0:
             return np.zeros((len(encoded), 0), dtype=np.uint8)
         flat = b"".join(b.ljust(width, b"\0") for b in encoded)
@@ -35,10 +34,7 @@ def text_bytes(texts: list[str]) -> np.ndarray:
     width = narrow.dtype.itemsize
     if width == 0 or narrow.size == 0:
         return np.zeros((len(texts), 0), dtype=np.uint8)
-    matrix = narrow.view(np.uint8).reshape(len(texts), width)
-    if np.any(np.char.str_len(wide) != (matrix != 0).sum(axis=1)):
-        raise ValueError("a text cell holds a NUL character")
-    return matrix
+    return narrow.view(np.uint8).reshape(len(texts), width)
 
 
 def line_matrix(columns: list[np.ndarray], sep: bytes = b",", end: bytes = b"\n") -> np.ndarray:
