@@ -133,19 +133,25 @@ def _fast(x: np.ndarray, p: int, by_position: np.ndarray) -> np.ndarray:
         shown[k] = later | (k < intlen)
     # the point: after the integer part (fixed) or the first digit (scientific), when a digit follows
     point_after = np.where(sci, 0, e)
-    ae = np.abs(e).astype(np.uint32)
     rows = [(x < 0, _MINUS), (fixed_below_one, _ZERO), (fixed_below_one, _POINT)]
     rows += [(~sci & (e <= -k), _ZERO) for k in (2, 3, 4)]
     for k in range(p):
         rows.append((shown[k], digits[k] + np.uint8(_ZERO)))
         if k < p - 1:
             rows.append(((point_after == k) & shown[k + 1], _POINT))
-    rows += [(sci, _E), (sci, np.where(e < 0, np.uint8(_MINUS), np.uint8(_PLUS))),
-             (sci & (ae >= 100), (ae // np.uint32(100)).astype(np.uint8) + np.uint8(_ZERO)),
-             (sci, (ae // np.uint32(10) % np.uint32(10)).astype(np.uint8) + np.uint8(_ZERO)),
-             (sci, (ae % np.uint32(10)).astype(np.uint8) + np.uint8(_ZERO))]
     for j, (mask, byte) in enumerate(rows):
         np.multiply(mask.view(np.uint8), np.uint8(byte) if np.isscalar(byte) else byte, out=by_position[j])
+    j = len(rows)
+    if not sci.any():  # no exponent anywhere in the chunk
+        by_position[j:] = 0
+        return lone
+    ae = np.abs(e).astype(np.uint32)
+    exponent = [(sci, _E), (sci, np.where(e < 0, np.uint8(_MINUS), np.uint8(_PLUS))),
+                (sci & (ae >= 100), (ae // np.uint32(100)).astype(np.uint8) + np.uint8(_ZERO)),
+                (sci, (ae // np.uint32(10) % np.uint32(10)).astype(np.uint8) + np.uint8(_ZERO)),
+                (sci, (ae % np.uint32(10)).astype(np.uint8) + np.uint8(_ZERO))]
+    for i, (mask, byte) in enumerate(exponent):
+        np.multiply(mask.view(np.uint8), np.uint8(byte) if np.isscalar(byte) else byte, out=by_position[j + i])
     return lone
 
 
