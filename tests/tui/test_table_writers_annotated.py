@@ -125,3 +125,16 @@ def test_text_with_a_nul_character_still_written_as_defined(chain):
     plain = frame.drop(columns=["as_of"])
     assert to.to_plain(plain) == plain_reference(plain)
     assert json.loads(to.to_json(frame))[2]["flags"] == "a\x00b"
+
+
+def test_csv_columns_missing_in_a_whole_block(chain, monkeypatch):
+    """A decimal column with no value in a block (or anywhere) writes empty cells there, as printf's definition."""
+    monkeypatch.setattr(to, "BLOCK_ROWS", 50)
+    frame = chain.head(160).copy()
+    frame["p_touch"] = np.nan
+    frame.loc[50:99, "iv"] = np.nan
+    expected = [",".join(to._csv_header(c) for c in frame.columns)]
+    for row in frame.itertuples(index=False, name=None):
+        expected.append(",".join(("" if math.isnan(v) else "%.10g" % v) if pd.api.types.is_float_dtype(frame[c].dtype)
+                                 else to._csv_cell_text(v) for c, v in zip(frame.columns, row)))
+    assert to.to_csv(frame) == "\n".join(expected) + "\n"

@@ -9,10 +9,14 @@ so a spreadsheet does not run it as a formula (OWASP CSV injection guidance,
 ``shortlist.neutralise_formula``); numbers stay numbers. json escapes every
 non-ASCII and control character.
 
-The writers work a column at a time: numbers are formatted once per distinct
-shown value (a value near a rounding tie is formatted on its own), text is
-cleaned once per distinct value, and rows are written in blocks, so memory
-beyond the frame stays small and the time stays near that of writing text.
+The writers work a column at a time and lay rows out as bytes in blocks
+(``core.text_rows``), so memory beyond the frame stays small: csv decimals
+are formatted a block at a time by ``core.number_text`` (printf ``%.10g``
+byte for byte); plain numbers once per distinct shown value, their fixed
+decimals at once (``number_text.fixed_bytes``; a value near a rounding tie or
+in a special branch of its formatter by the formatter itself); json numbers
+once per distinct value by Python's own repr; text is cleaned once per
+distinct value.
 """
 
 from __future__ import annotations
@@ -481,15 +485,22 @@ def _csv_lines(frame: pd.DataFrame, out: TextIO) -> None:
              for j in range(frame.shape[1]) if j not in slot}
     for a in range(0, len(frame), BLOCK_ROWS):
         rows = min(BLOCK_ROWS, len(frame) - a)
-        if floats:  # one call for every decimal of the block, column after column
-            block = np.empty((len(floats), rows))
-            for i, x in enumerate(numbers):
-                block[i] = x[a:a + rows]
+        # one call for every decimal of the block, column after column (columns all missing left out)
+        filled = [i for i, x in enumerate(numbers) if not np.isnan(x[a:a + rows]).all()]
+        place = {i: k for k, i in enumerate(filled)}
+        if filled:
+            block = np.empty((len(filled), rows))
+            for k, i in enumerate(filled):
+                block[k] = numbers[i][a:a + rows]
             by_position = general_bytes(block.ravel(), CSV_PRECISION, nan="", trim=False).T
         cells = []
         for j in range(frame.shape[1]):
             if j in slot:
-                bp = by_position[:, slot[j] * rows:(slot[j] + 1) * rows]
+                if slot[j] not in place:
+                    cells.append(np.zeros((rows, 0), dtype=np.uint8))
+                    continue
+                k = place[slot[j]]
+                bp = by_position[:, k * rows:(k + 1) * rows]
                 cells.append(bp[bp.any(axis=1)].T)
             else:
                 codes, matrix = coded[j]
