@@ -386,6 +386,8 @@ def _plain_cells(texts: np.ndarray, width: int, left: bool) -> np.ndarray:
     listed = texts.tolist()
     if left and any(t.rstrip(" ") != t.rstrip() for t in listed):  # (right-aligned: our own number texts)
         raise ValueError("a text ends in a blank other than a space")
+    if "\0" in "".join(listed):  # numpy's strings would drop a trailing one
+        raise ValueError("a text cell holds a NUL character")
     wide = np.array(listed, dtype=str)
     padded = np.strings.ljust(wide, width) if left else np.strings.rjust(wide, width)
     try:
