@@ -235,6 +235,9 @@ class _Table:
     end_line: np.ndarray  # last line of each row (int64)
     nfields: np.ndarray  # number of fields in each row (int64)
     extra: np.ndarray  # bool: row has non-empty fields beyond the header
+    #: When some columns were read as numbers (int64/float64 cells, NaN for an empty cell):
+    #: ``cell_text(column, rows)`` gives those rows' cells as the file writes them (object array).
+    cell_text: object = None
 
 
 def _show(value: object, width: int = 40) -> str:
@@ -355,9 +358,12 @@ def _records_fast(path: str, text: str, delim: str):
     return raw, dpos, starts, ends, start_line, end_line, nfields, first_d
 
 
-def _table_fast(path: str, text: str, delim: str, columns: list[int] | None = None) -> _Table | None:
+def _table_fast(path: str, text: str, delim: str, columns: list[int] | None = None,
+                numeric=None) -> _Table | None:
     """The table of ``text`` (None when its quotes are not plain); ``columns``: read only these
-    (the cells then hold only them, under their positions; the headers are then not read)."""
+    (the cells then hold only them, under their positions; the headers are then not read).
+    ``numeric(headers)``, when given, names the columns to read as numbers where every cell is one
+    (see ``_table_numbers``)."""
     rec = _records_fast(path, text, delim)
     if rec is None:
         return None
@@ -366,6 +372,10 @@ def _table_fast(path: str, text: str, delim: str, columns: list[int] | None = No
         raise SnapshotFileError(path, "is empty (no header line)")
     width = int(nfields[0])
     maxf = int(nfields.max())
+    if numeric is not None and columns is None:
+        table = _table_numbers(path, text, delim, rec, numeric)
+        if table is not None:
+            return table
     try:
         df = pd.read_csv(
             io.StringIO(text),
@@ -387,18 +397,128 @@ def _table_fast(path: str, text: str, delim: str, columns: list[int] | None = No
     if len(df) != starts.size:
         return None
     # extra fields beyond the header: fine when they are all empty
+    extra = _extra_fields(raw, dpos, starts, ends, nfields, first_d, width, delim)
+    headers = [str(h) for h in df.iloc[0].tolist()] if columns is None else []
+    cells = df.iloc[1:].reset_index(drop=True)
+    cells.columns = range(width) if columns is None else [c for c in columns if c < width]
+    return _Table(headers, cells, start_line[1:], end_line[1:], nfields[1:].astype(np.int64), extra[1:])
+
+
+def _unquote(cell: str) -> str:
+    """A field as the CSV reader gives it: a quoted field without its quotes, doubled quotes single."""
+    if len(cell) >= 2 and cell[0] == '"' and cell[-1] == '"':
+        return cell[1:-1].replace('""', '"')
+    return cell
+
+
+def _slices_text(raw: bytes, arr: np.ndarray, a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """``raw[a:b]`` for each pair, decoded and unquoted (object array), decoded once per distinct value.
+
+    The slices are gathered into one fixed-width byte array, so the Python work is per
+    distinct cell, not per row.
+    """
+    size = np.maximum(b - a, 0)
+    out = np.full(size.size, "", dtype=object)
+    some = np.flatnonzero(size > 0)
+    if some.size == 0:
+        return out
+    width = int(size[some].max())
+    if width > 64:  # long cells (text where numbers were expected): one by one
+        out[some] = [_unquote(raw[x:y].decode("utf-8", "replace")) for x, y in zip(a[some], b[some])]
+        return out
+    step = np.arange(width)
+    pos = a[some, None] + step
+    mat = np.where(step < size[some, None], arr[np.minimum(pos, arr.size - 1)], 0).astype(np.uint8)
+    keys = np.ascontiguousarray(mat).view(f"S{width}").reshape(-1)
+    uniq, inverse = np.unique(keys, return_inverse=True)
+    text = np.array([_unquote(u.decode("utf-8", "replace")) for u in uniq], dtype=object)
+    out[some] = text[inverse.reshape(-1)]
+    return out
+
+
+def _table_numbers(path: str, text: str, delim: str, rec, numeric) -> _Table | None:
+    """The table with the columns ``numeric(headers)`` read as numbers by pandas' C parser where
+    every cell of the column is a plain decimal or empty (int64/float64 cells, NaN for an empty
+    cell); every other column, and a numeric column holding any other text, as text.
+
+    Numbers are parsed by the same C reader as ``pandas.read_csv`` (no Python string per cell).
+    The C reader takes what ``_NUM_RE`` takes, plus ``inf``/``infinity`` and overflows (as
+    infinities): those cells, empty cells and integer zeros (``-0``) are read again from their
+    text by the checks (``cell_text``). None when the fast reading does not apply.
+    """
+    raw, dpos, starts, ends, start_line, end_line, nfields, first_d = rec
+    width = int(nfields[0])
+    maxf = int(nfields.max())
+    opts = dict(sep=delim, index_col=False, engine="c", quotechar='"', doublequote=True, skip_blank_lines=True)
+    head = raw[starts[0]:ends[0]].decode("utf-8") + "\n"
+    try:
+        hdr = pd.read_csv(io.StringIO(head), header=None, names=range(width), dtype=object,
+                          keep_default_na=False, na_filter=False, **opts)
+    except (pd.errors.ParserError, ValueError):
+        return None
+    if len(hdr) != 1:
+        return None
+    headers = [str(h) for h in hdr.iloc[0].tolist()]
+    wanted = sorted({int(i) for i in numeric(headers)} & set(range(width)))
+    if not wanted:
+        return None
+    try:
+        df = pd.read_csv(io.StringIO(text), header=0, names=range(maxf), usecols=range(width),
+                         dtype={i: object for i in range(width) if i not in wanted},
+                         keep_default_na=False, na_values={i: [""] for i in wanted}, na_filter=True, **opts)
+    except (pd.errors.ParserError, ValueError):
+        return None
+    if len(df) != starts.size - 1:
+        return None
+    redo = []
+    for i in wanted:
+        col = df[i]
+        if col.dtype == np.int64 or col.dtype == np.float64:
+            continue
+        if pd.api.types.is_string_dtype(col.dtype) and col.dtype != object:
+            df[i] = col.fillna("").to_numpy(dtype=object)  # text after all: only an empty cell is NaN
+        else:  # other types the parser inferred (booleans, mixed Python ints): read again as text
+            redo.append(i)
+    if redo:
+        try:
+            again = pd.read_csv(io.StringIO(text), header=0, names=range(maxf), usecols=redo, dtype=object,
+                                keep_default_na=False, na_filter=False, **opts)
+        except (pd.errors.ParserError, ValueError):
+            return None
+        for i in redo:
+            df[i] = again[i].to_numpy(dtype=object)
+    arr = np.frombuffer(raw, dtype=np.uint8)
+    nf = nfields[1:]
+    fd = first_d[1:]
+    st = starts[1:]
+    en = ends[1:]
+    dp = dpos if dpos.size else np.zeros(1, dtype=np.int64)
+
+    def cell_text(column: int, rows: np.ndarray) -> np.ndarray:
+        rows = np.asarray(rows, dtype=np.int64)
+        have = column < nf[rows]
+        d = fd[rows]
+        a = np.where(column == 0, st[rows], dp[np.clip(d + column - 1, 0, dp.size - 1)] + 1)
+        last = column >= nf[rows] - 1
+        b = np.where(last, en[rows], dp[np.clip(d + column, 0, dp.size - 1)])
+        a = np.where(have, a, 0)
+        b = np.where(have, b, 0)
+        return _slices_text(raw, arr, a, b)
+
+    extra = _extra_fields(raw, dpos, starts, ends, nfields, first_d, width, delim)
+    return _Table(headers, df, start_line[1:], end_line[1:], nf.astype(np.int64), extra[1:], cell_text)
+
+
+def _extra_fields(raw, dpos, starts, ends, nfields, first_d, width: int, delim: str) -> np.ndarray:
+    """Whether each record has non-empty fields beyond the header's ``width``."""
     extra = np.zeros(starts.size, dtype=bool)
-    over = np.flatnonzero(nfields > width)
-    for i in over:  # rare: parse just the tail of the row, with the same quoting rules
+    for i in np.flatnonzero(nfields > width):  # rare: parse just the tail of the row, with the same quoting rules
         cut = dpos[first_d[i] + width - 1]
         tail = raw[cut + 1 : ends[i]].decode("utf-8")
         fields = next(csv.reader(io.StringIO(tail, newline=""), delimiter=delim, quotechar='"',
                                  doublequote=True, strict=False), [])
         extra[i] = any(x.strip(" \t") for x in fields)
-    headers = [str(h) for h in df.iloc[0].tolist()] if columns is None else []
-    cells = df.iloc[1:].reset_index(drop=True)
-    cells.columns = range(width) if columns is None else [c for c in columns if c < width]
-    return _Table(headers, cells, start_line[1:], end_line[1:], nfields[1:].astype(np.int64), extra[1:])
+    return extra
 
 
 def _table_csv_module(path: str, text: str, delim: str) -> _Table:
@@ -443,14 +563,14 @@ def _table_csv_module(path: str, text: str, delim: str) -> _Table:
                   nfields, extra)
 
 
-def _read_csv_table(path: str, data: bytes) -> _Table:
+def _read_csv_table(path: str, data: bytes, numeric=None) -> _Table:
     text = _decode(path, data)
     if not text.strip():
         raise SnapshotFileError(path, "is empty")
     if not text.endswith("\n"):
         text += "\n"
     delim = _pick_delimiter(text)
-    table = _table_fast(path, text, delim)
+    table = _table_fast(path, text, delim, numeric=numeric)
     if table is None:
         table = _table_csv_module(path, text, delim)
     return table
@@ -682,7 +802,8 @@ def _read_csv_blocks(path: str, fh, first: bytes) -> _Table:
     return _join_tables(tables)
 
 
-def _read_table(path: str) -> _Table:
+def _read_table(path: str, numeric=None) -> _Table:
+    """The table of a file; ``numeric(headers)``: columns a small CSV may give as numbers (see ``_table_numbers``)."""
     p = Path(path)
     try:
         if p.is_dir():
@@ -710,7 +831,7 @@ def _read_table(path: str) -> _Table:
         raise SnapshotFileError(path, f"cannot be read ({exc.strerror or exc})") from None
     if not data:
         raise SnapshotFileError(path, "is empty")
-    return _read_csv_table(path, data)
+    return _read_csv_table(path, data, numeric)
 
 
 # --------------------------------------------------------------------------- cell parsing (vectorised)
@@ -806,9 +927,46 @@ def _per_unique(s: pd.Series, parse, *args, **kwargs):
     return np.asarray(result)[codes]
 
 
-def _numbers(s: pd.Series, *, percent: bool = False) -> tuple[np.ndarray, np.ndarray]:
-    """Parse stripped text to float. Returns (values, status): 0 ok, 1 empty, 2 not a number, 3 not finite."""
+def _numbers(s, *, percent: bool = False) -> tuple[np.ndarray, np.ndarray]:
+    """Parse stripped text to float. Returns (values, status): 0 ok, 1 empty, 2 not a number, 3 not finite.
+
+    ``s`` is a column of text, or a ``_NumberColumn`` (already parsed).
+    """
+    if isinstance(s, _NumberColumn):
+        return s.values.copy(), s.status
     return _per_unique(s, _numbers_unique, percent=percent)
+
+
+class _NumberColumn:
+    """A column the CSV reader gave as numbers: float values (NaN unless status 0), the status of
+    ``_numbers`` per row, and each row's stripped text on demand (for messages).
+
+    Cells the C reader takes that need their text to be judged as ``_numbers`` judges them
+    (empty, infinite or overflowing, and integer zeros, which may be ``-0``) are parsed again
+    from their text, once per distinct text.
+    """
+
+    def __init__(self, parsed: np.ndarray, cell_text):
+        self._cell_text = cell_text
+        values = parsed.astype(np.float64)
+        again = ~np.isfinite(values)
+        if parsed.dtype.kind in "iu":
+            again |= parsed == 0
+        rows = np.flatnonzero(again)
+        status = np.zeros(values.size, dtype=np.int8)
+        if rows.size:
+            v, st = _per_unique(pd.Series(self.text(rows), dtype=object), _numbers_unique)
+            values[rows] = v
+            status[rows] = st
+        self.values, self.status = values, status
+
+    def __len__(self) -> int:
+        return self.values.size
+
+    def text(self, rows: np.ndarray) -> np.ndarray:
+        """The stripped text of the cells ``rows`` (row indices), as an object array."""
+        raw = self._cell_text(np.asarray(rows, dtype=np.int64))
+        return _per_unique(pd.Series(raw, dtype=object), lambda u: u.str.strip().to_numpy(dtype=object))
 
 
 def _dates(s: pd.Series, fmt: str | None) -> tuple[np.ndarray, np.ndarray]:
@@ -870,13 +1028,29 @@ class _Rows:
         if callable(text):
             self.reason[sel] = [text(i) for i in sel]
         elif values is not None:
-            vals = values.iloc[sel] if isinstance(values, pd.Series) else np.asarray(values, dtype=object)[sel]
-            self.reason[sel] = [text.format(v=_show(v)) for v in vals]
+            self.reason[sel] = _formatted(text, _values_at(values, sel))
         else:
             self.reason[sel] = text
         self.topic[sel] = topic if topic is not None else _topic(text)
         self.column[sel] = column
         self.free[sel] = False
+
+
+def _values_at(values, sel: np.ndarray) -> np.ndarray:
+    """The cells ``sel`` of a column (text Series, array or ``_NumberColumn``) as an object array."""
+    if isinstance(values, _NumberColumn):
+        return values.text(sel)
+    if isinstance(values, pd.Series):
+        return values.iloc[sel].to_numpy(dtype=object)
+    return np.asarray(values, dtype=object)[sel]
+
+
+def _formatted(text: str, vals: np.ndarray) -> np.ndarray:
+    """``text`` with ``{v}`` filled from each value (shown escaped), formatted once per distinct value."""
+    if vals.size == 0:
+        return np.empty(0, dtype=object)
+    codes, uniq = pd.factorize(vals)
+    return np.array([text.format(v=_show(v)) for v in uniq], dtype=object)[codes]
 
 
 def _fmt(x: float) -> str:
@@ -957,7 +1131,11 @@ class _FileValidator:
                     file=self.path))
         self.index = dict(chosen)
         for name, i in chosen.items():
-            self.col[name] = _stripped(self.t.cells[i])
+            cells = self.t.cells[i]
+            if self.t.cell_text is not None and cells.dtype.kind in "iuf":
+                self.col[name] = _NumberColumn(cells.to_numpy(), lambda rows, i=i: self.t.cell_text(i, rows))
+            else:
+                self.col[name] = _stripped(cells)
             self.label[name] = self.t.headers[i].strip() or name
         if missing:
             found = [h.strip() for h in self.t.headers if h.strip()]
@@ -1268,8 +1446,7 @@ class _FileValidator:
         elif callable(text):
             msgs = [text(i) for i in sel]
         elif values is not None:
-            vals = np.asarray(values, dtype=object)[sel]
-            msgs = [text.format(v=_show(v)) for v in vals]
+            msgs = _formatted(text, _values_at(values, sel))
         else:
             msgs = text
         self.warn.append((sel, column, msgs, topic if topic is not None else _topic(text) if isinstance(text, str)
@@ -1497,6 +1674,26 @@ def _as_column_map(column_map: ColumnMap | str | Path | None) -> ColumnMap:
     return load_column_map(column_map)
 
 
+#: The columns that hold numbers (read by the CSV reader as numbers when every cell is one).
+NUMBER_COLUMNS = ("spot", "strike", "bid", "ask", "iv", "volume", "open_interest", "rate", "div_yield")
+
+
+def _number_columns(path: str, ov: SnapshotOverrides, cmap: ColumnMap):
+    """``numeric(headers)`` for ``_read_table``: the positions of the number columns under these headers
+    (none when the header is refused: the checks then say why)."""
+    def numeric(headers: list[str]) -> list[int]:
+        width = len(headers)
+        empty = _Table(headers, pd.DataFrame({i: pd.Series([], dtype=object) for i in range(width)}),
+                       np.zeros(0, np.int64), np.zeros(0, np.int64), np.zeros(0, np.int64), np.zeros(0, bool))
+        v = _FileValidator(path, empty, ov, cmap)
+        try:
+            v.resolve_columns()
+        except ChainTriageError:
+            return []
+        return [v.index[n] for n in NUMBER_COLUMNS if n in v.index]
+    return numeric
+
+
 def load_file(
     path: str | Path,
     *,
@@ -1515,7 +1712,7 @@ def load_file(
     ov = (overrides or SnapshotOverrides()).resolved()
     cmap = _as_column_map(column_map)
     try:
-        table = _read_table(name)
+        table = _read_table(name, _number_columns(name, ov, cmap))
         return _FileValidator(name, table, ov, cmap).run()
     except MemoryError:
         raise SnapshotFileError(name, _too_big(name)) from None

@@ -184,7 +184,7 @@ def test_fast_path_matches_the_csv_module(tmp_path, data, monkeypatch):
 
     fast = outcome()
     with monkeypatch.context() as m:
-        m.setattr(loading, "_table_fast", lambda *a: None)
+        m.setattr(loading, "_table_fast", lambda *a, **k: None)
         slow = outcome()
     assert fast == slow
 
@@ -218,3 +218,82 @@ def test_large_generated_file_accounting(tmp_path, n):
     bad = sum(1 for i in range(n) if i % 7 == 3)
     assert (load.rows_read, load.rows_accepted) == (n, n - bad)
     assert [f.line for f in load.findings if f.severity == LEFT_OUT] == [i + 2 for i in range(n) if i % 7 == 3]
+
+
+# --------------------------------------------------------------------------- number columns read as numbers
+
+#: Cells of a number column the C reader may read as numbers, and the neighbours it must refuse
+#: (so the column is read as text): signed zeros, overflows, infinities, blanks, quotes.
+plain_numbers = st.one_of(
+    st.floats(min_value=-5, max_value=500, allow_nan=False).map(lambda x: f"{x:.2f}"),
+    st.floats(allow_nan=False).map(repr),
+    st.integers(min_value=-10, max_value=300).map(str),
+    st.sampled_from(["", "0", "-0", "+0", "-0.0", "0e5", "-00", "1e999", "-1e999", "inf", "-Infinity", "INF",
+                     " 5 ", "\t7", "+3", ".5", "5.", "1E+3", "00012", "1e-400", "9223372036854775808",
+                     "18446744073709551616", "True", "nan", "1e", "1_0", "0x10", "\xa05", "-", "2%",
+                     "12345678901234567890.123"]),
+)
+
+
+@st.composite
+def number_column_files(draw):
+    """A CSV of plausible rows whose number columns mostly hold numbers (csv.writer quotes where needed)."""
+    cols = ["underlying", "as_of", "spot", "expiry", "strike", "kind", "bid", "ask", "iv", "volume",
+            "open_interest", "rate", "div_yield"]
+    n = draw(st.integers(min_value=1, max_value=10))
+    pool = {c: draw(st.lists(plain_numbers, min_size=1, max_size=3)) for c in cols}
+    rows = []
+    for _ in range(n):
+        r = ["QRTZ", "2026-03-02T15:30:00Z", draw(st.sampled_from(pool["spot"] + ["100"])), "2026-03-20",
+             draw(st.sampled_from(pool["strike"] + ["95", "105.5"])), draw(st.sampled_from(["c", "p"]))]
+        r += [draw(st.sampled_from(pool[c] + ["1.25", "2"])) for c in cols[6:]]
+        rows.append(r)
+    out = io.StringIO()
+    w = csv.writer(out, lineterminator="\n",
+                   quoting=draw(st.sampled_from([csv.QUOTE_MINIMAL, csv.QUOTE_NONNUMERIC, csv.QUOTE_ALL])))
+    w.writerow(cols)
+    w.writerows(rows)
+    return out.getvalue()
+
+
+@SETTINGS
+@given(text=number_column_files())
+def test_number_columns_read_as_numbers_match_the_text_reading(tmp_path, text, monkeypatch):
+    """Number columns the C reader gives as numbers load exactly as when every cell is read as text
+    (values, signed zeros, findings and their quoted cells) [D: the text reading is the reference]."""
+    p = tmp_path / "n.csv"
+    p.write_text(text)
+
+    def outcome():
+        try:
+            load = load_file(p)
+        except SnapshotFileError as exc:
+            return ("error", exc.reason, [str(f) for f in exc.findings])
+        frames = [s.contracts.to_dict("list") for s in load.snapshots]
+        signs = [np.signbit(s.contracts[c].to_numpy()).tolist() for s in load.snapshots
+                 for c in ("bid", "ask", "iv", "volume", "open_interest", "rate", "div_yield")]
+        return ("ok", [str(f) for f in load.findings], load.rows_read, load.rows_accepted,
+                [(s.underlying, s.as_of, s.spot) for s in load.snapshots], repr(frames), signs)
+
+    fast = outcome()
+    with monkeypatch.context() as m:
+        m.setattr(loading, "_table_numbers", lambda *a, **k: None)
+        slow = outcome()
+    assert fast == slow
+
+
+def test_number_columns_are_read_as_numbers(tmp_path):
+    """The plain file takes the number reading: number columns come as int64/float64 cells."""
+    p = tmp_path / "plain.csv"
+    p.write_text("underlying,as_of,spot,expiry,strike,kind,bid,ask,volume\n"
+                 "QRTZ,2026-03-02T15:30:00Z,100,2026-03-20,95,c,-0,1.5,-0\n"
+                 "QRTZ,2026-03-02T15:30:00Z,100,2026-03-20,95,p,0.5,1e999,7\n")
+    table = loading._read_table(str(p), loading._number_columns(str(p), loading.SnapshotOverrides(),
+                                                                 loading.ColumnMap()))
+    assert [table.cells[i].dtype.kind for i in range(9)] == ["O", "O", "i", "O", "i", "O", "f", "f", "i"]
+    assert list(table.cell_text(6, np.array([0, 1]))) == ["-0", "0.5"]
+    load = load_file(p)
+    c = load.snapshots[0].contracts
+    assert np.signbit(c["bid"].to_numpy()).tolist() == [True]  # '-0' as float() reads it
+    assert np.signbit(c["volume"].to_numpy()).tolist() == [True]  # also in a column of integers
+    assert [f.reason for f in load.findings] == ["zero bid on the 95 call", "ask '1e999' is not a finite number"]
