@@ -1,6 +1,7 @@
 """Benchmark: load_file against its floors, time and peak memory (run by hand, not by pytest).
 
     python tests/bench/bench_loading.py [--rows N ...] [--big] [--repeat R]
+    python tests/bench/bench_loading.py --baseline REV [--rows N ...] [--repeat R]
 
 For each generated snapshot CSV (200,000 rows by default; --big adds 5,000,000
 rows, 25 underlyings) it prints, measured in one run:
@@ -14,6 +15,13 @@ rows, 25 underlyings) it prints, measured in one run:
 - the accounting: every row accepted or left out with a finding of its own,
   and how many groups the findings make.
 
+``--baseline REV`` instead measures load_file of a git revision (its packages
+exported to a temporary directory and imported ahead of the working tree) and of
+the working tree, in child processes that alternate, beside pandas.read_csv of
+the same file in the same process: CPU time (process time) and wall time, best of
+R, at 20,000, 200,000 and 1,000,000 contracts unless --rows says otherwise, with
+the load average (the machine may be shared).
+
 The files carry a quarter of zero bids (far out-of-the-money quotes), the case
 where one finding per row used to cost a Python object each.
 """
@@ -21,6 +29,8 @@ where one finding per row used to cost a Python object each.
 from __future__ import annotations
 
 import argparse
+import json
+import os
 import subprocess
 import sys
 import tempfile
@@ -104,12 +114,109 @@ def peak_mb(code: str) -> tuple[float, float]:
     return time.perf_counter() - t0, int(err.rsplit("PEAK_KB ", 1)[1].split()[0]) / 1024
 
 
+def best_times(fn, repeat: int) -> tuple[float, float]:
+    """Best wall and best process CPU time of ``fn`` over ``repeat`` runs, in seconds."""
+    wall = cpu = float("inf")
+    for _ in range(repeat):
+        c0, t0 = time.process_time(), time.perf_counter()
+        fn()
+        c1, t1 = time.process_time(), time.perf_counter()
+        wall, cpu = min(wall, t1 - t0), min(cpu, c1 - c0)
+    return wall, cpu
+
+
+def measure(paths: dict[int, str], repeat: int) -> dict:
+    """Per file: (load wall, load cpu, read_csv wall, read_csv cpu, rows accepted, findings) in this process,
+    load_file first warmed once (imports)."""
+    from chaintriage.core import loading
+
+    out = {}
+    for n, path in paths.items():
+        res = loading.load_file(path)
+        accepted, found = res.rows_accepted, len(res.findings)
+        del res
+        lw, lc = best_times(lambda: loading.load_file(path), repeat)
+        pw, pc = best_times(lambda: pd.read_csv(path), repeat)
+        out[n] = (lw, lc, pw, pc, accepted, found)
+    out["module"] = loading.__file__
+    return out
+
+
+def export_revision(rev: str, into: str) -> str:
+    """The packages of a git revision as an importable ``chaintriage`` under ``into``."""
+    repo = Path(__file__).resolve().parents[2]
+    pkg = Path(into) / "chaintriage"
+    pkg.mkdir(parents=True)
+    (pkg / "__init__.py").write_text("")
+    archive = subprocess.run(["git", "-C", str(repo), "archive", rev, "core", "tui", "themes", "demo_chains"],
+                             capture_output=True, check=True)
+    subprocess.run(["tar", "-x", "-C", str(pkg)], input=archive.stdout, check=True)
+    return into
+
+
+def run_child(root: str | None, paths: dict[int, str], repeat: int) -> dict:
+    env = dict(os.environ)
+    if root:
+        env["PYTHONPATH"] = root + os.pathsep + env.get("PYTHONPATH", "")
+    code = ("import json, sys; sys.path.insert(0, %r); import bench_loading as b; "
+            "print(json.dumps(b.measure({int(k): v for k, v in json.loads(%r).items()}, %d)))") % (
+        str(Path(__file__).parent), json.dumps(paths), repeat)
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, env=env)
+    if out.returncode:
+        raise SystemExit(f"child failed: {out.stderr[-800:]}")
+    got = json.loads(out.stdout.strip().splitlines()[-1])
+    module = got.pop("module")
+    if root and not module.startswith(root):
+        raise SystemExit(f"the baseline child imported {module}, not the exported revision")
+    return {int(k): tuple(v) for k, v in got.items()}
+
+
+def load_text() -> str:
+    load = os.getloadavg() if hasattr(os, "getloadavg") else (float("nan"),) * 3
+    return f"load average {load[0]:.1f} {load[1]:.1f} {load[2]:.1f} on {os.cpu_count()} cores"
+
+
+def compare(rev: str, sizes: list[int], repeat: int) -> None:
+    """load_file of ``rev`` and of the working tree beside read_csv, alternating child processes."""
+    with tempfile.TemporaryDirectory() as tmp:
+        paths = {}
+        for n in sizes:
+            paths[n] = str(Path(tmp) / f"chain_{n}.csv")
+            write_file(Path(paths[n]), n)
+        root = export_revision(rev, str(Path(tmp) / "baseline"))
+        print(f"start: {load_text()}")
+        runs = {"baseline": [], "now": []}
+        for _ in range(2):  # alternate, keep the best of each
+            runs["baseline"].append(run_child(root, paths, repeat))
+            runs["now"].append(run_child(None, paths, repeat))
+        sizes_mb = {n: Path(p).stat().st_size / 1e6 for n, p in paths.items()}
+    print(f"end: {load_text()}")
+    print(f"load_file vs pandas.read_csv (default types) in the same process, best of {repeat} x 2 alternating "
+          f"children; baseline = {rev}; times in seconds, cpu = process time")
+    for n in sizes:
+        best = {k: [min(r[n][i] for r in v) for i in range(4)] for k, v in runs.items()}
+        same = {k: {(r[n][4], r[n][5]) for r in v} for k, v in runs.items()}
+        print(f"{n:>9,} contracts ({sizes_mb[n]:.0f} MB), rows accepted / findings: baseline {same['baseline']}, "
+              f"now {same['now']}")
+        for k in ("baseline", "now"):
+            lw, lc, pw, pc = best[k]
+            print(f"  {k:8s} load_file cpu {lc:7.3f} wall {lw:7.3f}   read_csv cpu {pc:7.3f} wall {pw:7.3f}   "
+                  f"ratio cpu {lc / pc:5.1f}x wall {lw / pw:5.1f}x")
+        print(f"  speed-up of load_file: cpu {best['baseline'][1] / best['now'][1]:.2f}x, "
+              f"wall {best['baseline'][0] / best['now'][0]:.2f}x")
+
+
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
-    ap.add_argument("--rows", type=int, nargs="*", default=[200_000])
+    ap.add_argument("--rows", type=int, nargs="*", default=None)
     ap.add_argument("--big", action="store_true", help="also 5,000,000 rows (one repeat)")
     ap.add_argument("--repeat", type=int, default=3)
+    ap.add_argument("--baseline", metavar="REV", help="compare with load_file of this git revision")
     args = ap.parse_args()
+    if args.baseline:
+        compare(args.baseline, args.rows or [20_000, 200_000, 1_000_000], args.repeat)
+        return
+    args.rows = args.rows or [200_000]
     sizes = [(n, args.repeat) for n in args.rows] + ([(5_000_000, 1)] if args.big else [])
     with tempfile.TemporaryDirectory() as tmp:
         for n, repeat in sizes:
