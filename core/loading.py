@@ -476,7 +476,7 @@ def _table_numbers(path: str, text: str, delim: str, rec, numeric) -> _Table | N
         if col.dtype == np.int64 or col.dtype == np.float64:
             continue
         if pd.api.types.is_string_dtype(col.dtype) and col.dtype != object:
-            df[i] = col.fillna("").to_numpy(dtype=object)  # text after all: only an empty cell is NaN
+            df[i] = col.fillna("")  # text after all: only an empty cell is NaN
         else:  # other types the parser inferred (booleans, mixed Python ints): read again as text
             redo.append(i)
     if redo:
@@ -979,8 +979,9 @@ def _times(s: pd.Series) -> tuple[np.ndarray, np.ndarray]:
     return _per_unique(s, _times_unique)
 
 
-def _stripped(s: pd.Series) -> pd.Series:
-    """The column with surrounding whitespace removed (str dtype; a categorical stays one)."""
+def _stripped(s: pd.Series, categorical: bool = False) -> pd.Series:
+    """The column with surrounding whitespace removed (str dtype; a categorical stays one, and
+    with ``categorical`` any column becomes one)."""
     if isinstance(s.dtype, pd.CategoricalDtype):
         raw = s.cat.categories.to_numpy(dtype=object)
         clean = pd.Series(raw, dtype=str).str.strip().to_numpy(dtype=object)
@@ -991,6 +992,10 @@ def _stripped(s: pd.Series) -> pd.Series:
     codes, uniques = pd.factorize(s)
     raw = np.asarray(uniques, dtype=object)
     clean = pd.Series(raw, dtype=str).str.strip().to_numpy(dtype=object)
+    if categorical:  # the distinct texts and a code per row: later parses work on the codes
+        new_codes, new_cats = pd.factorize(clean)
+        cats = pd.Index(np.asarray(new_cats, dtype=object), dtype=object)
+        return pd.Series(pd.Categorical.from_codes(new_codes[codes] if len(codes) else codes, cats))
     if np.array_equal(raw, clean):
         return s.reset_index(drop=True)
     return pd.Series(clean[codes] if len(codes) else np.array([], dtype=object), dtype=str)
@@ -1135,7 +1140,7 @@ class _FileValidator:
             if self.t.cell_text is not None and cells.dtype.kind in "iuf":
                 self.col[name] = _NumberColumn(cells.to_numpy(), lambda rows, i=i: self.t.cell_text(i, rows))
             else:
-                self.col[name] = _stripped(cells)
+                self.col[name] = _stripped(cells, categorical=True)
             self.label[name] = self.t.headers[i].strip() or name
         if missing:
             found = [h.strip() for h in self.t.headers if h.strip()]
@@ -1244,13 +1249,12 @@ class _FileValidator:
         s = self.col["kind"]
         spellings = dict(_KINDS)
         spellings.update(self.cmap.kind_aliases())
-        kind = pd.Series(_folded(s), dtype=object).map(spellings)
-        self.kind = kind.to_numpy(dtype=object, na_value=None)
+        self.kind = _per_unique(s, lambda u: np.array([spellings.get(x) for x in u.str.casefold()], dtype=object))
         lab = self.lab("kind")
         rows.leave_out((s == "").to_numpy(dtype=bool), lab, "kind is empty")
         extra = "/".join(sorted(self.cmap.kind_aliases()))
         expected = "call/put or c/p" + (f" or {extra}" if extra else "")
-        rows.leave_out(kind.isna().to_numpy(), lab, f"kind {{v}} is not {expected}", s)
+        rows.leave_out(pd.isna(self.kind), lab, f"kind {{v}} is not {expected}", s)
 
         # bid / ask
         self.bid, bst = _numbers(self.col["bid"])
@@ -1476,9 +1480,15 @@ class _FileValidator:
             spread = ask - bid
             mid = 0.5 * ask + 0.5 * bid  # not (ask + bid) / 2: that overflows for prices near 1e308
             wide = ok & has_b & has_a & (bid > 0) & (spread > WIDE_SPREAD_FRACTION * mid) & (spread > WIDE_SPREAD_MIN)
-        self.warn_rows(wide, None, lambda i: (
-            f"wide spread: bid {_fmt_quote(bid[i])}, ask {_fmt_quote(ask[i])} (spread {spread[i] / mid[i] * 100:.0f}% of mid)"),
-            topic=f"wide spread (over {WIDE_SPREAD_FRACTION:.0%} of mid)", strike=True)
+        sel = np.flatnonzero(wide)
+        if sel.size:
+            pairs, inverse = np.unique(np.stack([bid[sel], ask[sel]], axis=1), axis=0, return_inverse=True)
+            with np.errstate(over="ignore", invalid="ignore"):
+                texts = np.array([
+                    f"wide spread: bid {_fmt_quote(b)}, ask {_fmt_quote(a)} "
+                    f"(spread {(a - b) / (0.5 * a + 0.5 * b) * 100:.0f}% of mid)" for b, a in pairs], dtype=object)
+            self.warn_rows(wide, None, texts[inverse.reshape(-1)],
+                           topic=f"wide spread (over {WIDE_SPREAD_FRACTION:.0%} of mid)", strike=True)
 
     # -- output -----------------------------------------------------------
     def row_findings(self, severity: str, sel: np.ndarray, reason, topic, column, strike: bool) -> FindingTable:
@@ -1552,17 +1562,17 @@ class _FileValidator:
         frame = pd.DataFrame({
             "expiry": self.expiry[acc].astype("datetime64[ns]"),
             "strike": self.strike[acc].astype(np.float64),
-            "kind": pd.Series(self.kind[acc], dtype=str),
+            "kind": _text_column(self.kind[acc]),
             "bid": self.bid[acc].astype(np.float64),
             "ask": self.ask[acc].astype(np.float64),
             "iv": optional["iv"][acc].astype(np.float64),
-            "iv_basis": pd.Series(optional["iv_basis"][acc], dtype=str),
+            "iv_basis": _text_column(optional["iv_basis"][acc]),
             "volume": optional["volume"][acc].astype(np.float64),
             "open_interest": optional["open_interest"][acc].astype(np.float64),
-            "settle": pd.Series(optional["settle"][acc], dtype=str),
+            "settle": _text_column(optional["settle"][acc]),
             "rate": optional["rate"][acc].astype(np.float64),
             "div_yield": optional["div_yield"][acc].astype(np.float64),
-            "source_file": pd.Series(np.full(acc.size, self.path, dtype=object), dtype=str),
+            "source_file": _text_column(np.zeros(acc.size, dtype=np.int64), [self.path]),
             "source_line": self.t.line[acc].astype(np.int64),
         })[list(CONTRACT_COLUMNS)]
         bounds = np.searchsorted(gid[acc], np.arange(len(names) + 1))
@@ -1577,6 +1587,13 @@ class _FileValidator:
                                       findings=by_underlying.get(und, FindingTable.empty()), sources=(self.path,)))
         return FileLoad(path=self.path, snapshots=snapshots, findings=findings, rows_read=self.n,
                         rows_accepted=accepted)
+
+
+def _text_column(values: np.ndarray, uniques: Sequence[str] | None = None) -> pd.Series:
+    """A str Series of object ``values`` (or of codes into ``uniques``), converted once per distinct value."""
+    if uniques is None:
+        values, uniques = pd.factorize(values)
+    return pd.Series(pd.array(np.asarray(uniques, dtype=object), dtype=str).take(values))
 
 
 def _dates_text(values: np.ndarray) -> np.ndarray:
