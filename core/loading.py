@@ -292,7 +292,7 @@ def _decode(path: str, data: bytes) -> str:
             f"is not UTF-8 text: byte 0x{data[exc.start]:02X} on line {line} cannot be decoded; "
             "save the file as UTF-8",
         ) from None
-    return text.replace("\r\n", "\n").replace("\r", "\n")
+    return text.replace("\r\n", "\n").replace("\r", "\n") if "\r" in text else text
 
 
 def _pick_delimiter(text: str) -> str:
@@ -335,13 +335,19 @@ def _records_fast(path: str, text: str, delim: str):
             line = int(np.count_nonzero(arr[:opener] == 10)) + 1
             raise SnapshotFileError(path, f"a quoted field opened on line {line} is never closed")
     nl = np.flatnonzero(arr == 10)
-    inside = (np.searchsorted(qpos, nl) % 2) == 1
-    ends = nl[~inside]
-    starts = np.concatenate(([0], ends[:-1] + 1))
-    start_line = np.searchsorted(nl, starts) + 1
-    end_line = np.searchsorted(nl, ends) + 1
     dpos = np.flatnonzero(arr == d)
-    dpos = dpos[(np.searchsorted(qpos, dpos) % 2) == 0]
+    if qpos.size:
+        inside = (np.searchsorted(qpos, nl) % 2) == 1
+        ends = nl[~inside]
+        starts = np.concatenate(([0], ends[:-1] + 1))
+        start_line = np.searchsorted(nl, starts) + 1
+        end_line = np.searchsorted(nl, ends) + 1
+        dpos = dpos[(np.searchsorted(qpos, dpos) % 2) == 0]
+    else:  # no quotes: every line break ends a record
+        ends = nl
+        starts = np.concatenate(([0], ends[:-1] + 1))
+        start_line = np.arange(1, nl.size + 1)
+        end_line = start_line.copy()
     first_d = np.searchsorted(dpos, starts)
     nfields = np.searchsorted(dpos, ends) - first_d + 1
     # blank records: empty, or only spaces (and tabs unless tab is the delimiter)
@@ -439,7 +445,8 @@ def _slices_text(raw: bytes, arr: np.ndarray, a: np.ndarray, b: np.ndarray) -> n
 def _table_numbers(path: str, text: str, delim: str, rec, numeric) -> _Table | None:
     """The table with the columns ``numeric(headers)`` read as numbers by pandas' C parser where
     every cell of the column is a plain decimal or empty (int64/float64 cells, NaN for an empty
-    cell); every other column, and a numeric column holding any other text, as text.
+    cell); every other column as categories of text, and a numeric column holding any other
+    text as text.
 
     Numbers are parsed by the same C reader as ``pandas.read_csv`` (no Python string per cell).
     The C reader takes what ``_NUM_RE`` takes, plus ``inf``/``infinity`` and overflows (as
@@ -463,8 +470,8 @@ def _table_numbers(path: str, text: str, delim: str, rec, numeric) -> _Table | N
     if not wanted:
         return None
     try:
-        df = pd.read_csv(io.StringIO(text), header=0, names=range(maxf), usecols=range(width),
-                         dtype={i: object for i in range(width) if i not in wanted},
+        df = pd.read_csv(io.BytesIO(raw), header=0, names=range(maxf), usecols=range(width),
+                         dtype={i: "category" for i in range(width) if i not in wanted},
                          keep_default_na=False, na_values={i: [""] for i in wanted}, na_filter=True, **opts)
     except (pd.errors.ParserError, ValueError):
         return None
@@ -481,7 +488,7 @@ def _table_numbers(path: str, text: str, delim: str, rec, numeric) -> _Table | N
             redo.append(i)
     if redo:
         try:
-            again = pd.read_csv(io.StringIO(text), header=0, names=range(maxf), usecols=redo, dtype=object,
+            again = pd.read_csv(io.BytesIO(raw), header=0, names=range(maxf), usecols=redo, dtype=object,
                                 keep_default_na=False, na_filter=False, **opts)
         except (pd.errors.ParserError, ValueError):
             return None
@@ -693,7 +700,7 @@ def _decode_block(path: str, block: bytes, lines_before: int) -> str:
         raise SnapshotFileError(
             path, f"is not UTF-8 text: byte 0x{block[exc.start]:02X} on line {line} cannot be decoded; "
             "save the file as UTF-8") from None
-    return text.replace("\r\n", "\n").replace("\r", "\n")
+    return text.replace("\r\n", "\n").replace("\r", "\n") if "\r" in text else text
 
 
 @dataclass
@@ -1058,6 +1065,17 @@ def _formatted(text: str, vals: np.ndarray) -> np.ndarray:
     return np.array([text.format(v=_show(v)) for v in uniq], dtype=object)[codes]
 
 
+def _first_seen(codes: np.ndarray, values: np.ndarray) -> tuple[np.ndarray, list]:
+    """``pd.factorize(values)`` from integer ``codes`` that already name the distinct values:
+    new codes in order of first appearance, and the values in that order."""
+    if codes.size == 0:
+        return codes.astype(np.int64), []
+    uniq, first, inverse = np.unique(codes, return_index=True, return_inverse=True)
+    rank = np.empty(uniq.size, dtype=np.int64)
+    rank[np.argsort(first, kind="stable")] = np.arange(uniq.size)
+    return rank[inverse.reshape(-1)], [values[i] for i in np.sort(first)]
+
+
 def _fmt(x: float) -> str:
     return f"{x:.10g}"
 
@@ -1190,9 +1208,12 @@ class _FileValidator:
         # underlying
         if self.ov.underlying is not None:
             self.und = np.full(n, self.ov.underlying, dtype=object)
+            self.und_codes = np.zeros(n, dtype=np.int64)
         else:
             s = self.col["underlying"]
             self.und = s.to_numpy(dtype=object)
+            self.und_codes = (s.cat.codes.to_numpy().astype(np.int64) if isinstance(s.dtype, pd.CategoricalDtype)
+                              else pd.factorize(self.und)[0])  # the same code for the same name
             rows.leave_out((s == "").to_numpy(dtype=bool), self.lab("underlying"), "underlying is empty")
             if self.ov.spot is not None:
                 names = pd.unique(s[rows.free & (s != "").to_numpy(dtype=bool)])
@@ -1285,7 +1306,7 @@ class _FileValidator:
         self.snap: dict[str, tuple[pd.Timestamp, float]] = {}
         self.group_rows: dict[str, np.ndarray] = {}
         live = np.flatnonzero(rows.free)
-        codes, names = pd.factorize(pd.Series(self.und[live], dtype=object))
+        codes, names = _first_seen(self.und_codes[live], self.und[live])
         order = np.argsort(codes, kind="stable")
         bounds = np.searchsorted(codes[order], np.arange(len(names) + 1))
         for g, und in enumerate(names):
@@ -1365,7 +1386,7 @@ class _FileValidator:
         free = np.flatnonzero(self.rows.free)
         if free.size < 2:
             return
-        u = pd.factorize(self.und[free])[0]
+        u = self.und_codes[free]
         e = self.expiry[free].astype(np.int64)
         k = self.kind[free] == "put"
         st = self.strike[free]
@@ -1425,7 +1446,7 @@ class _FileValidator:
                            "iv_basis {v} is not 252, 250 or 365; left blank", s)
             out["iv_basis"] = np.where(valid, norm.to_numpy(dtype=object), "")
         else:
-            out["iv_basis"] = np.full(n, "", dtype=object)
+            out["iv_basis"] = _Repeated("", n)
         # settle
         if "settle" in self.col:
             s = self.col["settle"]
@@ -1435,7 +1456,7 @@ class _FileValidator:
             self.warn_rows(ok & ~valid & ~empty, self.lab("settle"), "settle {v} is not pm or am; pm is used", s)
             out["settle"] = np.where(valid, folded.to_numpy(dtype=object), "pm")
         else:
-            out["settle"] = np.full(n, "pm", dtype=object)
+            out["settle"] = _Repeated("pm", n)
         return out
 
     def warn_rows(self, mask: np.ndarray, column: str | None, text, values=None, *, topic: str | None = None,
@@ -1562,7 +1583,7 @@ class _FileValidator:
         frame = pd.DataFrame({
             "expiry": self.expiry[acc].astype("datetime64[ns]"),
             "strike": self.strike[acc].astype(np.float64),
-            "kind": _text_column(self.kind[acc]),
+            "kind": _text_column((self.kind[acc] == "put").astype(np.int64), ["call", "put"]),
             "bid": self.bid[acc].astype(np.float64),
             "ask": self.ask[acc].astype(np.float64),
             "iv": optional["iv"][acc].astype(np.float64),
@@ -1589,8 +1610,21 @@ class _FileValidator:
                         rows_accepted=accepted)
 
 
-def _text_column(values: np.ndarray, uniques: Sequence[str] | None = None) -> pd.Series:
-    """A str Series of object ``values`` (or of codes into ``uniques``), converted once per distinct value."""
+class _Repeated:
+    """One text on every row (a column the file does not have), taken by row indices like an array."""
+
+    def __init__(self, text: str, n: int):
+        self.text, self.n = text, n
+
+    def __getitem__(self, rows: np.ndarray) -> _Repeated:
+        return _Repeated(self.text, np.arange(self.n)[rows].size)
+
+
+def _text_column(values, uniques: Sequence[str] | None = None) -> pd.Series:
+    """A str Series of object ``values`` (or of codes into ``uniques``, or a ``_Repeated``), converted once
+    per distinct value."""
+    if isinstance(values, _Repeated):
+        values, uniques = np.zeros(values.n, dtype=np.int64), [values.text]
     if uniques is None:
         values, uniques = pd.factorize(values)
     return pd.Series(pd.array(np.asarray(uniques, dtype=object), dtype=str).take(values))
