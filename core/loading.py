@@ -1477,10 +1477,14 @@ class _FileValidator:
         self.warn.append((sel, column, msgs, topic if topic is not None else _topic(text) if isinstance(text, str)
                           else "other", strike))
 
-    def _on_contract(self, sel: np.ndarray) -> np.ndarray:
-        """`` on the 95 put`` for each row of ``sel`` (object array), formatted per distinct strike."""
-        kinds = np.where(self.kind[sel] == "put", " put", " call").astype(object)
-        return " on the " + _fmt_many(self.strike[sel]) + kinds
+    def _on_contract(self, sel: np.ndarray, what: str = "") -> np.ndarray:
+        """``what`` + `` on the 95 put`` for each row of ``sel`` (object array), formatted once per
+        distinct strike and side."""
+        strikes, inverse = np.unique(self.strike[sel], return_inverse=True)
+        code = inverse.reshape(-1) * 2 + (self.kind[sel] == "put")
+        texts = np.array([f"{what} on the {_fmt(k)} {side}" for k in strikes for side in ("call", "put")],
+                         dtype=object)
+        return texts[code]
 
     def quote_warnings(self) -> None:
         ok = self.rows.free
@@ -1493,7 +1497,7 @@ class _FileValidator:
                 mask = mask & side
                 sel = np.flatnonzero(mask)
                 if sel.size:
-                    self.warn_rows(mask, self.lab(col), what + self._on_contract(sel), topic=f"{what} on {words}",
+                    self.warn_rows(mask, self.lab(col), self._on_contract(sel, what), topic=f"{what} on {words}",
                                    strike=True)
         self.warn_rows(ok & has_b & ~has_a, self.lab("ask"), lambda i: f"no ask (bid {_fmt_quote(bid[i])})",
                        topic="no ask", strike=True)
