@@ -1115,7 +1115,8 @@ class _FileValidator:
         self.label: dict[str, str] = {}
 
     # -- columns ----------------------------------------------------------
-    def resolve_columns(self) -> None:
+    def resolve_columns(self, cells: bool = True) -> None:
+        """Find our columns under the headers (``self.index``); with ``cells``, take their cells too."""
         keys = [header_key(h) for h in self.t.headers]
         where: dict[str, list[int]] = {}
         for i, k in enumerate(keys):
@@ -1154,11 +1155,13 @@ class _FileValidator:
                     file=self.path))
         self.index = dict(chosen)
         for name, i in chosen.items():
-            cells = self.t.cells[i]
-            if self.t.cell_text is not None and cells.dtype.kind in "iuf":
-                self.col[name] = _NumberColumn(cells.to_numpy(), lambda rows, i=i: self.t.cell_text(i, rows))
+            column = self.t.cells[i] if cells else None
+            if column is None:
+                self.col[name] = None  # found, not taken
+            elif self.t.cell_text is not None and column.dtype.kind in "iuf":
+                self.col[name] = _NumberColumn(column.to_numpy(), lambda rows, i=i: self.t.cell_text(i, rows))
             else:
-                self.col[name] = _stripped(cells, categorical=True)
+                self.col[name] = _stripped(column, categorical=True)
             self.label[name] = self.t.headers[i].strip() or name
         if missing:
             found = [h.strip() for h in self.t.headers if h.strip()]
@@ -1601,7 +1604,11 @@ class _FileValidator:
             "source_line": self.t.line[acc].astype(np.int64),
         })[list(CONTRACT_COLUMNS)]
         bounds = np.searchsorted(gid[acc], np.arange(len(names) + 1))
-        by_underlying = findings.split("underlying")
+        if len(names) == 1:  # the common case: no factorisation of the findings' underlyings
+            named = findings.underlying == names[0]
+            by_underlying = {names[0]: findings.take(named)} if named.any() else {}
+        else:
+            by_underlying = findings.split("underlying")
         snapshots = []
         for g, und in enumerate(names):
             if bounds[g] == bounds[g + 1]:
@@ -1737,12 +1744,10 @@ def _number_columns(path: str, ov: SnapshotOverrides, cmap: ColumnMap):
     """``numeric(headers)`` for ``_read_table``: the positions of the number columns under these headers
     (none when the header is refused: the checks then say why)."""
     def numeric(headers: list[str]) -> list[int]:
-        width = len(headers)
-        empty = _Table(headers, pd.DataFrame({i: pd.Series([], dtype=object) for i in range(width)}),
-                       np.zeros(0, np.int64), np.zeros(0, np.int64), np.zeros(0, np.int64), np.zeros(0, bool))
-        v = _FileValidator(path, empty, ov, cmap)
+        none = np.zeros(0, np.int64)
+        v = _FileValidator(path, _Table(headers, pd.DataFrame(), none, none, none, none.astype(bool)), ov, cmap)
         try:
-            v.resolve_columns()
+            v.resolve_columns(cells=False)
         except ChainTriageError:
             return []
         return [v.index[n] for n in NUMBER_COLUMNS if n in v.index]
