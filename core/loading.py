@@ -238,6 +238,9 @@ class _Table:
     #: When some columns were read as numbers (int64/float64 cells, NaN for an empty cell):
     #: ``cell_text(column, rows)`` gives those rows' cells as the file writes them (object array).
     cell_text: object = None
+    #: A big file's number columns, judged block by block: column -> ``_KeptNumbers`` (their cells
+    #: in ``cells`` are then placeholders).
+    numbers: dict | None = None
 
 
 def _show(value: object, width: int = 40) -> str:
@@ -682,12 +685,18 @@ def _join_tables(tables: list[_Table]) -> _Table:
 
     first = tables[0]
     width = len(first.headers)
+    numbers = first.numbers or {}
     cells = pd.DataFrame({
         c: pd.Series(union_categoricals([t.cells[c] for t in tables]) if tables else [], dtype="category")
-        for c in range(width)})
+        for c in range(width) if c not in numbers})
+    n = sum(len(t.line) for t in tables)
+    for c in numbers:  # placeholders: the checks read ``numbers``
+        cells[c] = np.zeros(n)
+    cells = cells[list(range(width))]
+    joined = {c: _KeptNumbers.join([t.numbers[c] for t in tables]) for c in numbers}
     cat = np.concatenate
     return _Table(first.headers, cells, cat([t.line for t in tables]), cat([t.end_line for t in tables]),
-                  cat([t.nfields for t in tables]), cat([t.extra for t in tables]))
+                  cat([t.nfields for t in tables]), cat([t.extra for t in tables]), numbers=joined or None)
 
 
 def _decode_block(path: str, block: bytes, lines_before: int) -> str:
@@ -717,7 +726,7 @@ class _BlockSpan:
 
 
 def _parse_block(path: str, block: bytes, span: _BlockSpan, headers: list[str] | None, delim: str,
-                 columns: list[int] | None = None) -> _Table | None:
+                 columns: list[int] | None = None, numeric=None) -> _Table | None:
     """One block's rows with the line numbers of the whole file (cells as text); None when its quotes
     are not plain and the block is not ``exact`` (then it must run to the end of the file).
 
@@ -735,7 +744,11 @@ def _parse_block(path: str, block: bytes, span: _BlockSpan, headers: list[str] |
         if span.exact:
             table = _table_csv_module(path, stand_in + text, delim)
         else:
-            table = _table_fast(path, stand_in + text, delim, None if span.first else columns)
+            block_numeric = None
+            if numeric is not None:
+                block_numeric = numeric if headers is None else (lambda _stand_in: numeric(headers))
+            table = _table_fast(path, stand_in + text, delim, None if span.first else columns,
+                                numeric=block_numeric)
     except SnapshotFileError as exc:  # a line named in the block: name it in the file
         raise SnapshotFileError(path, re.sub(r"line (\d+)", lambda m: f"line {int(m.group(1)) + offset}",
                                              exc.reason)) from None
@@ -748,7 +761,7 @@ def _parse_block(path: str, block: bytes, span: _BlockSpan, headers: list[str] |
     return table
 
 
-def _csv_blocks(path: str, fh, first: bytes, columns=None):
+def _csv_blocks(path: str, fh, first: bytes, columns=None, numeric=None):
     """A big CSV file block by block: (table, span, delimiter) triples; each block ends at a line break
     outside quotes. ``columns(headers)``, when given, names the only columns to read after the
     header's block (see ``_table_fast``). Bytes are decoded block by block. When a block's quotes are not plain, where a
@@ -779,7 +792,8 @@ def _csv_blocks(path: str, fh, first: bytes, columns=None):
             continue
         if headers is None:
             delim = _pick_delimiter(_decode_block(path, block, lines_before))
-        table = _parse_block(path, block, span, headers, delim, None if columns is None else columns(headers))
+        table = _parse_block(path, block, span, headers, delim, None if columns is None else columns(headers),
+                             numeric)
         if table is None:
             block = block + carry + fh.read()
             carry, at_end = b"", True
@@ -796,12 +810,21 @@ def _line_breaks(block: bytes) -> int:
     return block.count(b"\n") + block.count(b"\r") - block.count(b"\r\n")
 
 
-def _read_csv_blocks(path: str, fh, first: bytes) -> _Table:
-    """A big CSV file read block by block into one table (every cell kept as a category code)."""
+def _read_csv_blocks(path: str, fh, first: bytes, numeric=None) -> _Table:
+    """A big CSV file read block by block into one table (every cell kept as a category code; with
+    ``numeric``, the number columns judged block by block, see ``_KeptNumbers``)."""
     if first.startswith((b"\xff\xfe", b"\xfe\xff")) or first.startswith(b"PK\x03\x04"):
         return _read_csv_table(path, first)  # its own message, from the first bytes
     tables = []
-    for table, _, _ in _csv_blocks(path, fh, first):
+    roles: dict[int, str] | None = None
+    for table, _, _ in _csv_blocks(path, fh, first, numeric=numeric):
+        if numeric is not None:
+            if roles is None:
+                roles = dict(numeric(table.headers))
+            table.numbers = {i: _KeptNumbers.of(table, i, role) for i, role in roles.items()
+                             if i < len(table.headers)}
+            table.cell_text = None  # the block's bytes go
+            table.cells = table.cells.drop(columns=list(table.numbers))
         table.cells = _as_categories(table.cells)
         tables.append(table)
     if not tables:
@@ -832,7 +855,7 @@ def _read_table(path: str, numeric=None) -> _Table:
             if p.suffix.lower() in _PARQUET_SUFFIXES or head == b"PAR1":
                 return _read_parquet_table(path)
             if p.stat().st_size > max(BIG_FILE_BYTES, CHUNK_BYTES):
-                return _read_csv_blocks(path, fh, head)
+                return _read_csv_blocks(path, fh, head, numeric)
             data = head + fh.read()
     except OSError as exc:
         raise SnapshotFileError(path, f"cannot be read ({exc.strerror or exc})") from None
@@ -974,6 +997,60 @@ class _NumberColumn:
         """The stripped text of the cells ``rows`` (row indices), as an object array."""
         raw = self._cell_text(np.asarray(rows, dtype=np.int64))
         return _per_unique(pd.Series(raw, dtype=object), lambda u: u.str.strip().to_numpy(dtype=object))
+
+
+def _quoted_rows(role: str, values: np.ndarray, status: np.ndarray) -> np.ndarray:
+    """The rows whose cell a message about a ``role`` column may quote (see ``check_rows`` and
+    ``optional_columns``): not a number or not finite, and the values each check refuses."""
+    ok = status == 0
+    with np.errstate(invalid="ignore"):
+        if role in ("spot", "strike"):
+            refused = ok & ~(values > 0)
+        elif role == "iv":
+            refused = ok & (~(values > 0) | (values > IV_MAX))
+        elif role in ("rate", "div_yield"):
+            refused = ok & (np.abs(values) > RATE_MAX)
+        else:  # bid, ask, volume, open_interest
+            refused = ok & (values < 0)
+    return np.flatnonzero(refused | (status >= 2))
+
+
+class _KeptNumbers(_NumberColumn):
+    """A number column of a big file, judged block by block: values and status of every row, and
+    the text only of the rows a message may quote (``_quoted_rows``), so no block's bytes are kept."""
+
+    def __init__(self, values: np.ndarray, status: np.ndarray, rows: np.ndarray, texts: np.ndarray):
+        self.values, self.status, self.rows, self.texts = values, status, rows, texts
+
+    @classmethod
+    def of(cls, table: _Table, column: int, role: str) -> _KeptNumbers:
+        """From one block's table: its cells read as numbers (``cell_text`` still there) or as text."""
+        cells = table.cells[column]
+        if table.cell_text is not None and cells.dtype.kind in "iuf":
+            col = _NumberColumn(cells.to_numpy(), lambda rows: table.cell_text(column, rows))
+            values, status = col.values, col.status
+            rows = _quoted_rows(role, values, status)
+            return cls(values, status, rows, col.text(rows))
+        text = _stripped(cells, categorical=True)
+        values, status = _numbers(text, percent=role in ("iv", "rate", "div_yield"))
+        rows = _quoted_rows(role, values, status)
+        return cls(values, status, rows, text.iloc[rows].to_numpy(dtype=object))
+
+    @classmethod
+    def join(cls, parts: list[_KeptNumbers]) -> _KeptNumbers:
+        """The parts one after the other."""
+        offsets = np.cumsum([0] + [p.values.size for p in parts])[:-1]
+        cat = np.concatenate
+        return cls(cat([p.values for p in parts]), cat([p.status for p in parts]),
+                   cat([p.rows + o for p, o in zip(parts, offsets)]).astype(np.int64),
+                   cat([p.texts for p in parts] + [np.empty(0, dtype=object)]))
+
+    def text(self, rows: np.ndarray) -> np.ndarray:
+        rows = np.asarray(rows, dtype=np.int64)
+        at = np.searchsorted(self.rows, rows)
+        if rows.size and (at.max() >= self.rows.size or not np.array_equal(self.rows[at], rows)):
+            raise AssertionError("a message quotes a number cell whose text was not kept")
+        return self.texts[at]
 
 
 def _dates(s: pd.Series, fmt: str | None) -> tuple[np.ndarray, np.ndarray]:
@@ -1158,6 +1235,8 @@ class _FileValidator:
             column = self.t.cells[i] if cells else None
             if column is None:
                 self.col[name] = None  # found, not taken
+            elif self.t.numbers is not None and i in self.t.numbers:
+                self.col[name] = self.t.numbers[i]
             elif self.t.cell_text is not None and column.dtype.kind in "iuf":
                 self.col[name] = _NumberColumn(column.to_numpy(), lambda rows, i=i: self.t.cell_text(i, rows))
             else:
@@ -1741,16 +1820,16 @@ NUMBER_COLUMNS = ("spot", "strike", "bid", "ask", "iv", "volume", "open_interest
 
 
 def _number_columns(path: str, ov: SnapshotOverrides, cmap: ColumnMap):
-    """``numeric(headers)`` for ``_read_table``: the positions of the number columns under these headers
-    (none when the header is refused: the checks then say why)."""
-    def numeric(headers: list[str]) -> list[int]:
+    """``numeric(headers)`` for ``_read_table``: the positions of the number columns under these headers,
+    each with its name (none when the header is refused: the checks then say why)."""
+    def numeric(headers: list[str]) -> dict[int, str]:
         none = np.zeros(0, np.int64)
         v = _FileValidator(path, _Table(headers, pd.DataFrame(), none, none, none, none.astype(bool)), ov, cmap)
         try:
             v.resolve_columns(cells=False)
         except ChainTriageError:
-            return []
-        return [v.index[n] for n in NUMBER_COLUMNS if n in v.index]
+            return {}
+        return {v.index[n]: n for n in NUMBER_COLUMNS if n in v.index}
     return numeric
 
 

@@ -77,3 +77,37 @@ lines = st.lists(st.sampled_from(MESSY.splitlines(keepends=True)[1:] + SMALL_VAL
 @given(body=lines)
 def test_shuffled_rows_read_the_same_in_blocks(tmp_path, monkeypatch, body):
     same_both_ways(tmp_path, monkeypatch, (SMALL_VALID.splitlines(keepends=True)[0] + "".join(body)).encode())
+
+
+NUMBER_ROWS = [
+    f"QRTZ,{AS_OF},{spot},2026-03-20,{strike},{kind},{bid},{ask},{iv},{vol},{rate}\n"
+    for spot, strike, kind, bid, ask, iv, vol, rate in [
+        ("100.5", "95", "put", "0.80", "0.90", "0.215", "10", "0.04"),
+        ("100.5", "-5", "call", "6.10", "6.30", "600", "-3", "2"),
+        ("100.5", "0", "put", "-0", "2.10", "", "0", "-0"),
+        ("100.5", "100", "c", "2.40", "1e999", "-0.1", "7", "0.05"),
+        ("-0", "105", "call", "-1.20", "1.35", "0", "", "-1.5"),
+        ("100.5", "105", "p", "5.00", "5.40", "inf", "12", ""),
+        ("100.5", "110", "p", "5.00", "5.40", "0.2", "12", "0.01"),
+        ("100.5", "115", "c", "x", "5.40", "0.2", "12", "1%"),
+    ]]
+
+
+@settings(max_examples=examples(40), deadline=None,
+          suppress_health_check=[HealthCheck.function_scoped_fixture, HealthCheck.too_slow])
+@given(body=st.lists(st.sampled_from(NUMBER_ROWS), min_size=1, max_size=30))
+def test_number_columns_judged_block_by_block_match_the_text_reading(tmp_path, monkeypatch, body):
+    """Number columns read as numbers block by block (only the cells messages may quote kept as
+    text) give what reading every cell as text gives [D: the text reading is the reference]."""
+    p = tmp_path / "n.csv"
+    p.write_text("underlying,as_of,spot,expiry,strike,kind,bid,ask,iv,volume,rate\n" + "".join(body))
+    with monkeypatch.context() as m:
+        m.setattr(loading, "_table_numbers", lambda *a, **k: None)
+        m.setattr(loading, "_read_csv_blocks", lambda *a, **k: pytest.fail("read whole"))
+        text = outcome(p, monkeypatch, None)
+    kept = []
+    real = loading._KeptNumbers.of
+    monkeypatch.setattr(loading._KeptNumbers, "of", lambda *a: kept.append(1) or real(*a))
+    for block in (97, 300):
+        assert outcome(p, monkeypatch, block) == text, block
+    assert kept  # the number columns were judged block by block
