@@ -32,6 +32,13 @@ Decisions (documented for users in the README):
 - Wide spread warning: ask - bid > 50 % of mid AND > 0.10 price units.
 - Numbers are plain decimals (``1250``, ``0.35``, ``1e-3``); no thousands
   separators. ``iv``, ``rate`` and ``div_yield`` may end in ``%``.
+- Number columns (spot, strike, bid, ask, iv, volume, open_interest, rate,
+  div_yield) are read as numbers by pandas' C reader when every cell of the
+  column is a plain decimal or empty; the cells that reader takes but cannot
+  judge alone (empty, infinite, integer zeros that may be ``-0``) and the cells
+  a message quotes are read again from the file's bytes, so values, findings
+  and messages are those of reading every cell as text (the reference, used
+  for any column holding other text).
 - Text stays plain text: values are never interpreted; control characters in
   ``underlying`` are kept, with a warning. Values quoted in reasons are shown
   escaped (``repr``) so a finding is always safe to print.
@@ -1655,6 +1662,7 @@ class _FileValidator:
         # what only the checks needed goes before the frame is built (a big file's peak memory is here)
         self.col, self.warn = {}, []
         self.t.cells = self.t.cells.iloc[:0]
+        self.t.cell_text = self.t.numbers = None  # the file's bytes, the kept number texts
         self.rows.reason = self.rows.topic = self.rows.column = None
         # one frame of every accepted row, sorted by underlying, expiry, strike, kind, then cut per underlying
         ok = self.rows.free
