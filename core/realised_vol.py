@@ -38,6 +38,7 @@ import pandas as pd
 
 from .exchange_calendar import default_calendar
 from .findings import NOTE, ChainTriageError, Finding
+from .realised_vol_choices import DEFAULT_WINDOWS, ESTIMATORS  # re-exported: the names live here too
 
 __all__ = [
     "ESTIMATORS",
@@ -52,10 +53,6 @@ __all__ = [
     "realised_vol_table",
 ]
 
-#: Estimator names, in the order tables show them.
-ESTIMATORS: tuple[str, ...] = ("close_to_close", "parkinson", "garman_klass", "rogers_satchell", "yang_zhang")
-#: Window lengths in trading days (two weeks, a month, a quarter, half a year, a year).
-DEFAULT_WINDOWS: tuple[int, ...] = (10, 21, 63, 126, 252)
 #: Days in a year on each time basis.
 DAYS_PER_YEAR = {"252": 252.0, "250": 250.0, "365": 365.0}
 _LN2 = np.log(2.0)

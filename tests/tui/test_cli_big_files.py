@@ -49,7 +49,7 @@ def test_out_of_memory_past_loading_is_exit_2_with_a_message(tmp_path, capsys, m
     def no_memory(*args, **kwargs):
         raise MemoryError
 
-    monkeypatch.setattr("chaintriage.tui.cli.table.annotate", no_memory)
+    monkeypatch.setattr("chaintriage.core.pipeline.annotate", no_memory)  # `table` imports it when it runs
     code = cli.main(["table", str(p), "--format", "csv"])
     err = capsys.readouterr().err
     assert code == 2 and "out of memory" in err and "Traceback" not in err

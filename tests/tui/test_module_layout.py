@@ -54,8 +54,9 @@ def test_non_interactive_subcommands_import_no_textual():
     batch = [c for c in COMMANDS if not c.interactive]
     assert {"check", "table", "expiries"} <= {c.name for c in batch}
     demo = _demo_chain()
+    required = {"targets": ["--side", "puts", "--sigma", "1"]}  # options it cannot run without
     for command in batch:
-        for args in ([command.name, "--help"], [command.name, demo]):
+        for args in ([command.name, "--help"], [command.name, *required.get(command.name, []), demo]):
             loaded = _modules_after(_run_main(args))
             if args[-1] == demo and command.name != "demo-path":  # it really ran: the loader's imports are there
                 assert "pandas" in loaded, (args, sorted(loaded))
@@ -74,6 +75,27 @@ def test_main_help_imports_no_numerical_stack():
     loaded = _modules_after(_run_main(["--help"]))
     bad = sorted(loaded & {"numpy", "pandas", "scipy", "textual", "rich"})
     assert not bad, f"`chaintriage --help` imported {bad}"
+
+
+def test_every_subcommands_help_imports_no_numerical_stack():
+    """`chaintriage SUBCOMMAND --help` (every subcommand, `open` included) builds its options from
+    light modules: no numpy, pandas, scipy or Textual is loaded, and the help is really printed."""
+    assert {"open", "check", "table", "expiries", "events", "targets", "history"} <= {c.name for c in COMMANDS}
+    for command in COMMANDS:
+        code = (
+            "import contextlib, io\n"
+            "from chaintriage.tui.cli.main import main\n"
+            "out = io.StringIO()\n"
+            "with contextlib.redirect_stdout(out), contextlib.redirect_stderr(io.StringIO()):\n"
+            "    try:\n"
+            f"        main([{command.name!r}, '--help'])\n"
+            "    except SystemExit:\n"
+            "        pass\n"
+            f"assert out.getvalue().startswith('usage: chaintriage {command.name} '), out.getvalue()[:200]\n"
+        )
+        loaded = _modules_after(code)
+        bad = sorted(loaded & {"numpy", "pandas", "scipy", *UI})
+        assert not bad, f"`chaintriage {command.name} --help` imported {bad}"
 
 
 # ---------------------------------------------------------------- import cycles

@@ -10,13 +10,9 @@ from __future__ import annotations
 
 import argparse
 import sys
+from typing import TYPE_CHECKING
 
-import pandas as pd
-
-from chaintriage.core.finding_table import FindingTable
 from chaintriage.core.findings import LEFT_OUT
-from chaintriage.core.loading import LoadResult, load_files
-from chaintriage.core.pipeline import AnnotatedSnapshot, annotate
 from chaintriage.tui.cli.check import outcome_summary, _summary, check_status, group_line, summary_line
 from chaintriage.tui.cli.common import (
     EXIT_ROWS_LEFT_OUT,
@@ -26,6 +22,16 @@ from chaintriage.tui.cli.common import (
     snapshot_options,
 )
 from chaintriage.tui.cli.model_options import add_pipeline_options, pipeline_settings
+
+if TYPE_CHECKING:  # pragma: no cover
+    import pandas as pd
+
+    from chaintriage.core.finding_table import FindingTable
+    from chaintriage.core.loading import LoadResult
+    from chaintriage.core.pipeline import AnnotatedSnapshot
+
+# The loader, the pipeline and pandas are imported by the functions that run a command, so that the
+# options (and `--help`) of the commands built on this module load none of them.
 
 COMMON_NOTES = """\
 Probabilities and vols are decimals in csv and json (0.084 = 8.4%);
@@ -51,6 +57,9 @@ def add_table_options(p: argparse.ArgumentParser) -> None:
 
 
 def load_and_annotate(args: argparse.Namespace) -> tuple[LoadResult, list[AnnotatedSnapshot]]:
+    from chaintriage.core.loading import load_files
+    from chaintriage.core.pipeline import annotate
+
     overrides, column_map = snapshot_options(args)
     settings = pipeline_settings(args)
     result = load_files(args.files, overrides=overrides, column_map=column_map)
@@ -68,6 +77,8 @@ def report_findings(args, result: LoadResult, model_findings: list,
     snapshot. With ``wanted`` expiries, only findings about them (and about no
     expiry in particular) are listed, and the rest counted in one line.
     """
+    from chaintriage.core.finding_table import FindingTable
+
     core = FindingTable.concat(model_findings)
     groups = FindingTable.concat([result.findings, core]).groups() if not args.quiet else []
     _report(args, groups, summary_line(_summary(result)), len(core), wanted)
@@ -77,6 +88,8 @@ def report_groups(args, outcomes, across: FindingTable, model_findings: list,
                   wanted: list[pd.Timestamp] | None = None) -> None:
     """``report_findings`` for inputs read in parts: the files' groups (``check.FileOutcome``s, in the
     order of the files; an unusable file's left out), those about no file, then the model's."""
+    from chaintriage.core.finding_table import FindingTable
+
     core = FindingTable.concat(model_findings)
     groups = []
     if not args.quiet:

@@ -11,14 +11,9 @@ import tempfile
 from pathlib import Path
 from collections.abc import Iterator, Sequence
 from dataclasses import dataclass, field
-from typing import Any, TextIO
+from typing import TYPE_CHECKING, Any, TextIO
 
-import numpy as np
-
-from chaintriage.core.finding_table import FindingGroup, FindingTable, ranges_text
-from chaintriage.core import loading
 from chaintriage.core.findings import LEFT_OUT, NOTE, SEVERITIES, WARNING, Finding
-from chaintriage.core.loading import FileLoad, LoadResult, PartLoader, SnapshotFileError, inputs_bytes, load_files
 from chaintriage.tui.cli.common import (
     EXIT_OK,
     EXIT_ROWS_LEFT_OUT,
@@ -30,6 +25,13 @@ from chaintriage.tui.cli.common import (
     one_line,
     snapshot_options,
 )
+
+if TYPE_CHECKING:  # pragma: no cover
+    from chaintriage.core.finding_table import FindingGroup, FindingTable
+    from chaintriage.core.loading import FileLoad, LoadResult, SnapshotFileError
+
+# numpy and the loader (core.loading, core.finding_table) are imported by the functions that use
+# them, so that `check --help` (and the modules that import names from here) load none of them.
 
 CHECK_EPILOG = """\
 examples:
@@ -83,6 +85,8 @@ def group_line(group: FindingGroup, table: FindingTable | None, *, with_file: bo
 
     ``severity`` puts the severity between place and message (``place: warning: message``).
     """
+    from chaintriage.core.finding_table import ranges_text
+
     if group.count == 1:
         f = group.first if group.first is not None else table[int(group.rows[0])]
         where = f.location(with_file=with_file)
@@ -185,6 +189,9 @@ def _snapshot_dicts(snapshots) -> list[dict[str, Any]]:
 
 
 def _outcomes(paths: Sequence[str], result: LoadResult, *, every: bool) -> list[FileOutcome]:
+    from chaintriage.core.finding_table import FindingTable
+    from chaintriage.core.loading import SnapshotFileError
+
     out = []
     for item in _ordered_outcomes(paths, result):
         t = FindingTable.of(item.findings)
@@ -269,6 +276,12 @@ def read_in_parts(paths: Sequence[str], overrides, column_map, *, spill: Finding
     its findings' groups (every finding goes to ``spill``, for json, when given). ``on_part(part)`` sees
     each part (a LoadResult) before it is let go. Returns the outcomes in the order of ``paths``, the
     findings about no file, and the unusable files' errors."""
+    import numpy as np
+
+    from chaintriage.core.finding_table import FindingTable
+    from chaintriage.core.loading import PartLoader
+
+    no_rows = np.zeros(0, dtype=np.int64)
     loader = PartLoader(paths, overrides=overrides, column_map=column_map)
     per: dict[str, FileOutcome] = {}
     across: list[FindingTable] = []
@@ -280,7 +293,7 @@ def read_in_parts(paths: Sequence[str], overrides, column_map, *, spill: Finding
             o.rows_read += fl.rows_read
             o.rows_accepted += fl.rows_accepted
             t = FindingTable.of(fl.findings)
-            o.groups.extend(dataclasses.replace(g, rows=_NO_ROWS) for g in t.groups())
+            o.groups.extend(dataclasses.replace(g, rows=no_rows) for g in t.groups())
             for sev, c in t.counts().items():
                 o.counts[sev] += c
             o.snapshots.extend(_snapshot_dicts(fl.snapshots))
@@ -306,9 +319,6 @@ def read_in_parts(paths: Sequence[str], overrides, column_map, *, spill: Finding
         if str(p) in pending:
             ordered.append(pending.pop(str(p)))
     return ordered + list(pending.values()), FindingTable.concat(across), errors
-
-
-_NO_ROWS = np.zeros(0, dtype=np.int64)
 
 
 #: Indent of one finding of a file in the json report (``json.dumps(report, indent=2)``).
@@ -414,6 +424,9 @@ def write_json_streamed(outcomes: Sequence[FileOutcome], across: FindingTable, s
 
 
 def run_check(args: argparse.Namespace) -> int:
+    from chaintriage.core import loading
+    from chaintriage.core.loading import inputs_bytes, load_files
+
     overrides, column_map = snapshot_options(args)
     if inputs_bytes(args.files) > loading.PART_INPUT_BYTES:  # big: a few underlyings at a time
         spill = FindingSpill() if args.format == "json" else None

@@ -4,13 +4,9 @@ from __future__ import annotations
 
 import argparse
 import sys
+from typing import TYPE_CHECKING
 
-import pandas as pd
-
-from chaintriage.core.event_file import read_events_files
-from chaintriage.core.events import Event, parse_event_option
 from chaintriage.core.findings import ChainTriageError
-from chaintriage.core.term_structure import snapshot_term_structure
 from chaintriage.tui.cli.annotated_tables import (
     annotated_status,
     COMMON_NOTES,
@@ -21,7 +17,12 @@ from chaintriage.tui.cli.annotated_tables import (
     with_as_of,
 )
 from chaintriage.tui.cli.common import EXIT_UNUSABLE, error, one_line, write_out
-from chaintriage.tui.cli.table_output import render
+
+if TYPE_CHECKING:  # pragma: no cover
+    from chaintriage.core.events import Event
+
+# pandas, the events and the term structure are imported by the functions that run a command, so
+# that the options (and `--help`) of `events`, `expiries` and `history` load none of them.
 
 #: Columns of `events`, in order.
 EVENT_COLUMNS = [
@@ -72,6 +73,9 @@ def add_event_options(p: argparse.ArgumentParser) -> None:
 
 def gather_events(args: argparse.Namespace) -> tuple[list[Event], bool, bool]:
     """(events, a file or value was unusable, rows were left out); errors and findings go to stderr."""
+    from chaintriage.core.event_file import read_events_files
+    from chaintriage.core.events import parse_event_option
+
     events: list[Event] = []
     bad = False
     for text in args.event:
@@ -108,6 +112,11 @@ def configure(p: argparse.ArgumentParser) -> None:
 
 
 def run_events(args: argparse.Namespace) -> int:
+    import pandas as pd
+
+    from chaintriage.core.term_structure import snapshot_term_structure
+    from chaintriage.tui.cli.table_output import render
+
     events, bad, left_out = gather_events(args)
     if bad:
         return EXIT_UNUSABLE

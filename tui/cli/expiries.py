@@ -4,9 +4,6 @@ from __future__ import annotations
 
 import argparse
 
-import pandas as pd
-
-from chaintriage.core.term_structure import snapshot_term_structure
 from chaintriage.tui.cli.annotated_tables import (
     COMMON_NOTES,
     add_table_options,
@@ -24,7 +21,9 @@ from chaintriage.tui.cli.history import (
     history_for,
 )
 from chaintriage.tui.cli.model_options import DAYS_MAX, days
-from chaintriage.tui.cli.table_output import render
+
+# pandas, the term structure and the table writer are imported by `run_expiries`, so that
+# `expiries --help` loads none of them.
 
 #: Columns of `expiries`, in order.
 EXPIRY_COLUMNS = [
@@ -77,6 +76,11 @@ def configure(p: argparse.ArgumentParser) -> None:
 
 
 def run_expiries(args: argparse.Namespace) -> int:
+    import pandas as pd
+
+    from chaintriage.core.term_structure import snapshot_term_structure
+    from chaintriage.tui.cli.table_output import render
+
     events, bad, left_out = gather_events(args)
     if bad:
         return EXIT_UNUSABLE

@@ -12,16 +12,21 @@ from __future__ import annotations
 
 import argparse
 import sys
-
-import pandas as pd
+from typing import TYPE_CHECKING
 
 from chaintriage.core.findings import WARNING, ChainTriageError, Finding
-from chaintriage.core.history_compare import HistorySettings, HistorySummary, summarise_history
-from chaintriage.core.history_file import HistoryLoads, load_histories, load_history_column_map
-from chaintriage.core.realised_vol import DEFAULT_WINDOWS, ESTIMATORS
+from chaintriage.core.realised_vol_choices import DEFAULT_WINDOWS, ESTIMATORS
 from chaintriage.tui.cli.common import EXIT_OK, EXIT_ROWS_LEFT_OUT, EXIT_UNUSABLE, error, one_line, plain
 from chaintriage.tui.cli.common import write_out
-from chaintriage.tui.cli.table_output import render
+
+if TYPE_CHECKING:  # pragma: no cover
+    import pandas as pd
+
+    from chaintriage.core.history_compare import HistorySettings, HistorySummary
+    from chaintriage.core.history_file import HistoryLoads
+
+# pandas and the history computations are imported by the functions that run a command, so that
+# the options (and `--help`) of `history`, `table` and `expiries` load none of them.
 
 #: Columns of `history`, in order.
 HISTORY_COLUMNS = [
@@ -123,11 +128,15 @@ def configure(p: argparse.ArgumentParser) -> None:
 
 
 def history_settings(args: argparse.Namespace, basis: str, paths: int = 0) -> HistorySettings:
+    from chaintriage.core.history_compare import HistorySettings
+
     return HistorySettings(windows=args.windows, basis=basis, estimator=args.cone_estimator, paths=paths)
 
 
 def load_history_files(paths, args: argparse.Namespace, until=None) -> HistoryLoads:
     """Load history files with the options of ``add_history_file_options``; errors go to stderr."""
+    from chaintriage.core.history_file import load_histories, load_history_column_map
+
     cmap = load_history_column_map(args.history_columns) if args.history_columns else None
     loads = load_histories(paths, underlying=getattr(args, "underlying", None), column_map=cmap, until=until)
     for exc in loads.errors:
@@ -160,6 +169,8 @@ def report_history_findings(loads: HistoryLoads, extra: list[Finding], quiet: bo
 
 def history_frame(summaries: list[HistorySummary]) -> pd.DataFrame:
     """The `history` table: one row per underlying and window."""
+    import pandas as pd
+
     frames = []
     for s in summaries:
         vol = s.realised.vol
@@ -178,6 +189,8 @@ def history_frame(summaries: list[HistorySummary]) -> pd.DataFrame:
 def _until(text: str | None) -> pd.Timestamp | None:
     if text is None:
         return None
+    import pandas as pd
+
     try:
         ts = pd.Timestamp(text)
     except (ValueError, TypeError, OverflowError):
@@ -190,8 +203,9 @@ def _until(text: str | None) -> pd.Timestamp | None:
 def run_history(args: argparse.Namespace) -> int:
     from dataclasses import replace
 
-    from chaintriage.core.history_compare import event_sessions
+    from chaintriage.core.history_compare import event_sessions, summarise_history
     from chaintriage.tui.cli.events import gather_events
+    from chaintriage.tui.cli.table_output import render
 
     until = _until(args.until)
     settings = history_settings(args, args.basis)

@@ -3,13 +3,9 @@
 from __future__ import annotations
 
 import argparse
+from typing import TYPE_CHECKING
 
-import pandas as pd
-
-from chaintriage.core import loading
 from chaintriage.core.findings import LEFT_OUT, ChainTriageError
-from chaintriage.core.loading import YEAR_MAX, YEAR_MIN, inputs_bytes, load_files
-from chaintriage.core.pipeline import GREEK_COLUMNS, TRADE_COLUMNS, annotate
 from chaintriage.tui.cli.annotated_tables import (
     annotated_status,
     COMMON_NOTES,
@@ -30,16 +26,36 @@ from chaintriage.tui.cli.history import (
     history_for,
 )
 from chaintriage.tui.cli.model_options import non_negative, parse_day, pipeline_settings
-from chaintriage.tui.cli.table_output import TableStream
 
-#: Columns of `table`, in order (csv/json add as_of after underlying).
-TABLE_COLUMNS = [
+if TYPE_CHECKING:  # pragma: no cover
+    import pandas as pd
+
+# pandas, the loader, the pipeline and the table writer are imported by the functions that run the
+# command, so that `table --help` loads none of them.
+
+#: Columns of `table` up to the flags; the Greeks and the economics at the bid and the ask follow
+#: (core.pipeline's GREEK_COLUMNS and TRADE_COLUMNS; see ``TABLE_COLUMNS``).
+_QUOTE_COLUMNS = [
     "underlying", "expiry", "strike", "kind", "bid", "ask", "mid", "iv", "sigma_distance",
     "p_beyond", "p_beyond_flat", "p_touch", "p_touch_low", "p_touch_high", "delta", "breakeven", "p_breakeven",
     "spread_pct", "open_interest", "flags",
-    # Greeks and the economics at the bid and the ask (core/greeks.py, core/trade_economics.py).
-    *GREEK_COLUMNS, *TRADE_COLUMNS,
 ]
+
+
+def table_columns() -> list[str]:
+    """Columns of `table`, in order (csv/json add as_of after underlying): ``TABLE_COLUMNS``."""
+    from chaintriage.core.pipeline import GREEK_COLUMNS, TRADE_COLUMNS
+
+    # Greeks and the economics at the bid and the ask (core/greeks.py, core/trade_economics.py).
+    return [*_QUOTE_COLUMNS, *GREEK_COLUMNS, *TRADE_COLUMNS]
+
+
+def __getattr__(name: str):
+    """``TABLE_COLUMNS`` (a list, made once), built when first asked for: it needs core.pipeline."""
+    if name == "TABLE_COLUMNS":
+        globals()[name] = columns = table_columns()
+        return columns
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
 
 TABLE_EPILOG = """\
 examples:
@@ -85,6 +101,8 @@ def configure(p: argparse.ArgumentParser) -> None:
 
 def _wanted_expiries(args: argparse.Namespace) -> list[pd.Timestamp]:
     """The --expiry dates; raises ChainTriageError for one that is not a date the loader could hold."""
+    from chaintriage.core.loading import YEAR_MAX, YEAR_MIN
+
     wanted = []
     for text in args.expiry:
         day = parse_day(text)
@@ -98,6 +116,8 @@ def _wanted_expiries(args: argparse.Namespace) -> list[pd.Timestamp]:
 def _selected(a, args: argparse.Namespace, wanted: list[pd.Timestamp]) -> tuple[pd.DataFrame, pd.Series]:
     """The rows of one annotated snapshot that `table` writes (touch figures computed for them), and
     the mask that chose them."""
+    import pandas as pd
+
     # touch figures are computed on demand: the asked expiries together
     a.touch_many([expiry for expiry in a.results if not wanted or expiry in wanted])
     c = a.contracts
@@ -109,7 +129,12 @@ def _selected(a, args: argparse.Namespace, wanted: list[pd.Timestamp]) -> tuple[
     if args.beyond is not None:
         keep &= c["otm"] & (c["sigma_distance"].abs() >= args.beyond)
     # boolean selection already copies; a further .copy() would merge the blocks (0.4 s at 200k rows)
-    return with_as_of(c.loc[keep, TABLE_COLUMNS], a, args.format), keep
+    return with_as_of(c.loc[keep, _columns()], a, args.format), keep
+
+
+def _columns() -> list[str]:
+    """``TABLE_COLUMNS`` (made on first use)."""
+    return globals().get("TABLE_COLUMNS") or __getattr__("TABLE_COLUMNS")
 
 
 def _latest_snapshot(args: argparse.Namespace, overrides, column_map, wanted) -> tuple[object, set]:
@@ -134,6 +159,9 @@ def _run_table_in_parts(args: argparse.Namespace, overrides, column_map, setting
     go (with --expiry, the chosen rows are kept until every wanted expiry is known to be there). With
     --history the files are read twice: first for the latest snapshot time, which the history files
     are read up to, then to annotate and write."""
+    from chaintriage.core.pipeline import annotate
+    from chaintriage.tui.cli.table_output import TableStream
+
     wanted = _wanted_expiries(args)
     compare = None
     if args.history:
@@ -204,6 +232,11 @@ def _say_missing_expiries(wanted, present) -> bool:
 
 def run_table(args: argparse.Namespace) -> int:
     """Load, then annotate and write one snapshot at a time (csv and json leave as they are made)."""
+    from chaintriage.core import loading
+    from chaintriage.core.loading import inputs_bytes, load_files
+    from chaintriage.core.pipeline import annotate
+    from chaintriage.tui.cli.table_output import TableStream
+
     overrides, column_map = snapshot_options(args)
     settings = pipeline_settings(args)
     if inputs_bytes(args.files) > loading.PART_INPUT_BYTES:

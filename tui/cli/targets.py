@@ -12,10 +12,8 @@ from __future__ import annotations
 import argparse
 import math
 import sys
+from typing import TYPE_CHECKING
 
-import pandas as pd
-
-from chaintriage.core.targets import Target, select_targets
 from chaintriage.tui.cli.annotated_tables import (
     annotated_status,
     COMMON_NOTES,
@@ -26,7 +24,12 @@ from chaintriage.tui.cli.annotated_tables import (
     with_as_of,
 )
 from chaintriage.tui.cli.common import write_out
-from chaintriage.tui.cli.table_output import render
+
+if TYPE_CHECKING:  # pragma: no cover
+    from chaintriage.core.targets import Target
+
+# pandas, core.targets and the table writer are imported by the functions that run the command, so
+# that `targets --help` loads none of them.
 
 #: Columns of `targets`, in order (csv/json add as_of after underlying).
 TARGETS_COLUMNS = [
@@ -94,6 +97,8 @@ def configure(p: argparse.ArgumentParser) -> None:
 
 def target_from_args(args: argparse.Namespace) -> Target:
     """The core Target of the parsed options (exactly one of --sigma, --delta, --beyond is set)."""
+    from chaintriage.core.targets import Target
+
     for measure in ("sigma", "delta", "beyond"):
         value = getattr(args, measure)
         if value is not None:
@@ -102,6 +107,11 @@ def target_from_args(args: argparse.Namespace) -> Target:
 
 
 def run_targets(args: argparse.Namespace) -> int:
+    import pandas as pd
+
+    from chaintriage.core.targets import select_targets
+    from chaintriage.tui.cli.table_output import render
+
     result, annotated = load_and_annotate(args)
     if not annotated:
         return nothing_usable(args, result)
