@@ -57,6 +57,7 @@ def __getattr__(name: str):
         return columns
     raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
 
+
 TABLE_EPILOG = """\
 examples:
   chaintriage table chain.csv
