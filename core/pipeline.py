@@ -19,6 +19,8 @@ Before anything else, strikes far outside their expiry's range (typos such as
 
 from __future__ import annotations
 
+import contextlib
+from collections.abc import Iterator
 from dataclasses import dataclass, field, replace
 
 import numpy as np
@@ -380,15 +382,94 @@ def annotate(snapshot: Snapshot, settings: PipelineSettings | None = None, touch
     expiry on demand; ``touch=True`` fills every expiry now.
     """
     settings = settings or PipelineSettings()
-    calendar = _calendar(settings.extra_closed)
     findings: list[Finding] = []
+    snapshot, order, is_call, is_put = _cleaned(snapshot, findings)
+    annotated = _annotate_sorted(snapshot, settings, findings, order, is_call, is_put)
+    return annotated.fill_touch() if touch else annotated
+
+
+def _cleaned(snapshot: Snapshot, findings: list[Finding]) -> tuple[Snapshot, np.ndarray, np.ndarray, np.ndarray]:
+    """(the snapshot without far strikes, each with a finding added to ``findings``; its row order by
+    expiry, strike and kind; is_call and is_put in that order)."""
     contracts = snapshot.contracts
     order, is_call, is_put = _sort_order(contracts)
     far = _far_in_order(contracts, order, snapshot.spot)
     if far.any():  # rare: leave them out and sort what is left
         snapshot = _without_far_strikes(snapshot, findings, far)
-        contracts = snapshot.contracts
-        order, is_call, is_put = _sort_order(contracts)
+        order, is_call, is_put = _sort_order(snapshot.contracts)
+    return snapshot, order, is_call, is_put
+
+
+def annotate_in_parts(snapshot: Snapshot, settings: PipelineSettings | None = None,
+                      first: int = 1) -> Iterator[AnnotatedSnapshot]:
+    """``annotate`` in two steps, for showing a chain before all of it is computed: yields the first
+    ``first`` expiries annotated alone, then the whole snapshot, equal to ``annotate(snapshot, settings)``
+    (each expiry's figures come from its own quotes; the whole joins the two parts and adds what
+    compares expiries, the calendar-arbitrage findings). Yields the whole alone when there are no more
+    than ``first`` expiries. The first part's findings are its expiries' own (and their far strikes').
+    """
+    settings = settings or PipelineSettings()
+    far_findings: list[Finding] = []
+    snapshot, order, is_call, is_put = _cleaned(snapshot, far_findings)
+    contracts = snapshot.contracts
+    exp_sorted = contracts["expiry"].to_numpy()[order]
+    n = order.size
+    cut = n
+    if n and exp_sorted.dtype.kind == "M" and not np.isnat(exp_sorted).any():
+        starts = np.flatnonzero(np.r_[True, exp_sorted[1:] != exp_sorted[:-1]])
+        if starts.size > first > 0:
+            cut = int(starts[first])
+    if cut >= n:
+        yield _annotate_sorted(snapshot, settings, far_findings, order, is_call, is_put)
+        return
+    parts = []
+    for lo, hi in ((0, cut), (cut, n)):
+        rows = np.sort(order[lo:hi])  # the part's rows in their own order, so its sort is the whole's
+        where = np.empty(n, dtype=np.int64)
+        where[rows] = np.arange(rows.size)
+        part = replace(snapshot, contracts=contracts.take(rows).reset_index(drop=True), findings=[])
+        part_findings: list[Finding] = []
+        if lo == 0:
+            labels = {f"{e:%Y-%m-%d}" for e in pd.DatetimeIndex(exp_sorted[:cut])}
+            part_findings = [f for f in far_findings if f.expiry in labels]
+        parts.append(_annotate_sorted(part, settings, part_findings, where[order[lo:hi]], is_call[lo:hi],
+                                      is_put[lo:hi], compare_expiries=False))
+        if lo == 0:
+            yield parts[0]
+    yield _joined(snapshot, settings, far_findings, parts)
+
+
+def _joined(snapshot: Snapshot, settings: PipelineSettings, far_findings: list[Finding],
+            parts: list[AnnotatedSnapshot]) -> AnnotatedSnapshot:
+    """The annotated whole from parts (consecutive runs of expiries, annotated with ``compare_expiries=False``)."""
+    contracts = pd.concat([p.contracts for p in parts], ignore_index=True)
+    for name in contracts.columns:  # a column whose dtype a part could not keep (e.g. all missing there)
+        if contracts[name].dtype != parts[0].contracts[name].dtype and len(parts[0].contracts):
+            with contextlib.suppress(TypeError, ValueError):
+                contracts[name] = contracts[name].astype(parts[0].contracts[name].dtype)
+    exp_table = pd.concat([p.expiries for p in parts], ignore_index=True)
+    results: dict[pd.Timestamp, ExpiryResult] = {}
+    for p in parts:
+        results.update(p.results)
+    labels = [f"{e:%Y-%m-%d}" for e in results]
+    res_list = list(results.values())
+    for fnd in calendar_findings([r.smile for r in res_list], np.array([r.t_years for r in res_list], dtype=float),
+                                 labels, snapshot.underlying):
+        res_list[labels.index(fnd.expiry)].findings.append(fnd)
+    exp_table["findings"] = [len(r.findings) for r in res_list]
+    findings = list(far_findings)
+    for r in res_list:
+        findings.extend(r.findings)
+    return AnnotatedSnapshot(snapshot, settings, contracts, exp_table, results, findings)
+
+
+def _annotate_sorted(snapshot: Snapshot, settings: PipelineSettings, findings: list[Finding], order: np.ndarray,
+                     is_call: np.ndarray, is_put: np.ndarray, compare_expiries: bool = True) -> AnnotatedSnapshot:
+    """``annotate`` of a snapshot already cleaned of far strikes, its rows in ``order`` (see ``_cleaned``);
+    ``findings`` holds the findings so far. ``compare_expiries=False`` leaves out the calendar-arbitrage
+    findings (for a part of the expiries: ``annotate_in_parts``)."""
+    calendar = _calendar(settings.extra_closed)
+    contracts = snapshot.contracts
     underlying = snapshot.underlying
     n = order.size
 
@@ -535,7 +616,7 @@ def annotate(snapshot: Snapshot, settings: PipelineSettings | None = None, touch
             arb_note[i] = _arbitrage_note(smile, forwards[i])
     slices = SviSlices(SviParams(*params.T))
     for fnd in calendar_findings([smiles[i] if have_smile[i] else None for i in range(n_exp)], t_exp, labels,
-                                 underlying):
+                                 underlying) if compare_expiries else ():
         expiry_findings[labels.index(fnd.expiry)].append(fnd)
     atm_ivs[have_smile] = _atm_vols(slices, t_exp)[have_smile]
     results: dict[pd.Timestamp, ExpiryResult] = {}
@@ -615,8 +696,7 @@ def annotate(snapshot: Snapshot, settings: PipelineSettings | None = None, touch
     }, copy=False)
     for fs in expiry_findings:
         findings.extend(fs)
-    annotated = AnnotatedSnapshot(snapshot, settings, out, exp_table, results, findings)
-    return annotated.fill_touch() if touch else annotated
+    return AnnotatedSnapshot(snapshot, settings, out, exp_table, results, findings)
 
 
 #: Rows per block of the per-contract figures (``_contract_figures``): a block's temporaries stay in the
