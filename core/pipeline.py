@@ -176,58 +176,97 @@ class AnnotatedSnapshot:
         each asked expiry's result (None as ``touch`` gives it).
         """
         asked = list(self.results) if expiries is None else [pd.Timestamp(e) for e in expiries]
-        order = list(self.results)
-        todo = []
-        for expiry in dict.fromkeys(asked):
-            res = self.results.get(expiry)
-            if expiry in self.touched or res is None or res.smile is None or not res.t_years > 0:
-                continue
-            todo.append(expiry)
+        todo = [e for e in dict.fromkeys(asked) if self.needs_touch(e)]
         if todo:
-            if self._touch_cache is None:  # once: each expiry's rows (contracts are sorted by expiry) and the columns
-                values = self.contracts["expiry"].to_numpy(dtype="datetime64[ns]")
-                cols = {name: self.contracts[name].to_numpy(dtype=float, copy=True)
-                        for name in ("p_touch", "p_touch_low", "p_touch_high")}
-                self._touch_cache = (values, cols)
-            values, cols = self._touch_cache
-            all_strikes = self.contracts["strike"].to_numpy(float)
-            rows_of, strikes, vols = [], [], []
-            for expiry in todo:
-                res = self.results[expiry]
-                target = np.datetime64(expiry.to_datetime64(), "ns")
-                lo = int(np.searchsorted(values, target, side="left"))
-                hi = int(np.searchsorted(values, target, side="right"))
-                rows = np.arange(lo, hi) if (lo < hi and values[lo] == target) else np.flatnonzero(values == target)
-                k_strikes = all_strikes[rows]
-                with np.errstate(divide="ignore", invalid="ignore"):
-                    k = np.log(k_strikes / res.forward)
-                    w = np.asarray(res.smile.total_variance(k), dtype=float)
-                    vol = np.sqrt(np.where(w > 0, w, np.nan) / res.t_years)
-                rows_of.append(rows)
-                strikes.append(k_strikes)
-                vols.append(vol)
-            got_all = expiries_touch(strikes, self.snapshot.spot,
-                                     np.array([r.t_years for r in self.results.values()]),
-                                     np.array([r.forward for r in self.results.values()]),
-                                     [r.smile for r in self.results.values()], [order.index(e) for e in todo], vols,
-                                     underlying=self.snapshot.underlying, labels=[f"{e:%Y-%m-%d}" for e in todo],
-                                     workers=workers)
-            expiry_days = None
-            for expiry, rows, got in zip(todo, rows_of, got_all):
-                for name, arr in (("p_touch", got.p_touch), ("p_touch_low", got.low), ("p_touch_high", got.high)):
-                    cols[name][rows] = arr
-                res = self.results[expiry]
-                if got.findings:
-                    res.findings.extend(got.findings)
-                    self.findings.extend(got.findings)
-                    if expiry_days is None:
-                        expiry_days = self.expiries["expiry"].to_numpy(dtype="datetime64[ns]")
-                    where = np.flatnonzero(expiry_days == np.datetime64(expiry.to_datetime64(), "ns"))
-                    self.expiries.loc[self.expiries.index[where], "findings"] = len(res.findings)
-                self.touched[expiry] = got
-            for name in cols:  # a whole-column swap is much cheaper than a row-wise write; pandas copies the
-                self.contracts[name] = cols[name]  # array it is given, so later writes to cols stay ours
+            self.apply_touch(self.compute_touch_many(todo, workers=workers))
         return {e: self.touched.get(e) for e in asked}
+
+    def needs_touch(self, expiry) -> bool:
+        """Whether ``touch(expiry)`` would compute something (a known expiry with a smile and time left,
+        not computed yet)."""
+        expiry = pd.Timestamp(expiry)
+        res = self.results.get(expiry)
+        return expiry not in self.touched and res is not None and res.smile is not None and res.t_years > 0
+
+    def prepare_touch(self) -> None:
+        """Read what ``compute_touch_many`` needs from ``contracts`` once (the expiry of each row, the
+        strikes, the touch columns), so it can then run in another thread while ``contracts`` is read here."""
+        if self._touch_cache is None:  # contracts are sorted by expiry: each expiry is a run of rows
+            values = self.contracts["expiry"].to_numpy(dtype="datetime64[ns]")
+            cols = {name: self.contracts[name].to_numpy(dtype=float, copy=True)
+                    for name in ("p_touch", "p_touch_low", "p_touch_high")}
+            self._touch_cache = (values, cols, self.contracts["strike"].to_numpy(float))
+
+    def _touch_rows(self, expiry: pd.Timestamp) -> np.ndarray:
+        values = self._touch_cache[0]
+        target = np.datetime64(expiry.to_datetime64(), "ns")
+        lo = int(np.searchsorted(values, target, side="left"))
+        hi = int(np.searchsorted(values, target, side="right"))
+        return np.arange(lo, hi) if (lo < hi and values[lo] == target) else np.flatnonzero(values == target)
+
+    def compute_touch(self, expiry) -> ExpiryTouch | None:
+        """One expiry's touch figures without writing them anywhere (see ``compute_touch_many``)."""
+        expiry = pd.Timestamp(expiry)
+        return self.compute_touch_many([expiry]).get(expiry)
+
+    def compute_touch_many(self, expiries, workers: int = 1) -> dict[pd.Timestamp, ExpiryTouch]:
+        """Touch figures of ``expiries`` (see ``touch_many``) without writing them anywhere: reads only
+        this object's results and the arrays ``prepare_touch`` kept, so another thread may run it while
+        ``contracts`` is used elsewhere; ``apply_touch`` writes them. Expiries with nothing to compute
+        (no smile, no time left, unknown) are left out."""
+        todo = []
+        for expiry in dict.fromkeys(pd.Timestamp(e) for e in expiries):
+            res = self.results.get(expiry)
+            if res is not None and res.smile is not None and res.t_years > 0:
+                todo.append(expiry)
+        if not todo:
+            return {}
+        self.prepare_touch()
+        all_strikes = self._touch_cache[2]
+        order = list(self.results)
+        strikes, vols = [], []
+        for expiry in todo:
+            res = self.results[expiry]
+            k_strikes = all_strikes[self._touch_rows(expiry)]
+            with np.errstate(divide="ignore", invalid="ignore"):
+                k = np.log(k_strikes / res.forward)
+                w = np.asarray(res.smile.total_variance(k), dtype=float)
+                vol = np.sqrt(np.where(w > 0, w, np.nan) / res.t_years)
+            strikes.append(k_strikes)
+            vols.append(vol)
+        got_all = expiries_touch(strikes, self.snapshot.spot,
+                                 np.array([r.t_years for r in self.results.values()]),
+                                 np.array([r.forward for r in self.results.values()]),
+                                 [r.smile for r in self.results.values()], [order.index(e) for e in todo], vols,
+                                 underlying=self.snapshot.underlying, labels=[f"{e:%Y-%m-%d}" for e in todo],
+                                 workers=workers)
+        return dict(zip(todo, got_all))
+
+    def apply_touch(self, computed: dict) -> None:
+        """Write touch figures from ``compute_touch_many`` (expiry -> ExpiryTouch) to ``contracts`` (each
+        column once), their findings to ``findings`` and the expiry's result; expiries already done skipped."""
+        fresh = {pd.Timestamp(e): got for e, got in computed.items()
+                 if got is not None and pd.Timestamp(e) not in self.touched}
+        if not fresh:
+            return
+        self.prepare_touch()
+        cols = self._touch_cache[1]
+        expiry_days = None
+        for expiry, got in fresh.items():
+            rows = self._touch_rows(expiry)
+            for name, arr in (("p_touch", got.p_touch), ("p_touch_low", got.low), ("p_touch_high", got.high)):
+                cols[name][rows] = arr
+            res = self.results[expiry]
+            if got.findings:
+                res.findings.extend(got.findings)
+                self.findings.extend(got.findings)
+                if expiry_days is None:
+                    expiry_days = self.expiries["expiry"].to_numpy(dtype="datetime64[ns]")
+                where = np.flatnonzero(expiry_days == np.datetime64(expiry.to_datetime64(), "ns"))
+                self.expiries.loc[self.expiries.index[where], "findings"] = len(res.findings)
+            self.touched[expiry] = got
+        for name in cols:  # a whole-column swap is much cheaper than a row-wise write; pandas copies the
+            self.contracts[name] = cols[name]  # array it is given, so later writes to cols stay ours
 
     def fill_touch(self, workers: int = 1) -> "AnnotatedSnapshot":
         """Compute the touch figures of every expiry (``touch_many``); returns self."""

@@ -25,6 +25,7 @@ from chaintriage.core.confidence import DEFAULT_CONFIDENCE
 from chaintriage.core.findings import ChainTriageError
 from chaintriage.tui import formatting as fm
 from chaintriage.tui import clipboard, snapshot_loading, terminal_signals
+from chaintriage.tui.touch_jobs import TouchJobs
 from chaintriage.tui.cli.common import error
 from chaintriage.tui.layout import PLOT_HIDDEN, PLOT_SHOWN
 from chaintriage.tui.screens.triage import TriageScreen
@@ -201,6 +202,8 @@ class ChainTriageApp(App[int]):
                                  plot=self.settings.extra.get("plot", ""))
         self._settings_unsaved = False
         self.triage = TriageScreen(self.state, id="triage")
+        #: Touch figures of the views this app loads are computed off the screen's thread (``touch_jobs``).
+        self.touch_jobs = TouchJobs(self._start_touch_worker, self._shown_expiry, self._deliver_touch)
 
     # ------------------------------------------------------------ Textual hooks
 
@@ -297,12 +300,14 @@ class ChainTriageApp(App[int]):
             view.finding_groups()  # the findings screen opens at once
             try:
                 view.set_events(self.events)  # the header's event marks need the term structure
+                view.annotated.prepare_touch()  # before touch figures are computed in another thread
                 if view.expiries:
                     view.info(0, self.state.confidence)  # a new view, or a big chain's whole, opens at its first
                     view.header_infos()
                     view.frame(view.expiries[0])  # its touch figures (not on screen yet: no one else reads it)
             except Exception:  # noqa: BLE001 - the screen works it out again and says what is wrong, as before
                 pass
+            view.touch_later = self.touch_jobs.ask  # from now on, other expiries' touch figures come later
 
         def on_view(view: SnapshotView, first: bool) -> None:
             prepare(view)
@@ -332,6 +337,45 @@ class ChainTriageApp(App[int]):
                 on_busy=lambda text: self.call_from_thread(self.triage.set_busy, text), on_view=on_view,
                 on_replace=on_replace)
         self.call_from_thread(self._load_done, load_errors + errors, added, initial)
+
+    # ------------------------------------------------------------ touch figures (a worker thread)
+
+    def _start_touch_worker(self) -> None:
+        threading.Thread(target=self.touch_jobs.run, name="touch", daemon=True).start()
+
+    def _shown_expiry(self) -> tuple[SnapshotView, Any] | None:
+        """(view, expiry) on screen, read from the touch worker: computed first."""
+        view, expiry = self.state.view, self.state.current_expiry
+        return None if view is None or expiry is None else (view, expiry)
+
+    def _deliver_touch(self, view: SnapshotView, computed: dict) -> bool:
+        """Touch worker: hand figures to the screen's thread (waits until written); False once the app is gone."""
+        try:
+            self.call_from_thread(self._touch_arrived, view, computed)
+        except Exception:  # noqa: BLE001 - the app has stopped (or is stopping)
+            return False
+        return True
+
+    def _touch_arrived(self, view: SnapshotView, computed: dict) -> None:
+        view.touch_arrived(computed)
+        st = self.state
+        for i, v in enumerate(st.views):
+            if v is view:
+                st._findings_count.pop(i, None)  # touch findings join the count
+        if st.view is view and st.current_expiry in computed:
+            self.triage.show_expiry()
+
+    def _touch_on_screen_now(self) -> None:
+        """Copy and mark take the figures shown: when the shown expiry's touch figures are still being
+        computed, compute them here first (the key that asks waits; an expiry switch never does)."""
+        view, expiry = self.state.view, self.state.current_expiry
+        if view is not None and expiry is not None and view.touch_pending(expiry):
+            try:
+                got = view.annotated.compute_touch(expiry)
+            except Exception:  # noqa: BLE001 - touch_arrived leaves it to frame(), which says what is wrong
+                got = None
+            view.touch_arrived({expiry: got})
+            self.triage.show_expiry()
 
     def _history_paths_in_use(self) -> list[str] | None:
         """History files to read: those given, else the demo's when the demo is shown (None), else none ([])."""
@@ -500,6 +544,7 @@ class ChainTriageApp(App[int]):
             return
         from chaintriage.tui.session import market_figures
 
+        self._touch_on_screen_now()
         view = self.state.view
         grid = self.triage.grid
         contract = market_figures(grid.highlighted_contract())
@@ -569,6 +614,7 @@ class ChainTriageApp(App[int]):
     def exit(self, *args: Any, **kwargs: Any) -> None:
         """Stop: clipboard tools still running are killed first, so none holds up quitting."""
         clipboard.stop_all()
+        self.touch_jobs.close()
         super().exit(*args, **kwargs)
 
     def action_toggle_mark(self) -> None:
@@ -576,6 +622,7 @@ class ChainTriageApp(App[int]):
             return
         from chaintriage.tui.session import market_figures
 
+        self._touch_on_screen_now()
         view = self.state.view
         contract = market_figures(self.triage.grid.highlighted_contract())
         if view is None or contract is None:

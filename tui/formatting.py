@@ -33,6 +33,16 @@ def placeholder(ascii_only: bool = False) -> str:
     return PLACEHOLDER_ASCII if ascii_only else PLACEHOLDER
 
 
+#: The mark shown in a cell whose figure is still being computed (e.g. P(touch) of an expiry just opened).
+PENDING = "…"
+PENDING_ASCII = ".."
+
+
+def pending_mark(width: int | None = None, ascii_only: bool = False) -> str:
+    """The pending mark fitted to ``width`` cells."""
+    return fit(PENDING_ASCII if ascii_only else PENDING, width)
+
+
 def as_finite(value: Any) -> float | None:
     """``value`` as a finite float, or None when missing, NaN, inf or not a number."""
     if value is None or isinstance(value, bool):

@@ -81,6 +81,11 @@ COLUMNS: dict[str, ColumnSpec] = {
     )
 }
 
+#: Key in a contracts frame's ``attrs`` naming the fields whose figures are still being computed
+#: (the ladder shows ``formatting.pending_mark`` in their cells); the touch fields are such.
+TOUCH_PENDING = "pending_fields"
+TOUCH_FIELDS = ("p_touch", "p_touch_low", "p_touch_high")
+
 #: The compact set shown until the user picks others.
 DEFAULT_COLUMNS: tuple[str, ...] = ("bid", "ask", "iv", "sigma", "p_beyond", "p_touch")
 

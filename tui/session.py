@@ -12,7 +12,7 @@ from __future__ import annotations
 import math
 import re
 from dataclasses import dataclass
-from typing import Any, Iterable, Sequence
+from typing import Any, Callable, Iterable, Sequence
 
 import numpy as np
 import pandas as pd
@@ -24,6 +24,7 @@ from chaintriage.core.pipeline import AnnotatedSnapshot
 from chaintriage.core.targets import Target, TargetSelector, target_mask
 
 from . import formatting as fm
+from .ladder_columns import TOUCH_FIELDS, TOUCH_PENDING
 
 #: The confidence levels the range cycles through (two-sided, decimals).
 CONFIDENCE_LEVELS: tuple[float, ...] = (DEFAULT_CONFIDENCE, 0.80, 0.90, 0.95, 0.99)
@@ -370,6 +371,11 @@ class SnapshotView:
         self._strike_width: int | None = None
         #: The price history's figures (``history_view.ViewHistory``), once the loading job has them.
         self.history: Any = None
+        #: When set, ``frame`` does not compute an expiry's touch figures: it marks them pending
+        #: (``TOUCH_PENDING`` in the frame's attrs) and calls ``touch_later(self, expiry)``; the
+        #: figures come back through ``touch_arrived`` (``touch_jobs``: computed off the screen's thread).
+        self.touch_later: Callable[[SnapshotView, pd.Timestamp], None] | None = None
+        self._touch_here: set[pd.Timestamp] = set()  # the background computation failed: compute here
 
     # --- labels
 
@@ -393,7 +399,9 @@ class SnapshotView:
         cached = self._frames.get(expiry)
         if cached is not None:
             return cached
-        self.annotated.touch(expiry)  # touch figures are computed per expiry on demand, once
+        pending = self.touch_pending(expiry)
+        if not pending:
+            self.annotated.touch(expiry)  # touch figures are computed per expiry on demand, once
         contracts = self.annotated.contracts
         if expiry in self._bounds:
             lo, hi = self._bounds[expiry]
@@ -402,8 +410,29 @@ class SnapshotView:
             out = contracts[contracts["expiry"] == expiry]
         if self.history is not None:
             out = self._with_history_columns(out)
+        if pending:
+            out.attrs = {**out.attrs, TOUCH_PENDING: TOUCH_FIELDS}
         self._frames[expiry] = out
+        if pending:
+            self.touch_later(self, expiry)
         return out
+
+    def touch_pending(self, expiry: pd.Timestamp) -> bool:
+        """Whether ``expiry``'s touch figures are being computed elsewhere (see ``touch_later``)."""
+        return self.touch_later is not None and expiry not in self._touch_here and \
+            self.annotated.needs_touch(expiry)
+
+    def touch_arrived(self, computed: dict) -> None:
+        """Write touch figures computed elsewhere (expiry -> ``ExpiryTouch``; None: it failed there, so
+        ``frame`` computes it here) and forget the frames that showed them pending."""
+        failed = [pd.Timestamp(e) for e, got in computed.items() if got is None]
+        self._touch_here.update(failed)
+        self.annotated.apply_touch({e: got for e, got in computed.items() if got is not None})
+        for e in computed:
+            e = pd.Timestamp(e)
+            self._frames.pop(e, None)
+            self._frames.pop(("ex_event", e), None)  # type: ignore[call-overload]
+        self._infos.clear()  # the expiry's findings may have grown
 
     #: Per-contract history columns the ladder can show (``core.history_compare.HISTORY_CONTRACT_COLUMNS``).
     HISTORY_FIELDS = ("hist_p_beyond", "hist_p_touch", "boot_p_beyond", "boot_p_beyond_se", "boot_p_touch")

@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import contextlib
 import time
-from collections.abc import Callable, Sequence
+from collections.abc import Callable, Iterator, Sequence
 from importlib import resources
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
@@ -25,8 +25,10 @@ if TYPE_CHECKING:  # pragma: no cover
 DEMO_PACKAGE = "chaintriage.demo_chains"
 
 #: A snapshot with more contracts than this shows its first expiry (annotated alone) before the
-#: whole chain is annotated: the expiries are computed independently, so its figures are the same.
-FIRST_EXPIRY_FIRST_ABOVE = 50_000
+#: other expiries are annotated (``core.pipeline.annotate_in_parts``: the expiries are computed
+#: independently, so its figures are the same); every chain does, so the first data frame waits
+#: for one expiry's work only.
+FIRST_EXPIRY_FIRST_ABOVE = 0
 
 
 def import_numerical_modules() -> None:
@@ -109,6 +111,21 @@ def annotate_view(snapshot: Snapshot, pipeline_settings: Any, load_findings: Seq
     view = SnapshotView(annotated, file_findings_without_underlying(load_findings, snapshot.sources))
     precompute_view(view, confidence, stop=precompute)
     return view
+
+
+def annotate_views_in_parts(snapshot: Snapshot, pipeline_settings: Any, load_findings: Sequence = (),
+                            confidence: float | None = None) -> Iterator[SnapshotView]:
+    """``annotate_view`` in two steps (``core.pipeline.annotate_in_parts``): a view of the first expiry
+    alone, then the whole chain (the whole alone when it has one expiry); each with its first expiry's
+    distribution and range computed."""
+    from chaintriage.core.pipeline import annotate_in_parts
+    from chaintriage.tui.session import SnapshotView, file_findings_without_underlying
+
+    file_findings = file_findings_without_underlying(load_findings, snapshot.sources)
+    for annotated in annotate_in_parts(snapshot, pipeline_settings):
+        view = SnapshotView(annotated, file_findings)
+        precompute_view(view, confidence, stop=1)
+        yield view
 
 
 #: Seconds the background work sleeps between two expiries, so the screen's thread gets the
@@ -195,25 +212,26 @@ def load_views(paths: Sequence[str], *, snapshots: Sequence[Snapshot] | None = N
             on_busy(f"computing {fm.clean_text(snap.underlying)} "
                     f"({len(snap.contracts):,} contracts, {n + 1} of {len(snapshots)})")
             partial = None
-            part = first_expiry_snapshot(snap) if (
-                on_replace is not None and len(snap.contracts) > FIRST_EXPIRY_FIRST_ABOVE) else None
-            if part is not None:
-                try:
-                    partial = annotate_view(part, settings, load_findings, level(), precompute=1)
-                except ChainTriageError:
-                    partial = None  # the whole chain below says what is wrong
-                if partial is not None:
-                    on_view(partial, added == 0)
-                    on_busy(f"computing {fm.clean_text(snap.underlying)}: the other expiries "
-                            f"({len(snap.contracts) - len(part.contracts):,} contracts)")
+            shown = False
             try:
-                view = annotate_view(snap, settings, load_findings, level(), precompute=1)
+                if on_replace is not None and len(snap.contracts) > FIRST_EXPIRY_FIRST_ABOVE:
+                    parts = annotate_views_in_parts(snap, settings, load_findings, level())
+                    view = next(parts)
+                    if len(view.expiries) < snap.contracts["expiry"].nunique():  # a part: show it, then the rest
+                        on_view(view, added == 0)
+                        on_busy(f"computing {fm.clean_text(snap.underlying)}: the other expiries "
+                                f"({len(snap.contracts) - len(view):,} contracts)")
+                        whole = next(parts, None)  # None: far strikes left no other expiry, it was the whole
+                        shown = whole is None
+                        partial, view = (None, view) if whole is None else (view, whole)
+                else:
+                    view = annotate_view(snap, settings, load_findings, level(), precompute=1)
             except ChainTriageError as exc:
                 errors.append(f"{snap.label}: {exc}")
                 continue
             if partial is not None:
                 on_replace(partial, view)
-            else:
+            elif not shown:
                 on_view(view, added == 0)
             added += 1
             precompute_view(view, level(), start=1, pause=YIELD_SECONDS)

@@ -50,6 +50,7 @@ from chaintriage.tui.ladder_columns import (  # noqa: F401  (the ladder's column
     DEFAULT_COLUMNS,
     HEADER_LINES,
     PUT,
+    TOUCH_PENDING,
     ColumnSpec,
     _fmt_text,
     known_columns,
@@ -156,6 +157,7 @@ class StrikeGrid(ScrollView, can_focus=True):
         self._hidden = 0
         self._strike_decimals = 0
         self._strike_width = 8
+        self._pending: frozenset[str] = frozenset()
         self._marked: set[tuple[float, str]] = set()
         self._cursor = -1
         self._side = CALL
@@ -242,7 +244,7 @@ class StrikeGrid(ScrollView, can_focus=True):
 
     #: What ``_compute_rows`` sets, kept per input in ``_kept``.
     _KEPT_FIELDS = ("_frame", "_strikes", "_pos", "_values", "_otm", "_forward", "_fwd_pos", "_expiry",
-                    "_underlying", "_hidden", "_strike_decimals", "_strike_width")
+                    "_underlying", "_hidden", "_strike_decimals", "_strike_width", "_pending")
 
     def _compute_rows(self, frame: pd.DataFrame, forward: float, expiry: Any, underlying: str | None,
                       hidden: int) -> None:
@@ -250,6 +252,7 @@ class StrikeGrid(ScrollView, can_focus=True):
         self._pos = {}
         self._otm = {}
         self._frame = frame
+        self._pending = frozenset(frame.attrs.get(TOUCH_PENDING, ()))  # fields still being computed
         n = len(frame)
         if n:
             strikes_all = pd.to_numeric(frame["strike"], errors="coerce").to_numpy(dtype=float)
@@ -567,6 +570,8 @@ class StrikeGrid(ScrollView, can_focus=True):
     # ------------------------------------------------------------- drawing
 
     def _cell(self, spec: ColumnSpec, side: str, i: int) -> str:
+        if spec.field in self._pending:
+            return fm.pending_mark(spec.width, self._ascii)
         value = self._values[(spec.key, side)][i]
         return spec.fmt(value, spec.width, self._ascii)
 
