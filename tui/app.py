@@ -315,8 +315,9 @@ class ChainTriageApp(App[int]):
             self.call_from_thread(self._add_view, view, first, drawn)
             # Let the screen draw before more model work competes with it for the interpreter.
             drawn.wait(2.0)
-            # Its price history next, before the other expiries' background work.
-            figures = self._history_figures(view, errors)
+            # Its price history next, before the other expiries' background work (a first expiry shown
+            # alone: the whole chain that takes its place gets it).
+            figures = None if view.partial else self._history_figures(view, errors)
             if figures is not None:
                 self.call_from_thread(self._set_history, view, *figures)
 

@@ -376,6 +376,9 @@ class SnapshotView:
         #: figures come back through ``touch_arrived`` (``touch_jobs``: computed off the screen's thread).
         self.touch_later: Callable[[SnapshotView, pd.Timestamp], None] | None = None
         self._touch_here: set[pd.Timestamp] = set()  # the background computation failed: compute here
+        #: True for the view of a chain's first expiry alone, shown while the other expiries are computed
+        #: (the whole chain's view takes its place; the price history goes to that one).
+        self.partial = False
 
     # --- labels
 

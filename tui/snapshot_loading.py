@@ -218,11 +218,14 @@ def load_views(paths: Sequence[str], *, snapshots: Sequence[Snapshot] | None = N
                     parts = annotate_views_in_parts(snap, settings, load_findings, level())
                     view = next(parts)
                     if len(view.expiries) < snap.contracts["expiry"].nunique():  # a part: show it, then the rest
+                        view.partial = True
                         on_view(view, added == 0)
                         on_busy(f"computing {fm.clean_text(snap.underlying)}: the other expiries "
                                 f"({len(snap.contracts) - len(view):,} contracts)")
                         whole = next(parts, None)  # None: far strikes left no other expiry, it was the whole
                         shown = whole is None
+                        if whole is None:
+                            view.partial = False
                         partial, view = (None, view) if whole is None else (view, whole)
                 else:
                     view = annotate_view(snap, settings, load_findings, level(), precompute=1)
