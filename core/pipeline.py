@@ -22,6 +22,7 @@ from __future__ import annotations
 import contextlib
 from collections.abc import Iterator
 from dataclasses import dataclass, field, replace
+from typing import TYPE_CHECKING
 
 import numpy as np
 import pandas as pd
@@ -54,7 +55,9 @@ from .time_to_expiry import (
     year_fraction,
 )
 from .calendar_arbitrage import calendar_findings
-from .touch_expiry import ExpiryTouch, expiries_touch
+
+if TYPE_CHECKING:  # pragma: no cover
+    from .touch_expiry import ExpiryTouch
 
 #: Greeks beside delta: gamma per unit of spot squared, theta in price units per day of the
 #: basis (a trading day on 252/250, a calendar day on 365), vega in price units per vol point.
@@ -214,6 +217,8 @@ class AnnotatedSnapshot:
         this object's results and the arrays ``prepare_touch`` kept, so another thread may run it while
         ``contracts`` is used elsewhere; ``apply_touch`` writes them. Expiries with nothing to compute
         (no smile, no time left, unknown) are left out."""
+        from .touch_expiry import expiries_touch  # here only: it imports scipy.linalg, not needed to annotate
+
         todo = []
         for expiry in dict.fromkeys(pd.Timestamp(e) for e in expiries):
             res = self.results.get(expiry)

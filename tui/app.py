@@ -295,19 +295,26 @@ class ChainTriageApp(App[int]):
 
         errors: list[str] = []
 
-        def prepare(view: SnapshotView) -> None:
-            """What showing a view needs, worked out here, off the screen's thread (all of it cached)."""
+        def prepare(view: SnapshotView, touched: Sequence = ()) -> None:
+            """What showing a view needs, worked out here, off the screen's thread (all of it cached).
+
+            Touch figures come from the touch worker, after the view is drawn (the first frame waits
+            neither for them nor for the modules they need), except those of ``touched`` expiries
+            (shown already in the view this one replaces: computed here, so they stay on screen)."""
             view.finding_groups()  # the findings screen opens at once
             try:
                 view.set_events(self.events)  # the header's event marks need the term structure
                 view.annotated.prepare_touch()  # before touch figures are computed in another thread
+                for expiry in touched:
+                    view.annotated.touch(expiry)  # not on screen yet: no one else reads it
+                view.touch_later = self.touch_jobs.ask
                 if view.expiries:
                     view.info(0, self.state.confidence)  # a new view, or a big chain's whole, opens at its first
                     view.header_infos()
-                    view.frame(view.expiries[0])  # its touch figures (not on screen yet: no one else reads it)
+                    if not view.touch_pending(view.expiries[0]):  # else the screen asks for them, once drawn
+                        view.frame(view.expiries[0])
             except Exception:  # noqa: BLE001 - the screen works it out again and says what is wrong, as before
-                pass
-            view.touch_later = self.touch_jobs.ask  # from now on, other expiries' touch figures come later
+                view.touch_later = self.touch_jobs.ask
 
         def on_view(view: SnapshotView, first: bool) -> None:
             prepare(view)
@@ -325,7 +332,7 @@ class ChainTriageApp(App[int]):
             figures = self._history_figures(whole, errors)
             if figures is not None:  # not on screen yet: attached here, so the swap keeps the history shown
                 whole.set_history(*figures)
-            prepare(whole)
+            prepare(whole, touched=list(partial.annotated.touched))
             self.call_from_thread(self._replace_view, partial, whole)
 
         maps = [self._file_maps.get(os.path.realpath(p)) for p in paths] if paths else None
@@ -342,7 +349,13 @@ class ChainTriageApp(App[int]):
     # ------------------------------------------------------------ touch figures (a worker thread)
 
     def _start_touch_worker(self) -> None:
-        threading.Thread(target=self.touch_jobs.run, name="touch", daemon=True).start()
+        """A thread for ``touch_jobs``; asked on the screen's thread, it starts after the next frame is
+        drawn (that frame does not share the interpreter with it)."""
+        thread = threading.Thread(target=self.touch_jobs.run, name="touch", daemon=True)
+        if getattr(self, "_thread_id", None) == threading.get_ident():
+            self.call_after_refresh(thread.start)
+        else:
+            thread.start()
 
     def _shown_expiry(self) -> tuple[SnapshotView, Any] | None:
         """(view, expiry) on screen, read from the touch worker: computed first."""

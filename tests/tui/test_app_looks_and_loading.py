@@ -199,7 +199,14 @@ def test_loading_shows_progress_instead_of_a_frozen_screen(monkeypatch):
         release.wait(10)
         return real(*args, **kwargs)
 
+    real_parts = snapshot_loading.annotate_views_in_parts
+
+    def slow_parts(*args, **kwargs):
+        release.wait(10)
+        yield from real_parts(*args, **kwargs)
+
     monkeypatch.setattr(snapshot_loading, "annotate_view", slow)
+    monkeypatch.setattr(snapshot_loading, "annotate_views_in_parts", slow_parts)
     app = make_app(paths=())
 
     async def main():
