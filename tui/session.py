@@ -400,8 +400,8 @@ class SnapshotView:
         """The contracts of one expiry (both kinds, sorted by strike)."""
         expiry = pd.Timestamp(expiry)
         cached = self._frames.get(expiry)
-        if cached is not None:
-            return cached
+        if cached is not None and not (TOUCH_PENDING in cached.attrs and expiry in self.annotated.touched):
+            return cached  # (a pending frame whose figures were computed elsewhere meanwhile is made again)
         pending = self.touch_pending(expiry)
         if not pending:
             self.annotated.touch(expiry)  # touch figures are computed per expiry on demand, once

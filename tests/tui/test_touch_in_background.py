@@ -83,6 +83,18 @@ def test_a_pending_frame_shows_the_mark_then_the_figures():
     np.testing.assert_array_equal(done["p_touch"].to_numpy(), oracle[oracle["expiry"] == e]["p_touch"].to_numpy())
 
 
+def test_a_pending_frame_is_made_again_when_another_screen_computed_the_figures():
+    from chaintriage.tui.session import SnapshotView
+
+    view = SnapshotView(annotate(demo_load().snapshots[0], PipelineSettings()))
+    view.touch_later = lambda v, e: None
+    e = view.expiries[2]
+    assert TOUCH_PENDING in view.frame(e).attrs
+    view.annotated.touch(e)  # e.g. the target view computes it on its own
+    again = view.frame(e)
+    assert TOUCH_PENDING not in again.attrs and again["p_touch"].notna().any()
+
+
 def test_expiry_switches_never_compute_touch_on_the_screens_thread(monkeypatch):
     """The app loading the demo files: switching through every expiry of the first snapshot shows
     pending marks or figures, computed in other threads; in the end every expiry's touch cells read
