@@ -303,7 +303,9 @@ class ChainTriageApp(App[int]):
             (shown already in the view this one replaces: computed here, so they stay on screen)."""
             view.finding_groups()  # the findings screen opens at once
             try:
-                view.set_events(self.events)  # the header's event marks need the term structure
+                # The header's event marks need the term structure: of the whole chain (a first expiry
+                # shown alone gets none; its ex-event vol would come from that expiry alone).
+                view.set_events([] if view.partial else self.events)
                 view.annotated.prepare_touch()  # before touch figures are computed in another thread
                 for expiry in touched:
                     view.annotated.touch(expiry)  # not on screen yet: no one else reads it
@@ -425,7 +427,7 @@ class ChainTriageApp(App[int]):
         self.triage.refresh_bars()
 
     def _add_view(self, view: SnapshotView, select: bool, drawn: threading.Event | None = None) -> None:
-        view.set_events(self.events)
+        view.set_events([] if view.partial else self.events)
         st = self.state
         key = (view.snapshot.underlying, view.snapshot.as_of)
         same = [i for i, v in enumerate(st.views) if (v.snapshot.underlying, v.snapshot.as_of) == key]

@@ -145,7 +145,8 @@ COLUMNS: tuple[ColumnHelp, ...] = (
                "a gap to 'beyond' is the skew's say"),
     ColumnHelp("p_touch", "touch",
                "P(touch): chance the underlying trades at the strike at some time before expiry, "
-               "starting from spot now, from one path model that reprices the whole smile (local volatility)"),
+               "starting from spot now, from one path model that reprices the whole smile (local volatility); "
+               "'…' ('..' in ASCII) while an expiry's touch figures are still being computed"),
     ColumnHelp("p_touch_low", "t.low",
                "touch bound, low: no model that reprices the quoted options can give a smaller touch chance "
                "(the chance of finishing past the strike, away from spot)"),
