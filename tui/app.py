@@ -353,7 +353,11 @@ class ChainTriageApp(App[int]):
     def _start_touch_worker(self) -> None:
         """A thread for ``touch_jobs``; asked on the screen's thread, it starts after the next frame is
         drawn (that frame does not share the interpreter with it)."""
-        thread = threading.Thread(target=self.touch_jobs.run, name="touch", daemon=True)
+        def run() -> None:
+            with _ui_first():  # keys and frames get the interpreter at once meanwhile
+                self.touch_jobs.run()
+
+        thread = threading.Thread(target=run, name="touch", daemon=True)
         if getattr(self, "_thread_id", None) == threading.get_ident():
             self.call_after_refresh(thread.start)
         else:
