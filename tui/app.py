@@ -60,16 +60,6 @@ _loads_lock = threading.Lock()
 _loads_running = [0, 0.005]
 
 
-def _heap_settled() -> None:
-    """Leave the objects alive now (modules, widgets, loaded views) out of the cycle collector's
-    future passes (``gc.freeze``): a full pass over a big chain's heap (~150,000 objects) holds the
-    interpreter 60-150 ms, the screen's thread included, whichever thread triggers it; frozen objects
-    are still freed by reference counting. Young cyclic garbage is collected first (a pass over the
-    young generations: a few ms)."""
-    gc.collect(1)
-    gc.freeze()
-
-
 @contextlib.contextmanager
 def _ui_first():
     """While loading jobs run, a short switch interval, so the screen's thread waits little for the GIL."""
@@ -213,6 +203,7 @@ class ChainTriageApp(App[int]):
                                  plot=self.settings.extra.get("plot", ""))
         self._settings_unsaved = False
         self.triage = TriageScreen(self.state, id="triage")
+        self._heap_released = False  # see _heap_settled
         #: Touch figures of the views this app loads are computed off the screen's thread (``touch_jobs``).
         self.touch_jobs = TouchJobs(self._start_touch_worker, self._shown_expiry, self._deliver_touch)
 
@@ -301,9 +292,10 @@ class ChainTriageApp(App[int]):
         """Worker thread: the numerical modules, then ``snapshot_loading.load_views``, each view handed
         to the screen as it is ready."""
         if not self.triage.body_ready:
-            gc.freeze()  # the screen's modules and widgets: the imports' own passes need not walk them
+            # The screen's modules and widgets first: the collector's passes during the imports skip them.
+            self._heap_settled(young=False)
             snapshot_loading.import_numerical_modules()
-            _heap_settled()
+            self._heap_settled()
             self.call_from_thread(self.triage.mount_body)
 
         errors: list[str] = []
@@ -333,7 +325,7 @@ class ChainTriageApp(App[int]):
 
         def on_view(view: SnapshotView, first: bool) -> None:
             prepare(view)
-            _heap_settled()
+            self._heap_settled()
             drawn = threading.Event()
             self.call_from_thread(self._add_view, view, first, drawn)
             # Let the screen draw before more model work competes with it for the interpreter.
@@ -349,7 +341,7 @@ class ChainTriageApp(App[int]):
             if figures is not None:  # not on screen yet: attached here, so the swap keeps the history shown
                 whole.set_history(*figures)
             prepare(whole, touched=list(partial.annotated.touched))
-            _heap_settled()
+            self._heap_settled()
             self.call_from_thread(self._replace_view, partial, whole)
 
         maps = [self._file_maps.get(os.path.realpath(p)) for p in paths] if paths else None
@@ -361,8 +353,26 @@ class ChainTriageApp(App[int]):
                 confidence=lambda: self.state.confidence,
                 on_busy=lambda text: self.call_from_thread(self.triage.set_busy, text), on_view=on_view,
                 on_replace=on_replace)
-        _heap_settled()
+        self._heap_settled()
         self.call_from_thread(self._load_done, load_errors + errors, added, initial)
+
+    def _heap_settled(self, young: bool = True) -> None:
+        """Leave the objects alive now (modules, widgets, loaded views) out of the cycle collector's
+        future passes (``gc.freeze``): a full pass over a big chain's heap (~150,000 objects) holds the
+        interpreter 60-150 ms, the screen's thread included, whichever thread triggers it; frozen objects
+        are still freed by reference counting, and are handed back to the collector when the app stops
+        (``on_unmount``). With ``young``, young cyclic garbage is collected first (a few ms)."""
+        if self._heap_released:
+            return
+        if young:
+            gc.collect(1)
+        gc.freeze()
+
+    def on_unmount(self) -> None:
+        """The app stops: what loading froze goes back to the cycle collector (a process that runs
+        several apps, as the tests do, frees each one's cyclic garbage)."""
+        self._heap_released = True
+        gc.unfreeze()
 
     # ------------------------------------------------------------ touch figures (a worker thread)
 
