@@ -7,6 +7,7 @@ product rules: file text is never markup, bad files never stop the app.
 from __future__ import annotations
 
 import asyncio
+import gc
 import threading
 
 import pytest
@@ -230,6 +231,24 @@ def test_loading_shows_progress_instead_of_a_frozen_screen(monkeypatch):
             assert "computing" not in bar(app, "topbar")
 
     asyncio.run(main())
+
+
+def test_loading_freezes_the_heap_while_the_app_runs_and_hands_it_back_at_exit():
+    # [D] the cycle collector's full passes skip what loading built (gc.freeze), so none holds the
+    # screen ~100 ms over a big chain's heap (bench_app.py --only big); at exit all goes back to it.
+    gc.unfreeze()
+    app = make_app(paths=())
+    frozen = []
+
+    async def main():
+        async with app.run_test(size=(120, 30)) as pilot:
+            await wait_ready(app, pilot)
+            frozen.append(gc.get_freeze_count())
+            assert len(app.state.views) == 2
+
+    asyncio.run(main())
+    assert frozen[0] > 10_000  # the modules, widgets and both demo chains
+    assert gc.get_freeze_count() == 0
 
 
 def test_opening_another_file_from_inside_the_app(tmp_path):
