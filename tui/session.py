@@ -709,5 +709,9 @@ class SnapshotView:
 
 def file_findings_without_underlying(findings: Sequence[Finding], sources: Sequence[str]) -> list[Finding]:
     """Loader findings from ``sources`` that name no underlying (e.g. a row whose underlying was blank)."""
+    from chaintriage.core.finding_table import FindingTable
+
     wanted = set(sources)
+    if isinstance(findings, FindingTable):  # only the few without an underlying become objects
+        findings = findings.take(np.flatnonzero(pd.isna(findings.underlying)))
     return [f for f in findings if f.underlying is None and f.file in wanted]

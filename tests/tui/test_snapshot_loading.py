@@ -60,3 +60,28 @@ def test_without_a_replace_hook_the_whole_chain_comes_at_once(monkeypatch):
     events = []
     load_views([], snapshots=[snap], on_view=lambda view, first: events.append(len(view.expiries)))
     assert events == [snap.contracts["expiry"].nunique()]
+
+
+def test_a_views_findings_without_underlying_are_picked_from_the_table(tmp_path):
+    """[D] consistency: the loader's findings that name no underlying (a row with a blank underlying)
+    go to the view of their file; picked from the finding table's columns, they are the ones a
+    per-finding reading picks, and a findings list gives the same."""
+    from importlib import resources
+
+    from chaintriage.core.finding_table import FindingTable
+    from chaintriage.tui.session import file_findings_without_underlying
+    from chaintriage.tui.snapshot_loading import load_for_app
+
+    lines = (resources.files("chaintriage.demo_chains") / demo_files()[0]).read_text().splitlines()
+    blank = "," + lines[5].split(",", 1)[1]  # a quote row whose underlying cell is empty
+    path = tmp_path / "blank_underlying.csv"
+    path.write_text("\n".join(lines[:40] + [blank]) + "\n")
+    result = load_for_app([str(path)])
+    assert isinstance(result.findings, FindingTable) and len(result.findings) > 1
+    sources = result.snapshots[0].sources
+    picked = file_findings_without_underlying(result.findings, sources)
+    by_hand = [f for f in list(result.findings) if f.underlying is None and f.file in set(sources)]
+    assert len(picked) == 1 and picked == by_hand
+    assert picked[0].line == 41 and "underlying" in picked[0].reason
+    assert file_findings_without_underlying(list(result.findings), sources) == by_hand
+    assert file_findings_without_underlying(result.findings, ["elsewhere.csv"]) == []
