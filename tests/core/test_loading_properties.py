@@ -165,6 +165,19 @@ def test_rows_accounted_for_and_lines_right(tmp_path, data):
         assert sorted(f.line for f in res.findings if f.severity == LEFT_OUT and f.line) == starts
 
 
+def _load_outcome(p, signed=()):
+    """What loading ``p`` gives, comparable with ==: the error, or the findings, counts, snapshots and
+    their cells (with the sign bits of the ``signed`` columns, so -0.0 differs from 0.0)."""
+    try:
+        load = load_file(p)
+    except SnapshotFileError as exc:
+        return ("error", exc.reason, [str(f) for f in exc.findings])
+    frames = [s.contracts.to_dict("list") for s in load.snapshots]
+    signs = [np.signbit(s.contracts[c].to_numpy()).tolist() for s in load.snapshots for c in signed]
+    return ("ok", [str(f) for f in load.findings], load.rows_read, load.rows_accepted,
+            [(s.underlying, s.as_of, s.spot) for s in load.snapshots], repr(frames), signs)
+
+
 @SETTINGS
 @given(data=snapshot_files())
 def test_fast_path_matches_the_csv_module(tmp_path, data, monkeypatch):
@@ -173,19 +186,10 @@ def test_fast_path_matches_the_csv_module(tmp_path, data, monkeypatch):
     p = tmp_path / "d.csv"
     p.write_bytes(text.encode("utf-8", "surrogatepass"))
 
-    def outcome():
-        try:
-            load = load_file(p)
-        except SnapshotFileError as exc:
-            return ("error", exc.reason, [str(f) for f in exc.findings])
-        frames = [s.contracts.to_dict("list") for s in load.snapshots]
-        return ("ok", [str(f) for f in load.findings], load.rows_read, load.rows_accepted,
-                [(s.underlying, s.as_of, s.spot) for s in load.snapshots], repr(frames))
-
-    fast = outcome()
+    fast = _load_outcome(p)
     with monkeypatch.context() as m:
         m.setattr(loading, "_table_fast", lambda *a, **k: None)
-        slow = outcome()
+        slow = _load_outcome(p)
     assert fast == slow
 
 
@@ -264,21 +268,11 @@ def test_number_columns_read_as_numbers_match_the_text_reading(tmp_path, text, m
     p = tmp_path / "n.csv"
     p.write_text(text)
 
-    def outcome():
-        try:
-            load = load_file(p)
-        except SnapshotFileError as exc:
-            return ("error", exc.reason, [str(f) for f in exc.findings])
-        frames = [s.contracts.to_dict("list") for s in load.snapshots]
-        signs = [np.signbit(s.contracts[c].to_numpy()).tolist() for s in load.snapshots
-                 for c in ("bid", "ask", "iv", "volume", "open_interest", "rate", "div_yield")]
-        return ("ok", [str(f) for f in load.findings], load.rows_read, load.rows_accepted,
-                [(s.underlying, s.as_of, s.spot) for s in load.snapshots], repr(frames), signs)
-
-    fast = outcome()
+    signed = ("bid", "ask", "iv", "volume", "open_interest", "rate", "div_yield")
+    fast = _load_outcome(p, signed)
     with monkeypatch.context() as m:
         m.setattr(loading, "_table_numbers", lambda *a, **k: None)
-        slow = outcome()
+        slow = _load_outcome(p, signed)
     assert fast == slow
 
 

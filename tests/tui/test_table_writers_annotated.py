@@ -24,6 +24,7 @@ from chaintriage.core.loading import load_files
 from chaintriage.core.pipeline import PipelineSettings, annotate
 from chaintriage.tui.cli import table_output as to
 from chaintriage.tui.cli.table import TABLE_COLUMNS
+from tests.tui.test_table_writers import json_reference
 
 DEMO = Path(__file__).resolve().parents[2] / "demo_chains" / "tsbh_2026-12-01.csv"
 
@@ -69,19 +70,7 @@ def test_csv_equals_printf_of_every_value(chain, monkeypatch):
 
 def test_json_equals_json_dumps_of_the_records(chain, monkeypatch):
     monkeypatch.setattr(to, "BLOCK_ROWS", 97)
-    records = []
-    for row in chain.to_dict(orient="records"):
-        rec = {}
-        for k, v in row.items():
-            if isinstance(v, pd.Timestamp):
-                v = f"{v:%Y-%m-%d}"
-            elif hasattr(v, "item"):
-                v = v.item()
-            if isinstance(v, float) and not math.isfinite(v):
-                v = None
-            rec[k] = v
-        records.append(rec)
-    assert to.to_json(chain) == json.dumps(records, indent=1) + "\n"
+    assert to.to_json(chain) == json_reference(chain)
 
 
 def plain_reference(frame: pd.DataFrame) -> str:
