@@ -404,11 +404,8 @@ class ChainTriageApp(App[int]):
 
     def _touch_arrived(self, view: SnapshotView, computed: dict) -> None:
         view.touch_arrived(computed)
-        st = self.state
-        for i, v in enumerate(st.views):
-            if v is view:
-                st._findings_count.pop(i, None)  # touch findings join the count
-        if st.view is view and st.current_expiry in computed:
+        shown = self.state.findings_changed(view)  # touch findings join the count
+        if shown and self.state.current_expiry in computed:
             self.triage.show_expiry()
 
     def _touch_on_screen_now(self) -> None:
@@ -448,12 +445,8 @@ class ChainTriageApp(App[int]):
 
     def _set_history(self, view: SnapshotView, vh: Any, findings: list) -> None:
         view.set_history(vh, findings)
-        st = self.state
-        for i, v in enumerate(st.views):
-            if v is view:
-                st._findings_count.pop(i, None)
-                if i == st.view_index:
-                    self.triage.show_expiry()
+        if self.state.findings_changed(view):
+            self.triage.show_expiry()
         self.triage.refresh_bars()
 
     def _add_view(self, view: SnapshotView, select: bool, drawn: threading.Event | None = None) -> None:
@@ -463,8 +456,7 @@ class ChainTriageApp(App[int]):
         same = [i for i, v in enumerate(st.views) if (v.snapshot.underlying, v.snapshot.as_of) == key]
         if same:  # merged with a snapshot already shown: it takes that one's place
             index = same[0]
-            st.views[index] = view
-            st._findings_count.pop(index, None)
+            st.replace_view(index, view)
             self.triage.show_view(index)
         elif select or st.view_index < 0:
             st.views.append(view)

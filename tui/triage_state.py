@@ -98,6 +98,14 @@ class TriageState:
         self.views[index] = view
         self._findings_count.pop(index, None)
 
+    def findings_changed(self, view: SnapshotView) -> bool:
+        """``view``'s findings grew (its price history, its touch figures): they are counted again.
+        Returns whether it is the snapshot shown."""
+        for i, v in enumerate(self.views):
+            if v is view:
+                self._findings_count.pop(i, None)
+        return self.view is view
+
     def findings_count(self) -> int:
         """How many findings the current snapshot has (counted once per snapshot)."""
         view = self.view
