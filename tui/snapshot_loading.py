@@ -145,21 +145,6 @@ def precompute_view(view: SnapshotView, confidence: float | None, start: int = 0
             time.sleep(pause)
 
 
-def first_expiry_snapshot(snapshot: Snapshot) -> Snapshot | None:
-    """The snapshot cut to its first expiry (None when it has at most one expiry)."""
-    import dataclasses
-
-    contracts = snapshot.contracts
-    if contracts.empty:
-        return None
-    expiry = contracts["expiry"]
-    first = expiry.min()
-    keep = (expiry == first).to_numpy()
-    if keep.all():
-        return None
-    return dataclasses.replace(snapshot, contracts=contracts[keep], findings=[])
-
-
 def load_views(paths: Sequence[str], *, snapshots: Sequence[Snapshot] | None = None,
                overrides: SnapshotOverrides | None = None, column_map: ColumnMap | None = None,
                pipeline_settings: Any = None, confidence: Callable[[], float] | None = None,

@@ -3,17 +3,32 @@ chain gives it (each expiry is computed from its own quotes), and the job hands 
 
 from __future__ import annotations
 
+import dataclasses
+
 import numpy as np
 import pandas as pd
 
 from chaintriage.core.loading import load_files
 from chaintriage.core.pipeline import PipelineSettings, annotate
 from chaintriage.tui import snapshot_loading
-from chaintriage.tui.snapshot_loading import demo_files, first_expiry_snapshot, load_views
+from chaintriage.tui.snapshot_loading import demo_files, load_views
 
 
 FIGURES = ["mid", "iv", "sigma_distance", "p_beyond", "p_beyond_flat", "p_touch", "delta", "breakeven",
            "p_breakeven", "spread_pct"]
+
+
+def first_expiry_snapshot(snapshot):
+    """The snapshot cut to its first expiry (None when it has at most one expiry): annotated on its
+    own, it must give what the whole chain gives that expiry."""
+    contracts = snapshot.contracts
+    if contracts.empty:
+        return None
+    expiry = contracts["expiry"]
+    keep = (expiry == expiry.min()).to_numpy()
+    if keep.all():
+        return None
+    return dataclasses.replace(snapshot, contracts=contracts[keep], findings=[])
 
 
 def _demo_snapshot():
