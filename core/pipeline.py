@@ -188,8 +188,12 @@ class AnnotatedSnapshot:
         """Whether ``touch(expiry)`` would compute something (a known expiry with a smile and time left,
         not computed yet)."""
         expiry = pd.Timestamp(expiry)
+        return expiry not in self.touched and self._has_touch(expiry)
+
+    def _has_touch(self, expiry: pd.Timestamp) -> bool:
+        """Whether ``expiry`` can have touch figures (a known expiry with a smile and time left)."""
         res = self.results.get(expiry)
-        return expiry not in self.touched and res is not None and res.smile is not None and res.t_years > 0
+        return res is not None and res.smile is not None and res.t_years > 0
 
     def prepare_touch(self) -> None:
         """Read what ``compute_touch_many`` needs from ``contracts`` once (the expiry of each row, the
@@ -219,11 +223,7 @@ class AnnotatedSnapshot:
         (no smile, no time left, unknown) are left out."""
         from .touch_expiry import expiries_touch  # here only: it imports scipy.linalg, not needed to annotate
 
-        todo = []
-        for expiry in dict.fromkeys(pd.Timestamp(e) for e in expiries):
-            res = self.results.get(expiry)
-            if res is not None and res.smile is not None and res.t_years > 0:
-                todo.append(expiry)
+        todo = [e for e in dict.fromkeys(pd.Timestamp(e) for e in expiries) if self._has_touch(e)]
         if not todo:
             return {}
         self.prepare_touch()

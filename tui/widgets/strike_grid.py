@@ -452,20 +452,20 @@ class StrikeGrid(ScrollView, can_focus=True):
     def highlighted_contract(self) -> dict[str, Any] | None:
         """The highlighted contract's row (all its columns) as a dict, or None if that
         side has no contract at the highlighted strike."""
-        if self.highlighted is None:
-            return None
-        pos = int(self._pos[self._side][self._cursor])
-        if pos < 0:
-            return None
-        return self._frame.iloc[pos].to_dict()
+        pos = self._highlighted_row()
+        return self._frame.iloc[pos].to_dict() if pos >= 0 else None
 
     def highlighted_value(self, field: str) -> Any:
         """One column of the highlighted contract's row (None when that side has no contract at the
         highlighted strike or the rows have no such column): cheaper than the whole row."""
-        if self.highlighted is None or field not in self._frame.columns:
-            return None
-        pos = int(self._pos[self._side][self._cursor])
-        return self._frame[field].iat[pos] if pos >= 0 else None
+        pos = self._highlighted_row()
+        return self._frame[field].iat[pos] if pos >= 0 and field in self._frame.columns else None
+
+    def _highlighted_row(self) -> int:
+        """Position of the highlighted contract in the expiry's rows (-1: none on that side there)."""
+        if self.highlighted is None:
+            return -1
+        return int(self._pos[self._side][self._cursor])
 
     def cursor_to_strike(self, strike: float, kind: str | None = None) -> None:
         """Highlight the strike nearest ``strike`` (and select ``kind`` if given)."""
