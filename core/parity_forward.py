@@ -218,6 +218,9 @@ def _df_ok(df: float, t: float) -> bool:
     return bool(RATE_BAND[0] <= r <= RATE_BAND[1])
 
 
+# Quotes near the float limit overflow to inf/NaN on the way; every estimate is judged
+# (_carry_ok, _df_ok, finite checks) before it is used, so the warnings say nothing new.
+@np.errstate(over="ignore", divide="ignore", invalid="ignore")
 def implied_forward(
     strikes, call_bid, call_ask, put_bid, put_ask, *,
     spot: float, t: float, rate: float | None = None, div_yield: float | None = None,
