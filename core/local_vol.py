@@ -137,11 +137,12 @@ class LocalVolSurface:
             # Slice seg-1 and seg of the stack (a zero slice at T = 0 first): one vectorised evaluation.
             a = self.stack.take((seg - 1, None))
             b = self.stack.take((seg, None))
-            wa, wb = a.total_variance(y), b.total_variance(y)
+            wa, w1a, w2a = a.w_and_derivatives(y)
+            wb, w1b, w2b = b.w_and_derivatives(y)
             w = wa + lam * (wb - wa)
             wt = (wb - wa) / (ts[seg] - ts[seg - 1])[:, None]
-            w1 = (1 - lam) * a.dw_dk(y) + lam * b.dw_dk(y)
-            w2 = (1 - lam) * a.d2w_dk2(y) + lam * b.d2w_dk2(y)
+            w1 = (1 - lam) * w1a + lam * w1b
+            w2 = (1 - lam) * w2a + lam * w2b
             var, guarded = dupire_local_variance(y, w, wt, w1, w2)
             return var, guarded, slope
         w = np.empty_like(y)

@@ -105,6 +105,10 @@ class SviSlices:
         """w''(k)."""
         return d2w_dk2(self.params, k)
 
+    def w_and_derivatives(self, k):
+        """(w(k), w'(k), w''(k)) in one pass."""
+        return w_and_derivatives(self.params, k)
+
 
 def _xr(p: SviParams, k):
     x = np.asarray(k, dtype=float) - p.m
@@ -121,6 +125,12 @@ def w_and_dw_dk(p: SviParams, k):
     """(w(k), w'(k)) with x and R computed once: the same numbers as total_variance and dw_dk."""
     x, r = _xr(p, k)
     return p.a + p.b * (p.rho * x + r), p.b * (p.rho + x / r)
+
+
+def w_and_derivatives(p: SviParams, k):
+    """(w(k), w'(k), w''(k)) with x and R computed once: the same numbers as total_variance, dw_dk and d2w_dk2."""
+    x, r = _xr(p, k)
+    return p.a + p.b * (p.rho * x + r), p.b * (p.rho + x / r), p.b * p.sigma * p.sigma / (r * r * r)
 
 
 def dw_dk(p: SviParams, k):

@@ -408,8 +408,8 @@ def _plan(surface: LocalVolSurface, t_end: float, levels, n_space: int, n_time: 
     most = ux.size if solved_per_side is None else max(int(solved_per_side), 2)
     picks = [side[_pick(ux[side], sd_atm, most)] for side in sides]
     chosen = np.concatenate(picks)
-    far = far_side_probability(surface, t_end, ux)
-    far_spot = far_side_probability(surface, t_end, np.array([-1e-12, 1e-12]))
+    far = far_side_probability(surface, t_end, np.concatenate([ux, [-1e-12, 1e-12]]))  # and just at spot
+    far, far_spot = far[:-2], far[-2:]
     lev = None
     if chosen.size:
         lev = _lay_out(surface, t_end, ux[chosen], lo, hi, 3.0 * sd_atm + abs(carry),

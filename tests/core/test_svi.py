@@ -96,6 +96,17 @@ def test_derivatives_against_finite_differences(p):
     np.testing.assert_allclose(svi.d2w_dk2(p, k), fd2w, rtol=1e-3, atol=1e-6)  # second difference of w itself
 
 
+@pytest.mark.parametrize("p", [VOGT, EQUITY])
+def test_one_pass_derivatives_are_the_separate_ones(p):
+    # [D] w_and_derivatives (local vol's one pass) gives total_variance, dw_dk and d2w_dk2 bit for bit,
+    # for one slice and for stacked slices broadcast against a grid
+    k = np.linspace(-1.2, 1.2, 49)
+    for params, kk in ((p, k), (svi.SviSlices.stack([p, EQUITY]).take((slice(None), None)).params, k[None, :])):
+        got = svi.w_and_derivatives(params, kk)
+        for g, want in zip(got, (svi.total_variance(params, kk), svi.dw_dk(params, kk), svi.d2w_dk2(params, kk))):
+            assert np.array_equal(g, want)
+
+
 def test_g_from_generic_w_matches_svi_g():
     # [D] the generic g (used for any smile) equals the SVI one
     k = np.linspace(-1, 1, 21)
