@@ -110,6 +110,23 @@ class LocalVolSurface:
         w2 = np.asarray(a.d2w_dk2(y), float) * (1 - lam) + lam * np.asarray(b.d2w_dk2(y), float)
         return w, (wb - wa) / span, w1, w2
 
+    def variance_and_slope(self, tau: float, y):
+        """(w, dw/dy) at time tau and moneyness y: the first and third of ``total_variance``, the same numbers."""
+        y = np.asarray(y, dtype=float)
+        ts = self.t
+        i = int(np.searchsorted(ts, tau, side="left"))
+        if i == 0:
+            s = self.smiles[0]
+            c = tau / ts[0]
+            w, w1 = _w_and_slope(s, y)
+            return c * w, c * w1
+        i = min(i, ts.size - 1)
+        a, b = self.smiles[i - 1], self.smiles[i]
+        lam = (tau - ts[i - 1]) / (ts[i] - ts[i - 1])
+        wa, w1a = _w_and_slope(a, y)
+        wb, w1b = _w_and_slope(b, y)
+        return wa + lam * (wb - wa), w1a * (1 - lam) + lam * w1b
+
     def local_variance(self, tau: float, y):
         """(sigma_loc^2 per year, mask of points floored or capped) at time tau and moneyness y."""
         w, wt, w1, w2 = self.total_variance(tau, y)
@@ -174,12 +191,25 @@ class LocalVolSurface:
         return var, guarded, slope
 
 
+def _w_and_slope(smile, y) -> tuple[np.ndarray, np.ndarray]:
+    """(w(y), w'(y)) of a smile as float arrays: one pass where the smile has ``w_and_dw_dk``."""
+    both = getattr(smile, "w_and_dw_dk", None)
+    if both is not None:
+        w, w1 = both(y)
+    else:
+        w, w1 = smile.total_variance(y), smile.dw_dk(y)
+    return np.asarray(w, float), np.asarray(w1, float)
+
+
 def dupire_local_variance(y, w, dw_dt, dw_dy, d2w_dy2):
     """Gatheral's eq. 1.10 (module docstring), floored/capped: (local variance per year, mask of guarded points).
 
     All inputs broadcast together; y = ln(K/F_T), w total variance, derivatives in T (per year) and y.
     """
-    y, w, wt, w1, w2 = np.broadcast_arrays(*(np.asarray(a, dtype=float) for a in (y, w, dw_dt, dw_dy, d2w_dy2)))
+    args = [np.asarray(a, dtype=float) for a in (y, w, dw_dt, dw_dy, d2w_dy2)]
+    if any(a.shape != args[0].shape for a in args):
+        args = np.broadcast_arrays(*args)
+    y, w, wt, w1, w2 = args
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         den = 1.0 - (y / w) * w1 + 0.25 * (-0.25 - 1.0 / w + (y * y) / (w * w)) * w1 * w1 + 0.5 * w2
         var = wt / den

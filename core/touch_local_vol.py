@@ -354,7 +354,7 @@ def far_side_probability(surface: LocalVolSurface, t_end: float, x: np.ndarray) 
     d- = -y/sqrt(w) - sqrt(w)/2 and y = ln(K/F_T); below spot 1 minus that.
     """
     y = x + surface.log_spot - surface.log_forward_at(t_end)
-    w, _, w1, _ = surface.total_variance(t_end, y)
+    w, w1 = surface.variance_and_slope(t_end, y)
     with np.errstate(divide="ignore", invalid="ignore"):
         sw = np.sqrt(np.where(w > 0, w, np.nan))
         dm = -y / sw - 0.5 * sw

@@ -116,6 +116,17 @@ def test_gatheral_local_variance_matches_dupire_in_call_prices():
     np.testing.assert_allclose(gatheral, dupire, rtol=2e-4)
 
 
+def test_variance_and_slope_are_those_of_total_variance():
+    """[D] variance_and_slope (the far-side digital's one pass) gives total_variance's w and dw/dy bit for
+    bit: before the first expiry, inside a segment, at an expiry and beyond the last."""
+    surface, _ = _ssvi_surface(100.0, 0.04, 0.01)
+    y = np.linspace(-1.0, 1.0, 41)
+    for tau in (0.5 * surface.t[0], 0.3, surface.t[2], 1.5 * surface.t[-1]):
+        w, _, w1, _ = surface.total_variance(tau, y)
+        got_w, got_w1 = surface.variance_and_slope(tau, y)
+        assert np.array_equal(got_w, w) and np.array_equal(got_w1, w1)
+
+
 def test_negative_denominator_and_falling_variance_are_floored():
     """Guards: dw/dT <= 0 (calendar) or a non-positive denominator (butterfly) give the floor, marked [D]."""
     var, guarded = dupire_local_variance([0.0, 0.0, 0.5], [0.04, 0.04, 0.04], [-0.01, 0.05, 0.05],
