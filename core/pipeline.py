@@ -229,16 +229,8 @@ class AnnotatedSnapshot:
         self.prepare_touch()
         all_strikes = self._touch_cache[2]
         order = list(self.results)
-        strikes, vols = [], []
-        for expiry in todo:
-            res = self.results[expiry]
-            k_strikes = all_strikes[self._touch_rows(expiry)]
-            with np.errstate(divide="ignore", invalid="ignore"):
-                k = np.log(k_strikes / res.forward)
-                w = np.asarray(res.smile.total_variance(k), dtype=float)
-                vol = np.sqrt(np.where(w > 0, w, np.nan) / res.t_years)
-            strikes.append(k_strikes)
-            vols.append(vol)
+        strikes = [all_strikes[self._touch_rows(expiry)] for expiry in todo]
+        vols = [None] * len(todo)  # each smile's vol at its strikes, computed only for a one-vol fallback
         got_all = expiries_touch(strikes, self.snapshot.spot,
                                  np.array([r.t_years for r in self.results.values()]),
                                  np.array([r.forward for r in self.results.values()]),

@@ -81,6 +81,9 @@ def expiries_touch(strikes: list, spot: float, t, forwards, smiles: list, indice
                    workers: int = 1) -> list[ExpiryTouch]:
     """``expiry_touch`` for several expiries of one snapshot (``strikes[j]``, ``smile_vols[j]`` of expiry ``indices[j]``).
 
+    A ``smile_vols[j]`` of None stands for the smile's own vol at the strikes
+    (``smile_vol_at``), computed only where the one-vol fallback needs it.
+
     The same figures as one ``expiry_touch`` call per expiry, faster: the
     local-vol time stepping of all of them runs side by side
     (``touch_local_vol_many``). ``workers`` >= 2 computes the model-free
@@ -120,18 +123,28 @@ def expiries_touch(strikes: list, spot: float, t, forwards, smiles: list, indice
         if pool:
             pool.shutdown()
     return [_assemble(strikes[j], spot, float(fw[i]), float(t[i]), smile_vols[j], *got_bounds[j],
-                      solutions.get(j), underlying, labels[j]) for j, i in enumerate(indices)]
+                      solutions.get(j), underlying, labels[j], smiles[i]) for j, i in enumerate(indices)]
+
+
+def smile_vol_at(smile, forward: float, t_e: float, strikes: np.ndarray) -> np.ndarray:
+    """The smile's vol (decimal) at each strike: sqrt(w(ln(K/F)) / t), NaN where w <= 0."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        k = np.log(strikes / forward)
+        w = np.asarray(smile.total_variance(k), dtype=float)
+        return np.sqrt(np.where(w > 0, w, np.nan) / t_e)
 
 
 def _assemble(strikes: np.ndarray, spot: float, forward: float, t_e: float, smile_vol, low: np.ndarray,
-              high: np.ndarray, solution, underlying: str | None, label: str | None) -> ExpiryTouch:
-    """One expiry's figures from its bounds and local-vol solution (None: the smile is a fallback)."""
+              high: np.ndarray, solution, underlying: str | None, label: str | None, smile=None) -> ExpiryTouch:
+    """One expiry's figures from its bounds and local-vol solution (None: the smile is a fallback);
+    ``smile_vol`` None: ``smile_vol_at`` of ``smile``, computed only for the one-vol fallback."""
     findings: list[Finding] = []
 
     def one_vol(reason: str) -> ExpiryTouch:
         findings.append(Finding(WARNING, f"touch: {reason}; P(touch) is the one-vol figure at each strike's "
                                 "smile vol", underlying=underlying, expiry=label))
-        p = prob_touch_smile(spot, forward, strikes, t_e, smile_vol, low)
+        vol = smile_vol_at(smile, forward, t_e, strikes) if smile_vol is None else smile_vol
+        p = prob_touch_smile(spot, forward, strikes, t_e, vol, low)
         return ExpiryTouch(np.asarray(p, dtype=float), low, high, ONE_VOL, findings=findings)
 
     if solution is None:
