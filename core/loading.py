@@ -50,6 +50,7 @@ import csv
 import difflib
 import errno
 import io
+import math
 import os
 import re
 import stat
@@ -105,6 +106,7 @@ _TIME_RE = r"\d{4}-\d{2}-\d{2}[T ]\d{2}:\d{2}(?::\d{2}(?:\.\d+)?)?"
 _OFFSET_RE = r"(?:Z|[+-]\d{2}(?::?\d{2})?)"
 _CONTROL_RE = "[\x00-\x1f\x7f-\x9f\u200b-\u200f\u202a-\u202e\u2066-\u2069\ufeff]"
 _KINDS = {"call": "call", "c": "call", "put": "put", "p": "put"}
+_KIND_CODE = {"call": 0, "put": 1}
 _SETTLES = {"pm": "pm", "am": "am"}
 _IV_BASES = ("252", "250", "365")
 _PARQUET_SUFFIXES = (".parquet", ".pq")
@@ -307,12 +309,24 @@ def _decode(path: str, data: bytes) -> str:
 
 def _pick_delimiter(text: str) -> str:
     """Comma, semicolon or tab: whichever the first non-blank line has most of."""
-    for line in text.split("\n", 50):
+    for line in _first_lines(text, 50):
         if line.strip(" \t"):
             counts = {d: line.count(d) for d in (",", ";", "\t")}
             best = max(counts, key=lambda d: (counts[d], d == ","))
             return best if counts[best] else ","
     return ","
+
+
+def _first_lines(text: str, n: int):
+    """``text.split("\\n", n)`` one piece at a time, without copying the rest until it is reached."""
+    start = 0
+    for _ in range(n):
+        end = text.find("\n", start)
+        if end < 0:
+            break
+        yield text[start:end]
+        start = end + 1
+    yield text[start:]
 
 
 def _blank_bytes(delim: str) -> bytes:
@@ -380,6 +394,12 @@ def _table_fast(path: str, text: str, delim: str, columns: list[int] | None = No
     (the cells then hold only them, under their positions; the headers are then not read).
     ``numeric(headers)``, when given, names the columns to read as numbers where every cell is one
     (see ``_table_numbers``)."""
+    if numeric is not None and columns is None:
+        uniform = _UniformRecords.of(text, delim)
+        if uniform is not None:
+            table = _table_numbers(path, delim, uniform, numeric)
+            if table is not None:
+                return table
     rec = _records_fast(path, text, delim)
     if rec is None:
         return None
@@ -389,7 +409,7 @@ def _table_fast(path: str, text: str, delim: str, columns: list[int] | None = No
     width = int(nfields[0])
     maxf = int(nfields.max())
     if numeric is not None and columns is None:
-        table = _table_numbers(path, text, delim, rec, numeric)
+        table = _table_numbers(path, delim, _ScannedRecords(rec, delim), numeric)
         if table is not None:
             return table
     try:
@@ -452,7 +472,7 @@ def _slices_text(raw: bytes, arr: np.ndarray, a: np.ndarray, b: np.ndarray) -> n
     return out
 
 
-def _table_numbers(path: str, text: str, delim: str, rec, numeric) -> _Table | None:
+def _table_numbers(path: str, delim: str, rec, numeric) -> _Table | None:
     """The table with the columns ``numeric(headers)`` read as numbers by pandas' C parser where
     every cell of the column is a plain decimal or empty (int64/float64 cells, NaN for an empty
     cell); every other column as categories of text, and a numeric column holding any other
@@ -462,12 +482,11 @@ def _table_numbers(path: str, text: str, delim: str, rec, numeric) -> _Table | N
     The C reader takes what ``_NUM_RE`` takes, plus ``inf``/``infinity`` and overflows (as
     infinities): those cells, empty cells and integer zeros (``-0``) are read again from their
     text by the checks (``cell_text``). None when the fast reading does not apply.
+    ``rec``: where the records and their cells lie (``_UniformRecords`` or ``_ScannedRecords``).
     """
-    raw, dpos, starts, ends, start_line, end_line, nfields, first_d = rec
-    width = int(nfields[0])
-    maxf = int(nfields.max())
+    raw, width, maxf = rec.raw, rec.width, rec.max_fields
     opts = dict(sep=delim, index_col=False, engine="c", quotechar='"', doublequote=True, skip_blank_lines=True)
-    head = raw[starts[0]:ends[0]].decode("utf-8") + "\n"
+    head = rec.header.decode("utf-8") + "\n"
     try:
         hdr = pd.read_csv(io.StringIO(head), header=None, names=range(width), dtype=object,
                           keep_default_na=False, na_filter=False, **opts)
@@ -480,12 +499,14 @@ def _table_numbers(path: str, text: str, delim: str, rec, numeric) -> _Table | N
     if not wanted:
         return None
     try:
-        df = pd.read_csv(io.BytesIO(raw), header=0, names=range(maxf), usecols=range(width),
+        # without ``usecols`` the C reader refuses a line longer than ``names`` (``_UniformRecords`` relies on it)
+        cols = {} if maxf == width else {"usecols": range(width)}
+        df = pd.read_csv(io.BytesIO(raw), header=0, names=range(maxf), **cols,
                          dtype={i: "category" for i in range(width) if i not in wanted},
                          keep_default_na=False, na_values={i: [""] for i in wanted}, na_filter=True, **opts)
     except (pd.errors.ParserError, ValueError):
         return None
-    if len(df) != starts.size - 1:
+    if len(df) != rec.rows:
         return None
     redo = []
     for i in wanted:
@@ -504,26 +525,108 @@ def _table_numbers(path: str, text: str, delim: str, rec, numeric) -> _Table | N
             return None
         for i in redo:
             df[i] = again[i].to_numpy(dtype=object)
-    arr = np.frombuffer(raw, dtype=np.uint8)
-    nf = nfields[1:]
-    fd = first_d[1:]
-    st = starts[1:]
-    en = ends[1:]
-    dp = dpos if dpos.size else np.zeros(1, dtype=np.int64)
-
     def cell_text(column: int, rows: np.ndarray) -> np.ndarray:
-        rows = np.asarray(rows, dtype=np.int64)
-        have = column < nf[rows]
-        d = fd[rows]
-        a = np.where(column == 0, st[rows], dp[np.clip(d + column - 1, 0, dp.size - 1)] + 1)
-        last = column >= nf[rows] - 1
-        b = np.where(last, en[rows], dp[np.clip(d + column, 0, dp.size - 1)])
-        a = np.where(have, a, 0)
-        b = np.where(have, b, 0)
-        return _slices_text(raw, arr, a, b)
+        a, b = rec.spans(column, np.asarray(rows, dtype=np.int64))
+        return _slices_text(raw, rec.arr, a, b)
 
-    extra = _extra_fields(raw, dpos, starts, ends, nfields, first_d, width, delim)
-    return _Table(headers, df, start_line[1:], end_line[1:], nf.astype(np.int64), extra[1:], cell_text)
+    return _Table(headers, df, rec.line, rec.end_line, rec.nfields, rec.extra(), cell_text)
+
+
+class _ScannedRecords:
+    """The data records of a table as ``_records_fast`` found them (any plain quoting, blank lines,
+    ragged rows): their lines, field counts, and where each cell lies in the bytes."""
+
+    def __init__(self, rec, delim: str):
+        raw, dpos, starts, ends, start_line, end_line, nfields, first_d = rec
+        self.raw, self.arr = raw, np.frombuffer(raw, dtype=np.uint8)
+        self.width, self.max_fields = int(nfields[0]), int(nfields.max())
+        self.header = raw[starts[0]:ends[0]]
+        self.rows = starts.size - 1
+        self.line, self.end_line = start_line[1:], end_line[1:]
+        self.nfields = nfields[1:].astype(np.int64)
+        self._rec, self._delim = rec, delim
+
+    def extra(self) -> np.ndarray:
+        raw, dpos, starts, ends, start_line, end_line, nfields, first_d = self._rec
+        return _extra_fields(raw, dpos, starts, ends, nfields, first_d, self.width, self._delim)[1:]
+
+    def spans(self, column: int, rows: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Byte ranges ``a:b`` of the cells ``column`` of the data records ``rows`` (0:0 for a cell the row lacks)."""
+        raw, dpos, starts, ends, start_line, end_line, nfields, first_d = self._rec
+        nf, fd, st, en = nfields[1:][rows], first_d[1:][rows], starts[1:][rows], ends[1:][rows]
+        dp = dpos if dpos.size else np.zeros(1, dtype=np.int64)
+        have = column < nf
+        a = np.where(column == 0, st, dp[np.clip(fd + column - 1, 0, dp.size - 1)] + 1)
+        b = np.where(column >= nf - 1, en, dp[np.clip(fd + column, 0, dp.size - 1)])
+        return np.where(have, a, 0), np.where(have, b, 0)
+
+
+#: The most bytes ``_UniformRecords.spans`` gathers at once to find the delimiters of some rows.
+_GATHER_BYTES = 32 * 1024 * 1024
+
+
+class _UniformRecords:
+    """A table whose every line is a record of the header's width: no quotes, no blank lines, and
+    exactly ``width - 1`` delimiters on each line (the common export). Then record ``r`` is line
+    ``r + 2`` and nothing needs scanning but the line breaks, and only when a cell is read again."""
+
+    def __init__(self, raw: bytes, width: int, lines: int):
+        self.raw, self.arr = raw, np.frombuffer(raw, dtype=np.uint8)
+        self.width = self.max_fields = width
+        self.header = raw[:raw.index(b"\n")]
+        self.rows = lines - 1
+        self.line = np.arange(2, lines + 1, dtype=np.int64)
+        self.end_line = self.line.copy()
+        self.nfields = np.full(self.rows, width, dtype=np.int64)
+        self._breaks = self._delim = None  # set by ``of``
+
+    @classmethod
+    def of(cls, text: str, delim: str) -> _UniformRecords | None:
+        """The records of ``text`` (ending in a line break) when the file has that shape, else None.
+
+        Every line has ``width - 1`` delimiters when their total is that many per line and no line
+        has more than the header: the C reader, given the header's width as names and no ``usecols``,
+        refuses a longer line once the first data line is not longer (checked here).
+        """
+        raw = text.encode("utf-8")
+        if b'"' in raw:
+            return None
+        d = delim.encode()
+        arr = np.frombuffer(raw, dtype=np.uint8)
+        breaks = np.flatnonzero(arr == 10)  # kept: cells read again are found from them
+        lines = int(breaks.size)
+        if lines < 1:
+            return None
+        width = raw[:breaks[0]].count(d) + 1
+        if width < 2 or (lines > 1 and raw[breaks[0] + 1:breaks[1]].count(d) != width - 1):
+            return None
+        if int(np.count_nonzero(arr == d[0])) != lines * (width - 1):  # numpy counts bytes fastest
+            return None
+        rec = cls(raw, width, lines)
+        rec._delim, rec._breaks = d[0], breaks
+        return rec
+
+    def extra(self) -> np.ndarray:
+        return np.zeros(self.rows, dtype=bool)
+
+    def spans(self, column: int, rows: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Byte ranges ``a:b`` of the cells ``column`` of the data records ``rows``: each row's bytes are
+        gathered and its delimiters found there (work per row asked for, not per byte of the file)."""
+        a_row, b_row = self._breaks[rows] + 1, self._breaks[rows + 1]
+        size = b_row - a_row
+        out_a, out_b = np.zeros(rows.size, np.int64), np.zeros(rows.size, np.int64)
+        if rows.size == 0:
+            return out_a, out_b
+        per = max(1, _GATHER_BYTES // max(int(size.max()), 1))
+        for lo in range(0, rows.size, per):  # a few batches at most
+            s, a0 = size[lo:lo + per], a_row[lo:lo + per]
+            step = np.arange(int(s.max()))
+            mat = self.arr[np.minimum(a0[:, None] + step, self.arr.size - 1)]
+            hit = (mat == self._delim) & (step < s[:, None])
+            cols = np.nonzero(hit)[1].reshape(s.size, self.width - 1)
+            out_a[lo:lo + per] = a0 + (0 if column == 0 else cols[:, column - 1] + 1)
+            out_b[lo:lo + per] = a0 + (s if column == self.width - 1 else cols[:, column])
+        return out_a, out_b
 
 
 def _extra_fields(raw, dpos, starts, ends, nfields, first_d, width: int, delim: str) -> np.ndarray:
@@ -582,7 +685,7 @@ def _table_csv_module(path: str, text: str, delim: str) -> _Table:
 
 def _read_csv_table(path: str, data: bytes, numeric=None) -> _Table:
     text = _decode(path, data)
-    if not text.strip():
+    if not text or text.isspace():  # not text.strip(), without copying the text
         raise SnapshotFileError(path, "is empty")
     if not text.endswith("\n"):
         text += "\n"
@@ -874,6 +977,38 @@ def _read_table(path: str, numeric=None) -> _Table:
 # --------------------------------------------------------------------------- cell parsing (vectorised)
 
 
+#: Up to this many distinct texts, a parse runs in plain Python per text when every text is printable
+#: ASCII (where Python's and the string backend's regex and whitespace rules agree): no fixed cost of
+#: the vectorised string methods for a column of a few distinct cells.
+_FEW_TEXTS = 256
+_NUM_FULL = re.compile(_NUM_RE)
+_NONFINITE_FULL = re.compile(_NONFINITE_RE)
+
+
+def _few_plain(texts) -> bool:
+    """Whether ``texts`` are few and all printable ASCII (see ``_FEW_TEXTS``)."""
+    return len(texts) <= _FEW_TEXTS and all(isinstance(t, str) and t.isascii() and t.isprintable() for t in texts)
+
+
+def _number_one(text: str, percent: bool) -> tuple[float, int]:
+    """``_numbers_unique`` of one printable ASCII text (already stripped)."""
+    if text == "":
+        return math.nan, 1
+    pct = percent and text.endswith("%")
+    body = text[:-1].rstrip() if pct else text
+    if _NUM_FULL.fullmatch(body):
+        value = float(body) / 100.0 if pct else float(body)
+        return (value, 0) if math.isfinite(value) else (math.nan, 3)
+    return math.nan, 3 if _NONFINITE_FULL.fullmatch(body) else 2
+
+
+def _numbers_few(texts: list[str], *, percent: bool = False) -> tuple[np.ndarray, np.ndarray]:
+    """``_numbers_unique`` of a few printable ASCII texts (see ``_FEW_TEXTS``)."""
+    parsed = [_number_one(t, percent) for t in texts]
+    return (np.array([v for v, _ in parsed], dtype=np.float64).reshape(len(texts)),
+            np.array([c for _, c in parsed], dtype=np.int8).reshape(len(texts)))
+
+
 def _numbers_unique(s: pd.Series, *, percent: bool = False) -> tuple[np.ndarray, np.ndarray]:
     """Parse stripped text to float. Returns (values, status): 0 ok, 1 empty, 2 not a number, 3 not finite."""
     n = len(s)
@@ -898,17 +1033,37 @@ def _numbers_unique(s: pd.Series, *, percent: bool = False) -> tuple[np.ndarray,
     return values, status
 
 
-def _dates_unique(s: pd.Series, fmt: str | None) -> tuple[np.ndarray, np.ndarray]:
-    """Parse dates. Returns (datetime64[ns] values, status): 0 ok, 1 empty, 2 wrong format, 3 impossible, 4 out of range."""
+def _fullmatch(s: pd.Series, pattern: str, texts: list[str] | None) -> np.ndarray:
+    """Whether each text matches ``pattern`` whole: by the string methods, or in Python per text of
+    ``texts`` (a few printable ASCII texts, the same as ``s``; see ``_FEW_TEXTS``)."""
+    if texts is None:
+        return s.str.fullmatch(pattern).to_numpy(dtype=bool)
+    rx = re.compile(pattern)
+    return np.array([rx.fullmatch(t) is not None for t in texts], dtype=bool).reshape(len(texts))
+
+
+def _years(s: pd.Series, where: np.ndarray, texts: list[str] | None) -> np.ndarray:
+    """The year (the first four digits) of the texts ``where``, 0 elsewhere (int64)."""
+    year = np.zeros(len(s), dtype=np.int64)
+    if where.any():
+        if texts is None:
+            year[where] = s[where].str.slice(0, 4).astype(int).to_numpy()
+        else:
+            year[where] = [int(texts[i][:4]) for i in np.flatnonzero(where)]
+    return year
+
+
+def _dates_unique(s: pd.Series, fmt: str | None, texts: list[str] | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """Parse dates. Returns (datetime64[ns] values, status): 0 ok, 1 empty, 2 wrong format, 3 impossible, 4 out of range.
+
+    ``texts``: ``s`` as a list when it is a few printable ASCII texts (patterns then matched in Python)."""
     n = len(s)
     status = np.full(n, 2, dtype=np.int8)
     empty = (s == "").to_numpy(dtype=bool)
     out = np.full(n, np.datetime64("NaT"), dtype="datetime64[ns]")
     if fmt is None:
-        shaped = s.str.fullmatch(_DATE_RE).to_numpy(dtype=bool)
-        year = np.zeros(n, dtype=np.int64)
-        if shaped.any():
-            year[shaped] = s[shaped].str.slice(0, 4).astype(int).to_numpy()
+        shaped = _fullmatch(s, _DATE_RE, texts)
+        year = _years(s, shaped, texts)
         in_range = shaped & (year >= YEAR_MIN) & (year <= YEAR_MAX)
         parsed = pd.to_datetime(s.where(in_range, ""), format="%Y-%m-%d", errors="coerce")
         good = in_range & parsed.notna().to_numpy()
@@ -927,18 +1082,19 @@ def _dates_unique(s: pd.Series, fmt: str | None) -> tuple[np.ndarray, np.ndarray
     return out, status
 
 
-def _times_unique(s: pd.Series) -> tuple[np.ndarray, np.ndarray]:
-    """Parse as_of text. Returns (UTC int64 ns, status): 0 ok, 1 empty, 2 not a time, 3 no offset, 4 impossible."""
+def _times_unique(s: pd.Series, texts: list[str] | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """Parse as_of text. Returns (UTC int64 ns, status): 0 ok, 1 empty, 2 not a time, 3 no offset, 4 impossible.
+
+    ``texts``: ``s`` as a list when it is a few printable ASCII texts (patterns then matched in Python)."""
     n = len(s)
     status = np.full(n, 2, dtype=np.int8)
     empty = (s == "").to_numpy(dtype=bool)
-    aware = s.str.fullmatch(_TIME_RE + _OFFSET_RE).to_numpy(dtype=bool)
-    naive = (s.str.fullmatch(_TIME_RE) | s.str.fullmatch(_DATE_RE)).to_numpy(dtype=bool)
+    aware = _fullmatch(s, _TIME_RE + _OFFSET_RE, texts)
+    naive = _fullmatch(s, _TIME_RE, texts) | _fullmatch(s, _DATE_RE, texts)
     ns = np.zeros(n, dtype=np.int64)
     if aware.any():
-        year = s[aware].str.slice(0, 4).astype(int).to_numpy()
-        ok_year = np.zeros(n, dtype=bool)
-        ok_year[aware] = (year >= YEAR_MIN) & (year <= YEAR_MAX)
+        year = _years(s, aware, texts)
+        ok_year = aware & (year >= YEAR_MIN) & (year <= YEAR_MAX)
         parsed = pd.to_datetime(s.where(ok_year, ""), format="ISO8601", utc=True, errors="coerce")
         good = ok_year & parsed.notna().to_numpy()
         if good.any():
@@ -950,18 +1106,36 @@ def _times_unique(s: pd.Series) -> tuple[np.ndarray, np.ndarray]:
     return ns, status
 
 
-def _per_unique(s: pd.Series, parse, *args, **kwargs):
+def _per_unique(s: pd.Series, parse, *args, few=None, **kwargs):
     """Run ``parse`` once per distinct value of ``s`` and spread the result back to every row.
 
     Chains repeat values heavily (one as_of, a few dozen expiries, prices on
     a tick grid), so this makes the text work proportional to the distinct
-    values, whatever string backend pandas uses.
+    values, whatever string backend pandas uses. ``few``, when given, does what
+    ``parse`` does on a list of a few printable ASCII texts (see ``_FEW_TEXTS``).
     """
+    return _per_unique_codes(s, parse, *args, few=few, **kwargs)[0]
+
+
+def _per_unique_codes(s: pd.Series, parse, *args, few=None, **kwargs):
+    """``(_per_unique(...), codes, per_distinct)``: also each row's code (-1 for a missing cell) and
+    the result per distinct value, so a later step can work per distinct value too."""
     codes, uniques = pd.factorize(s)
-    result = parse(pd.Series(np.asarray(uniques, dtype=object), dtype=str), *args, **kwargs)
+    texts = np.asarray(uniques, dtype=object)
+    if few is not None and _few_plain(texts.tolist()):
+        result = few(texts.tolist(), *args, **kwargs)
+    else:
+        result = parse(pd.Series(texts, dtype=str), *args, **kwargs)
     if isinstance(result, tuple):
-        return tuple(np.asarray(r)[codes] for r in result)
-    return np.asarray(result)[codes]
+        return tuple(np.asarray(r)[codes] for r in result), codes, result
+    return np.asarray(result)[codes], codes, result
+
+
+def _strip_few(texts: list[str]) -> np.ndarray:
+    """Texts without surrounding whitespace (object array)."""
+    out = np.empty(len(texts), dtype=object)
+    out[:] = [t.strip() for t in texts]
+    return out
 
 
 def _numbers(s, *, percent: bool = False) -> tuple[np.ndarray, np.ndarray]:
@@ -971,7 +1145,7 @@ def _numbers(s, *, percent: bool = False) -> tuple[np.ndarray, np.ndarray]:
     """
     if isinstance(s, _NumberColumn):
         return s.values.copy(), s.status
-    return _per_unique(s, _numbers_unique, percent=percent)
+    return _per_unique(s, _numbers_unique, percent=percent, few=_numbers_few)
 
 
 class _NumberColumn:
@@ -992,7 +1166,7 @@ class _NumberColumn:
         rows = np.flatnonzero(again)
         status = np.zeros(values.size, dtype=np.int8)
         if rows.size:
-            v, st = _per_unique(pd.Series(self.text(rows), dtype=object), _numbers_unique)
+            v, st = _per_unique(pd.Series(self.text(rows), dtype=object), _numbers_unique, few=_numbers_few)
             values[rows] = v
             status[rows] = st
         self.values, self.status = values, status
@@ -1003,7 +1177,8 @@ class _NumberColumn:
     def text(self, rows: np.ndarray) -> np.ndarray:
         """The stripped text of the cells ``rows`` (row indices), as an object array."""
         raw = self._cell_text(np.asarray(rows, dtype=np.int64))
-        return _per_unique(pd.Series(raw, dtype=object), lambda u: u.str.strip().to_numpy(dtype=object))
+        return _per_unique(pd.Series(raw, dtype=object), lambda u: u.str.strip().to_numpy(dtype=object),
+                           few=_strip_few)
 
 
 def _quoted_rows(role: str, values: np.ndarray, status: np.ndarray) -> np.ndarray:
@@ -1062,12 +1237,18 @@ class _KeptNumbers(_NumberColumn):
 
 def _dates(s: pd.Series, fmt: str | None) -> tuple[np.ndarray, np.ndarray]:
     """Parse dates to datetime64[ns]; status 0 ok, 1 empty, 2 wrong format, 3 impossible, 4 out of range."""
-    return _per_unique(s, _dates_unique, fmt)
+    return _dates_coded(s, fmt)[0]
+
+
+def _dates_coded(s: pd.Series, fmt: str | None):
+    """``(_dates(s, fmt), codes, (values, status) per distinct text)``, see ``_per_unique_codes``."""
+    return _per_unique_codes(s, _dates_unique, fmt, few=lambda texts, fmt: _dates_unique(pd.Series(texts, dtype=str), fmt,
+                                                                                  texts))
 
 
 def _times(s: pd.Series) -> tuple[np.ndarray, np.ndarray]:
     """Parse as_of text to UTC int64 ns; status 0 ok, 1 empty, 2 not a time, 3 no offset, 4 impossible."""
-    return _per_unique(s, _times_unique)
+    return _per_unique(s, _times_unique, few=lambda texts: _times_unique(pd.Series(texts, dtype=str), texts))
 
 
 def _stripped(s: pd.Series, categorical: bool = False) -> pd.Series:
@@ -1175,6 +1356,15 @@ def _fmt_many(x: np.ndarray) -> np.ndarray:
     """``_fmt`` of each value, as an object array (formatted once per distinct value)."""
     uniq, inverse = np.unique(x, return_inverse=True)
     return np.array([_fmt(v) for v in uniq], dtype=object)[inverse.reshape(-1)]
+
+
+def _fmt_quotes(values: np.ndarray) -> list[str]:
+    """``_fmt_quote`` of each value (float64 array): the test for cents made on the whole array
+    (numpy's rounding, as ``round`` of a numpy float gives), a text per value."""
+    values = np.asarray(values, dtype=np.float64)
+    with np.errstate(invalid="ignore", over="ignore"):
+        cents = np.isfinite(values) & (np.abs(values) < 1e12) & (np.round(values, 2) == values)
+    return [f"{x:.2f}" if c else _fmt(x) for x, c in zip(values.tolist(), cents.tolist())]
 
 
 def _fmt_quote(x: float) -> str:
@@ -1296,13 +1486,16 @@ class _FileValidator:
 
         # underlying
         if self.ov.underlying is not None:
-            self.und = np.full(n, self.ov.underlying, dtype=object)
-            self.und_codes = np.zeros(n, dtype=np.int64)
+            self.und_codes, names = np.zeros(n, dtype=np.int64), [self.ov.underlying]
         else:
             s = self.col["underlying"]
-            self.und = s.to_numpy(dtype=object)
-            self.und_codes = (s.cat.codes.to_numpy().astype(np.int64) if isinstance(s.dtype, pd.CategoricalDtype)
-                              else pd.factorize(self.und)[0])  # the same code for the same name
+            if isinstance(s.dtype, pd.CategoricalDtype):
+                self.und_codes, names = s.cat.codes.to_numpy().astype(np.int64), s.cat.categories
+            else:
+                self.und_codes, names = pd.factorize(s.to_numpy(dtype=object))
+        #: the underlying of row i is ``und_names[und_codes[i]]`` (the last entry, None: a missing cell)
+        self.und_names = np.append(np.asarray(names, dtype=object), None)
+        if self.ov.underlying is None:
             rows.leave_out((s == "").to_numpy(dtype=bool), self.lab("underlying"), "underlying is empty")
             if self.ov.spot is not None:
                 names = pd.unique(s[rows.free & (s != "").to_numpy(dtype=bool)])
@@ -1335,7 +1528,10 @@ class _FileValidator:
 
         # expiry
         s = self.col["expiry"]
-        self.expiry, st = _dates(s, self.cmap.expiry_format)
+        (self.expiry, st), codes, (values, _) = _dates_coded(s, self.cmap.expiry_format)
+        #: each row's expiry as text (None for none) is ``exp_text[exp_codes[row]]`` (a code of -1 takes the
+        #: last text, as ``expiry`` takes the last value)
+        self.exp_codes, self.exp_text = codes, _dates_text(np.asarray(values))
         lab = self.lab("expiry")
         rows.leave_out(st == 1, lab, "expiry is empty")
         if self.cmap.expiry_format is None:
@@ -1359,12 +1555,16 @@ class _FileValidator:
         s = self.col["kind"]
         spellings = dict(_KINDS)
         spellings.update(self.cmap.kind_aliases())
-        self.kind = _per_unique(s, lambda u: np.array([spellings.get(x) for x in u.str.casefold()], dtype=object))
+        kind = _per_unique(s, lambda u: np.array([_KIND_CODE.get(spellings.get(x), -1) for x in u.str.casefold()],
+                                                 dtype=np.int8),
+                           few=lambda u: np.array([_KIND_CODE.get(spellings.get(x.casefold()), -1) for x in u],
+                                                  dtype=np.int8))
+        self.is_put = kind == 1  # a row of no valid kind is left out here
         lab = self.lab("kind")
         rows.leave_out((s == "").to_numpy(dtype=bool), lab, "kind is empty")
         extra = "/".join(sorted(self.cmap.kind_aliases()))
         expected = "call/put or c/p" + (f" or {extra}" if extra else "")
-        rows.leave_out(pd.isna(self.kind), lab, f"kind {{v}} is not {expected}", s)
+        rows.leave_out(kind < 0, lab, f"kind {{v}} is not {expected}", s)
 
         # bid / ask
         self.bid, bst = _numbers(self.col["bid"])
@@ -1395,7 +1595,11 @@ class _FileValidator:
         self.snap: dict[str, tuple[pd.Timestamp, float]] = {}
         self.group_rows: dict[str, np.ndarray] = {}
         live = np.flatnonzero(rows.free)
-        codes, names = _first_seen(self.und_codes[live], self.und[live])
+        live_codes = self.und_codes[live]
+        if live_codes.size and live_codes.min() == live_codes.max():  # one underlying: nothing to sort
+            codes, names = np.zeros(live.size, dtype=np.int64), [self.und_names[live_codes[0]]]
+        else:
+            codes, names = _first_seen(live_codes, self.und_names[live_codes])
         order = np.argsort(codes, kind="stable")
         bounds = np.searchsorted(codes[order], np.arange(len(names) + 1))
         for g, und in enumerate(names):
@@ -1477,9 +1681,11 @@ class _FileValidator:
             return
         u = self.und_codes[free]
         e = self.expiry[free].astype(np.int64)
-        k = self.kind[free] == "put"
+        k = self.is_put[free]
         st = self.strike[free]
-        order = np.lexsort((free, k, st, e, u))  # file order last: the first of a run is the first given
+        # a stable sort keeps file order within a run (``free`` is in file order): the first of a run is the
+        # first given; the underlying is a key only when there are several
+        order = np.lexsort((k, st, e) if u.min() == u.max() else (k, st, e, u))
         same = np.zeros(free.size, dtype=bool)
         same[1:] = ((u[order][1:] == u[order][:-1]) & (e[order][1:] == e[order][:-1])
                     & (st[order][1:] == st[order][:-1]) & (k[order][1:] == k[order][:-1]))
@@ -1566,53 +1772,63 @@ class _FileValidator:
         self.warn.append((sel, column, msgs, topic if topic is not None else _topic(text) if isinstance(text, str)
                           else "other", strike))
 
-    def _on_contract(self, sel: np.ndarray, what: str = "") -> np.ndarray:
-        """``what`` + `` on the 95 put`` for each row of ``sel`` (object array), formatted once per
-        distinct strike and side."""
-        strikes, inverse = np.unique(self.strike[sel], return_inverse=True)
-        code = inverse.reshape(-1) * 2 + (self.kind[sel] == "put")
-        texts = np.array([f"{what} on the {_fmt(k)} {side}" for k in strikes for side in ("call", "put")],
-                         dtype=object)
-        return texts[code]
+    def _on_contract(self, sel: np.ndarray, what: str, side: str, strike_text) -> np.ndarray:
+        """``what`` + `` on the 95 put`` for each row of ``sel`` (object array; every row of ``side``),
+        formatted once per distinct strike. ``strike_text``: (code per row, text per code) of the strikes."""
+        codes, text = strike_text
+        used, inverse = np.unique(codes[sel], return_inverse=True)
+        texts = np.array([f"{what} on the {text[k]} {side}" for k in used.tolist()], dtype=object)
+        return texts[inverse.reshape(-1)]
 
     def quote_warnings(self) -> None:
         ok = self.rows.free
         bid, ask = self.bid, self.ask
         has_b, has_a = np.isfinite(bid), np.isfinite(ask)
-        is_put = self.kind == "put"
-        for side, words in ((~is_put, "calls"), (is_put, "puts")):
-            for mask, what, col in ((ok & has_b & has_a & (bid == 0), "zero bid", "bid"),
-                                    (ok & ~has_b & has_a, "no bid", "bid")):
+        is_put = self.is_put
+        zero_bid, no_bid = ok & has_b & has_a & (bid == 0), ok & ~has_b & has_a
+        named = np.flatnonzero(zero_bid | no_bid)  # their strikes formatted once for the four groups
+        strikes, inverse = np.unique(self.strike[named], return_inverse=True)
+        codes = np.zeros(self.n, dtype=np.int64)
+        codes[named] = inverse.reshape(-1)
+        strike_text = (codes, [_fmt(k) for k in strikes.tolist()])
+        for side, words, one in ((~is_put, "calls", "call"), (is_put, "puts", "put")):
+            for mask, what, col in ((zero_bid, "zero bid", "bid"), (no_bid, "no bid", "bid")):
                 mask = mask & side
                 sel = np.flatnonzero(mask)
                 if sel.size:
-                    self.warn_rows(mask, self.lab(col), self._on_contract(sel, what), topic=f"{what} on {words}",
-                                   strike=True)
-        self.warn_rows(ok & has_b & ~has_a, self.lab("ask"), lambda i: f"no ask (bid {_fmt_quote(bid[i])})",
-                       topic="no ask", strike=True)
+                    self.warn_rows(mask, self.lab(col), self._on_contract(sel, what, one, strike_text),
+                                   topic=f"{what} on {words}", strike=True)
+        no_ask = ok & has_b & ~has_a
+        if no_ask.any():
+            quoted = _fmt_quotes(bid[no_ask])
+            self.warn_rows(no_ask, self.lab("ask"), np.array([f"no ask (bid {q})" for q in quoted], dtype=object),
+                           topic="no ask", strike=True)
         with np.errstate(over="ignore", invalid="ignore"):  # rows already left out may hold +-1e308
             spread = ask - bid
             mid = 0.5 * ask + 0.5 * bid  # not (ask + bid) / 2: that overflows for prices near 1e308
             wide = ok & has_b & has_a & (bid > 0) & (spread > WIDE_SPREAD_FRACTION * mid) & (spread > WIDE_SPREAD_MIN)
         sel = np.flatnonzero(wide)
         if sel.size:
-            pairs, inverse = np.unique(np.stack([bid[sel], ask[sel]], axis=1), axis=0, return_inverse=True)
+            # distinct (bid, ask) pairs from the codes of the distinct bids and asks
+            b_val, b_code = np.unique(bid[sel], return_inverse=True)
+            a_val, a_code = np.unique(ask[sel], return_inverse=True)
+            pair, inverse = np.unique(b_code.reshape(-1) * a_val.size + a_code.reshape(-1), return_inverse=True)
+            pb, pa = b_val[pair // a_val.size], a_val[pair % a_val.size]
             with np.errstate(over="ignore", invalid="ignore"):
-                texts = np.array([
-                    f"wide spread: bid {_fmt_quote(b)}, ask {_fmt_quote(a)} "
-                    f"(spread {(a - b) / (0.5 * a + 0.5 * b) * 100:.0f}% of mid)" for b, a in pairs], dtype=object)
+                percent = (pa - pb) / (0.5 * pa + 0.5 * pb) * 100
+            b_text, a_text = _fmt_quotes(b_val), _fmt_quotes(a_val)
+            texts = np.array([f"wide spread: bid {b_text[i]}, ask {a_text[j]} (spread {p:.0f}% of mid)"
+                              for i, j, p in zip((pair // a_val.size).tolist(), (pair % a_val.size).tolist(),
+                                                 percent.tolist())], dtype=object)
             self.warn_rows(wide, None, texts[inverse.reshape(-1)],
                            topic=f"wide spread (over {WIDE_SPREAD_FRACTION:.0%} of mid)", strike=True)
 
     # -- output -----------------------------------------------------------
     def row_findings(self, severity: str, sel: np.ndarray, reason, topic, column, strike: bool) -> FindingTable:
         """Findings about the rows ``sel`` as one table (no Python work per row)."""
-        und = self.und[sel]
-        codes, uniq = pd.factorize(und, use_na_sentinel=False)
-        named = np.array([isinstance(u, str) and u != "" for u in uniq], dtype=bool)
-        und = np.where(named[codes], und, None) if und.size else und
-        exp = self.expiry[sel]
-        exp_text = _dates_text(exp)
+        named = np.array([u if isinstance(u, str) and u != "" else None for u in self.und_names], dtype=object)
+        und = named[self.und_codes[sel]]
+        exp_text = self.exp_text[self.exp_codes[sel]] if len(self.exp_text) else _dates_text(self.expiry[sel])
         return FindingTable(SEVERITIES.index(severity), reason, topic=topic, file=self.path, line=self.t.line[sel],
                             column=column, underlying=und, expiry=exp_text,
                             strike=self.strike[sel] if strike else None)
@@ -1671,13 +1887,14 @@ class _FileValidator:
         for g, und in enumerate(names):
             gid[self.group_rows[und]] = g
         acc = np.flatnonzero(ok & (gid >= 0))
-        order = np.lexsort((self.t.line[acc], self.kind[acc] == "put", self.strike[acc],
-                            self.expiry[acc].astype(np.int64), gid[acc]))
+        # stable: rows of the same contract key stay in file order (``acc`` is in file order, as ``t.line``)
+        keys = (self.is_put[acc], self.strike[acc], self.expiry[acc].astype(np.int64))
+        order = np.lexsort(keys if len(names) == 1 else keys + (gid[acc],))
         acc = acc[order]
         frame = pd.DataFrame({
             "expiry": self.expiry[acc].astype("datetime64[ns]"),
             "strike": self.strike[acc].astype(np.float64),
-            "kind": _text_column((self.kind[acc] == "put").astype(np.int64), ["call", "put"]),
+            "kind": _text_column(self.is_put[acc].astype(np.int64), ["call", "put"]),
             "bid": self.bid[acc].astype(np.float64),
             "ask": self.ask[acc].astype(np.float64),
             "iv": optional["iv"][acc].astype(np.float64),
