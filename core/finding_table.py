@@ -195,7 +195,9 @@ class FindingTable(Sequence[Finding]):
 
     def sorted_by_line(self) -> FindingTable:
         """Findings about no line first (in order), then by line (stable)."""
-        return self.take(np.lexsort((self.line, self.line > 0)))
+        if self.line.size < 2 or (self.line[1:] >= self.line[:-1]).all():
+            return self
+        return self.take(np.argsort(self.line, kind="stable"))  # lines are >= 1, and 0 for none
 
     def where(self, *, underlying: str | None | type = ..., file: str | None | type = ...,
               expiry: str | None | type = ...) -> FindingTable:

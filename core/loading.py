@@ -389,13 +389,13 @@ def _records_fast(path: str, text: str, delim: str):
 
 
 def _table_fast(path: str, text: str, delim: str, columns: list[int] | None = None,
-                numeric=None) -> _Table | None:
+                numeric=None, raw: bytes | None = None) -> _Table | None:
     """The table of ``text`` (None when its quotes are not plain); ``columns``: read only these
     (the cells then hold only them, under their positions; the headers are then not read).
     ``numeric(headers)``, when given, names the columns to read as numbers where every cell is one
-    (see ``_table_numbers``)."""
+    (see ``_table_numbers``). ``raw``: the text's UTF-8 bytes when the caller has them."""
     if numeric is not None and columns is None:
-        uniform = _UniformRecords.of(text, delim)
+        uniform = _UniformRecords.of(text, delim, raw)
         if uniform is not None:
             table = _table_numbers(path, delim, uniform, numeric)
             if table is not None:
@@ -581,14 +581,14 @@ class _UniformRecords:
         self._breaks = self._delim = None  # set by ``of``
 
     @classmethod
-    def of(cls, text: str, delim: str) -> _UniformRecords | None:
+    def of(cls, text: str, delim: str, raw: bytes | None = None) -> _UniformRecords | None:
         """The records of ``text`` (ending in a line break) when the file has that shape, else None.
 
         Every line has ``width - 1`` delimiters when their total is that many per line and no line
         has more than the header: the C reader, given the header's width as names and no ``usecols``,
         refuses a longer line once the first data line is not longer (checked here).
         """
-        raw = text.encode("utf-8")
+        raw = text.encode("utf-8") if raw is None else raw
         if b'"' in raw:
             return None
         d = delim.encode()
@@ -690,7 +690,9 @@ def _read_csv_table(path: str, data: bytes, numeric=None) -> _Table:
     if not text.endswith("\n"):
         text += "\n"
     delim = _pick_delimiter(text)
-    table = _table_fast(path, text, delim, numeric=numeric)
+    # the file's bytes are the text's own when nothing was changed in decoding (no BOM, no \r, a final break)
+    same = not data.startswith(b"\xef\xbb\xbf") and data.endswith(b"\n") and b"\r" not in data
+    table = _table_fast(path, text, delim, numeric=numeric, raw=data if same else None)
     if table is None:
         table = _table_csv_module(path, text, delim)
     return table
@@ -966,7 +968,8 @@ def _read_table(path: str, numeric=None) -> _Table:
                 return _read_parquet_table(path)
             if p.stat().st_size > max(BIG_FILE_BYTES, CHUNK_BYTES):
                 return _read_csv_blocks(path, fh, head, numeric)
-            data = head + fh.read()
+            fh.seek(0)
+            data = fh.read()  # not head + the rest: that copies the file's bytes once more
     except OSError as exc:
         raise SnapshotFileError(path, f"cannot be read ({exc.strerror or exc})") from None
     if not data:
@@ -980,7 +983,7 @@ def _read_table(path: str, numeric=None) -> _Table:
 #: Up to this many distinct texts, a parse runs in plain Python per text when every text is printable
 #: ASCII (where Python's and the string backend's regex and whitespace rules agree): no fixed cost of
 #: the vectorised string methods for a column of a few distinct cells.
-_FEW_TEXTS = 256
+_FEW_TEXTS = 4096
 _NUM_FULL = re.compile(_NUM_RE)
 _NONFINITE_FULL = re.compile(_NONFINITE_RE)
 
@@ -1251,19 +1254,27 @@ def _times(s: pd.Series) -> tuple[np.ndarray, np.ndarray]:
     return _per_unique(s, _times_unique, few=lambda texts: _times_unique(pd.Series(texts, dtype=str), texts))
 
 
+def _strip_texts(raw: np.ndarray) -> np.ndarray:
+    """Distinct texts (object array) without surrounding whitespace."""
+    texts = raw.tolist()
+    if _few_plain(texts):
+        return _strip_few(texts)
+    return pd.Series(raw, dtype=str).str.strip().to_numpy(dtype=object)
+
+
 def _stripped(s: pd.Series, categorical: bool = False) -> pd.Series:
     """The column with surrounding whitespace removed (str dtype; a categorical stays one, and
     with ``categorical`` any column becomes one)."""
     if isinstance(s.dtype, pd.CategoricalDtype):
         raw = s.cat.categories.to_numpy(dtype=object)
-        clean = pd.Series(raw, dtype=str).str.strip().to_numpy(dtype=object)
+        clean = _strip_texts(raw)
         if np.array_equal(raw, clean):
             return s.reset_index(drop=True)
         new_codes, new_cats = pd.factorize(clean)
         return pd.Series(pd.Categorical.from_codes(new_codes[s.cat.codes.to_numpy()], new_cats))
     codes, uniques = pd.factorize(s)
     raw = np.asarray(uniques, dtype=object)
-    clean = pd.Series(raw, dtype=str).str.strip().to_numpy(dtype=object)
+    clean = _strip_texts(raw)
     if categorical:  # the distinct texts and a code per row: later parses work on the codes
         new_codes, new_cats = pd.factorize(clean)
         cats = pd.Index(np.asarray(new_cats, dtype=object), dtype=object)
@@ -1387,6 +1398,9 @@ class _FileValidator:
         self.warn: list[tuple[np.ndarray, str | None, list[str] | str]] = []
         self.col: dict[str, pd.Series] = {}
         self.label: dict[str, str] = {}
+        #: the rows not left out before ``check_duplicates``, sorted by underlying, expiry, strike, kind and
+        #: file order (None when it had fewer than two rows)
+        self.by_contract: np.ndarray | None = None
 
     # -- columns ----------------------------------------------------------
     def resolve_columns(self, cells: bool = True) -> None:
@@ -1597,13 +1611,13 @@ class _FileValidator:
         live = np.flatnonzero(rows.free)
         live_codes = self.und_codes[live]
         if live_codes.size and live_codes.min() == live_codes.max():  # one underlying: nothing to sort
-            codes, names = np.zeros(live.size, dtype=np.int64), [self.und_names[live_codes[0]]]
+            names, order, bounds = [self.und_names[live_codes[0]]], None, None
         else:
             codes, names = _first_seen(live_codes, self.und_names[live_codes])
-        order = np.argsort(codes, kind="stable")
-        bounds = np.searchsorted(codes[order], np.arange(len(names) + 1))
+            order = np.argsort(codes, kind="stable")
+            bounds = np.searchsorted(codes[order], np.arange(len(names) + 1))
         for g, und in enumerate(names):
-            gi = live[order[bounds[g]:bounds[g + 1]]]  # this underlying's rows, in file order
+            gi = live if order is None else live[order[bounds[g]:bounds[g + 1]]]  # its rows, in file order
             self.group_rows[und] = gi
             # as_of
             if self.ov.as_of is not None:
@@ -1641,10 +1655,13 @@ class _FileValidator:
                     rows.leave_out(gi, self.lab("spot"),
                                    f"no spot for {_show(und, 30)}: the spot cell is empty on all its rows")
                     continue
-                pick = has[np.isin(has, at_latest)]
+                latest_row = np.zeros(self.n, dtype=bool)
+                latest_row[at_latest] = True
+                pick = has[latest_row[has]]
                 first = int(pick[0] if pick.size else has[0])
                 spot = float(self.spot_v[first])
-                values = np.unique(self.spot_v[has])
+                spots = self.spot_v[has]
+                values = spots[:1] if spots.min() == spots.max() else np.unique(spots)  # one spot: no sort
                 if values.size > 1:
                     self.group_findings.append(Finding(
                         WARNING,
@@ -1686,9 +1703,12 @@ class _FileValidator:
         # a stable sort keeps file order within a run (``free`` is in file order): the first of a run is the
         # first given; the underlying is a key only when there are several
         order = np.lexsort((k, st, e) if u.min() == u.max() else (k, st, e, u))
+        self.by_contract = free[order]  # the frame's order too (``run``)
         same = np.zeros(free.size, dtype=bool)
-        same[1:] = ((u[order][1:] == u[order][:-1]) & (e[order][1:] == e[order][:-1])
-                    & (st[order][1:] == st[order][:-1]) & (k[order][1:] == k[order][:-1]))
+        same[1:] = True
+        for key in (u, e, st, k):
+            key = key[order]
+            same[1:] &= key[1:] == key[:-1]
         if not same.any():
             return
         run_start = np.maximum.accumulate(np.where(same, 0, np.arange(free.size)))
@@ -1886,31 +1906,36 @@ class _FileValidator:
         gid = np.full(self.n, -1, dtype=np.int64)
         for g, und in enumerate(names):
             gid[self.group_rows[und]] = g
-        acc = np.flatnonzero(ok & (gid >= 0))
-        # stable: rows of the same contract key stay in file order (``acc`` is in file order, as ``t.line``)
-        keys = (self.is_put[acc], self.strike[acc], self.expiry[acc].astype(np.int64))
-        order = np.lexsort(keys if len(names) == 1 else keys + (gid[acc],))
-        acc = acc[order]
+        if self.by_contract is not None:  # the rows already sorted by contract in check_duplicates
+            acc = self.by_contract[ok[self.by_contract] & (gid[self.by_contract] >= 0)]
+            if len(names) > 1:
+                acc = acc[np.argsort(gid[acc], kind="stable")]
+        else:
+            acc = np.flatnonzero(ok & (gid >= 0))
+            # stable: rows of the same contract key stay in file order (``acc`` is in file order, as ``t.line``)
+            keys = (self.is_put[acc], self.strike[acc], self.expiry[acc].astype(np.int64))
+            acc = acc[np.lexsort(keys if len(names) == 1 else keys + (gid[acc],))]
         frame = pd.DataFrame({
             "expiry": self.expiry[acc].astype("datetime64[ns]"),
-            "strike": self.strike[acc].astype(np.float64),
+            "strike": self.strike[acc].astype(np.float64, copy=False),
             "kind": _text_column(self.is_put[acc].astype(np.int64), ["call", "put"]),
-            "bid": self.bid[acc].astype(np.float64),
-            "ask": self.ask[acc].astype(np.float64),
-            "iv": optional["iv"][acc].astype(np.float64),
+            "bid": self.bid[acc].astype(np.float64, copy=False),
+            "ask": self.ask[acc].astype(np.float64, copy=False),
+            "iv": optional["iv"][acc].astype(np.float64, copy=False),
             "iv_basis": _text_column(optional["iv_basis"][acc]),
-            "volume": optional["volume"][acc].astype(np.float64),
-            "open_interest": optional["open_interest"][acc].astype(np.float64),
+            "volume": optional["volume"][acc].astype(np.float64, copy=False),
+            "open_interest": optional["open_interest"][acc].astype(np.float64, copy=False),
             "settle": _text_column(optional["settle"][acc]),
-            "rate": optional["rate"][acc].astype(np.float64),
-            "div_yield": optional["div_yield"][acc].astype(np.float64),
+            "rate": optional["rate"][acc].astype(np.float64, copy=False),
+            "div_yield": optional["div_yield"][acc].astype(np.float64, copy=False),
             "source_file": _text_column(np.zeros(acc.size, dtype=np.int64), [self.path]),
             "source_line": self.t.line[acc].astype(np.int64),
         })[list(CONTRACT_COLUMNS)]
         bounds = np.searchsorted(gid[acc], np.arange(len(names) + 1))
         if len(names) == 1:  # the common case: no factorisation of the findings' underlyings
             named = findings.underlying == names[0]
-            by_underlying = {names[0]: findings.take(named)} if named.any() else {}
+            by_underlying = ({} if not named.any() else {names[0]: findings} if named.all()
+                             else {names[0]: findings.take(named)})
         else:
             by_underlying = findings.split("underlying")
         snapshots = []
@@ -1932,7 +1957,8 @@ class _Repeated:
         self.text, self.n = text, n
 
     def __getitem__(self, rows: np.ndarray) -> _Repeated:
-        return _Repeated(self.text, np.arange(self.n)[rows].size)
+        rows = np.asarray(rows)
+        return _Repeated(self.text, int(np.count_nonzero(rows)) if rows.dtype == bool else rows.size)
 
 
 def _text_column(values, uniques: Sequence[str] | None = None) -> pd.Series:
