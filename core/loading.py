@@ -1341,6 +1341,21 @@ def _formatted(text: str, vals: np.ndarray) -> np.ndarray:
     return np.array([text.format(v=_show(v)) for v in uniq], dtype=object)[codes]
 
 
+def _in_order(keys: tuple[np.ndarray, ...]) -> bool:
+    """Whether the rows are already in ``np.lexsort(keys)`` order (the last key first; ties allowed)."""
+    if keys[0].size < 2:
+        return True
+    after = np.zeros(keys[0].size - 1, dtype=bool)  # a row is after the one before it by an earlier key
+    tied = np.ones(keys[0].size - 1, dtype=bool)  # ... or tied with it on every key so far
+    for key in reversed(keys):
+        a, b = key[:-1], key[1:]
+        after |= tied & (b > a)
+        tied &= b == a
+        if not (after | tied).all():
+            return False
+    return True
+
+
 def _first_seen(codes: np.ndarray, values: np.ndarray) -> tuple[np.ndarray, list]:
     """``pd.factorize(values)`` from integer ``codes`` that already name the distinct values:
     new codes in order of first appearance, and the values in that order."""
@@ -1546,6 +1561,9 @@ class _FileValidator:
         #: each row's expiry as text (None for none) is ``exp_text[exp_codes[row]]`` (a code of -1 takes the
         #: last text, as ``expiry`` takes the last value)
         self.exp_codes, self.exp_text = codes, _dates_text(np.asarray(values))
+        #: the order of each distinct expiry among them (int16, for a radix sort), by ``exp_codes`` as above
+        distinct = np.unique(np.asarray(values), return_inverse=True)[1].reshape(-1)
+        self.exp_rank = distinct.astype(np.int16) if len(distinct) < 2 ** 15 else None
         lab = self.lab("expiry")
         rows.leave_out(st == 1, lab, "expiry is empty")
         if self.cmap.expiry_format is None:
@@ -1702,8 +1720,19 @@ class _FileValidator:
         st = self.strike[free]
         # a stable sort keeps file order within a run (``free`` is in file order): the first of a run is the
         # first given; the underlying is a key only when there are several
-        order = np.lexsort((k, st, e) if u.min() == u.max() else (k, st, e, u))
-        self.by_contract = free[order]  # the frame's order too (``run``)
+        one = u.min() == u.max()
+        keys = (k, st, e) if one else (k, st, e, u)
+        if _in_order(keys):  # a file in contract order needs no sort
+            order = None
+        elif one and self.exp_rank is not None:  # np.lexsort(keys), the expiries sorted by their small ranks
+            order = np.argsort(k.view(np.int8), kind="stable")
+            order = order[np.argsort(st[order], kind="stable")]
+            order = order[np.argsort(self.exp_rank[self.exp_codes[free]][order], kind="stable")]
+        else:
+            order = np.lexsort(keys)
+        self.by_contract = free if order is None else free[order]  # the frame's order too (``run``)
+        if order is None:
+            order = np.arange(free.size)
         same = np.zeros(free.size, dtype=bool)
         same[1:] = True
         for key in (u, e, st, k):
