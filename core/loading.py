@@ -506,7 +506,7 @@ def _table_numbers(path: str, delim: str, rec, numeric) -> _Table | None:
                          keep_default_na=False, na_values={i: [""] for i in wanted}, na_filter=True, **opts)
     except (pd.errors.ParserError, ValueError):
         return None
-    if len(df) != rec.rows:
+    if not rec.parsed(df):
         return None
     redo = []
     for i in wanted:
@@ -546,6 +546,10 @@ class _ScannedRecords:
         self.nfields = nfields[1:].astype(np.int64)
         self._rec, self._delim = rec, delim
 
+    def parsed(self, df: pd.DataFrame) -> bool:
+        """Whether the C reader gave a row per record."""
+        return len(df) == self.rows
+
     def extra(self) -> np.ndarray:
         raw, dpos, starts, ends, start_line, end_line, nfields, first_d = self._rec
         return _extra_fields(raw, dpos, starts, ends, nfields, first_d, self.width, self._delim)[1:]
@@ -559,6 +563,16 @@ class _ScannedRecords:
         a = np.where(column == 0, st, dp[np.clip(fd + column - 1, 0, dp.size - 1)] + 1)
         b = np.where(column >= nf - 1, en, dp[np.clip(fd + column, 0, dp.size - 1)])
         return np.where(have, a, 0), np.where(have, b, 0)
+
+
+#: Bytes compared at a time by ``_positions``: temporaries this small are reused, not mapped afresh.
+_SCAN_BYTES = 1 << 20
+
+
+def _positions(arr: np.ndarray, byte: int) -> np.ndarray:
+    """Where ``byte`` occurs in ``arr`` (int64 positions), a block at a time (no file-sized temporary)."""
+    parts = [np.flatnonzero(arr[i:i + _SCAN_BYTES] == byte) + i for i in range(0, arr.size, _SCAN_BYTES)]
+    return np.concatenate(parts) if parts else np.zeros(0, dtype=np.int64)
 
 
 #: The most bytes ``_UniformRecords.spans`` gathers at once to find the delimiters of some rows.
@@ -584,23 +598,22 @@ class _UniformRecords:
     def of(cls, text: str, delim: str, raw: bytes | None = None) -> _UniformRecords | None:
         """The records of ``text`` (ending in a line break) when the file has that shape, else None.
 
-        Every line has ``width - 1`` delimiters when their total is that many per line and no line
-        has more than the header: the C reader, given the header's width as names and no ``usecols``,
-        refuses a longer line once the first data line is not longer (checked here).
+        No line is longer than the header: the C reader, given the header's width as names and no
+        ``usecols``, refuses a longer line once the first data line is not longer (checked here). No line
+        is shorter either when the C reader's last column has a value on every row (else ``parsed``
+        counts the delimiters), and none was skipped as blank when it gives a row per line.
         """
         raw = text.encode("utf-8") if raw is None else raw
         if b'"' in raw:
             return None
         d = delim.encode()
         arr = np.frombuffer(raw, dtype=np.uint8)
-        breaks = np.flatnonzero(arr == 10)  # kept: cells read again are found from them
+        breaks = _positions(arr, 10)  # kept: cells read again are found from them
         lines = int(breaks.size)
         if lines < 1:
             return None
         width = raw[:breaks[0]].count(d) + 1
         if width < 2 or (lines > 1 and raw[breaks[0] + 1:breaks[1]].count(d) != width - 1):
-            return None
-        if int(np.count_nonzero(arr == d[0])) != lines * (width - 1):  # numpy counts bytes fastest
             return None
         rec = cls(raw, width, lines)
         rec._delim, rec._breaks = d[0], breaks
@@ -608,6 +621,22 @@ class _UniformRecords:
 
     def extra(self) -> np.ndarray:
         return np.zeros(self.rows, dtype=bool)
+
+    def parsed(self, df: pd.DataFrame) -> bool:
+        """Whether the C reader's rows are the records (see ``of``): a row per line, none short."""
+        if len(df) != self.rows:
+            return False
+        # a short line leaves its last cell missing: NaN in a number column, "" in a text column
+        last = df[self.width - 1]
+        if isinstance(last.dtype, pd.CategoricalDtype):
+            maybe_short = bool(last.isna().any()) or "" in last.cat.categories
+        elif last.dtype.kind in "iuf":
+            maybe_short = bool(last.isna().any())
+        else:
+            maybe_short = bool(last.isna().any()) or bool((last == "").any())
+        if not maybe_short:
+            return True
+        return int(np.count_nonzero(self.arr == self._delim)) == (self.rows + 1) * (self.width - 1)
 
     def spans(self, column: int, rows: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Byte ranges ``a:b`` of the cells ``column`` of the data records ``rows``: each row's bytes are
@@ -683,7 +712,25 @@ def _table_csv_module(path: str, text: str, delim: str) -> _Table:
                   nfields, extra)
 
 
+def _ascii_table(path: str, data: bytes, numeric) -> _Table | None:
+    """The common export read from its bytes alone, never decoded as a whole: ASCII (so UTF-8, and
+    its own text), \n line breaks, a header on its first line, every line a record of the header's
+    width (``_UniformRecords``). None when the file is not like that."""
+    if not (data.endswith(b"\n") and data.isascii() and b"\r" not in data):
+        return None
+    first = data[:data.index(b"\n")].decode("ascii")
+    if not first.strip(" \t"):
+        return None
+    delim = _pick_delimiter(first + "\n")  # the first non-blank line is the first line
+    rec = _UniformRecords.of("", delim, data)
+    return None if rec is None else _table_numbers(path, delim, rec, numeric)
+
+
 def _read_csv_table(path: str, data: bytes, numeric=None) -> _Table:
+    if numeric is not None:
+        table = _ascii_table(path, data, numeric)
+        if table is not None:
+            return table
     text = _decode(path, data)
     if not text or text.isspace():  # not text.strip(), without copying the text
         raise SnapshotFileError(path, "is empty")

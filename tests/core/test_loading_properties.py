@@ -188,9 +188,83 @@ def test_fast_path_matches_the_csv_module(tmp_path, data, monkeypatch):
 
     fast = _load_outcome(p)
     with monkeypatch.context() as m:
+        m.setattr(loading, "_ascii_table", lambda *a, **k: None)
         m.setattr(loading, "_table_fast", lambda *a, **k: None)
         slow = _load_outcome(p)
     assert fast == slow
+
+
+_PLAIN_HEADER = "underlying,as_of,spot,expiry,strike,kind,bid,ask,iv,volume\n"
+_PLAIN_ROW = "QRTZ,2026-03-02T15:30:00-05:00,100,2026-03-20,{k},call,1.5,1.6,0.3,{v}\n"
+
+
+@pytest.mark.parametrize("body", [
+    # every line of the header's width, the common export
+    "".join(_PLAIN_ROW.format(k=90 + i, v=i) for i in range(5)),
+    # the first data line one field longer (the C reader would take its width), a later line short
+    _PLAIN_ROW.format(k=90, v=0)[:-1] + ",\n" + _PLAIN_ROW.format(k=91, v=1) + "QRTZ,2026-03-02T15:30:00-05:00\n",
+    # a short line and a long one whose delimiters make up the header's count between them
+    _PLAIN_ROW.format(k=90, v=0) + "QRTZ,2026-03-02T15:30:00-05:00,100,2026-03-20,91,call,1.5,1.6,0.3\n"
+    + _PLAIN_ROW.format(k=92, v=2)[:-1] + ",7\n",
+    # short lines whose last cell is empty anyway, and an empty last cell on a full line
+    _PLAIN_ROW.format(k=90, v="") + "QRTZ,2026-03-02T15:30:00-05:00,100,2026-03-20,91,call,1.5,1.6,0.3\n",
+    # a short line when the last column holds text (its missing cell reads as empty text)
+    _PLAIN_ROW.format(k=90, v="x") + "QRTZ,2026-03-02T15:30:00-05:00,100,2026-03-20,91,call\n",
+    # blank and blank-looking lines between records
+    _PLAIN_ROW.format(k=90, v=0) + "\n  \n" + _PLAIN_ROW.format(k=91, v=1),
+    # a cell quoted, a trailing empty field, CRLF line breaks, a byte order mark, non-ASCII text
+    _PLAIN_ROW.format(k=90, v=0) + '"QRTZ",2026-03-02T15:30:00-05:00,100,2026-03-20,91,call,1.5,1.6,0.3,-0\n',
+    _PLAIN_ROW.format(k=90, v=0)[:-1] + ",\n" + _PLAIN_ROW.format(k=91, v=0)[:-1] + ",\n",
+    _PLAIN_ROW.format(k=90, v=0).replace("\n", "\r\n") + _PLAIN_ROW.format(k=91, v=-0.0),
+    "\ufeff" + _PLAIN_ROW.format(k=90, v=0) + _PLAIN_ROW.format(k=91, v=1).replace("QRTZ", "QRTZ\u00e9"),
+])
+def test_files_of_uniform_lines_load_as_the_csv_module_reads_them(tmp_path, monkeypatch, body):
+    """The reading of a file whose lines all have the header's width (from its bytes, without
+    scanning its records) gives what the csv module's reading gives, also for the files that
+    only look like that [C: Python's csv module is the reference tokenizer]."""
+    p = tmp_path / "u.csv"
+    p.write_bytes(("\ufeff" if body.startswith("\ufeff") else "").encode()
+                  + (_PLAIN_HEADER + body.lstrip("\ufeff")).encode("utf-8"))
+    fast = _load_outcome(p, ("bid", "volume"))
+    with monkeypatch.context() as m:
+        m.setattr(loading, "_ascii_table", lambda *a, **k: None)
+        m.setattr(loading, "_table_fast", lambda *a, **k: None)
+        slow = _load_outcome(p, ("bid", "volume"))
+    assert fast == slow
+
+
+def test_a_short_line_is_found_when_the_last_column_holds_text(tmp_path, monkeypatch):
+    """A line shorter than the header whose missing last cell (a text column: read as empty text)
+    leaves the delimiter count short: read as the csv module reads it [C: Python's csv module]."""
+    p = tmp_path / "t.csv"
+    p.write_text("underlying,as_of,spot,expiry,strike,kind,bid,ask,settle\n"
+                 "QRTZ,2026-03-02T15:30:00-05:00,100,2026-03-20,90,call,1.5,1.6,pm\n"
+                 "QRTZ,2026-03-02T15:30:00-05:00,100,2026-03-20,91,call,1.5,1.6\n")
+    fast = _load_outcome(p)
+    with monkeypatch.context() as m:
+        m.setattr(loading, "_ascii_table", lambda *a, **k: None)
+        m.setattr(loading, "_table_fast", lambda *a, **k: None)
+        assert fast == _load_outcome(p)
+    assert fast[0] == "ok" and fast[3] == 1  # the short line is left out
+
+
+def test_a_plain_export_is_read_from_its_bytes_without_scanning_records(tmp_path, monkeypatch):
+    """The common export (ASCII, one record per line, the header's width everywhere) takes the
+    reading that needs no record scan; its line numbers and re-read cells are still right."""
+    def no_scan(*a, **k):
+        raise AssertionError("records scanned")
+
+    monkeypatch.setattr(loading, "_records_fast", no_scan)
+    p = tmp_path / "plain.csv"
+    p.write_text(_PLAIN_HEADER + _PLAIN_ROW.format(k=90, v="-0") + _PLAIN_ROW.format(k=91, v=-3)
+                 + _PLAIN_ROW.format(k=91, v=5))
+    load = load_file(p)
+    assert load.rows_read == 3 and load.rows_accepted == 2
+    assert list(load.snapshots[0].contracts["source_line"]) == [2, 3]
+    assert np.signbit(load.snapshots[0].contracts["volume"].to_numpy()).tolist() == [True, False]
+    assert [(f.line, f.reason) for f in load.findings] == [
+        (3, "volume '-3' is negative; left blank"),
+        (4, "duplicate of line 3 (same underlying, expiry, strike and kind)")]
 
 
 def test_fast_path_is_taken_for_plain_quotes_and_not_for_stray_ones(tmp_path, monkeypatch):
