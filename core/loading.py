@@ -1991,7 +1991,7 @@ class _FileValidator:
             # stable: rows of the same contract key stay in file order (``acc`` is in file order, as ``t.line``)
             keys = (self.is_put[acc], self.strike[acc], self.expiry[acc].astype(np.int64))
             acc = acc[np.lexsort(keys if len(names) == 1 else keys + (gid[acc],))]
-        frame = pd.DataFrame({
+        frame = pd.DataFrame(copy=False, data={
             "expiry": self.expiry[acc].astype("datetime64[ns]"),
             "strike": self.strike[acc].astype(np.float64, copy=False),
             "kind": _text_column(self.is_put[acc].astype(np.int64), ["call", "put"]),
