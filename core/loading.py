@@ -39,6 +39,10 @@ Decisions (documented for users in the README):
   a message quotes are read again from the file's bytes, so values, findings
   and messages are those of reading every cell as text (the reference, used
   for any column holding other text).
+- A file whose every line is a record of the header's width (no quotes, no
+  blank lines; the common export) is read without scanning its records: line
+  numbers follow from the line breaks, and when it is ASCII with \n line breaks
+  it is never decoded as a whole. Any other file is split into records first.
 - Text stays plain text: values are never interpreted; control characters in
   ``underlying`` are kept, with a warning. Values quoted in reasons are shown
   escaped (``repr``) so a finding is always safe to print.
