@@ -34,21 +34,6 @@ from collections.abc import Iterable
 
 import numpy as np
 import pandas as pd
-from pandas.tseries.holiday import (
-    AbstractHolidayCalendar,
-    DateOffset,
-    Day,
-    GoodFriday,
-    Holiday,
-    USLaborDay,
-    USMemorialDay,
-    USPresidentsDay,
-    USThanksgivingDay,
-    MO,
-    TH,
-    nearest_workday,
-    sunday_to_monday,
-)
 
 from .findings import ChainTriageError
 
@@ -69,44 +54,79 @@ EARLY_SESSION_HOURS = (_EARLY_MIN - _OPEN_MIN) / 60.0
 _WEEKMASK = "1111100"
 
 
-class _FullDayHolidays(AbstractHolidayCalendar):
-    """Full-day closures by rule (may include a Saturday New Year's Day, filtered later)."""
+_MON, _THU, _SAT, _SUN = 0, 3, 5, 6
 
-    rules = [
-        # Sunday -> Monday; a Saturday 1 January stays on the Saturday, i.e. no weekday is closed.
-        Holiday("New Year's Day", month=1, day=1, observance=sunday_to_monday),
-        Holiday(
-            "Martin Luther King Jr. Day",
-            month=1,
-            day=1,
-            offset=DateOffset(weekday=MO(3)),
-            start_date=_dt.datetime(1998, 1, 1),
-        ),
-        USPresidentsDay,  # Washington's Birthday, 3rd Monday of February
-        GoodFriday,
-        USMemorialDay,
-        Holiday(
-            "Juneteenth",
-            month=6,
-            day=19,
-            start_date=_dt.datetime(2022, 1, 1),
-            observance=nearest_workday,
-        ),
-        Holiday("Independence Day", month=7, day=4, observance=nearest_workday),
-        USLaborDay,
-        USThanksgivingDay,
-        Holiday("Christmas Day", month=12, day=25, observance=nearest_workday),
+
+def _weekday(d: np.ndarray) -> np.ndarray:
+    """Day of the week of ``datetime64[D]`` dates, Monday = 0 (1970-01-01 was a Thursday)."""
+    return (d.astype(np.int64) + 3) % 7
+
+
+def _day(years: np.ndarray, month: int, day: int) -> np.ndarray:
+    """The date ``day`` ``month`` of each year, as ``datetime64[D]``."""
+    first = (years - 1970).astype("datetime64[Y]").astype("datetime64[M]") + (month - 1)
+    return first.astype("datetime64[D]") + (day - 1)
+
+
+def _nth_weekday_from(d: np.ndarray, weekday: int, n: int) -> np.ndarray:
+    """The n-th ``weekday`` on or after each date (n = 1: the date itself when it is one)."""
+    return d + (weekday - _weekday(d)) % 7 + 7 * (n - 1)
+
+
+def _last_weekday_until(d: np.ndarray, weekday: int) -> np.ndarray:
+    """The last ``weekday`` on or before each date."""
+    return d - (_weekday(d) - weekday) % 7
+
+
+def _nearest_weekday(d: np.ndarray) -> np.ndarray:
+    """A Saturday moved to the Friday before, a Sunday to the Monday after."""
+    wd = _weekday(d)
+    return d + np.where(wd == _SAT, -1, np.where(wd == _SUN, 1, 0))
+
+
+def _sunday_to_monday(d: np.ndarray) -> np.ndarray:
+    """A Sunday moved to the Monday after."""
+    return d + (_weekday(d) == _SUN)
+
+
+def _easter_sunday(years: np.ndarray) -> np.ndarray:
+    """Gregorian Easter Sunday of each year (the anonymous Gregorian computus, as J. Meeus gives it
+    in Astronomical Algorithms), as ``datetime64[D]``; tests check it against dateutil.easter."""
+    y = years
+    a, b, c = y % 19, y // 100, y % 100
+    d, e = b // 4, b % 4
+    f = (b + 8) // 25
+    g = (b - f + 1) // 3
+    h = (19 * a + b - d - g + 15) % 30
+    i, k = c // 4, c % 4
+    l_ = (32 + 2 * e + 2 * i - h - k) % 7
+    m = (a + 11 * h + 22 * l_) // 451
+    n = h + l_ - 7 * m + 114  # month n // 31 (March or April), day n % 31 + 1
+    return _day(y, 3, 1) + (n // 31 - 3) * 31 + n % 31  # March has 31 days
+
+
+def _rule_dates(lo: int, hi: int) -> tuple[np.ndarray, np.ndarray]:
+    """(full-day closures by rule, early-close candidates) of the years ``lo..hi``, sorted
+    ``datetime64[D]``; the closures may include a Saturday (New Year's Day), filtered later."""
+    years = np.arange(lo, hi + 1)
+    closed = [
+        _sunday_to_monday(_day(years, 1, 1)),  # New Year's Day: a Saturday 1 January closes no weekday
+        _nth_weekday_from(_day(years[years >= 1998], 1, 1), _MON, 3),  # Martin Luther King Jr. Day
+        _nth_weekday_from(_day(years, 2, 1), _MON, 3),  # Washington's Birthday
+        _easter_sunday(years) - 2,  # Good Friday
+        _last_weekday_until(_day(years, 5, 31), _MON),  # Memorial Day
+        _nearest_weekday(_day(years[years >= 2022], 6, 19)),  # Juneteenth
+        _nearest_weekday(_day(years, 7, 4)),  # Independence Day
+        _nth_weekday_from(_day(years, 9, 1), _MON, 1),  # Labor Day
+        _nth_weekday_from(_day(years, 11, 1), _THU, 4),  # Thanksgiving
+        _nearest_weekday(_day(years, 12, 25)),  # Christmas Day
     ]
-
-
-class _EarlyCloseCandidates(AbstractHolidayCalendar):
-    """Dates that close early when they are trading days."""
-
-    rules = [
-        Holiday("Day after Thanksgiving", month=11, day=1, offset=[DateOffset(weekday=TH(4)), Day(1)]),
-        Holiday("Christmas Eve", month=12, day=24),
-        Holiday("Eve of Independence Day", month=7, day=3),
+    early = [
+        _nth_weekday_from(_day(years, 11, 1), _THU, 4) + 1,  # the day after Thanksgiving
+        _day(years, 12, 24),  # Christmas Eve
+        _day(years, 7, 3),  # the eve of Independence Day
     ]
+    return np.unique(np.concatenate(closed)), np.unique(np.concatenate(early))
 
 
 def _as_dates(values, what: str = "date") -> np.ndarray:
@@ -199,11 +219,9 @@ class ExchangeCalendar:
         lo, hi = max(lo, 1678), min(hi, 2261)  # pandas' Timestamp range
         if y0 < lo or y1 > hi:
             raise ChainTriageError(f"date outside the supported years {lo}-{hi}")
-        start, end = pd.Timestamp(lo, 1, 1), pd.Timestamp(hi, 12, 31)
-        rule = _FullDayHolidays().holidays(start, end).values.astype("datetime64[D]")
+        rule, cand = _rule_dates(lo, hi)
         closed = np.union1d(rule, self._extra_closed)
         closed = closed[np.is_busday(closed, weekmask=_WEEKMASK)]
-        cand = _EarlyCloseCandidates().holidays(start, end).values.astype("datetime64[D]")
         early = np.union1d(cand, self._extra_early)
         early = early[np.is_busday(early, weekmask=_WEEKMASK) & ~np.isin(early, closed)]
         # Publish the wider tables before the wider range, so a reader never sees a range

@@ -139,6 +139,50 @@ def test_good_friday_is_two_days_before_easter_1990_2100(cal):
     assert easter(2026) == dt.date(2026, 4, 5) and easter(2027) == dt.date(2027, 3, 28)
 
 
+def test_easter_computus_matches_dateutil_1583_2999():
+    # [L] dateutil.easter (Gregorian, its default method) for every year of the Gregorian calendar here.
+    from chaintriage.core.exchange_calendar import _easter_sunday
+
+    years = np.arange(1583, 3000)
+    ours = _easter_sunday(years)
+    assert [d.isoformat() for d in ours.astype(object)] == [easter(int(y)).isoformat() for y in years]
+
+
+def test_rules_match_pandas_holiday_rules_over_pandas_whole_range():
+    # [L] pandas.tseries.holiday: the same NYSE rules written with pandas' own Holiday rules and
+    # observances (used here as an oracle only), over every year a pandas Timestamp reaches.
+    from pandas.tseries.holiday import (
+        AbstractHolidayCalendar, DateOffset, Day, GoodFriday, Holiday, MO, TH, USLaborDay,
+        USMemorialDay, USPresidentsDay, USThanksgivingDay, nearest_workday, sunday_to_monday,
+    )
+
+    from chaintriage.core.exchange_calendar import _rule_dates
+
+    class Closed(AbstractHolidayCalendar):
+        rules = [
+            Holiday("new year", month=1, day=1, observance=sunday_to_monday),
+            Holiday("mlk", month=1, day=1, offset=DateOffset(weekday=MO(3)), start_date=dt.datetime(1998, 1, 1)),
+            USPresidentsDay, GoodFriday, USMemorialDay,
+            Holiday("juneteenth", month=6, day=19, start_date=dt.datetime(2022, 1, 1), observance=nearest_workday),
+            Holiday("independence", month=7, day=4, observance=nearest_workday),
+            USLaborDay, USThanksgivingDay,
+            Holiday("christmas", month=12, day=25, observance=nearest_workday),
+        ]
+
+    class Early(AbstractHolidayCalendar):
+        rules = [
+            Holiday("after thanksgiving", month=11, day=1, offset=[DateOffset(weekday=TH(4)), Day(1)]),
+            Holiday("christmas eve", month=12, day=24),
+            Holiday("eve of independence", month=7, day=3),
+        ]
+
+    for lo, hi in ((1678, 2261), (2024, 2038)):
+        start, end = pd.Timestamp(lo, 1, 1), pd.Timestamp(hi, 12, 31)
+        closed, early = _rule_dates(lo, hi)
+        np.testing.assert_array_equal(closed, np.unique(Closed().holidays(start, end).values.astype("datetime64[D]")))
+        np.testing.assert_array_equal(early, np.unique(Early().holidays(start, end).values.astype("datetime64[D]")))
+
+
 def test_whole_holiday_set_matches_quantlib_nyse_1998_2100():
     # [L] QuantLib UnitedStates(NYSE). QuantLib also lists unscheduled closures, which
     # no rule gives; with them added as extra closed dates the sets are identical.
