@@ -178,56 +178,86 @@ def load_views(paths: Sequence[str], *, snapshots: Sequence[Snapshot] | None = N
         return None if confidence is None else confidence()
 
     try:
-        if snapshots is None:
-            result = load_for_app(paths, overrides=overrides, column_map=column_map, column_maps=column_maps)
-            snapshots = result.snapshots
-            load_findings = result.findings
-            errors.extend(str(e) for e in result.errors)
-            if companions is not None:
-                snapshots, load_findings = _merge_with_shown(snapshots, load_findings, result, companions,
-                                                             overrides, column_maps, paths)
-        else:
-            load_findings = []
         settings = pipeline_settings
         if settings is None:
             from chaintriage.core.pipeline import PipelineSettings
 
             settings = PipelineSettings()
-        for n, snap in enumerate(snapshots):
-            on_busy(f"computing {fm.clean_text(snap.underlying)} "
-                    f"({len(snap.contracts):,} contracts, {n + 1} of {len(snapshots)})")
-            partial = None
-            shown = False
-            try:
-                if on_replace is not None and len(snap.contracts) > FIRST_EXPIRY_FIRST_ABOVE:
-                    parts = annotate_views_in_parts(snap, settings, load_findings, level())
-                    view = next(parts)
-                    if len(view.expiries) < snap.contracts["expiry"].nunique():  # a part: show it, then the rest
-                        view.partial = True
-                        on_view(view, added == 0)
-                        on_busy(f"computing {fm.clean_text(snap.underlying)}: the other expiries "
-                                f"({len(snap.contracts) - len(view):,} contracts)")
-                        whole = next(parts, None)  # None: far strikes left no other expiry, it was the whole
-                        shown = whole is None
-                        if whole is None:
-                            view.partial = False
-                        partial, view = (None, view) if whole is None else (view, whole)
-                else:
-                    view = annotate_view(snap, settings, load_findings, level(), precompute=1)
-            except ChainTriageError as exc:
-                errors.append(f"{snap.label}: {exc}")
-                continue
-            if partial is not None:
-                on_replace(partial, view)
-            elif not shown:
-                on_view(view, added == 0)
-            added += 1
-            precompute_view(view, level(), start=1, pause=YIELD_SECONDS)
+        for snapshots, load_findings, n_first, n_all in _read_batches(
+                paths, snapshots, overrides, column_map, column_maps, companions, errors):
+            added = _annotate_batch(snapshots, load_findings, n_first, n_all, settings, level, added, errors,
+                                    on_busy, on_view, on_replace)
     except ChainTriageError as exc:
         errors.append(str(exc))
     except Exception as exc:  # never a traceback on screen: say what failed and go on
         errors.append(f"could not load: {type(exc).__name__}: {exc}")
     return errors, added
+
+
+def _read_batches(paths, snapshots, overrides, column_map, column_maps, companions, errors):
+    """(snapshots, their files' findings, number of the first, how many in all) to annotate, batch by
+    batch: ``snapshots`` as given; the bundled demo file by file, so the first chain is annotated and
+    shown without waiting for the others to be read (its files hold different underlyings: nothing
+    would merge across them; with an override of the underlying they are read together, as any
+    files); else all ``paths`` at once (snapshots in different files may merge)."""
+    if snapshots is not None:
+        yield list(snapshots), [], 0, len(snapshots)
+        return
+    if not paths and (overrides is None or overrides.underlying is None):
+        names = demo_files()
+        if not names:
+            raise ChainTriageError(
+                "no demo chains are bundled with this installation; give snapshot files to open")
+        root = resources.files(DEMO_PACKAGE)
+        for i, name in enumerate(names):
+            with resources.as_file(root / name) as path:
+                result = load_for_app([str(path)], overrides=overrides, column_map=column_map)
+            errors.extend(str(e) for e in result.errors)
+            yield result.snapshots, result.findings, i, len(names)
+        return
+    result = load_for_app(paths, overrides=overrides, column_map=column_map, column_maps=column_maps)
+    errors.extend(str(e) for e in result.errors)
+    snapshots, load_findings = result.snapshots, result.findings
+    if companions is not None:
+        snapshots, load_findings = _merge_with_shown(snapshots, load_findings, result, companions,
+                                                     overrides, column_maps, paths)
+    yield snapshots, load_findings, 0, len(snapshots)
+
+
+def _annotate_batch(snapshots, load_findings, n_first, n_all, settings, level, added, errors,
+                    on_busy, on_view, on_replace) -> int:
+    """``load_views``' work on one batch of snapshots; returns how many views were handed over in all."""
+    for n, snap in enumerate(snapshots, start=n_first):
+        on_busy(f"computing {fm.clean_text(snap.underlying)} "
+                f"({len(snap.contracts):,} contracts, {n + 1} of {max(n_all, n + 1)})")
+        partial = None
+        shown = False
+        try:
+            if on_replace is not None and len(snap.contracts) > FIRST_EXPIRY_FIRST_ABOVE:
+                parts = annotate_views_in_parts(snap, settings, load_findings, level())
+                view = next(parts)
+                if len(view.expiries) < snap.contracts["expiry"].nunique():  # a part: show it, then the rest
+                    view.partial = True
+                    on_view(view, added == 0)
+                    on_busy(f"computing {fm.clean_text(snap.underlying)}: the other expiries "
+                            f"({len(snap.contracts) - len(view):,} contracts)")
+                    whole = next(parts, None)  # None: far strikes left no other expiry, it was the whole
+                    shown = whole is None
+                    if whole is None:
+                        view.partial = False
+                    partial, view = (None, view) if whole is None else (view, whole)
+            else:
+                view = annotate_view(snap, settings, load_findings, level(), precompute=1)
+        except ChainTriageError as exc:
+            errors.append(f"{snap.label}: {exc}")
+            continue
+        if partial is not None:
+            on_replace(partial, view)
+        elif not shown:
+            on_view(view, added == 0)
+        added += 1
+        precompute_view(view, level(), start=1, pause=YIELD_SECONDS)
+    return added
 
 
 def _merge_with_shown(snapshots, load_findings, result, companions, overrides, column_maps, paths):
