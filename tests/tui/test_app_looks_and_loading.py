@@ -251,6 +251,36 @@ def test_loading_freezes_the_heap_while_the_app_runs_and_hands_it_back_at_exit()
     assert gc.get_freeze_count() == 0
 
 
+@pytest.mark.parametrize("enabled_before", [True, False])
+def test_the_collector_is_paused_for_the_imports_only(monkeypatch, enabled_before):
+    # [D] the numerical modules are imported with automatic cycle collection off (its passes over the
+    # growing heap cost ~30 ms of the start); afterwards the collector is as it was before.
+    seen = []
+    real_import = snapshot_loading.import_numerical_modules
+
+    def recording_import():
+        seen.append(gc.isenabled())
+        real_import()
+
+    monkeypatch.setattr(snapshot_loading, "import_numerical_modules", recording_import)
+    was = gc.isenabled()
+    (gc.enable if enabled_before else gc.disable)()
+    app = make_app(paths=())
+    after = []
+
+    async def main():
+        async with app.run_test(size=(120, 30)) as pilot:
+            await wait_ready(app, pilot)
+            after.append(gc.isenabled())
+
+    try:
+        asyncio.run(main())
+    finally:
+        (gc.enable if was else gc.disable)()
+    assert seen == [False]
+    assert after == [enabled_before]
+
+
 def test_opening_another_file_from_inside_the_app(tmp_path):
     good = write_chain(tmp_path / "qrtz.csv")
     bad = tmp_path / "bad.csv"
