@@ -154,8 +154,9 @@ def load_views(paths: Sequence[str], *, snapshots: Sequence[Snapshot] | None = N
                column_maps: Sequence[ColumnMap | None] | None = None,
                companions: Callable[[Snapshot], list[tuple[str, ColumnMap | None]]] | None = None,
                ) -> tuple[list[str], int]:
-    """The background job: read ``paths`` (the demo when empty; or take ``snapshots`` already read),
-    annotate each snapshot and hand each view to ``on_view(view, first)`` as soon as it is ready.
+    """The background job: read ``paths`` (the demo when empty, file by file; or take ``snapshots``
+    already read), annotate each snapshot and hand each view to ``on_view(view, first)`` as soon as
+    it is ready.
 
     With ``on_replace``, a snapshot of more than FIRST_EXPIRY_FIRST_ABOVE contracts is handed
     over first as a view of its first expiry alone, then ``on_replace(partial, whole)`` swaps in
