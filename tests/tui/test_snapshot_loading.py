@@ -100,3 +100,51 @@ def test_a_views_findings_without_underlying_are_picked_from_the_table(tmp_path)
     assert picked[0].line == 41 and "underlying" in picked[0].reason
     assert file_findings_without_underlying(list(result.findings), sources) == by_hand
     assert file_findings_without_underlying(result.findings, ["elsewhere.csv"]) == []
+
+
+def _recording_loads(monkeypatch):
+    calls, events = [], []
+    real = snapshot_loading.load_for_app
+
+    def recording(paths, **kwargs):
+        calls.append([p.rsplit("/", 1)[-1] for p in paths])
+        events.append(("read", len(paths)))
+        return real(paths, **kwargs)
+
+    monkeypatch.setattr(snapshot_loading, "load_for_app", recording)
+    return calls, events
+
+
+def test_the_demo_is_read_file_by_file_and_its_first_chain_shown_before_the_second_is_read(monkeypatch):
+    """[D] the first data frame waits for one demo file only; the views are those of reading the files
+    together (different underlyings: nothing merges), in the same order, with the same findings."""
+    calls, events = _recording_loads(monkeypatch)
+    views = []
+
+    def on_view(view, first):
+        events.append(("view", view.snapshot.underlying))
+        views.append(view)
+
+    errors, added = load_views([], on_view=on_view, on_replace=lambda old, new: views.append(new))
+    assert errors == [] and added == len(demo_files()) == 2
+    assert calls == [[name] for name in demo_files()]
+    assert events[:2] == [("read", 1), ("view", events[1][1])]
+    monkeypatch.undo()
+    from chaintriage.tui.session import file_findings_without_underlying
+
+    together = snapshot_loading.load_for_app([])
+    wholes = [v for v in views if not v.partial]
+    assert [v.snapshot.underlying for v in wholes] == [s.underlying for s in together.snapshots]
+    for view, snap in zip(wholes, together.snapshots):
+        assert len(view.snapshot.contracts) == len(snap.contracts)
+        assert view._file_findings == file_findings_without_underlying(together.findings, snap.sources)
+
+
+def test_with_an_underlying_override_the_demo_files_are_read_together(monkeypatch):
+    """[D] an override of the underlying makes the demo's chains one underlying: read together, as
+    files given together are, so they merge as the command line merges them."""
+    from chaintriage.core.loading import SnapshotOverrides
+
+    calls, _ = _recording_loads(monkeypatch)
+    load_views([], overrides=SnapshotOverrides(underlying="SAME"))
+    assert calls == [[]]
