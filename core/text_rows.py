@@ -51,10 +51,21 @@ def line_matrix(columns: list[np.ndarray], sep: bytes = b",", end: bytes = b"\n"
         if j:
             lines[:, at:at + len(sep)] = seps
             at += len(sep)
-        lines[:, at:at + w] = cells
+        if w and n:
+            place_cells(lines, at, cells)
         at += w
     lines[:, at:] = ends
     return lines
+
+
+def place_cells(lines: np.ndarray, at: int, cells: np.ndarray) -> None:
+    """Copy ``cells`` (rows x w bytes) into columns ``at``..``at + w`` of ``lines`` (C-contiguous rows):
+    each cell moved whole, as one w-byte element (several times faster than byte by byte)."""
+    n, w = cells.shape
+    if not cells.flags.c_contiguous:  # e.g. a transposed (byte position, row) matrix: made rows first
+        cells = np.ascontiguousarray(cells)
+    target = np.ndarray((n,), dtype=f"V{w}", buffer=lines, offset=at, strides=(lines.strides[0],))
+    target[...] = cells.view(f"V{w}").reshape(n)
 
 
 def strip_line_ends(lines: np.ndarray, end: int = 1) -> np.ndarray:
