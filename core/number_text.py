@@ -38,6 +38,10 @@ _POW10 = np.array([float(Fraction(10) ** k) for k in range(-300, 301)])
 
 _ZERO, _POINT, _MINUS, _PLUS, _E = 48, 46, 45, 43, 101
 
+#: 0, 1, 2, ...: digit positions, as a column to compare whole (position, value) arrays against.
+_PLACES = np.arange(MAX_PRECISION, dtype=np.int32)
+
+
 def general_bytes(values, precision: int = 10, nan: str = "nan", trim: bool = True) -> np.ndarray:
     """``'%.{precision}g' % v`` of every value as a uint8 matrix with holes: row i's nonzero bytes,
     in order, are value i's text (ASCII). Columns that are zero in every row are left out (kept
@@ -91,57 +95,61 @@ def _fast(x: np.ndarray, p: int, by_position: np.ndarray) -> np.ndarray:
 
     One layout serves every value, a column per possible byte: sign; "0.000" before the digits of
     a fixed-notation value below 1; each digit followed by a possible point; "e-308". A byte that
-    the value's text has not is zero.
+    the value's text has not is zero. Digits, the points between them and which of them show are
+    worked out for all digit positions at once (2-d arrays, digit position x value).
     """
     n = x.size
     a = np.abs(x)
     lo = 10.0 ** (p - 1)
-    e = np.floor(np.log10(a)).astype(np.int64)
-    y = a * _POW10[p - 1 - e + 300]
+    # int32 exponents: indexing the powers of ten with them is several times faster than with int64
+    e = np.floor(np.log10(a)).astype(np.int32)
+    y = a * _POW10[(p + 299) - e]
     low, high = y < lo, y >= 10.0 * lo
     if low.any() or high.any():
         e = e - low + high
-        y = np.where(low | high, a * _POW10[p - 1 - e + 300], y)
+        y = np.where(low | high, a * _POW10[(p + 299) - e], y)
     margin = max(1e-4, 64 * 2.0 ** -52 * 10.0 ** p)
     r = np.rint(y)
+    # near a half (|y - r| is at most 0.5) or off the mantissa range: decided by Python's printf
+    lone = (np.abs(y - r) > 0.5 - margin) | (y < lo) | (y >= 10.0 * lo)
     # near a power of ten either exponent gives the same text (a mantissa just under 10**p rounds up to it)
-    lone = (np.abs(np.abs(y - r) - 0.5) < margin) | ~((y >= lo) & (y < 10.0 * lo))
     carry = r >= 10.0 * lo  # rounded up to the next power of ten: 10**(p-1), one exponent higher
-    r[carry] = lo
     e += carry
-    r[lone] = lo
+    r = np.where(carry | lone, lo, r)
     sci = (e < -4) | (e >= p)
     fixed_below_one = ~sci & (e < 0)
     # the mantissa's digits, most significant first, from two halves of at most 6 digits (uint32)
+    digits = np.empty((p, n), dtype=np.uint8)
     half = 10.0 ** (p // 2)
     top = np.floor(r / half)
-    halves = [(top.astype(np.uint32), p - p // 2), ((r - top * half).astype(np.uint32), p // 2)]
-    digits = []
-    for h, count in halves:
-        part = []
-        for _ in range(count):
+    at = 0
+    for h, count in ((top.astype(np.uint32), p - p // 2), ((r - top * half).astype(np.uint32), p // 2)):
+        for k in range(at + count - 1, at - 1, -1):
             q = h // np.uint32(10)
-            part.append((h - q * np.uint32(10)).astype(np.uint8))
+            np.subtract(h, q * np.uint32(10), out=digits[k], casting="unsafe")
             h = q
-        digits.extend(reversed(part))
+        at += count
     # a digit is shown when a nonzero digit follows it or it lies in the integer part
+    later = digits != 0
+    for k in range(p - 2, -1, -1):
+        np.logical_or(later[k], later[k + 1], out=later[k])
     intlen = np.where(sci, 1, np.maximum(e + 1, 0))
-    shown = [None] * p
-    later = np.zeros(n, dtype=bool)
-    for k in range(p - 1, -1, -1):
-        later = later | (digits[k] != 0)
-        shown[k] = later | (k < intlen)
+    shown = later | (_PLACES[:p, None] < intlen)
     # the point: after the integer part (fixed) or the first digit (scientific), when a digit follows
     point_after = np.where(sci, 0, e)
-    rows = [(x < 0, _MINUS), (fixed_below_one, _ZERO), (fixed_below_one, _POINT)]
-    rows += [(~sci & (e <= -k), _ZERO) for k in (2, 3, 4)]
-    for k in range(p):
-        rows.append((shown[k], digits[k] + np.uint8(_ZERO)))
-        if k < p - 1:
-            rows.append(((point_after == k) & shown[k + 1], _POINT))
-    for j, (mask, byte) in enumerate(rows):
-        np.multiply(mask.view(np.uint8), np.uint8(byte) if np.isscalar(byte) else byte, out=by_position[j])
-    j = len(rows)
+    sign = (x < 0).view(np.uint8)
+    np.multiply(sign, np.uint8(_MINUS), out=by_position[0])
+    below = fixed_below_one.view(np.uint8)
+    np.multiply(below, np.uint8(_ZERO), out=by_position[1])
+    np.multiply(below, np.uint8(_POINT), out=by_position[2])
+    for j, k in ((3, 2), (4, 3), (5, 4)):  # zeros after "0." of 0.0x, 0.00x, 0.000x
+        np.multiply((fixed_below_one & (e <= -k)).view(np.uint8), np.uint8(_ZERO), out=by_position[j])
+    # digit k at position 6 + 2k, the point after it at 7 + 2k
+    np.add(digits, np.uint8(_ZERO), out=digits)
+    np.multiply(digits, shown.view(np.uint8), out=by_position[6:6 + 2 * p:2])
+    points = (point_after == _PLACES[:p - 1, None]) & shown[1:]
+    np.multiply(points.view(np.uint8), np.uint8(_POINT), out=by_position[7:5 + 2 * p:2])
+    j = 5 + 2 * p
     if not sci.any():  # no exponent anywhere in the chunk
         by_position[j:] = 0
         return lone
