@@ -37,13 +37,16 @@ def text_bytes(texts: list[str]) -> np.ndarray:
     return narrow.view(np.uint8).reshape(len(texts), width)
 
 
-def line_matrix(columns: list[np.ndarray], sep: bytes = b",", end: bytes = b"\n") -> np.ndarray:
+def line_matrix(columns: list, sep: bytes = b",", end: bytes = b"\n") -> np.ndarray:
     """Each row's cells (the matrices of ``columns``, equal row counts) side by side, ``sep`` between
-    them and ``end`` after: one row per line, with holes. ``sep`` and ``end`` hold no NUL byte."""
-    n = columns[0].shape[0]
+    them and ``end`` after: one row per line, with holes. ``sep`` and ``end`` hold no NUL byte.
+
+    A column may also be a pair (distinct cells, codes): its row i is ``distinct[codes[i]]`` (a
+    column's distinct texts laid out once, gathered straight into the lines)."""
+    n = _rows(columns[0])
     seps = np.frombuffer(sep, dtype=np.uint8)
     ends = np.frombuffer(end, dtype=np.uint8)
-    widths = [c.shape[1] for c in columns]
+    widths = [(c[0] if isinstance(c, tuple) else c).shape[1] for c in columns]
     total = sum(widths) + len(sep) * (len(columns) - 1) + len(end)
     lines = np.empty((n, total), dtype=np.uint8)
     at = 0
@@ -52,20 +55,31 @@ def line_matrix(columns: list[np.ndarray], sep: bytes = b",", end: bytes = b"\n"
             lines[:, at:at + len(sep)] = seps
             at += len(sep)
         if w and n:
-            place_cells(lines, at, cells)
+            if isinstance(cells, tuple):
+                place_cells(lines, at, *cells)
+            else:
+                place_cells(lines, at, cells)
         at += w
     lines[:, at:] = ends
     return lines
 
 
-def place_cells(lines: np.ndarray, at: int, cells: np.ndarray) -> None:
-    """Copy ``cells`` (rows x w bytes) into columns ``at``..``at + w`` of ``lines`` (C-contiguous rows):
-    each cell moved whole, as one w-byte element (several times faster than byte by byte)."""
-    n, w = cells.shape
+def _rows(column) -> int:
+    return len(column[1]) if isinstance(column, tuple) else column.shape[0]
+
+
+def place_cells(lines: np.ndarray, at: int, cells: np.ndarray, codes: np.ndarray | None = None) -> None:
+    """Copy ``cells`` (rows x w bytes), or with ``codes`` the rows ``cells[codes]``, into columns
+    ``at``..``at + w`` of ``lines`` (C-contiguous rows): each cell moved whole, as one w-byte element
+    (several times faster than byte by byte)."""
+    w = cells.shape[1]
     if not cells.flags.c_contiguous:  # e.g. a transposed (byte position, row) matrix: made rows first
         cells = np.ascontiguousarray(cells)
-    target = np.ndarray((n,), dtype=f"V{w}", buffer=lines, offset=at, strides=(lines.strides[0],))
-    target[...] = cells.view(f"V{w}").reshape(n)
+    whole = cells.view(f"V{w}").reshape(cells.shape[0])
+    if codes is not None:
+        whole = whole[codes]
+    target = np.ndarray((len(whole),), dtype=f"V{w}", buffer=lines, offset=at, strides=(lines.strides[0],))
+    target[...] = whole
 
 
 def strip_line_ends(lines: np.ndarray, end: int = 1) -> np.ndarray:

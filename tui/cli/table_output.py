@@ -372,9 +372,12 @@ def _plain_rows(coded: list, widths: list[int], left: list[bool], n: int, out: T
     # a line ends in spaces only where its last cell may: left-aligned, or an empty or blank-ended text
     last = coded[-1][1].tolist()
     strip = left[-1] or any(t[-1:] in ("", " ") for t in last)
+    # ASCII cells are padded to their width with spaces (no holes): unless line ends are stripped, the
+    # lines are the matrix's bytes as they are
+    holes = strip or not all(m.all() for m in cells)
     for a in range(0, n, BLOCK_ROWS):
-        lines = line_matrix([m[codes[a:a + BLOCK_ROWS]] for (codes, _), m in zip(coded, cells)], sep=b"  ")
-        out.write(compact(strip_line_ends(lines) if strip else lines).decode("utf-8"))
+        lines = line_matrix([(m, codes[a:a + BLOCK_ROWS]) for (codes, _), m in zip(coded, cells)], sep=b"  ")
+        out.write((compact(strip_line_ends(lines) if strip else lines) if holes else lines.tobytes()).decode("utf-8"))
 
 
 def _plain_cells(texts: np.ndarray, width: int, left: bool) -> np.ndarray:
@@ -506,7 +509,7 @@ def _csv_lines(frame: pd.DataFrame, out: TextIO) -> None:
                 cells.append(bp[bp.any(axis=1)].T)
             else:
                 codes, matrix = coded[j]
-                cells.append(matrix[codes[a:a + rows]])
+                cells.append((matrix, codes[a:a + rows]))
         out.write(join_lines(cells).decode("utf-8"))
 
 
@@ -586,7 +589,7 @@ def _json_records(frame: pd.DataFrame, out: TextIO, first: bool) -> None:
             for j in range(frame.shape[1]):
                 codes, matrix = coded[j] if j in coded else _json_cells(block.iloc[:, j])
                 cells += [np.broadcast_to(keys[j], (len(block), keys[j].size)),
-                          matrix[codes[a:a + len(block)] if j in coded else codes]]
+                          (matrix, codes[a:a + len(block)] if j in coded else codes)]
             lines = line_matrix(cells, sep=b"", end=b"\n },\n")
             text = compact(lines)[:-2].decode("utf-8")  # records joined by ",\n"
             out.write(("" if a == 0 and first else ",\n") + text)
