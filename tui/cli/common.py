@@ -97,6 +97,33 @@ def write_out(text: str) -> None:
         stdout_to_devnull()
 
 
+def write_out_bytes(data) -> None:
+    """Write UTF-8 text given as bytes (or a byte buffer) to stdout (a big table's lines): straight to its byte stream
+    when stdout writes UTF-8 with plain line feeds, so the text is not decoded and encoded again;
+    else as text (``write_out``). The same quiet stop when the reader has gone away."""
+    global _pipe_closed
+    if _pipe_closed:
+        return
+    stream = sys.stdout
+    raw = getattr(stream, "buffer", None)
+    if raw is None or os.linesep != "\n" or not _is_utf8(stream):
+        write_out(bytes(data).decode("utf-8"))
+        return
+    try:
+        stream.flush()  # text written before goes first
+        raw.write(data)
+    except BrokenPipeError:
+        _pipe_closed = True
+        stdout_to_devnull()
+
+
+def _is_utf8(stream: TextIO) -> bool:
+    try:
+        return codecs.lookup(getattr(stream, "encoding", None) or "ascii").name == "utf-8"
+    except LookupError:
+        return False
+
+
 def flush_out() -> None:
     """Flush stdout, with the same quiet stop as ``write_out``."""
     global _pipe_closed
@@ -117,6 +144,10 @@ class StdoutWriter:
     def write(self, text: str) -> int:
         write_out(text)
         return len(text)
+
+    def write_bytes(self, data: bytes) -> None:
+        """Write UTF-8 text given as bytes (``write_out_bytes``)."""
+        write_out_bytes(data)
 
     def flush(self) -> None:
         flush_out()

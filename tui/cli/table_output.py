@@ -377,7 +377,7 @@ def _plain_rows(coded: list, widths: list[int], left: list[bool], n: int, out: T
     holes = strip or not all(m.all() for m in cells)
     for a in range(0, n, BLOCK_ROWS):
         lines = line_matrix([(m, codes[a:a + BLOCK_ROWS]) for (codes, _), m in zip(coded, cells)], sep=b"  ")
-        out.write((compact(strip_line_ends(lines) if strip else lines) if holes else lines.tobytes()).decode("utf-8"))
+        _write_bytes(out, compact(strip_line_ends(lines) if strip else lines) if holes else memoryview(lines).cast("B"))
 
 
 def _plain_cells(texts: np.ndarray, width: int, left: bool) -> np.ndarray:
@@ -510,7 +510,17 @@ def _csv_lines(frame: pd.DataFrame, out: TextIO) -> None:
             else:
                 codes, matrix = coded[j]
                 cells.append((matrix, codes[a:a + rows]))
-        out.write(join_lines(cells).decode("utf-8"))
+        _write_bytes(out, join_lines(cells))
+
+
+def _write_bytes(out: TextIO, data) -> None:
+    """UTF-8 text given as bytes (or a byte buffer) to ``out``: through its ``write_bytes`` where it has one (stdout, see
+    ``common.StdoutWriter``), else decoded."""
+    put = getattr(out, "write_bytes", None)
+    if put is None:
+        out.write(bytes(data).decode("utf-8"))
+    else:
+        put(data)
 
 
 def _csv_header(name: object) -> str:
@@ -591,8 +601,9 @@ def _json_records(frame: pd.DataFrame, out: TextIO, first: bool) -> None:
                 cells += [np.broadcast_to(keys[j], (len(block), keys[j].size)),
                           (matrix, codes[a:a + len(block)] if j in coded else codes)]
             lines = line_matrix(cells, sep=b"", end=b"\n },\n")
-            text = compact(lines)[:-2].decode("utf-8")  # records joined by ",\n"
-            out.write(("" if a == 0 and first else ",\n") + text)
+            if not (a == 0 and first):
+                out.write(",\n")
+            _write_bytes(out, compact(lines)[:-2])  # records joined by ",\n"
     except ValueError:  # a text with a NUL character (``text_bytes``): string by string
         _json_records_as_strings(frame, out, first)
 
