@@ -476,8 +476,23 @@ def _csv_column(s: pd.Series) -> np.ndarray:
 def _coded_cells(s: pd.Series, fn) -> tuple[np.ndarray, np.ndarray]:
     """(codes, matrix): ``fn`` of each distinct value of a column as UTF-8 bytes (``core.text_rows``),
     ``matrix[codes]`` being the column's cells."""
-    codes, uniq = pd.factorize(s.astype(object) if _is_text(s) else s, use_na_sentinel=False)
+    codes, uniq = _factorized(s)
     return codes, text_bytes([fn(u) for u in uniq])
+
+
+def _factorized(s: pd.Series) -> tuple[np.ndarray, object]:
+    """``pd.factorize`` of a column (missing values a value of their own), text as Python objects.
+
+    A text column whose missing value is NaN (pandas' ``str``) is factorized as it is, a few times
+    faster than as objects and with the same codes and values; other text columns as objects."""
+    if _is_text(s) and not _nan_missing_text(s.dtype):
+        s = s.astype(object)
+    return pd.factorize(s, use_na_sentinel=False)
+
+
+def _nan_missing_text(dtype) -> bool:
+    na = getattr(dtype, "na_value", None)
+    return isinstance(dtype, pd.StringDtype) and isinstance(na, float) and math.isnan(na)
 
 
 def _csv_lines(frame: pd.DataFrame, out: TextIO) -> None:
@@ -623,7 +638,7 @@ def _json_cells(s: pd.Series) -> tuple[np.ndarray, np.ndarray]:
             codes = np.where(negative_zero, len(texts), codes)
             texts.append("-0.0")
     else:
-        codes, uniq = pd.factorize(s.astype(object) if _is_text(s) else s, use_na_sentinel=False)
+        codes, uniq = _factorized(s)
         texts = [_json_scalar(u) for u in uniq]
     return codes, text_bytes(texts)
 
