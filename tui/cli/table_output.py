@@ -345,11 +345,22 @@ def write_plain(frame: pd.DataFrame, out: TextIO) -> None:
 
 
 def _plain_coded(frame: pd.DataFrame) -> tuple[list, list[int], list[bool]]:
-    """Each column's (codes, texts), the widths of its heading and widest text, and which are left-aligned."""
+    """Each column's (codes, texts, ASCII texts), the widths of its heading and widest text, and which
+    are left-aligned. The ASCII texts are ``texts`` as a numpy bytes array, None when one is not ASCII."""
     headings, kinds = _plain_kinds(frame)
-    coded = [_format_codes(frame.iloc[:, j], k) for j, k in enumerate(kinds)]
-    widths = [max(len(h), int(np.char.str_len(texts.astype(str)).max())) if len(codes) else len(h)
-              for h, (codes, texts) in zip(headings, coded)]
+    coded = [(*_format_codes(frame.iloc[:, j], k), None) for j, k in enumerate(kinds)]
+    widths = []
+    for j, (h, (codes, texts, _)) in enumerate(zip(headings, coded)):
+        if not len(codes):
+            widths.append(len(h))
+            continue
+        try:  # ASCII texts (numbers always): their lengths at C speed, the array kept for the cells
+            narrow = np.array(texts.tolist(), dtype=bytes)
+            coded[j] = (codes, texts, narrow)
+            longest = int(np.strings.str_len(narrow).max())
+        except UnicodeEncodeError:
+            longest = int(np.strings.str_len(texts.astype(str)).max())
+        widths.append(max(len(h), longest))
     return coded, widths, [k in ("text", "date") for k in kinds]
 
 
@@ -365,7 +376,7 @@ def _plain_rows(coded: list, widths: list[int], left: list[bool], n: int, out: T
         out.write("\n" * n)
         return
     try:
-        cells = [_plain_cells(texts, w, lft) for (codes, texts), w, lft in zip(coded, widths, left)]
+        cells = [_plain_cells(texts, w, lft, narrow) for (codes, texts, narrow), w, lft in zip(coded, widths, left)]
     except ValueError:  # a text Python's rstrip would treat otherwise than bytes (NUL, other blanks)
         _plain_rows_as_strings(coded, widths, left, n, out)
         return
@@ -376,13 +387,14 @@ def _plain_rows(coded: list, widths: list[int], left: list[bool], n: int, out: T
     # lines are the matrix's bytes as they are
     holes = strip or not all(m.all() for m in cells)
     for a in range(0, n, BLOCK_ROWS):
-        lines = line_matrix([(m, codes[a:a + BLOCK_ROWS]) for (codes, _), m in zip(coded, cells)], sep=b"  ")
+        lines = line_matrix([(m, codes[a:a + BLOCK_ROWS]) for (codes, *_), m in zip(coded, cells)], sep=b"  ")
         _write_bytes(out, compact(strip_line_ends(lines) if strip else lines) if holes else memoryview(lines).cast("B"))
 
 
-def _plain_cells(texts: np.ndarray, width: int, left: bool) -> np.ndarray:
+def _plain_cells(texts: np.ndarray, width: int, left: bool, narrow: np.ndarray | None = None) -> np.ndarray:
     """Each distinct text of a column padded with spaces to ``width`` characters (left- or
-    right-aligned), as a byte matrix with holes (``core.text_rows``).
+    right-aligned), as a byte matrix with holes (``core.text_rows``). ``narrow``: the texts as a
+    numpy bytes array when they are ASCII (``_plain_coded``).
 
     Raises ValueError for a text with a NUL or ending in a blank other than a space.
     """
@@ -391,10 +403,14 @@ def _plain_cells(texts: np.ndarray, width: int, left: bool) -> np.ndarray:
         raise ValueError("a text ends in a blank other than a space")
     if "\0" in "".join(listed):  # numpy's strings would drop a trailing one
         raise ValueError("a text cell holds a NUL character")
-    wide = np.array(listed, dtype=str)
-    padded = np.strings.ljust(wide, width) if left else np.strings.rjust(wide, width)
+    if narrow is not None:  # ASCII: every cell exactly ``width`` bytes, no holes
+        narrow = np.strings.ljust(narrow, width) if left else np.strings.rjust(narrow, width)
+    else:
+        wide = np.array(listed, dtype=str)
+        padded = np.strings.ljust(wide, width) if left else np.strings.rjust(wide, width)
     try:
-        narrow = padded.astype(bytes)  # ASCII: every cell exactly ``width`` bytes, no holes
+        if narrow is None:
+            narrow = padded.astype(bytes)
     except UnicodeEncodeError:
         body = text_bytes(listed)
         short = width - np.char.str_len(wide).astype(np.int64)
@@ -410,7 +426,7 @@ def _plain_cells(texts: np.ndarray, width: int, left: bool) -> np.ndarray:
 
 def _plain_rows_as_strings(coded: list, widths: list[int], left: list[bool], n: int, out: TextIO) -> None:
     padded = [(codes, np.array([t.ljust(w) if lft else t.rjust(w) for t in texts], dtype=object))
-              for (codes, texts), w, lft in zip(coded, widths, left)]
+              for (codes, texts, _), w, lft in zip(coded, widths, left)]
     for a in range(0, n, BLOCK_ROWS):
         block = [texts[codes[a:a + BLOCK_ROWS]].tolist() for codes, texts in padded]
         out.write("\n".join(r.rstrip() for r in map("  ".join, zip(*block))) + "\n")
