@@ -42,7 +42,8 @@ _ZERO, _POINT, _MINUS, _PLUS, _E = 48, 46, 45, 43, 101
 _PLACES = np.arange(MAX_PRECISION, dtype=np.int32)
 
 
-def general_bytes(values, precision: int = 10, nan: str = "nan", trim: bool = True) -> np.ndarray:
+def general_bytes(values, precision: int = 10, nan: str = "nan", trim: bool = True,
+                  out: np.ndarray | None = None) -> np.ndarray:
     """``'%.{precision}g' % v`` of every value as a uint8 matrix with holes: row i's nonzero bytes,
     in order, are value i's text (ASCII). Columns that are zero in every row are left out (kept
     when ``trim`` is false). The
@@ -51,13 +52,20 @@ def general_bytes(values, precision: int = 10, nan: str = "nan", trim: bool = Tr
 
     ``values``: anything numpy turns into float64 (1-d). ``precision``: 1..``MAX_PRECISION``.
     ``nan``: the text of NaN (ASCII, at most 8 characters; "" leaves the row empty).
+    ``out``: a uint8 (2 * precision + 10) x len(values) array to write the (byte position, value)
+    array into (each row contiguous), e.g. one reused from block to block: fresh memory costs the
+    kernel's page faults.
     """
     if not 1 <= precision <= MAX_PRECISION:
         raise ValueError(f"precision {precision} outside 1..{MAX_PRECISION}")
     x = np.ascontiguousarray(values, dtype=np.float64).ravel()
     p = precision
     width = 2 * p + 10  # the fast layout (see _fast); holds any of the texts below too
-    by_position = np.empty((width, x.size), dtype=np.uint8)
+    if out is None:
+        out = np.empty((width, x.size), dtype=np.uint8)
+    elif out.shape != (width, x.size) or out.dtype != np.uint8 or out.strides[1] != 1:
+        raise ValueError(f"out must be a uint8 {width} x {x.size} array with contiguous rows")
+    by_position = out
     out = by_position.T
     for a in range(0, x.size, CHUNK):
         part = x[a:a + CHUNK]

@@ -37,18 +37,23 @@ def text_bytes(texts: list[str]) -> np.ndarray:
     return narrow.view(np.uint8).reshape(len(texts), width)
 
 
-def line_matrix(columns: list, sep: bytes = b",", end: bytes = b"\n") -> np.ndarray:
+def line_matrix(columns: list, sep: bytes = b",", end: bytes = b"\n", room: np.ndarray | None = None) -> np.ndarray:
     """Each row's cells (the matrices of ``columns``, equal row counts) side by side, ``sep`` between
     them and ``end`` after: one row per line, with holes. ``sep`` and ``end`` hold no NUL byte.
 
     A column may also be a pair (distinct cells, codes): its row i is ``distinct[codes[i]]`` (a
-    column's distinct texts laid out once, gathered straight into the lines)."""
+    column's distinct texts laid out once, gathered straight into the lines). ``room``: a flat
+    uint8 array to lay the lines in when it is big enough (one reused from block to block spares
+    the kernel's page faults of fresh memory); the result is then a view of it."""
     n = _rows(columns[0])
     seps = np.frombuffer(sep, dtype=np.uint8)
     ends = np.frombuffer(end, dtype=np.uint8)
     widths = [(c[0] if isinstance(c, tuple) else c).shape[1] for c in columns]
     total = sum(widths) + len(sep) * (len(columns) - 1) + len(end)
-    lines = np.empty((n, total), dtype=np.uint8)
+    if room is not None and room.size >= n * total:
+        lines = room[:n * total].reshape(n, total)
+    else:
+        lines = np.empty((n, total), dtype=np.uint8)
     at = 0
     for j, (cells, w) in enumerate(zip(columns, widths)):
         if j:
@@ -100,9 +105,10 @@ def compact(lines: np.ndarray) -> bytes:
     return lines.tobytes().translate(None, b"\0")
 
 
-def join_lines(columns: list[np.ndarray], sep: bytes = b",", end: bytes = b"\n") -> bytes:
-    """Each row's cells (the matrices of ``columns``, equal row counts) joined by ``sep``, ended by
-    ``end``: the bytes of all the lines. ``sep`` and ``end`` hold no NUL byte."""
+def join_lines(columns: list, sep: bytes = b",", end: bytes = b"\n", room: np.ndarray | None = None) -> bytes:
+    """Each row's cells (the matrices of ``columns``, equal row counts, or pairs as ``line_matrix``
+    takes them) joined by ``sep``, ended by ``end``: the bytes of all the lines. ``sep`` and ``end``
+    hold no NUL byte. ``room``: as ``line_matrix``."""
     if not columns:
         return b""
-    return compact(line_matrix(columns, sep, end))
+    return compact(line_matrix(columns, sep, end, room))

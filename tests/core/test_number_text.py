@@ -14,7 +14,7 @@ import numpy as np
 import pytest
 
 from chaintriage.core.number_text import MAX_PRECISION, as_strings, general_bytes, general_strings
-from chaintriage.core.text_rows import join_lines, text_bytes
+from chaintriage.core.text_rows import compact, join_lines, line_matrix, text_bytes
 
 
 def random_doubles(n: int, seed: int) -> np.ndarray:
@@ -118,3 +118,27 @@ def test_join_lines_equals_str_join():
     assert join_lines([]) == b""
     with pytest.raises(ValueError):
         text_bytes(["a\0b"])
+
+
+def test_join_lines_with_gathered_columns_and_reused_memory():
+    """Columns given as (distinct cells, codes), lines laid in reused memory, decimals written into a
+    given array: the same text as ``str.join`` of Python's printf [L]."""
+    rng = np.random.default_rng(4)
+    words = np.array(["call", "put", "", "caf\u00e9", "x,y"], dtype=object)
+    room = np.empty(0, dtype=np.uint8)
+    out = np.full((2 * 10 + 10, 4000), 255, dtype=np.uint8)  # stale bytes everywhere
+    for n in (4000, 1500, 4000):  # the room too small, then big enough, then a view again
+        nums = rng.normal(size=n) * 10.0 ** rng.integers(-6, 8, n)
+        nums[::5] = np.nan
+        codes = rng.integers(0, words.size, n)
+        numbers = general_bytes(nums, 10, nan="", trim=False, out=out[:, :n])
+        assert np.shares_memory(numbers, out)
+        lines = line_matrix([numbers, (text_bytes(list(words)), codes)], room=room)
+        if lines.size <= room.size:
+            assert np.shares_memory(lines, room)
+        else:
+            room = lines.reshape(-1)
+        expected = "".join(f"{'' if np.isnan(v) else '%.10g' % v},{w}\n" for v, w in zip(nums.tolist(), words[codes]))
+        assert compact(lines).decode("utf-8") == expected
+    with pytest.raises(ValueError):
+        general_bytes(np.ones(3), 10, out=np.empty((30, 4), dtype=np.uint8))

@@ -32,7 +32,7 @@ import numpy as np
 import pandas as pd
 
 from chaintriage.core.number_text import as_strings, fixed_bytes, general_bytes
-from chaintriage.core.text_rows import compact, join_lines, line_matrix, strip_line_ends, text_bytes
+from chaintriage.core.text_rows import compact, line_matrix, strip_line_ends, text_bytes
 from chaintriage.tui.cli.common import one_line, plain
 from chaintriage.tui.shortlist import neutralise_formula
 from chaintriage.tui.formatting import (
@@ -519,6 +519,10 @@ def _csv_lines(frame: pd.DataFrame, out: TextIO) -> None:
     slot = {j: i for i, j in enumerate(floats)}
     coded = {j: _coded_cells(frame.iloc[:, j], _csv_cell_text if _is_text(frame.iloc[:, j]) else _csv_scalar)
              for j in range(frame.shape[1]) if j not in slot}
+    # memory reused from block to block (fresh memory costs the kernel's page faults): the decimals'
+    # text by byte position, and the lines
+    text_room = np.empty((2 * CSV_PRECISION + 10, len(floats) * min(BLOCK_ROWS, len(frame))), dtype=np.uint8)
+    line_room = np.empty(0, dtype=np.uint8)
     for a in range(0, len(frame), BLOCK_ROWS):
         rows = min(BLOCK_ROWS, len(frame) - a)
         # one call for every decimal of the block, column after column (columns all missing left out)
@@ -528,7 +532,8 @@ def _csv_lines(frame: pd.DataFrame, out: TextIO) -> None:
             block = np.empty((len(filled), rows))
             for k, i in enumerate(filled):
                 block[k] = numbers[i][a:a + rows]
-            by_position = general_bytes(block.ravel(), CSV_PRECISION, nan="", trim=False).T
+            by_position = general_bytes(block.ravel(), CSV_PRECISION, nan="", trim=False,
+                                        out=text_room[:, :block.size]).T
         cells = []
         for j in range(frame.shape[1]):
             if j in slot:
@@ -541,7 +546,10 @@ def _csv_lines(frame: pd.DataFrame, out: TextIO) -> None:
             else:
                 codes, matrix = coded[j]
                 cells.append((matrix, codes[a:a + rows]))
-        _write_bytes(out, join_lines(cells))
+        lines = line_matrix(cells, room=line_room)
+        if lines.base is None:  # the first block: its lines' memory kept for the next
+            line_room = lines.reshape(-1)
+        _write_bytes(out, compact(lines))
 
 
 def _write_bytes(out: TextIO, data) -> None:
