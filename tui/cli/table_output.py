@@ -250,8 +250,11 @@ def _format_codes(values, kind: str) -> tuple[np.ndarray, np.ndarray]:
     n = len(values)
     worded = None
     if kind in ("text", "date", "bool") or n == 0:
-        arr = np.asarray(values, dtype=object) if kind != "date" else values
-        codes, uniq = pd.factorize(pd.Series(arr), use_na_sentinel=False)
+        if kind == "text" and isinstance(values, pd.Series) and _is_text(values) and _nan_missing_text(values.dtype):
+            codes, uniq = pd.factorize(values, use_na_sentinel=False)  # as it is: the same as via objects, faster
+        else:
+            arr = np.asarray(values, dtype=object) if kind != "date" else values
+            codes, uniq = pd.factorize(pd.Series(arr), use_na_sentinel=False)
         return codes, np.array([_fmt(u, kind) for u in uniq], dtype=object)
     x = pd.to_numeric(pd.Series(values), errors="coerce").to_numpy(dtype=float, na_value=np.nan)
     decimals = None
