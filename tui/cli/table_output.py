@@ -300,16 +300,40 @@ def _format_codes(values, kind: str) -> tuple[np.ndarray, np.ndarray]:
                  np.flatnonzero(negz)):
         if rows.size == 0:
             continue
+        if kind in _FIXED and not lone[rows[0]] and not negz[rows[0]]:  # rounded values: keyed by whole units
+            _fixed_group(rows, np.round(y[rows]), None if decimals is None else decimals[rows], kind, codes, texts)
+            continue
         c, uniq = pd.factorize(key[rows], use_na_sentinel=False)
         # factorize numbers keys in order of first appearance: a first is where the running maximum rises
         top = np.maximum.accumulate(c)
         first = rows[np.flatnonzero(np.concatenate([[True], top[1:] > top[:-1]]))]
         codes[rows] = c + len(texts)
-        if kind in _FIXED and not lone[rows[0]] and not negz[rows[0]]:
-            texts.extend(_fixed_texts(np.round(y[first]), kind, None if decimals is None else decimals[first]))
-        else:
-            texts.extend(_fmt(x[i], kind) for i in first)
+        texts.extend(_fmt(x[i], kind) for i in first)
     return codes, np.array(texts, dtype=object)
+
+
+def _fixed_group(rows: np.ndarray, units: np.ndarray, decimals: np.ndarray | None, kind: str,
+                 codes: np.ndarray, texts: list[str]) -> None:
+    """Codes and texts of rows whose text is their rounded value: ``units`` whole steps of the last shown
+    digit (|units| < ``_SCALED_LIMIT``), with ``decimals`` per row for prices and strikes. Distinct
+    (units, decimals) found by a table over their range when it is small, else by hashing."""
+    key = units.astype(np.int64)
+    if decimals is not None:
+        key = key * 8 + decimals  # decimals 0..4 apart
+    low = int(key.min())
+    span = int(key.max()) - low + 1
+    if span <= 4 * key.size + 4096:
+        present = np.zeros(span, dtype=bool)
+        present[key - low] = True
+        c = (np.cumsum(present) - 1)[key - low]
+        distinct = np.flatnonzero(present) + low
+    else:
+        c, distinct = pd.factorize(key, use_na_sentinel=False)
+    codes[rows] = c + len(texts)
+    if decimals is None:
+        texts.extend(_fixed_texts(distinct, kind, None))
+    else:
+        texts.extend(_fixed_texts(distinct >> 3, kind, distinct & 7))
 
 
 def _fixed_texts(units: np.ndarray, kind: str, decimals: np.ndarray | None) -> list[str]:
