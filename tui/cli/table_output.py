@@ -549,7 +549,7 @@ def _csv_lines(frame: pd.DataFrame, out: TextIO) -> None:
     # memory reused from block to block (fresh memory costs the kernel's page faults): the decimals'
     # text by byte position, and the lines
     text_room = np.empty((2 * CSV_PRECISION + 10, len(floats) * min(BLOCK_ROWS, len(frame))), dtype=np.uint8)
-    line_room = np.empty(0, dtype=np.uint8)
+    line_room, line_bytes = np.empty(0, dtype=np.uint8), bytearray()  # line_room: a view of line_bytes
     for a in range(0, len(frame), BLOCK_ROWS):
         rows = min(BLOCK_ROWS, len(frame) - a)
         # one call for every decimal of the block, column after column (columns all missing left out)
@@ -574,9 +574,13 @@ def _csv_lines(frame: pd.DataFrame, out: TextIO) -> None:
                 codes, matrix = coded[j]
                 cells.append((matrix, codes[a:a + rows]))
         lines = line_matrix(cells, room=line_room)
-        if lines.base is None:  # the first block: its lines' memory kept for the next
-            line_room = lines.reshape(-1)
-        _write_bytes(out, compact(lines))
+        if lines.base is None:  # did not fit (the first block): room of this size kept for the next
+            _write_bytes(out, compact(lines))
+            line_bytes = bytearray(lines.size)
+            line_room = np.frombuffer(line_bytes, dtype=np.uint8)
+        else:  # compacted where it lies (no copy first); bytes past the lines made holes
+            line_room[lines.size:] = 0
+            _write_bytes(out, line_bytes.translate(None, b"\0"))
 
 
 def _write_bytes(out: TextIO, data) -> None:
