@@ -37,7 +37,8 @@ def text_bytes(texts: list[str]) -> np.ndarray:
     return narrow.view(np.uint8).reshape(len(texts), width)
 
 
-def line_matrix(columns: list, sep: bytes = b",", end: bytes = b"\n", room: np.ndarray | None = None) -> np.ndarray:
+def line_matrix(columns: list, sep: bytes = b",", end: bytes = b"\n",
+                room: np.ndarray | None = None) -> np.ndarray:
     """Each row's cells (the matrices of ``columns``, equal row counts) side by side, ``sep`` between
     them and ``end`` after: one row per line, with holes. ``sep`` and ``end`` hold no NUL byte.
 

@@ -138,7 +138,8 @@ def test_join_lines_with_gathered_columns_and_reused_memory():
             assert np.shares_memory(lines, room)
         else:
             room = lines.reshape(-1)
-        expected = "".join(f"{'' if np.isnan(v) else '%.10g' % v},{w}\n" for v, w in zip(nums.tolist(), words[codes]))
+        expected = "".join(f"{'' if np.isnan(v) else '%.10g' % v},{w}\n"
+                           for v, w in zip(nums.tolist(), words[codes]))
         assert compact(lines).decode("utf-8") == expected
     with pytest.raises(ValueError):
         general_bytes(np.ones(3), 10, out=np.empty((30, 4), dtype=np.uint8))

@@ -98,9 +98,9 @@ def write_out(text: str) -> None:
 
 
 def write_out_bytes(data) -> None:
-    """Write UTF-8 text given as bytes (or a byte buffer) to stdout (a big table's lines): straight to its byte stream
-    when stdout writes UTF-8 with plain line feeds, so the text is not decoded and encoded again;
-    else as text (``write_out``). The same quiet stop when the reader has gone away."""
+    """Write UTF-8 text given as bytes (or a byte buffer) to stdout (a big table's lines): straight
+    to its byte stream when stdout writes UTF-8 with plain line feeds, so the text is not decoded
+    and encoded again; else as text (``write_out``). The same quiet stop when the reader has gone."""
     global _pipe_closed
     if _pipe_closed:
         return

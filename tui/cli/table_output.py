@@ -250,8 +250,9 @@ def _format_codes(values, kind: str) -> tuple[np.ndarray, np.ndarray]:
     n = len(values)
     worded = None
     if kind in ("text", "date", "bool") or n == 0:
-        if kind == "text" and isinstance(values, pd.Series) and _is_text(values) and _nan_missing_text(values.dtype):
-            codes, uniq = pd.factorize(values, use_na_sentinel=False)  # as it is: the same as via objects, faster
+        if kind == "text" and isinstance(values, pd.Series) and _is_text(values) \
+                and _nan_missing_text(values.dtype):  # as it is: the same as via objects, faster
+            codes, uniq = pd.factorize(values, use_na_sentinel=False)
         else:
             arr = np.asarray(values, dtype=object) if kind != "date" else values
             codes, uniq = pd.factorize(pd.Series(arr), use_na_sentinel=False)
@@ -403,7 +404,8 @@ def _plain_rows(coded: list, widths: list[int], left: list[bool], n: int, out: T
         out.write("\n" * n)
         return
     try:
-        cells = [_plain_cells(texts, w, lft, narrow) for (codes, texts, narrow), w, lft in zip(coded, widths, left)]
+        cells = [_plain_cells(texts, w, lft, narrow)
+                 for (codes, texts, narrow), w, lft in zip(coded, widths, left)]
     except ValueError:  # a text Python's rstrip would treat otherwise than bytes (NUL, other blanks)
         _plain_rows_as_strings(coded, widths, left, n, out)
         return
@@ -415,7 +417,10 @@ def _plain_rows(coded: list, widths: list[int], left: list[bool], n: int, out: T
     holes = strip or not all(m.all() for m in cells)
     for a in range(0, n, BLOCK_ROWS):
         lines = line_matrix([(m, codes[a:a + BLOCK_ROWS]) for (codes, *_), m in zip(coded, cells)], sep=b"  ")
-        _write_bytes(out, compact(strip_line_ends(lines) if strip else lines) if holes else memoryview(lines).cast("B"))
+        if holes:
+            _write_bytes(out, compact(strip_line_ends(lines) if strip else lines))
+        else:
+            _write_bytes(out, memoryview(lines).cast("B"))
 
 
 def _plain_cells(texts: np.ndarray, width: int, left: bool, narrow: np.ndarray | None = None) -> np.ndarray:
@@ -584,8 +589,8 @@ def _csv_lines(frame: pd.DataFrame, out: TextIO) -> None:
 
 
 def _write_bytes(out: TextIO, data) -> None:
-    """UTF-8 text given as bytes (or a byte buffer) to ``out``: through its ``write_bytes`` where it has one (stdout, see
-    ``common.StdoutWriter``), else decoded."""
+    """UTF-8 text given as bytes (or a byte buffer) to ``out``: through its ``write_bytes`` where it
+    has one (stdout, see ``common.StdoutWriter``), else decoded."""
     put = getattr(out, "write_bytes", None)
     if put is None:
         out.write(bytes(data).decode("utf-8"))
