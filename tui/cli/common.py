@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import argparse
 import codecs
+import errno
 import os
 import re
 import sys
@@ -111,7 +112,12 @@ def write_out_bytes(data) -> None:
         return
     try:
         stream.flush()  # text written before goes first
-        raw.write(data)
+        rest = memoryview(data).cast("B")
+        while rest:  # an unbuffered stdout (python -u) may take part of it at a time
+            done = raw.write(rest)
+            if done is None:  # a non-blocking stdout that is full: as its text layer would say
+                raise BlockingIOError(errno.EAGAIN, "stdout cannot take more now")
+            rest = rest[done:]
     except BrokenPipeError:
         _pipe_closed = True
         stdout_to_devnull()
