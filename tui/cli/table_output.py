@@ -580,8 +580,10 @@ def _csv_lines(frame: pd.DataFrame, out: TextIO) -> None:
                 cells.append((matrix, codes[a:a + rows]))
         lines = line_matrix(cells, room=line_room)
         if lines.base is None:  # did not fit (the first block): room of this size kept for the next
+            size = lines.size
             _write_bytes(out, compact(lines))
-            line_bytes = bytearray(lines.size)
+            del lines, cells  # before the room is made
+            line_bytes = bytearray(size)
             line_room = np.frombuffer(line_bytes, dtype=np.uint8)
         else:  # compacted where it lies (no copy first); bytes past the lines made holes
             line_room[lines.size:] = 0
