@@ -579,11 +579,11 @@ def _csv_lines(frame: pd.DataFrame, out: TextIO) -> None:
                 codes, matrix = coded[j]
                 cells.append((matrix, codes[a:a + rows]))
         lines = line_matrix(cells, room=line_room)
-        if lines.base is None:  # did not fit (the first block): room of this size kept for the next
+        if lines.base is None:  # did not fit (the first block): room for somewhat wider lines kept
             size = lines.size
             _write_bytes(out, compact(lines))
             del lines, cells  # before the room is made
-            line_bytes = bytearray(size)
+            line_bytes = bytearray(size + size // 4)
             line_room = np.frombuffer(line_bytes, dtype=np.uint8)
         else:  # compacted where it lies (no copy first); bytes past the lines made holes
             line_room[lines.size:] = 0
