@@ -126,17 +126,24 @@ def _fast(x: np.ndarray, p: int, by_position: np.ndarray) -> np.ndarray:
     r = np.where(carry | lone, lo, r)
     sci = (e < -4) | (e >= p)
     fixed_below_one = ~sci & (e < 0)
-    # the mantissa's digits, most significant first, from two halves of at most 6 digits (uint32)
+    # the mantissa's digits, most significant first, from groups of at most 4 digits (uint16: the
+    # cheapest integer division); r / 10**4 is exact to the unit (r < 10**12), so its floor is too
     digits = np.empty((p, n), dtype=np.uint8)
-    half = 10.0 ** (p // 2)
-    top = np.floor(r / half)
-    at = 0
-    for h, count in ((top.astype(np.uint32), p - p // 2), ((r - top * half).astype(np.uint32), p // 2)):
-        for k in range(at + count - 1, at - 1, -1):
-            q = h // np.uint32(10)
-            np.subtract(h, q * np.uint32(10), out=digits[k], casting="unsafe")
+    rest = r
+    end = p
+    while end > 0:
+        count = min(4, end)
+        if end > 4:
+            above = np.floor(rest / 1e4)
+            h = (rest - above * 1e4).astype(np.uint16)
+            rest = above
+        else:
+            h = rest.astype(np.uint16)
+        for k in range(end - 1, end - count - 1, -1):
+            q = h // np.uint16(10)
+            np.subtract(h, q * np.uint16(10), out=digits[k], casting="unsafe")
             h = q
-        at += count
+        end -= count
     # a digit is shown when a nonzero digit follows it or it lies in the integer part
     later = digits != 0
     for k in range(p - 2, -1, -1):

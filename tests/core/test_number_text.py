@@ -69,7 +69,7 @@ def test_crafted_edges_equal_python(precision):
     assert not bad, bad[:5]
 
 
-@pytest.mark.parametrize("precision", [2, 6, 12])
+@pytest.mark.parametrize("precision", [2, 5, 6, 9, 12])
 def test_other_precisions_on_random_doubles(precision):
     bad = mismatches(random_doubles(100_000, seed=precision), precision)
     assert not bad, bad[:5]
