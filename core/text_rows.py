@@ -55,10 +55,14 @@ def line_matrix(columns: list, sep: bytes = b",", end: bytes = b"\n",
         lines = room[:n * total].reshape(n, total)
     else:
         lines = np.empty((n, total), dtype=np.uint8)
+    uniform = len(sep) > 0 and sep == sep[:1] * len(sep)
+    if uniform:  # every separator at once (the cells then cover the rest)
+        lines.fill(sep[0])
     at = 0
     for j, (cells, w) in enumerate(zip(columns, widths)):
         if j:
-            lines[:, at:at + len(sep)] = seps
+            if not uniform:
+                lines[:, at:at + len(sep)] = seps
             at += len(sep)
         if w and n:
             if isinstance(cells, tuple):
