@@ -20,8 +20,6 @@ least two digits; nan, inf, -inf and -0 as C prints them.
 
 from __future__ import annotations
 
-from fractions import Fraction
-
 import numpy as np
 
 #: Largest precision the float path serves (the mantissa must stay far inside float64's 53 bits).
@@ -33,8 +31,9 @@ CHUNK = 32768
 #: Values at least this far from zero and from the overflow end take the float path; the rest Python's ``%``.
 _LOW, _HIGH = 1e-280, 1e280
 
-#: Correctly rounded 10**k for k in -300..300 (index k + 300).
-_POW10 = np.array([float(Fraction(10) ** k) for k in range(-300, 301)])
+#: Correctly rounded 10**k for k in -300..300 (index k + 300): Python turns an int into the nearest
+#: float and divides ints correctly rounded.
+_POW10 = np.array([1 / 10 ** -k if k < 0 else float(10 ** k) for k in range(-300, 301)])
 
 _ZERO, _POINT, _MINUS, _PLUS, _E = 48, 46, 45, 43, 101
 

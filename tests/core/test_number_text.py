@@ -143,3 +143,13 @@ def test_join_lines_with_gathered_columns_and_reused_memory():
         assert compact(lines).decode("utf-8") == expected
     with pytest.raises(ValueError):
         general_bytes(np.ones(3), 10, out=np.empty((30, 4), dtype=np.uint8))
+
+
+def test_powers_of_ten_are_correctly_rounded():
+    """The table of 10**k the float path scales by: each the float nearest the exact rational [L]
+    (``fractions.Fraction`` arithmetic is exact and its float() correctly rounded)."""
+    from fractions import Fraction
+
+    from chaintriage.core import number_text
+
+    assert number_text._POW10.tolist() == [float(Fraction(10) ** k) for k in range(-300, 301)]
