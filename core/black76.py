@@ -11,7 +11,7 @@ All functions broadcast numpy arrays and return float64 arrays.
 from __future__ import annotations
 
 import numpy as np
-from scipy.special import ndtr
+from .standard_normal import ndtr
 
 ArrayLike = np.ndarray | float
 

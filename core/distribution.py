@@ -33,7 +33,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.special import ndtr, ndtri
+from .standard_normal import ndtr, ndtri
 
 # numpy >= 2 has trapezoid; older numpy calls it trapz. (scipy.integrate would
 # also do, but importing it costs about 0.3 s at start-up.)

@@ -18,7 +18,7 @@ decimal per sqrt(year), probabilities in [0, 1].
 from __future__ import annotations
 
 import numpy as np
-from scipy.special import ndtr, ndtri
+from .standard_normal import ndtr, ndtri
 
 __all__ = ["ex_event_p_beyond", "ex_event_range"]
 

@@ -34,7 +34,7 @@ time, days) or the result is undefined.
 from __future__ import annotations
 
 import numpy as np
-from scipy.special import ndtr
+from .standard_normal import ndtr
 
 _SQRT_2PI = np.sqrt(2.0 * np.pi)
 

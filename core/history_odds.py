@@ -29,7 +29,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.special import ndtr
+from .standard_normal import ndtr
 
 from .findings import ChainTriageError
 from .touch import prob_touch

@@ -34,7 +34,7 @@ quantity b_max - b is evaluated as a sum of positive terms, never as a
 difference, so prices near their bound keep their accuracy.
 
 The price function itself is evaluated in the plain two-term form with
-scipy.special.ndtr; its rounding moves the solved s by only about
+``standard_normal.ndtr``; its rounding moves the solved s by only about
 eps*N(d1)/phi(d1), far below the accuracy target.
 
 Accuracy (tests/core/test_implied_vol.py): over F in [1, 5000], K/F in
@@ -52,7 +52,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.special import erfcx, ndtr, ndtri
+from .standard_normal import erfcx, ndtr, ndtri
 
 __all__ = [
     "OK",

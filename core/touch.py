@@ -25,7 +25,7 @@ pipeline turns a NaN into a finding.
 from __future__ import annotations
 
 import numpy as np
-from scipy.special import erfcx, ndtr
+from .standard_normal import erfcx, ndtr
 
 _SQRT1_2 = np.sqrt(0.5)
 

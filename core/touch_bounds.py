@@ -28,7 +28,7 @@ in [0, 1]. Put and call prices are taken undiscounted (DF cancels).
 from __future__ import annotations
 
 import numpy as np
-from scipy.special import ndtr
+from .standard_normal import ndtr
 
 from .distribution import prob_above
 

@@ -42,7 +42,7 @@ from dataclasses import dataclass
 
 import numpy as np
 from scipy.linalg.lapack import dgtsv
-from scipy.special import ndtr
+from .standard_normal import ndtr
 
 from .local_vol import LocalVolSurface
 
