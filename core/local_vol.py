@@ -89,20 +89,27 @@ class LocalVolSurface:
         i = int(np.clip(np.searchsorted(ts, tau, side="left"), 1, ts.size - 1))
         return float((lf[i] - lf[i - 1]) / (ts[i] - ts[i - 1]))
 
+    def _segment(self, tau: float) -> tuple[int, float]:
+        """(i, lam) of time tau (years): i = 0 before the first expiry, where lam = tau / t[0] scales the
+        first smile; else tau lies between expiries i-1 and i at weight lam of the later one."""
+        ts = self.t
+        i = int(np.searchsorted(ts, tau, side="left"))
+        if i == 0:
+            return 0, tau / ts[0]
+        i = min(i, ts.size - 1)
+        return i, (tau - ts[i - 1]) / (ts[i] - ts[i - 1])
+
     def total_variance(self, tau: float, y):
         """(w, dw/dT, dw/dy, d2w/dy2) at time tau and log-forward moneyness y (arrays of y's shape)."""
         y = np.asarray(y, dtype=float)
         ts = self.t
-        i = int(np.searchsorted(ts, tau, side="left"))
+        i, lam = self._segment(tau)
         if i == 0:
-            s = self.smiles[0]
-            c = tau / ts[0]
+            s, c = self.smiles[0], lam
             w1 = np.asarray(s.total_variance(y), float)
             return c * w1, w1 / ts[0], c * np.asarray(s.dw_dk(y), float), c * np.asarray(s.d2w_dk2(y), float)
-        i = min(i, ts.size - 1)
         a, b = self.smiles[i - 1], self.smiles[i]
         span = ts[i] - ts[i - 1]
-        lam = (tau - ts[i - 1]) / span
         wa = np.asarray(a.total_variance(y), float)
         wb = np.asarray(b.total_variance(y), float)
         w = wa + lam * (wb - wa)
@@ -113,16 +120,11 @@ class LocalVolSurface:
     def variance_and_slope(self, tau: float, y):
         """(w, dw/dy) at time tau and moneyness y: the first and third of ``total_variance``, the same numbers."""
         y = np.asarray(y, dtype=float)
-        ts = self.t
-        i = int(np.searchsorted(ts, tau, side="left"))
+        i, lam = self._segment(tau)
         if i == 0:
-            s = self.smiles[0]
-            c = tau / ts[0]
-            w, w1 = _w_and_slope(s, y)
-            return c * w, c * w1
-        i = min(i, ts.size - 1)
+            w, w1 = _w_and_slope(self.smiles[0], y)
+            return lam * w, lam * w1
         a, b = self.smiles[i - 1], self.smiles[i]
-        lam = (tau - ts[i - 1]) / (ts[i] - ts[i - 1])
         wa, w1a = _w_and_slope(a, y)
         wb, w1b = _w_and_slope(b, y)
         return wa + lam * (wb - wa), w1a * (1 - lam) + lam * w1b
