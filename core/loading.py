@@ -506,10 +506,25 @@ def _table_numbers(path: str, delim: str, rec, numeric) -> _Table | None:
         # without ``usecols`` the C reader refuses a line longer than ``names`` (``_UniformRecords`` relies on it)
         cols = {} if maxf == width else {"usecols": range(width)}
         df = pd.read_csv(io.BytesIO(raw), header=0, names=range(maxf), **cols,
-                         dtype={i: "category" for i in range(width) if i not in wanted},
+                         dtype={} if _ARROW_TEXT else {i: "category" for i in range(width) if i not in wanted},
                          keep_default_na=False, na_values={i: [""] for i in wanted}, na_filter=True, **opts)
     except (pd.errors.ParserError, ValueError):
         return None
+    if _ARROW_TEXT:  # text columns as the reader inferred them (``dtype=str`` would cost a Python object per cell)
+        text = [i for i in range(width) if i not in wanted]
+        again = [i for i in text if len(df) and not (pd.api.types.is_string_dtype(df[i].dtype)
+                                                     and df[i].dtype != object)]
+        for i in text:
+            if i not in again:
+                df[i] = _categories_of(df[i])
+        if again:  # cells the reader took for numbers or booleans: read again as text
+            try:
+                cat = pd.read_csv(io.BytesIO(raw), header=0, names=range(maxf), usecols=again,
+                                  dtype={i: "category" for i in again}, keep_default_na=False, na_filter=False, **opts)
+            except (pd.errors.ParserError, ValueError):
+                return None
+            for i in again:
+                df[i] = cat[i]
     if not rec.parsed(df):
         return None
     redo = []
@@ -534,6 +549,29 @@ def _table_numbers(path: str, delim: str, rec, numeric) -> _Table | None:
         return _slices_text(raw, rec.arr, a, b)
 
     return _Table(headers, df, rec.line, rec.end_line, rec.nfields, rec.extra(), cell_text)
+
+
+#: Whether pandas' ``str`` columns are held by pyarrow. Then the C reader's text cells are read as ``str``
+#: and coded by pyarrow's hashing (``_categories_of``), cheaper than the reader's own categorical
+#: conversion; without pyarrow a ``str`` cell is a Python object, and the reader's categoricals are cheaper.
+_ARROW_TEXT = getattr(pd.Series([""], dtype=str).dtype, "storage", None) == "pyarrow"
+
+
+def _categories_of(col: pd.Series) -> pd.Categorical:
+    """A text column (no missing cells) as the C reader's categorical gives it: the distinct texts
+    sorted as categories, a code per cell. A column of one text (an underlying, an as_of) is checked by
+    one comparison instead of hashing every cell."""
+    n = len(col)
+    if n == 0:
+        return pd.Categorical.from_codes(np.zeros(0, dtype=np.int8), pd.Index([], dtype=object))
+    if bool((col == col.iloc[0]).all()):
+        return pd.Categorical.from_codes(np.zeros(n, dtype=np.int8), pd.Index([col.iloc[0]], dtype=str))
+    codes, uniques = pd.factorize(col)
+    cats = pd.Index(uniques, dtype=str)
+    order = cats.argsort()
+    rank = np.empty(order.size, dtype=np.int64)
+    rank[order] = np.arange(order.size)
+    return pd.Categorical.from_codes(rank[codes] if order.size else codes, cats[order])
 
 
 class _ScannedRecords:

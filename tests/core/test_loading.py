@@ -704,3 +704,19 @@ def test_spot_differing_between_merged_files_warns(tmp_path):
     (snap,) = res.snapshots
     assert snap.spot == 100.5
     assert any("spot differs between files" in f.reason for f in res.findings)
+
+
+def test_text_cells_that_look_like_numbers_keep_their_text(tmp_path):
+    # [D] the C reader may take a text column for numbers or booleans; its cells are text as written
+    from chaintriage.core.column_map import ColumnMap
+
+    p = tmp_path / "numeric_text.csv"
+    p.write_text("underlying,as_of,spot,expiry,strike,kind,bid,ask\n"
+                 "0050,2026-04-01T15:30:00-04:00,100,20260515,100,call,1,1.2\n"
+                 "0050,2026-04-01T15:30:00-04:00,100,20260515,100,put,1,1.2\n"
+                 "1e3,2026-04-01T15:30:00-04:00,100,20260619,95,put,1,1.2\n"
+                 "True,2026-04-01T15:30:00-04:00,100,20260515,100,put,1,1.2\n")
+    load = load_file(p, column_map=ColumnMap(expiry_format="%Y%m%d"))
+    assert load.rows_accepted == 4
+    assert [s.underlying for s in load.snapshots] == ["0050", "1e3", "True"]
+    assert load.snapshots[1].contracts["expiry"].dt.strftime("%Y-%m-%d").tolist() == ["2026-06-19"]
