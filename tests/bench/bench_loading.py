@@ -17,10 +17,11 @@ rows, 25 underlyings) it prints, measured in one run:
 
 ``--baseline REV`` instead measures load_file of a git revision (its packages
 exported to a temporary directory and imported ahead of the working tree) and of
-the working tree, in child processes that alternate, beside pandas.read_csv of
-the same file in the same process: CPU time (process time) and wall time, best of
-R, at 20,000, 200,000 and 1,000,000 contracts unless --rows says otherwise, with
-the load average (the machine may be shared).
+the working tree, in child processes that alternate (--rounds pairs), beside
+pandas.read_csv of the same file in the same process (the two alternating run by
+run): CPU time (process time), user CPU time and wall time, best and median of
+every run, at 20,000, 200,000 and 1,000,000 contracts unless --rows says
+otherwise, with the load average (the machine may be shared).
 
 The files carry a quarter of zero bids (far out-of-the-money quotes), the case
 where one finding per row used to cost a Python object each.
@@ -31,6 +32,7 @@ from __future__ import annotations
 import argparse
 import json
 import os
+import resource
 import subprocess
 import sys
 import tempfile
@@ -125,9 +127,25 @@ def best_times(fn, repeat: int) -> tuple[float, float]:
     return wall, cpu
 
 
+def _user() -> float:
+    """User CPU time of this process in seconds (microsecond resolution, unlike os.times)."""
+    return resource.getrusage(resource.RUSAGE_SELF).ru_utime
+
+
+def all_times(fn, repeat: int) -> list[list[float]]:
+    """Wall, process CPU and user CPU time of each of ``repeat`` runs of ``fn``, in seconds."""
+    out = []
+    for _ in range(repeat):
+        u0, c0, t0 = _user(), time.process_time(), time.perf_counter()
+        fn()
+        u1, c1, t1 = _user(), time.process_time(), time.perf_counter()
+        out.append([t1 - t0, c1 - c0, u1 - u0])
+    return out
+
+
 def measure(paths: dict[int, str], repeat: int) -> dict:
-    """Per file: (load wall, load cpu, read_csv wall, read_csv cpu, rows accepted, findings) in this process,
-    load_file first warmed once (imports)."""
+    """Per file: (load times, read_csv times, rows accepted, findings) in this process, load_file first
+    warmed once (imports); times as ``all_times`` gives them, load_file and read_csv alternating."""
     from chaintriage.core import loading
 
     out = {}
@@ -135,9 +153,11 @@ def measure(paths: dict[int, str], repeat: int) -> dict:
         res = loading.load_file(path)
         accepted, found = res.rows_accepted, len(res.findings)
         del res
-        lw, lc = best_times(lambda: loading.load_file(path), repeat)
-        pw, pc = best_times(lambda: pd.read_csv(path), repeat)
-        out[n] = (lw, lc, pw, pc, accepted, found)
+        load, pand = [], []
+        for _ in range(repeat):
+            load += all_times(lambda: loading.load_file(path), 1)
+            pand += all_times(lambda: pd.read_csv(path), 1)
+        out[n] = (load, pand, accepted, found)
     out["module"] = loading.__file__
     return out
 
@@ -176,7 +196,7 @@ def load_text() -> str:
     return f"load average {load[0]:.1f} {load[1]:.1f} {load[2]:.1f} on {os.cpu_count()} cores"
 
 
-def compare(rev: str, sizes: list[int], repeat: int) -> None:
+def compare(rev: str, sizes: list[int], repeat: int, rounds: int = 2) -> None:
     """load_file of ``rev`` and of the working tree beside read_csv, alternating child processes."""
     with tempfile.TemporaryDirectory() as tmp:
         paths = {}
@@ -186,24 +206,32 @@ def compare(rev: str, sizes: list[int], repeat: int) -> None:
         root = export_revision(rev, str(Path(tmp) / "baseline"))
         print(f"start: {load_text()}")
         runs = {"baseline": [], "now": []}
-        for _ in range(2):  # alternate, keep the best of each
+        for _ in range(rounds):  # alternate children; every run kept
             runs["baseline"].append(run_child(root, paths, repeat))
             runs["now"].append(run_child(None, paths, repeat))
         sizes_mb = {n: Path(p).stat().st_size / 1e6 for n, p in paths.items()}
     print(f"end: {load_text()}")
-    print(f"load_file vs pandas.read_csv (default types) in the same process, best of {repeat} x 2 alternating "
-          f"children; baseline = {rev}; times in seconds, cpu = process time")
+    print(f"load_file vs pandas.read_csv (default types) in the same process, {repeat} runs each x {rounds} "
+          f"alternating children; baseline = {rev}; times in ms (cpu = process time, user = user CPU time); "
+          "ratio = load_file / read_csv of the same statistic")
     for n in sizes:
-        best = {k: [min(r[n][i] for r in v) for i in range(4)] for k, v in runs.items()}
-        same = {k: {(r[n][4], r[n][5]) for r in v} for k, v in runs.items()}
+        same = {k: {(r[n][2], r[n][3]) for r in v} for k, v in runs.items()}
         print(f"{n:>9,} contracts ({sizes_mb[n]:.0f} MB), rows accepted / findings: baseline {same['baseline']}, "
               f"now {same['now']}")
+        stat = {}
         for k in ("baseline", "now"):
-            lw, lc, pw, pc = best[k]
-            print(f"  {k:8s} load_file cpu {lc:7.3f} wall {lw:7.3f}   read_csv cpu {pc:7.3f} wall {pw:7.3f}   "
-                  f"ratio cpu {lc / pc:5.1f}x wall {lw / pw:5.1f}x")
-        print(f"  speed-up of load_file: cpu {best['baseline'][1] / best['now'][1]:.2f}x, "
-              f"wall {best['baseline'][0] / best['now'][0]:.2f}x")
+            load = np.array([t for r in runs[k] for t in r[n][0]]) * 1e3
+            pand = np.array([t for r in runs[k] for t in r[n][1]]) * 1e3
+            for name, f in (("best", np.min), ("median", np.median)):
+                lo, pa = f(load, axis=0), f(pand, axis=0)
+                stat[k, name] = lo
+                print(f"  {k:8s} {name:6s} load_file cpu {lo[1]:7.1f} user {lo[2]:7.1f} wall {lo[0]:7.1f}   "
+                      f"read_csv cpu {pa[1]:6.1f} user {pa[2]:6.1f} wall {pa[0]:6.1f}   "
+                      f"ratio cpu {lo[1] / pa[1]:4.2f}x user {lo[2] / max(pa[2], 1e-9):4.2f}x wall {lo[0] / pa[0]:4.2f}x")
+        for name in ("best", "median"):
+            b, w = stat["baseline", name], stat["now", name]
+            print(f"  speed-up of load_file ({name}): cpu {b[1] / w[1]:.2f}x, user {b[2] / max(w[2], 1e-9):.2f}x, "
+                  f"wall {b[0] / w[0]:.2f}x")
 
 
 def main() -> None:
@@ -212,9 +240,10 @@ def main() -> None:
     ap.add_argument("--big", action="store_true", help="also 5,000,000 rows (one repeat)")
     ap.add_argument("--repeat", type=int, default=3)
     ap.add_argument("--baseline", metavar="REV", help="compare with load_file of this git revision")
+    ap.add_argument("--rounds", type=int, default=2, help="alternating child pairs with --baseline")
     args = ap.parse_args()
     if args.baseline:
-        compare(args.baseline, args.rows or [20_000, 200_000, 1_000_000], args.repeat)
+        compare(args.baseline, args.rows or [20_000, 200_000, 1_000_000], args.repeat, args.rounds)
         return
     args.rows = args.rows or [200_000]
     sizes = [(n, args.repeat) for n in args.rows] + ([(5_000_000, 1)] if args.big else [])
