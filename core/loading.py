@@ -1057,8 +1057,10 @@ def _read_table(path: str, numeric=None) -> _Table:
                 return _read_parquet_table(path)
             if p.stat().st_size > max(BIG_FILE_BYTES, CHUNK_BYTES):
                 return _read_csv_blocks(path, fh, head, numeric)
-            fh.seek(0)
-            data = fh.read()  # not head + the rest: that copies the file's bytes once more
+            # the unbuffered file, from its start: one allocation of the file's size (the buffered reader,
+            # its first bytes still buffered after a seek, would join them with the rest: a copy into fresh memory)
+            fh.raw.seek(0)
+            data = fh.raw.readall()
     except OSError as exc:
         raise SnapshotFileError(path, f"cannot be read ({exc.strerror or exc})") from None
     if not data:
