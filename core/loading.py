@@ -1728,6 +1728,9 @@ class _FileValidator:
         for g, und in enumerate(names):
             gi = live if order is None else live[order[bounds[g]:bounds[g + 1]]]  # its rows, in file order
             self.group_rows[und] = gi
+            if order is None:  # one underlying: its rows are the live rows, worked on as masks over the file
+                self._resolve_one(und, gi.size)
+                continue
             # as_of
             if self.ov.as_of is not None:
                 as_of = self.ov.as_of
@@ -1796,6 +1799,84 @@ class _FileValidator:
                 self.group_findings.append(Finding(
                     WARNING, f"underlying {_show(und)} contains control or invisible characters; kept as written",
                     file=self.path, line=int(lines[gi[0]]), column=self.lab("underlying"), underlying=und))
+
+    def _resolve_one(self, und: str, size: int) -> None:
+        """``resolve_groups`` for the only underlying, whose rows are those not left out (``size`` of them):
+        the same outcome, from masks and reductions over the whole file instead of gathers by row index
+        (no row-sized index or value arrays made afresh)."""
+        rows, lines = self.rows, self.t.line
+        group = rows.free.copy()
+        # as_of
+        if self.ov.as_of is not None:
+            as_of = self.ov.as_of
+            at_latest = group
+        else:
+            given = group & self.as_of_given
+            n_given = int(np.count_nonzero(given))
+            if n_given == 0:
+                rows.leave_out(group, self.lab("as_of"),
+                               f"no as_of for {_show(und, 30)}: the as_of cell is empty on all its rows")
+                return
+            ns = self.as_of_ns
+            info = np.iinfo(ns.dtype)
+            latest = ns.max(where=given, initial=info.min)
+            earliest = ns.min(where=given, initial=info.max)
+            at_latest = given if earliest == latest else given & (ns == latest)
+            first = int(np.argmax(at_latest))
+            as_of = _timestamp(self.col["as_of"].iloc[first], int(latest))
+            if earliest != latest:
+                earliest = pd.Timestamp(int(earliest), tz="UTC").tz_convert(as_of.tz)
+                self.group_findings.append(Finding(
+                    WARNING,
+                    f"as_of varies across {n_given} rows (from {earliest.isoformat()} to "
+                    f"{as_of.isoformat()}); the latest is used for the whole snapshot",
+                    file=self.path, line=int(lines[first]), column=self.lab("as_of"), underlying=und))
+            if n_given < size:
+                self.group_findings.append(Finding(
+                    NOTE, f"as_of is empty on {size - n_given} of {size} rows; "
+                          f"{as_of.isoformat()} is used for them",
+                    file=self.path, column=self.lab("as_of"), underlying=und))
+        # spot
+        if self.ov.spot is not None:
+            spot = float(self.ov.spot)
+        else:
+            has = group & np.isfinite(self.spot_v)
+            n_has = int(np.count_nonzero(has))
+            if n_has == 0:
+                rows.leave_out(group, self.lab("spot"),
+                               f"no spot for {_show(und, 30)}: the spot cell is empty on all its rows")
+                return
+            pick = has & at_latest
+            first = int(np.argmax(pick)) if pick.any() else int(np.argmax(has))
+            spot = float(self.spot_v[first])
+            low = self.spot_v.min(where=has, initial=np.inf)
+            high = self.spot_v.max(where=has, initial=-np.inf)
+            if low != high:
+                values = np.unique(self.spot_v[has])
+                self.group_findings.append(Finding(
+                    WARNING,
+                    f"spot varies ({values.size} values from {_fmt(values[0])} to {_fmt(values[-1])}); "
+                    f"{_fmt(spot)} from this line (at the latest as_of) is used for the whole snapshot",
+                    file=self.path, line=int(lines[first]), column=self.lab("spot"), underlying=und))
+            if n_has < size:
+                self.group_findings.append(Finding(
+                    NOTE, f"spot is empty on {size - n_has} of {size} rows; {_fmt(spot)} is used",
+                    file=self.path, column=self.lab("spot"), underlying=und))
+        # expiry before the snapshot date, the date in the exchange's time zone (whatever offset as_of has)
+        local = as_of.tz_convert(EXCHANGE_TZ)
+        day = np.datetime64(local.tz_localize(None).normalize().to_datetime64(), "ns")
+        before = group & (self.expiry < day)
+        if before.any():
+            day_text = f"{local:%Y-%m-%d} (New York)"
+            rows.leave_out(before, self.lab("expiry"), lambda i: (
+                f"expiry {self.expiry[i].astype('datetime64[D]')} is before the snapshot date {day_text}"),
+                topic=f"expiry is before the snapshot date {day_text}")
+        self.snap[und] = (as_of, spot)
+        # control characters in the name
+        if self.ov.underlying is None and re.search(_CONTROL_RE, und):
+            self.group_findings.append(Finding(
+                WARNING, f"underlying {_show(und)} contains control or invisible characters; kept as written",
+                file=self.path, line=int(lines[np.argmax(group)]), column=self.lab("underlying"), underlying=und))
 
     def check_duplicates(self) -> None:
         """Leave out a contract given again (same underlying, expiry, strike, kind): the first is kept.
