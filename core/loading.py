@@ -1213,8 +1213,12 @@ def _per_unique(s: pd.Series, parse, *args, few=None, **kwargs):
 
 def _per_unique_codes(s: pd.Series, parse, *args, few=None, **kwargs):
     """``(_per_unique(...), codes, per_distinct)``: also each row's code (-1 for a missing cell) and
-    the result per distinct value, so a later step can work per distinct value too."""
-    codes, uniques = pd.factorize(s)
+    the result per distinct value, so a later step can work per distinct value too. A categorical's
+    own codes and categories serve as they are (no factorisation)."""
+    if isinstance(s.dtype, pd.CategoricalDtype):
+        codes, uniques = s.cat.codes.to_numpy().astype(np.intp), s.cat.categories
+    else:
+        codes, uniques = pd.factorize(s)
     texts = np.asarray(uniques, dtype=object)
     if few is not None and _few_plain(texts.tolist()):
         result = few(texts.tolist(), *args, **kwargs)
