@@ -559,13 +559,14 @@ _ARROW_TEXT = getattr(pd.Series([""], dtype=str).dtype, "storage", None) == "pya
 
 def _categories_of(col: pd.Series) -> pd.Categorical:
     """A text column (no missing cells) as the C reader's categorical gives it: the distinct texts
-    sorted as categories, a code per cell. A column of one text (an underlying, an as_of) is checked by
-    one comparison instead of hashing every cell."""
+    sorted as categories, a code per cell. A column of one text (an underlying, an as_of) is found by
+    one comparison instead of hashing every cell (tried when its first, middle and last cells agree)."""
     n = len(col)
     if n == 0:
         return pd.Categorical.from_codes(np.zeros(0, dtype=np.int8), pd.Index([], dtype=object))
-    if bool((col == col.iloc[0]).all()):
-        return pd.Categorical.from_codes(np.zeros(n, dtype=np.int8), pd.Index([col.iloc[0]], dtype=str))
+    first = col.iloc[0]
+    if col.iloc[-1] == first and col.iloc[n // 2] == first and bool((col == first).all()):
+        return pd.Categorical.from_codes(np.zeros(n, dtype=np.int8), pd.Index([first], dtype=str))
     codes, uniques = pd.factorize(col)
     cats = pd.Index(uniques, dtype=str)
     order = cats.argsort()
@@ -2001,9 +2002,11 @@ class _FileValidator:
         """``what`` + `` on the 95 put`` for each row of ``sel`` (object array; every row of ``side``),
         formatted once per distinct strike. ``strike_text``: (code per row, text per code) of the strikes."""
         codes, text = strike_text
-        used, inverse = np.unique(codes[sel], return_inverse=True)
-        texts = np.array([f"{what} on the {text[k]} {side}" for k in used.tolist()], dtype=object)
-        return texts[inverse.reshape(-1)]
+        mine = codes[sel]
+        used = np.flatnonzero(np.bincount(mine, minlength=len(text)))  # the distinct codes, sorted, without a sort
+        texts = np.empty(len(text), dtype=object)
+        texts[used] = [f"{what} on the {text[k]} {side}" for k in used.tolist()]
+        return texts[mine]
 
     def quote_warnings(self) -> None:
         ok = self.rows.free
