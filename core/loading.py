@@ -1242,8 +1242,10 @@ def _numbers(s, *, percent: bool = False) -> tuple[np.ndarray, np.ndarray]:
 
     ``s`` is a column of text, or a ``_NumberColumn`` (already parsed).
     """
-    if isinstance(s, _NumberColumn):
-        return s.values.copy(), s.status
+    if isinstance(s, _NumberColumn):  # its values as a read-only view (no copy: the checks only read them)
+        values = s.values.view()
+        values.flags.writeable = False
+        return values, s.status
     return _per_unique(s, _numbers_unique, percent=percent, few=_numbers_few)
 
 
@@ -1258,11 +1260,11 @@ class _NumberColumn:
 
     def __init__(self, parsed: np.ndarray, cell_text):
         self._cell_text = cell_text
-        values = parsed.astype(np.float64)
-        again = ~np.isfinite(values)
+        again = ~np.isfinite(parsed)
         if parsed.dtype.kind in "iu":
             again |= parsed == 0
         rows = np.flatnonzero(again)
+        values = parsed.astype(np.float64, copy=bool(rows.size))  # the reader's floats as they are when none is redone
         status = np.zeros(values.size, dtype=np.int8)
         if rows.size:
             v, st = _per_unique(pd.Series(self.text(rows), dtype=object), _numbers_unique, few=_numbers_few)
@@ -1954,9 +1956,7 @@ class _FileValidator:
             else:
                 bad = (st == 0) & (np.abs(v) > RATE_MAX)
                 self.warn_rows(ok & bad, lab, f"{name} {{v}} is above 100%; left blank (write 5% or 0.05)", s)
-            v = v.copy()
-            v[bad] = np.nan
-            out[name] = v
+            out[name] = np.where(bad, np.nan, v) if bad.any() else v
         # iv_basis
         if "iv_basis" in self.col:
             s = self.col["iv_basis"]
