@@ -196,6 +196,11 @@ def load_text() -> str:
     return f"load average {load[0]:.1f} {load[1]:.1f} {load[2]:.1f} on {os.cpu_count()} cores"
 
 
+def _ratio(a: float, b: float) -> str:
+    """``a / b`` as ``1.23x``; ``n/a`` when ``b`` is 0 (user time counts whole clock ticks on some kernels)."""
+    return f"{a / b:4.2f}x" if b > 0 else " n/a "
+
+
 def compare(rev: str, sizes: list[int], repeat: int, rounds: int = 2) -> None:
     """load_file of ``rev`` and of the working tree beside read_csv, alternating child processes."""
     with tempfile.TemporaryDirectory() as tmp:
@@ -227,10 +232,10 @@ def compare(rev: str, sizes: list[int], repeat: int, rounds: int = 2) -> None:
                 stat[k, name] = lo
                 print(f"  {k:8s} {name:6s} load_file cpu {lo[1]:7.1f} user {lo[2]:7.1f} wall {lo[0]:7.1f}   "
                       f"read_csv cpu {pa[1]:6.1f} user {pa[2]:6.1f} wall {pa[0]:6.1f}   "
-                      f"ratio cpu {lo[1] / pa[1]:4.2f}x user {lo[2] / max(pa[2], 1e-9):4.2f}x wall {lo[0] / pa[0]:4.2f}x")
+                      f"ratio cpu {lo[1] / pa[1]:4.2f}x user {_ratio(lo[2], pa[2])} wall {lo[0] / pa[0]:4.2f}x")
         for name in ("best", "median"):
             b, w = stat["baseline", name], stat["now", name]
-            print(f"  speed-up of load_file ({name}): cpu {b[1] / w[1]:.2f}x, user {b[2] / max(w[2], 1e-9):.2f}x, "
+            print(f"  speed-up of load_file ({name}): cpu {b[1] / w[1]:.2f}x, user {_ratio(b[2], w[2])}, "
                   f"wall {b[0] / w[0]:.2f}x")
 
 
