@@ -634,7 +634,7 @@ class _UniformRecords:
         self.rows = lines - 1
         self.line = np.arange(2, lines + 1, dtype=np.int64)
         self.end_line = self.line.copy()
-        self.nfields = np.full(self.rows, width, dtype=np.int64)
+        self.nfields = np.broadcast_to(np.int64(width), (self.rows,))  # read-only, no memory per row
         self._breaks = self._delim = None  # set by ``of``
 
     @classmethod
