@@ -48,8 +48,10 @@ EXIT_NOTHING = 2
 #: The command line's --confidence default (the same constant as core's and the app's): any
 #: other value given there is where the range starts.
 CLI_DEFAULT_CONFIDENCE = DEFAULT_CONFIDENCE
-#: Seconds of loading before the moving loading indicator appears (the message is there at once).
-SPINNER_DELAY = 0.4
+#: Seconds of loading before the moving loading indicator appears (the message is there at once,
+#: drawn once). Later than a first data frame takes (the demo's ~0.6 s, a 200,000-contract chain's ~1 s):
+#: until then nothing on the screen's thread competes with the loading worker for the interpreter.
+SPINNER_DELAY = 1.5
 
 
 #: The interpreter's switch interval (seconds) while loading work runs beside the screen: a thread that
@@ -252,7 +254,7 @@ class ChainTriageApp(App[int]):
             self.state.views.extend(self._given_views)
             self.triage.show_view(0)
             return
-        # A moving indicator only when loading takes a while: it would compete with a short load.
+        # A moving indicator only when loading takes a while: its refreshes would compete with a short load.
         self.set_timer(SPINNER_DELAY, self.triage.show_spinner)
         self._start_load(self._paths, snapshots=self._given_snapshots, initial=True,
                          overrides=self._overrides)

@@ -9,14 +9,16 @@ from __future__ import annotations
 import asyncio
 import gc
 import threading
+import time
 
 import pytest
 
 from chaintriage.core.loading import load_files
 from chaintriage.tui import snapshot_loading
-from chaintriage.tui.app import open_app
+from chaintriage.tui.app import SPINNER_DELAY, open_app
 from chaintriage.tui.snapshot_loading import demo_files
 from chaintriage.tui.layout import SCROLLBAR, ladder_width
+from chaintriage.tui.screens.triage import SPINNER_FRAME_SECONDS
 from chaintriage.tui.settings import load_settings, settings_path
 from chaintriage.tui.themes import load_themes
 
@@ -212,6 +214,7 @@ def test_loading_shows_progress_instead_of_a_frozen_screen(monkeypatch):
 
     async def main():
         async with app.run_test(size=(120, 30)) as pilot:
+            started = time.monotonic()
             for _ in range(200):
                 await pilot.pause(0.02)
                 if "computing" in str(app.triage.query_one("#loading-msg").render()):
@@ -219,8 +222,15 @@ def test_loading_shows_progress_instead_of_a_frozen_screen(monkeypatch):
             assert not app.triage.query_one("#loading").has_class("-hidden")
             assert "computing OSPX" in str(app.triage.query_one("#loading-msg").render())
             assert "computing OSPX" in bar(app, "topbar")
-            await pilot.pause(0.5)  # a longer load also gets the moving indicator
-            assert len(app.triage.query("LoadingIndicator")) == 1
+            if time.monotonic() - started < SPINNER_DELAY:  # the message alone, drawn once, at first
+                assert not app.triage.query("LoadingIndicator")
+            for _ in range(200):  # a longer load also gets the moving indicator, redrawn slowly
+                await pilot.pause(0.05)
+                if app.triage.query("LoadingIndicator"):
+                    break
+            assert time.monotonic() - started >= SPINNER_DELAY
+            (indicator,) = app.triage.query("LoadingIndicator")
+            assert indicator.auto_refresh >= SPINNER_FRAME_SECONDS > 1 / 16
             await pilot.press("]", "c", "s")  # keys while loading do nothing harmful
             release.set()
             await wait_ready(app, pilot)

@@ -37,6 +37,23 @@ from chaintriage.tui.themes import ChainTheme
 from chaintriage.tui.triage_state import TriageState
 from chaintriage.tui.widgets.info_bars import BarStyles, InfoBar, expiry_pieces, filter_pieces, top_pieces
 
+#: Seconds between two frames of the moving loading indicator: each takes the interpreter from the
+#: loading worker for a screen update (~1-2 ms), so it moves slowly (Textual's default is 1/16 s).
+SPINNER_FRAME_SECONDS = 0.25
+
+
+class SlowLoadingIndicator(LoadingIndicator):
+    """Textual's loading indicator, redrawn at most every ``SPINNER_FRAME_SECONDS``."""
+
+    @property
+    def auto_refresh(self) -> float | None:
+        return LoadingIndicator.auto_refresh.fget(self)
+
+    @auto_refresh.setter
+    def auto_refresh(self, interval: float | None) -> None:
+        LoadingIndicator.auto_refresh.fset(self, None if interval is None else max(interval, SPINNER_FRAME_SECONDS))
+
+
 if TYPE_CHECKING:  # pragma: no cover
     from chaintriage.tui.widgets.distribution_plot import DistributionPlot
     from chaintriage.tui.widgets.strike_grid import StrikeGrid
@@ -150,7 +167,7 @@ class TriageScreen(Screen):
     def show_spinner(self) -> None:
         """A moving indicator under the loading message (only while nothing is shown yet)."""
         if not self.state.views:
-            self.query_one("#loading").mount(LoadingIndicator(), before=0)
+            self.query_one("#loading").mount(SlowLoadingIndicator(), before=0)
 
     def set_busy(self, text: str) -> None:
         """Say what the background work is doing ("" when idle)."""
