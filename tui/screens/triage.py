@@ -28,7 +28,7 @@ from textual.binding import Binding
 from textual.containers import Horizontal, Vertical
 from textual.css.scalar import Scalar
 from textual.screen import Screen
-from textual.widgets import Footer, LoadingIndicator, Static
+from textual.widgets import LoadingIndicator, Static
 
 from chaintriage.tui import formatting as fm
 from chaintriage.tui.ladder_columns import COLUMNS
@@ -36,6 +36,7 @@ from chaintriage.tui.layout import PLOT_HIDDEN, PLOT_SHOWN, plan_layout
 from chaintriage.tui.themes import ChainTheme
 from chaintriage.tui.triage_state import TriageState
 from chaintriage.tui.widgets.info_bars import BarStyles, InfoBar, expiry_pieces, filter_pieces, top_pieces
+from chaintriage.tui.widgets.key_line import KeyLine
 
 #: Seconds between two frames of the moving loading indicator: each takes the interpreter from the
 #: loading worker for a screen update (~1-2 ms), so it moves slowly (Textual's default is 1/16 s).
@@ -107,7 +108,7 @@ class TriageScreen(Screen):
         yield Horizontal(id="body")
         with Vertical(id="loading"):
             yield Static(Text("starting"), id="loading-msg")
-        yield Footer(show_command_palette=False)
+        yield KeyLine()
 
     async def on_mount(self) -> None:
         self.is_up = True
