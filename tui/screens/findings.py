@@ -17,12 +17,13 @@ from rich.text import Text
 from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.screen import Screen
-from textual.widgets import Footer, Static
+from textual.widgets import Static
 
 from chaintriage.core.finding_table import FindingGroup, FindingTable, ranges_text
 from chaintriage.core.findings import SEVERITIES, Finding
 from chaintriage.tui import formatting as fm
 from chaintriage.tui.screens.common import close, plain
+from chaintriage.tui.widgets.key_line import KeyLine
 from chaintriage.tui.widgets.line_table import LineTable
 
 FINDING_COLUMNS = ("severity", "count", "where", "column", "expiry", "reason")
@@ -107,7 +108,7 @@ class FindingsScreen(Screen):
         theme = self._theme or getattr(getattr(self.app, "state", None), "theme", None)
         yield LineTable(id="findings-table", theme=theme)
         yield Static(Text(""), id="finding-detail")
-        yield Footer(show_command_palette=False)
+        yield KeyLine()
 
     def on_resize(self) -> None:
         self._fit_title()

@@ -7,10 +7,11 @@ from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import VerticalScroll
 from textual.screen import Screen
-from textual.widgets import Footer, Static
+from textual.widgets import Static
 
 from chaintriage.tui.help_text import help_text, wrap_help
 from chaintriage.tui.screens.common import close
+from chaintriage.tui.widgets.key_line import KeyLine
 
 
 class HelpScreen(Screen):
@@ -29,7 +30,7 @@ class HelpScreen(Screen):
                      classes="title")
         with VerticalScroll(id="help-scroll"):
             yield Static(Text(help_text(self._ascii)), id="help-body")
-        yield Footer(show_command_palette=False)
+        yield KeyLine()
 
     def on_mount(self) -> None:
         self.query_one("#help-scroll").focus()

@@ -14,7 +14,7 @@ from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import VerticalScroll
 from textual.screen import Screen
-from textual.widgets import Footer, Static
+from textual.widgets import Static
 
 from chaintriage.core.realised_vol import ESTIMATORS
 from chaintriage.core.vol_cone import cone_at
@@ -22,6 +22,7 @@ from chaintriage.tui import formatting as fm
 from chaintriage.tui.screens.common import close
 from chaintriage.tui.themes import FALLBACK_THEME, ChainTheme
 from chaintriage.tui.widgets.cone_chart import ConeStyles, chart_days, cone_chart, cone_legend
+from chaintriage.tui.widgets.key_line import KeyLine
 
 #: Estimators by their published names.
 ESTIMATOR_NAMES = {"close_to_close": "close-to-close", "parkinson": "Parkinson", "garman_klass": "Garman-Klass",
@@ -135,7 +136,7 @@ class HistoryScreen(Screen):
             yield Static(Text("past event sessions (close to close, newest first)", style="bold"))
             yield Static(past_moves_table(vh.past_moves, a), id="history-past-moves")
             yield Static(Text("\n".join(f"- {c}" for c in CAUTIONS), style="dim"), id="history-cautions")
-        yield Footer(show_command_palette=False)
+        yield KeyLine()
 
     def on_mount(self) -> None:
         self.query_one("#history-scroll").focus()

@@ -12,7 +12,7 @@ from rich.text import Text
 from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.screen import Screen
-from textual.widgets import DataTable, Footer, Static
+from textual.widgets import DataTable, Static
 
 from chaintriage.core.findings import ChainTriageError
 from chaintriage.tui import formatting as fm
@@ -21,6 +21,7 @@ from chaintriage.tui.screens.common import close, plain
 from chaintriage.tui.screens.confirm_dialog import ConfirmDialog
 from chaintriage.tui.screens.path_prompt import PathPrompt
 from chaintriage.tui.shortlist import ContractKey, Shortlist, ShortlistEntry, default_export_path
+from chaintriage.tui.widgets.key_line import KeyLine
 from chaintriage.tui.widgets.row_table import RowTable
 
 
@@ -142,7 +143,7 @@ class ShortlistScreen(Screen):
         yield Static(id="shortlist-title", classes="title")
         yield RowTable(id="shortlist-table")
         yield Static(id="shortlist-more", classes="title")
-        yield Footer(show_command_palette=False)
+        yield KeyLine()
 
     def on_mount(self) -> None:
         table = self.query_one("#shortlist-table", RowTable)

@@ -30,13 +30,14 @@ from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Vertical
 from textual.screen import ModalScreen, Screen
-from textual.widgets import Footer, Input, Static
+from textual.widgets import Input, Static
 
 from chaintriage.core.findings import ChainTriageError
 from chaintriage.core.targets import Target
 from chaintriage.tui import formatting as fm
 from chaintriage.tui.screens.common import close, plain
 from chaintriage.tui.session import SIGMA_LIMIT, SnapshotView
+from chaintriage.tui.widgets.key_line import KeyLine
 from chaintriage.tui.widgets.line_table import LineTable
 
 #: Measures in the order keys 1, 2, 3 choose them.
@@ -410,7 +411,7 @@ class TargetViewScreen(Screen):
         yield LineTable(id="target-table", fixed=FIXED_COLUMNS, theme=self._theme)
         yield Static(Text(""), id="target-note")
         yield Static(Text(CAUTION, style="dim"), id="target-caution")
-        yield Footer(show_command_palette=False)
+        yield KeyLine()
 
     def on_mount(self) -> None:
         table = self.query_one("#target-table", LineTable)

@@ -17,12 +17,13 @@ from rich.text import Text
 from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.screen import Screen
-from textual.widgets import DataTable, Footer, Static
+from textual.widgets import DataTable, Static
 
 from chaintriage.core.term_structure import TermStructure
 from chaintriage.tui import formatting as fm
 from chaintriage.tui.screens.common import close, plain
 from chaintriage.tui.themes import FALLBACK_THEME, ChainTheme
+from chaintriage.tui.widgets.key_line import KeyLine
 from chaintriage.tui.widgets.term_chart import ChartStyles, legend, term_chart
 
 #: Columns of the expiry table.
@@ -136,7 +137,7 @@ class TermStructureScreen(Screen):
                                                      self._with_history)), id="term-events")
         yield DataTable(id="term-table", cursor_type="row", zebra_stripes=True)
         yield Static(Text(CAUTION, style="dim"), id="term-caution")
-        yield Footer(show_command_palette=False)
+        yield KeyLine()
 
     def on_mount(self) -> None:
         table = self.query_one("#term-table", DataTable)
