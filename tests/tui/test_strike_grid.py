@@ -455,3 +455,22 @@ def test_highlighted_value_reads_one_column_of_the_highlighted_contract():
         grid.cursor_to_strike(95.0, "put")
         assert grid.highlighted_contract() is None and grid.highlighted_value("p_beyond") is None
     run(body)
+
+
+def test_number_columns_read_as_pandas_reads_each_column_alone():
+    # [L] pandas.to_numeric(errors="coerce") column by column (what the grid read before) is the oracle
+    from chaintriage.tui.widgets.strike_grid import _number_columns
+
+    frame = pd.DataFrame({
+        "a": [1.5, np.nan, -2.0],
+        "b": [1, 2, 3],
+        "c": pd.array([0.25, None, 4.0], dtype="Float64"),
+        "d": ["1.5", "x", None],
+        "e": [True, False, True],
+        "f": pd.array([7, None, 9], dtype="Int64"),
+    })
+    got = _number_columns(frame, ["f", "a", "missing", "b", "c", "d", "e", "a"])
+    assert got.fields == ["f", "a", "b", "c", "d", "e"]
+    for j, name in enumerate(got.fields):
+        want = pd.to_numeric(frame[name], errors="coerce").to_numpy(dtype=float, na_value=np.nan)
+        np.testing.assert_array_equal(got.values[:, j], want)

@@ -89,6 +89,31 @@ class _Styles:
         self.forward_label = Style(color=c["forward_marker"], bgcolor=bg, bold=True)
 
 
+
+class _Numbers:
+    """Number columns of a frame as one float matrix: ``values`` (rows x fields), ``fields`` in order."""
+
+    def __init__(self, values: np.ndarray, fields: list[str]) -> None:
+        self.values = values
+        self.fields = fields
+        self.shape = values.shape
+
+
+def _number_columns(frame: pd.DataFrame, fields: Sequence[str]) -> _Numbers:
+    """``fields`` of ``frame`` that it has, as floats (what is not a number is NaN): the columns of a number
+    dtype taken together (one conversion, not a Series per column), any other one by ``pd.to_numeric``."""
+    present = [f for f in dict.fromkeys(fields) if f in frame.columns]
+    dtypes = frame.dtypes
+    together = [f for f in present if pd.api.types.is_numeric_dtype(dtypes[f])]
+    values = np.empty((len(frame), len(present)))
+    if together:
+        at = [present.index(f) for f in together]
+        values[:, at] = frame[together].to_numpy(dtype=float, na_value=np.nan)
+    for j, f in enumerate(present):
+        if f not in together:
+            values[:, j] = pd.to_numeric(frame[f], errors="coerce").to_numpy(dtype=float)
+    return _Numbers(values, present)
+
 class StrikeGrid(ScrollView, can_focus=True):
     """One expiry's strike ladder. Public API: ``set_rows``, ``set_columns``,
     ``set_marked``, ``set_theme``, ``set_ascii``, ``cursor_to_strike``,
@@ -274,19 +299,26 @@ class StrikeGrid(ScrollView, can_focus=True):
             pos[idx[sel]] = rows[sel]
             self._pos[side] = pos
         self._values = {}
+        numbers = _number_columns(frame, [spec.field for spec in COLUMNS.values() if not spec.text])
+        by_field: dict[tuple[str, str], np.ndarray] = {}
+        for side in (CALL, PUT):  # every number column of a side laid out by strike at once
+            pos = self._pos[side]
+            has = pos >= 0
+            laid = np.full((m, numbers.shape[1]), np.nan)
+            if has.any():
+                laid[has] = numbers.values[pos[has]]
+            for j, field in enumerate(numbers.fields):
+                by_field[(field, side)] = laid[:, j]
         for spec in COLUMNS.values():
-            if spec.field in frame.columns:
-                col = frame[spec.field].to_numpy() if spec.text else \
-                    pd.to_numeric(frame[spec.field], errors="coerce").to_numpy(dtype=float)
-            else:
-                col = None
+            col = frame[spec.field].to_numpy() if spec.text and spec.field in frame.columns else None
             for side in (CALL, PUT):
+                if not spec.text:
+                    out = by_field.get((spec.field, side))
+                    self._values[(spec.key, side)] = np.full(m, np.nan) if out is None else out
+                    continue
                 pos = self._pos[side]
                 has = pos >= 0
-                if spec.text:
-                    out = np.full(m, "", dtype=object)
-                else:
-                    out = np.full(m, np.nan)
+                out = np.full(m, "", dtype=object)
                 if col is not None and has.any():
                     out[has] = col[pos[has]]
                 self._values[(spec.key, side)] = out
