@@ -869,8 +869,9 @@ def _no_vol_findings(status, contracts, order, exp_code, is_call, strike, mid, o
     bad = np.flatnonzero((status == BELOW_INTRINSIC) | (status == ABOVE_UPPER_BOUND))
     if not bad.size:
         return
-    files = contracts["source_file"].to_numpy(dtype=object)[order[bad]]
-    lines = contracts["source_line"].to_numpy()[order[bad]]
+    rows = order[bad]  # the few rows taken before the text becomes objects (not the whole column)
+    files = contracts["source_file"].array.take(rows).to_numpy(dtype=object)
+    lines = contracts["source_line"].to_numpy()[rows]
     for j, file, line in zip(bad, files, lines):
         kind = "call" if is_call[j] else "put"
         severity = WARNING if otm[j] else NOTE

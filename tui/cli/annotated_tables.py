@@ -126,11 +126,18 @@ def nothing_usable(args, result: LoadResult) -> int:
 
 
 def with_as_of(frame: pd.DataFrame, a: AnnotatedSnapshot, fmt: str) -> pd.DataFrame:
+    """``frame`` with the snapshot time (ISO text) as column ``as_of`` after the first one (not in plain).
+
+    One value for every row: a categorical of one category (a byte of code per row), where a text column
+    would lay out the text once per row (with pyarrow, a fresh buffer of n copies; without it, n object
+    pointers). The writers take a categorical of text as text (``table_output._is_text``)."""
     if fmt != "plain":
-        frame.insert(1, "as_of", a.snapshot.as_of.isoformat())
+        import numpy as np
+        import pandas as pd
+
+        one = pd.Index([a.snapshot.as_of.isoformat()], dtype=object)
+        frame.insert(1, "as_of", pd.Categorical.from_codes(np.zeros(len(frame), dtype=np.int8), one))
     return frame
-
-
 
 
 def annotated_status(result: LoadResult, model_findings: list) -> int:

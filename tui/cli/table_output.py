@@ -472,7 +472,11 @@ def to_plain(frame: pd.DataFrame) -> str:
 
 
 def _is_text(s: pd.Series) -> bool:
-    return s.dtype == object or isinstance(s.dtype, pd.StringDtype)
+    """Text cells: object, pandas' ``str``, or a categorical of those (e.g. ``as_of``)."""
+    dtype = s.dtype
+    if isinstance(dtype, pd.CategoricalDtype):
+        dtype = dtype.categories.dtype
+    return dtype == object or isinstance(dtype, pd.StringDtype)
 
 
 def _once_per_value(s: pd.Series, fn) -> np.ndarray:
@@ -532,7 +536,15 @@ def _factorized(s: pd.Series) -> tuple[np.ndarray, object]:
     """``pd.factorize`` of a column (missing values a value of their own), text as Python objects.
 
     A text column whose missing value is NaN (pandas' ``str``) is factorized as it is, a few times
-    faster than as objects and with the same codes and values; other text columns as objects."""
+    faster than as objects and with the same codes and values; a categorical by its codes (its categories,
+    a missing value last); other text columns as objects."""
+    if isinstance(s.dtype, pd.CategoricalDtype):
+        codes = s.cat.codes.to_numpy()
+        uniq = [*s.cat.categories.to_numpy(dtype=object)]
+        if (codes < 0).any():
+            codes = np.where(codes < 0, len(uniq), codes)
+            uniq.append(np.nan)
+        return codes, uniq
     if _is_text(s) and not _nan_missing_text(s.dtype):
         s = s.astype(object)
     return pd.factorize(s, use_na_sentinel=False)
