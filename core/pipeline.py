@@ -1011,7 +1011,10 @@ def _atm_vols(slices: SviSlices, t: np.ndarray) -> np.ndarray:
 
 def _flags(oi: np.ndarray, bid: np.ndarray, iv: np.ndarray, spread_pct: np.ndarray,
            settings: PipelineSettings):
-    """Short plain words per contract, comma-separated: no-iv, zero-bid, wide, thin."""
+    """Short plain words per contract, comma-separated: no-iv, zero-bid, wide, thin.
+
+    A categorical of the 16 combinations (in text order, so it sorts as the texts do): a byte per row,
+    where a text column would lay out every row's text (with pyarrow, a buffer made by a take)."""
     words = ("no-iv", "zero-bid", "wide", "thin")
     with np.errstate(invalid="ignore"):
         masks = (
@@ -1020,8 +1023,11 @@ def _flags(oi: np.ndarray, bid: np.ndarray, iv: np.ndarray, spread_pct: np.ndarr
             spread_pct > settings.wide_spread,
             np.isfinite(oi) & (oi < settings.thin_open_interest),
         )
-    code = np.zeros(bid.size, dtype=np.int64)
+    code = np.zeros(bid.size, dtype=np.int8)
     for bit, mask in enumerate(masks):
-        code |= mask.astype(np.int64) << bit
-    table = pd.array([",".join(w for b, w in enumerate(words) if c >> b & 1) for c in range(16)], dtype="str")
-    return table.take(code)
+        code |= mask.astype(np.int8) << bit
+    texts = [",".join(w for b, w in enumerate(words) if c >> b & 1) for c in range(16)]
+    in_order = sorted(range(16), key=texts.__getitem__)
+    place = np.empty(16, dtype=np.int8)
+    place[in_order] = np.arange(16)
+    return pd.Categorical.from_codes(place[code], pd.Index([texts[c] for c in in_order], dtype="str"))
