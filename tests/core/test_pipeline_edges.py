@@ -161,3 +161,28 @@ def test_expiry_on_an_exchange_holiday_gets_a_finding():
     ann = annotate(snap, PipelineSettings(basis="252"))
     hits = [f for f in ann.findings if "not an exchange trading day" in f.reason]
     assert [f.expiry for f in hits] == ["2027-01-01"]
+
+
+def test_flags_are_the_words_of_each_contracts_own_quote_and_sort_as_text():
+    """[D] every contract's flags are the words its own figures call for (no-iv: no implied vol,
+    zero-bid: no bid above zero, wide: spread beyond the setting, thin: open interest below it), joined
+    in that order; the column (a categorical) sorts as its texts do."""
+    snap = _priced(["2027-01-15", "2027-03-19"], np.arange(60, 141, 2.5))
+    c = snap.contracts
+    rng = np.random.default_rng(4)
+    c["bid"] = np.where(rng.random(len(c)) < 0.3, 0.0, c["bid"])
+    c["ask"] = np.where(rng.random(len(c)) < 0.3, c["ask"] * 3 + 0.5, c["ask"])
+    c["open_interest"] = rng.choice([np.nan, 3.0, 5000.0], len(c))
+    deep = (c["kind"] == "call") & (c["strike"] == 60.0)
+    c.loc[deep, ["bid", "ask"]] = [1.0, 1.2]  # below intrinsic: no vol
+    settings = PipelineSettings(basis="365")
+    a = annotate(snap, settings).contracts
+    words = np.array(["no-iv", "zero-bid", "wide", "thin"])
+    with np.errstate(invalid="ignore"):
+        called = np.column_stack([a["iv"].isna(), ~(a["bid"] > 0), a["spread_pct"] > settings.wide_spread,
+                                  a["open_interest"].notna() & (a["open_interest"] < settings.thin_open_interest)])
+    expected = [",".join(words[row]) for row in called]
+    assert a["flags"].tolist() == expected
+    assert len(set(expected)) >= 6  # several combinations met
+    assert a["flags"].sort_values(kind="stable").tolist() == sorted(expected)
+    assert (a["flags"] == "").sum() == expected.count("")

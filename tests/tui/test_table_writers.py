@@ -118,6 +118,37 @@ def test_plain_equals_the_per_cell_layout(monkeypatch):
     assert to.to_plain(f) == expected
 
 
+def test_categorical_text_columns_are_written_as_their_texts(monkeypatch):
+    """A categorical of text (``as_of``, ``flags``) is written as the same texts would be: csv against
+    pandas' to_csv of the sanitised texts [L], json against json.dumps of the records [L], plain as
+    the object column [D]; a missing value, an unused category and categories out of row order too."""
+    monkeypatch.setattr(to, "BLOCK_ROWS", 700)
+    f = frame()
+    cat = f.copy()
+    for col in ("underlying", "kind", "flags"):
+        cats = sorted({v for v in f[col] if isinstance(v, str)} | {"unused"}, reverse=True)
+        cat[col] = pd.Categorical(f[col], categories=pd.Index(cats, dtype=object))
+    assert cat["kind"].isna().sum() == 1 and all(isinstance(cat[c].dtype, pd.CategoricalDtype) for c in
+                                                 ("underlying", "kind", "flags"))
+    safe = f.copy()
+    for col in ("underlying", "kind", "flags"):
+        safe[col] = [neutralise_formula(plain(v)) if isinstance(v, str) else v for v in safe[col]]
+    assert to.to_csv(cat) == safe.to_csv(index=False, date_format="%Y-%m-%d", float_format="%.10g",
+                                         lineterminator="\n")
+    assert to.to_json(cat) == json_reference(f)
+    assert to.to_plain(cat) == to.to_plain(f)
+    for fmt in ("csv", "json"):  # pieces of a stream, one category per piece (as ``with_as_of`` makes them)
+        buf = io.StringIO()
+        stream = to.TableStream(fmt, buf)
+        for a in range(0, len(f), 1000):
+            piece = f.iloc[a:a + 1000].copy()
+            piece["kind"] = pd.Categorical.from_codes(np.zeros(len(piece), dtype=np.int8), ["x,y"])
+            stream.write(piece)
+        stream.close()
+        whole = f.assign(kind="x,y")
+        assert buf.getvalue() == to.render(whole, fmt)
+
+
 @pytest.mark.parametrize("fmt", ["csv", "json", "plain"])
 def test_a_table_written_in_pieces_equals_the_table_written_whole(fmt):
     f = frame(900)
