@@ -251,8 +251,8 @@ def _format_codes(values, kind: str) -> tuple[np.ndarray, np.ndarray]:
     worded = None
     if kind in ("text", "date", "bool") or n == 0:
         if kind == "text" and isinstance(values, pd.Series) and _is_text(values) \
-                and _nan_missing_text(values.dtype):  # as it is: the same as via objects, faster
-            codes, uniq = pd.factorize(values, use_na_sentinel=False)
+                and (_nan_missing_text(values.dtype) or isinstance(values.dtype, pd.CategoricalDtype)):
+            codes, uniq = _factorized(values)  # as it is: the same as via objects, faster
         else:
             arr = np.asarray(values, dtype=object) if kind != "date" else values
             codes, uniq = pd.factorize(pd.Series(arr), use_na_sentinel=False)
@@ -536,15 +536,18 @@ def _factorized(s: pd.Series) -> tuple[np.ndarray, object]:
     """``pd.factorize`` of a column (missing values a value of their own), text as Python objects.
 
     A text column whose missing value is NaN (pandas' ``str``) is factorized as it is, a few times
-    faster than as objects and with the same codes and values; a categorical by its codes (its categories,
-    a missing value last); other text columns as objects."""
+    faster than as objects and with the same codes and values; a categorical by its codes (the categories
+    present, in their order, then a missing value; an unused category would widen a plain column); other
+    text columns as objects."""
     if isinstance(s.dtype, pd.CategoricalDtype):
-        codes = s.cat.codes.to_numpy()
-        uniq = [*s.cat.categories.to_numpy(dtype=object)]
-        if (codes < 0).any():
-            codes = np.where(codes < 0, len(uniq), codes)
-            uniq.append(np.nan)
-        return codes, uniq
+        values = np.array([*s.cat.categories.to_numpy(dtype=object), np.nan], dtype=object)
+        codes = s.cat.codes.to_numpy().astype(np.intp) % values.size  # -1 (missing): the last value
+        present = np.flatnonzero(np.bincount(codes, minlength=values.size)) if codes.size else codes
+        if present.size < values.size:  # only the values met, numbered anew
+            renumber = np.zeros(values.size, dtype=np.intp)
+            renumber[present] = np.arange(present.size)
+            codes, values = renumber[codes], values[present]
+        return codes, values.tolist()
     if _is_text(s) and not _nan_missing_text(s.dtype):
         s = s.astype(object)
     return pd.factorize(s, use_na_sentinel=False)
