@@ -28,6 +28,7 @@ from chaintriage.tui import formatting as fm
 from chaintriage.tui import clipboard, snapshot_loading, terminal_signals
 from chaintriage.tui.touch_jobs import TouchJobs
 from chaintriage.tui.cli.common import error
+from chaintriage.tui.collector import collector_paused
 from chaintriage.tui.layout import PLOT_HIDDEN, PLOT_SHOWN
 from chaintriage.tui.screens.triage import TriageScreen
 from chaintriage.tui.settings import load_settings, save_preferences
@@ -77,18 +78,6 @@ def _ui_first():
             _loads_running[0] -= 1
             if _loads_running[0] == 0:
                 sys.setswitchinterval(_loads_running[1])
-
-
-@contextlib.contextmanager
-def _collector_paused():
-    """No automatic cycle collection inside (gc.disable); the collector's state before is restored after."""
-    was = gc.isenabled()
-    gc.disable()
-    try:
-        yield
-    finally:
-        if was:
-            gc.enable()
 
 
 class ChainTriageApp(App[int]):
@@ -310,7 +299,7 @@ class ChainTriageApp(App[int]):
             # as they are: its passes over the growing heap cost ~30 ms of the start, and the imports
             # leave almost no cyclic garbage (a few hundred objects), so none is looked for.
             self._heap_settled(young=False)
-            with _collector_paused():
+            with collector_paused():
                 snapshot_loading.import_numerical_modules()
                 self._heap_settled(young=False)
             self.call_from_thread(self.triage.mount_body)

@@ -120,6 +120,18 @@ def _version() -> str:
         return "unknown"
 
 
+def _import_numerical_modules() -> None:
+    """The loader (numpy, pandas), which every subcommand that runs uses, imported with the cycle
+    collector paused and its objects frozen after (later passes skip them): ~0.05-0.1 s less CPU."""
+    import gc
+
+    from chaintriage.tui.collector import collector_paused
+
+    with collector_paused():
+        import chaintriage.core.loading  # noqa: F401
+    gc.freeze()
+
+
 def main(argv: Sequence[str] | None = None) -> int:
     """Entry point: returns the exit status."""
     argv = list(sys.argv[1:] if argv is None else argv)
@@ -137,6 +149,7 @@ def main(argv: Sequence[str] | None = None) -> int:
         if getattr(args, "func", None) is None:
             parser.print_help(sys.stderr)
             return EXIT_UNUSABLE
+        _import_numerical_modules()
         # Overflow and invalid-value warnings from numpy at absurd magnitudes are
         # not for the user: core reports such rows as NaN plus a finding.
         with warnings.catch_warnings():
