@@ -1791,21 +1791,7 @@ class _FileValidator:
                     self.group_findings.append(Finding(
                         NOTE, f"spot is empty on {gi.size - has.size} of {gi.size} rows; {_fmt(spot)} is used",
                         file=self.path, column=self.lab("spot"), underlying=und))
-            # expiry before the snapshot date, the date in the exchange's time zone (whatever offset as_of has)
-            local = as_of.tz_convert(EXCHANGE_TZ)
-            day = np.datetime64(local.tz_localize(None).normalize().to_datetime64(), "ns")
-            before = gi[self.expiry[gi] < day]
-            if before.size:
-                day_text = f"{local:%Y-%m-%d} (New York)"
-                rows.leave_out(before, self.lab("expiry"), lambda i: (
-                    f"expiry {self.expiry[i].astype('datetime64[D]')} is before the snapshot date {day_text}"),
-                    topic=f"expiry is before the snapshot date {day_text}")
-            self.snap[und] = (as_of, spot)
-            # control characters in the name
-            if self.ov.underlying is None and re.search(_CONTROL_RE, und):
-                self.group_findings.append(Finding(
-                    WARNING, f"underlying {_show(und)} contains control or invisible characters; kept as written",
-                    file=self.path, line=int(lines[gi[0]]), column=self.lab("underlying"), underlying=und))
+            self._end_group(und, as_of, spot, gi, int(lines[gi[0]]))
 
     def _resolve_one(self, und: str, size: int) -> None:
         """``resolve_groups`` for the only underlying, whose rows are those not left out (``size`` of them):
@@ -1869,13 +1855,19 @@ class _FileValidator:
                 self.group_findings.append(Finding(
                     NOTE, f"spot is empty on {size - n_has} of {size} rows; {_fmt(spot)} is used",
                     file=self.path, column=self.lab("spot"), underlying=und))
+        self._end_group(und, as_of, spot, group, int(lines[np.argmax(group)]))
+
+    def _end_group(self, und: str, as_of: pd.Timestamp, spot: float, group: np.ndarray, first_line: int) -> None:
+        """What closes an underlying's group (``group``: its rows, as indices or a mask; ``first_line``: its
+        first line): expiries before the snapshot date left out, its as_of and spot kept, a warning for
+        control characters in its name."""
         # expiry before the snapshot date, the date in the exchange's time zone (whatever offset as_of has)
         local = as_of.tz_convert(EXCHANGE_TZ)
         day = np.datetime64(local.tz_localize(None).normalize().to_datetime64(), "ns")
-        before = group & (self.expiry < day)
-        if before.any():
+        before = group & (self.expiry < day) if group.dtype == bool else group[self.expiry[group] < day]
+        if before.any() if before.dtype == bool else before.size:
             day_text = f"{local:%Y-%m-%d} (New York)"
-            rows.leave_out(before, self.lab("expiry"), lambda i: (
+            self.rows.leave_out(before, self.lab("expiry"), lambda i: (
                 f"expiry {self.expiry[i].astype('datetime64[D]')} is before the snapshot date {day_text}"),
                 topic=f"expiry is before the snapshot date {day_text}")
         self.snap[und] = (as_of, spot)
@@ -1883,7 +1875,7 @@ class _FileValidator:
         if self.ov.underlying is None and re.search(_CONTROL_RE, und):
             self.group_findings.append(Finding(
                 WARNING, f"underlying {_show(und)} contains control or invisible characters; kept as written",
-                file=self.path, line=int(lines[np.argmax(group)]), column=self.lab("underlying"), underlying=und))
+                file=self.path, line=first_line, column=self.lab("underlying"), underlying=und))
 
     def check_duplicates(self) -> None:
         """Leave out a contract given again (same underlying, expiry, strike, kind): the first is kept.
