@@ -1753,18 +1753,7 @@ class _FileValidator:
                 at_latest = given[ns == latest]
                 first = int(at_latest[0])
                 as_of = _timestamp(self.col["as_of"].iloc[first], int(latest))
-                if ns.min() != latest:
-                    earliest = pd.Timestamp(int(ns.min()), tz="UTC").tz_convert(as_of.tz)
-                    self.group_findings.append(Finding(
-                        WARNING,
-                        f"as_of varies across {given.size} rows (from {earliest.isoformat()} to "
-                        f"{as_of.isoformat()}); the latest is used for the whole snapshot",
-                        file=self.path, line=int(lines[first]), column=self.lab("as_of"), underlying=und))
-                if given.size < gi.size:
-                    self.group_findings.append(Finding(
-                        NOTE, f"as_of is empty on {gi.size - given.size} of {gi.size} rows; "
-                              f"{as_of.isoformat()} is used for them",
-                        file=self.path, column=self.lab("as_of"), underlying=und))
+                self._as_of_notes(und, as_of, ns.min(), latest, given.size, gi.size, int(lines[first]))
             # spot
             if self.ov.spot is not None:
                 spot = float(self.ov.spot)
@@ -1781,16 +1770,7 @@ class _FileValidator:
                 spot = float(self.spot_v[first])
                 spots = self.spot_v[has]
                 values = spots[:1] if spots.min() == spots.max() else np.unique(spots)  # one spot: no sort
-                if values.size > 1:
-                    self.group_findings.append(Finding(
-                        WARNING,
-                        f"spot varies ({values.size} values from {_fmt(values[0])} to {_fmt(values[-1])}); "
-                        f"{_fmt(spot)} from this line (at the latest as_of) is used for the whole snapshot",
-                        file=self.path, line=int(lines[first]), column=self.lab("spot"), underlying=und))
-                if has.size < gi.size:
-                    self.group_findings.append(Finding(
-                        NOTE, f"spot is empty on {gi.size - has.size} of {gi.size} rows; {_fmt(spot)} is used",
-                        file=self.path, column=self.lab("spot"), underlying=und))
+                self._spot_notes(und, spot, values, has.size, gi.size, int(lines[first]))
             self._end_group(und, as_of, spot, gi, int(lines[gi[0]]))
 
     def _resolve_one(self, und: str, size: int) -> None:
@@ -1817,18 +1797,7 @@ class _FileValidator:
             at_latest = given if earliest == latest else given & (ns == latest)
             first = int(np.argmax(at_latest))
             as_of = _timestamp(self.col["as_of"].iloc[first], int(latest))
-            if earliest != latest:
-                earliest = pd.Timestamp(int(earliest), tz="UTC").tz_convert(as_of.tz)
-                self.group_findings.append(Finding(
-                    WARNING,
-                    f"as_of varies across {n_given} rows (from {earliest.isoformat()} to "
-                    f"{as_of.isoformat()}); the latest is used for the whole snapshot",
-                    file=self.path, line=int(lines[first]), column=self.lab("as_of"), underlying=und))
-            if n_given < size:
-                self.group_findings.append(Finding(
-                    NOTE, f"as_of is empty on {size - n_given} of {size} rows; "
-                          f"{as_of.isoformat()} is used for them",
-                    file=self.path, column=self.lab("as_of"), underlying=und))
+            self._as_of_notes(und, as_of, earliest, latest, n_given, size, int(lines[first]))
         # spot
         if self.ov.spot is not None:
             spot = float(self.ov.spot)
@@ -1844,18 +1813,40 @@ class _FileValidator:
             spot = float(self.spot_v[first])
             low = self.spot_v.min(where=has, initial=np.inf)
             high = self.spot_v.max(where=has, initial=-np.inf)
-            if low != high:
-                values = np.unique(self.spot_v[has])
-                self.group_findings.append(Finding(
-                    WARNING,
-                    f"spot varies ({values.size} values from {_fmt(values[0])} to {_fmt(values[-1])}); "
-                    f"{_fmt(spot)} from this line (at the latest as_of) is used for the whole snapshot",
-                    file=self.path, line=int(lines[first]), column=self.lab("spot"), underlying=und))
-            if n_has < size:
-                self.group_findings.append(Finding(
-                    NOTE, f"spot is empty on {size - n_has} of {size} rows; {_fmt(spot)} is used",
-                    file=self.path, column=self.lab("spot"), underlying=und))
+            values = self.spot_v[first:first + 1] if low == high else np.unique(self.spot_v[has])  # one spot: no sort
+            self._spot_notes(und, spot, values, n_has, size, int(lines[first]))
         self._end_group(und, as_of, spot, group, int(lines[np.argmax(group)]))
+
+    def _as_of_notes(self, und: str, as_of: pd.Timestamp, earliest_ns, latest_ns, n_given: int, n_rows: int,
+                     line: int) -> None:
+        """Findings on an underlying's as_of cells: they vary (earliest and latest in ns since the epoch,
+        UTC; ``line``: the row whose as_of is used), or ``n_given`` of its ``n_rows`` rows give one."""
+        if earliest_ns != latest_ns:
+            earliest = pd.Timestamp(int(earliest_ns), tz="UTC").tz_convert(as_of.tz)
+            self.group_findings.append(Finding(
+                WARNING,
+                f"as_of varies across {n_given} rows (from {earliest.isoformat()} to "
+                f"{as_of.isoformat()}); the latest is used for the whole snapshot",
+                file=self.path, line=line, column=self.lab("as_of"), underlying=und))
+        if n_given < n_rows:
+            self.group_findings.append(Finding(
+                NOTE, f"as_of is empty on {n_rows - n_given} of {n_rows} rows; "
+                      f"{as_of.isoformat()} is used for them",
+                file=self.path, column=self.lab("as_of"), underlying=und))
+
+    def _spot_notes(self, und: str, spot: float, values: np.ndarray, n_has: int, n_rows: int, line: int) -> None:
+        """Findings on an underlying's spot cells: more than one of ``values`` (its distinct spots, ascending;
+        ``line``: the row whose spot is used), or ``n_has`` of its ``n_rows`` rows give one."""
+        if values.size > 1:
+            self.group_findings.append(Finding(
+                WARNING,
+                f"spot varies ({values.size} values from {_fmt(values[0])} to {_fmt(values[-1])}); "
+                f"{_fmt(spot)} from this line (at the latest as_of) is used for the whole snapshot",
+                file=self.path, line=line, column=self.lab("spot"), underlying=und))
+        if n_has < n_rows:
+            self.group_findings.append(Finding(
+                NOTE, f"spot is empty on {n_rows - n_has} of {n_rows} rows; {_fmt(spot)} is used",
+                file=self.path, column=self.lab("spot"), underlying=und))
 
     def _end_group(self, und: str, as_of: pd.Timestamp, spot: float, group: np.ndarray, first_line: int) -> None:
         """What closes an underlying's group (``group``: its rows, as indices or a mask; ``first_line``: its
