@@ -9,7 +9,6 @@ from __future__ import annotations
 
 import contextlib
 import os
-import sys
 import time
 from collections.abc import Callable, Iterator, Sequence
 from importlib import resources
@@ -17,6 +16,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 from chaintriage.core.findings import ChainTriageError
+from chaintriage.tui.numerical_environment import set_numerical_defaults
 from chaintriage.tui import formatting as fm
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -33,18 +33,12 @@ DEMO_PACKAGE = "chaintriage.demo_chains"
 FIRST_EXPIRY_FIRST_ABOVE = 0
 
 
-#: Threads of numpy's BLAS (OpenBLAS) in the app, unless the environment says otherwise: its matrices are
-#: small (an expiry's smile fit), and a pool of BLAS threads costs ~30 ms of CPU when numpy is imported
-#: (and spins after a call), taken from the screen's thread on a machine with few cores.
-APP_BLAS_THREADS = "1"
-
-
 def import_numerical_modules() -> None:
     """Import what loading and the ladder need (numpy, pandas, scipy, core, the ladder's widgets):
     called first in the loading worker, so the app's first frame waits for none of it. A process that
-    has not imported numpy yet gets ``APP_BLAS_THREADS`` BLAS threads (unless OPENBLAS_NUM_THREADS is set)."""
-    if "numpy" not in sys.modules:
-        os.environ.setdefault("OPENBLAS_NUM_THREADS", APP_BLAS_THREADS)
+    has not imported numpy yet gets ``numerical_environment.NUMERICAL_DEFAULTS`` (one BLAS thread, no
+    huge-page requests) unless its environment says otherwise."""
+    set_numerical_defaults()
     import chaintriage.core.loading  # noqa: F401
     import chaintriage.core.pipeline  # noqa: F401
     import chaintriage.tui.session  # noqa: F401

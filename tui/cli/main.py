@@ -122,10 +122,14 @@ def _version() -> str:
 
 def _import_numerical_modules() -> None:
     """The loader (numpy, pandas), which every subcommand that runs uses, imported with the cycle
-    collector paused and its objects frozen after (later passes skip them): ~0.05-0.1 s less CPU."""
+    collector paused and its objects frozen after (later passes skip them): ~0.05-0.1 s less CPU;
+    numpy gets ``numerical_environment.NUMERICAL_DEFAULTS`` unless the environment says otherwise."""
     import gc
 
     from chaintriage.tui.collector import collector_paused
+    from chaintriage.tui.numerical_environment import set_numerical_defaults
+
+    set_numerical_defaults()
 
     with collector_paused():
         import chaintriage.core.loading  # noqa: F401

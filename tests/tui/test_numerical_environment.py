@@ -1,0 +1,65 @@
+"""The environment numpy and OpenBLAS read at import, set by the app and the subcommands.
+
+[L] numpy reads ``NUMPY_MADVISE_HUGEPAGE`` when first imported (0: no huge-page
+requests for big arrays; documented in numpy's environment-variable reference,
+named here from memory) and reports its choice through
+``numpy._core.multiarray._get_madvise_hugepage``; OpenBLAS reads
+``OPENBLAS_NUM_THREADS`` at load. [D] a value the user has set is kept.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import subprocess
+import sys
+
+import pytest
+
+PROBE = """
+import json, os, sys
+from chaintriage.tui.cli.main import _import_numerical_modules
+_import_numerical_modules()
+import numpy._core.multiarray as m
+print(json.dumps({"huge": m._get_madvise_hugepage(), "blas": os.environ.get("OPENBLAS_NUM_THREADS"),
+                  "madvise": os.environ.get("NUMPY_MADVISE_HUGEPAGE")}))
+"""
+
+
+def _probe(**env_overrides) -> dict:
+    env = {k: v for k, v in os.environ.items() if k not in ("OPENBLAS_NUM_THREADS", "NUMPY_MADVISE_HUGEPAGE")}
+    env.update(env_overrides)
+    out = subprocess.run([sys.executable, "-c", PROBE], env=env, capture_output=True, text=True, timeout=120)
+    assert out.returncode == 0, out.stderr
+    return json.loads(out.stdout)
+
+
+@pytest.mark.skipif(not sys.platform.startswith("linux"), reason="numpy asks for huge pages on Linux only")
+def test_a_subcommand_asks_for_no_huge_pages_and_one_blas_thread():
+    assert _probe() == {"huge": False, "blas": "1", "madvise": "0"}
+
+
+@pytest.mark.skipif(not sys.platform.startswith("linux"), reason="numpy asks for huge pages on Linux only")
+def test_values_the_user_set_are_kept():
+    assert _probe(NUMPY_MADVISE_HUGEPAGE="1", OPENBLAS_NUM_THREADS="2") == {"huge": True, "blas": "2",
+                                                                          "madvise": "1"}
+
+
+def test_nothing_is_set_once_numpy_is_imported(monkeypatch):
+    from chaintriage.tui.numerical_environment import NUMERICAL_DEFAULTS, set_numerical_defaults
+
+    import numpy  # noqa: F401  (this test process has numpy already)
+
+    for name in NUMERICAL_DEFAULTS:
+        monkeypatch.delenv(name, raising=False)
+    assert set_numerical_defaults() is False
+    assert all(name not in os.environ for name in NUMERICAL_DEFAULTS)
+
+
+def test_the_app_worker_sets_them_before_its_imports(monkeypatch):
+    from chaintriage.tui import snapshot_loading
+
+    calls = []
+    monkeypatch.setattr(snapshot_loading, "set_numerical_defaults", lambda: calls.append("set"))
+    snapshot_loading.import_numerical_modules()
+    assert calls == ["set"]
