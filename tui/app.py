@@ -36,7 +36,7 @@ from chaintriage.tui.shortlist import ContractKey, ShortlistEntry
 from chaintriage.tui.strike_summary import copy_to_system_clipboard, summarize
 from chaintriage.tui.themes import FALLBACK_THEME, ChainTheme, css_variables, load_themes, to_textual_theme
 from chaintriage.tui.triage_state import TriageState
-from chaintriage.tui.ladder_columns import DEFAULT_COLUMNS, known_columns
+from chaintriage.tui.ladder_columns import DEFAULT_COLUMNS, known_columns, parse_sort_text, sort_text
 from chaintriage.tui.widgets.ascii_drawing import use_ascii_drawing
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -200,10 +200,15 @@ class ChainTriageApp(App[int]):
         given = getattr(pipeline_settings, "confidence", None)
         if given is not None and abs(given - CLI_DEFAULT_CONFIDENCE) > 1e-12:
             confidence = float(given)  # `open --confidence C` starts there
+        try:
+            ladder_sort = parse_sort_text(self.settings.extra.get("ladder_sort", ""))
+        except ValueError as exc:
+            ladder_sort = None
+            self._startup_notices.append(f"settings: 'ladder_sort' {exc}; the ladder is in strike order")
         self.state = TriageState(theme=chain_theme, confidence=confidence,
                                  columns=known_columns(self.settings.columns) or list(DEFAULT_COLUMNS),
                                  ascii_only=bool(self.settings.ascii_only),
-                                 plot=self.settings.extra.get("plot", ""))
+                                 plot=self.settings.extra.get("plot", ""), ladder_sort=ladder_sort)
         self._settings_unsaved = False
         self.triage = TriageScreen(self.state, id="triage")
         self._heap_released = False  # see _heap_settled
@@ -510,7 +515,7 @@ class ChainTriageApp(App[int]):
         st = self.state
         try:
             save_preferences(self.settings, theme=st.theme.name, ascii_only=st.ascii_only, columns=st.columns,
-                             confidence=st.confidence, plot=st.plot_pref)
+                             confidence=st.confidence, plot=st.plot_pref, ladder_sort=sort_text(st.ladder_sort))
         except ChainTriageError as exc:
             if not self._settings_unsaved:  # once a session: every look change would say it again
                 self.notify(f"settings not saved: {exc}; changes last until you quit", severity="warning",
@@ -756,6 +761,9 @@ class ChainTriageApp(App[int]):
                 return
             key, descending = choice
             grid.set_sort(None if key == STRIKE_ORDER else (key, side, descending))
+            if grid.sort != self.state.ladder_sort:
+                self.state.ladder_sort = grid.sort
+                self._save_settings()
 
         self.push_screen(SortChooser(grid.columns, side, grid.sort, ascii_only=self.state.ascii_only), done)
 

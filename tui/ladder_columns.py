@@ -93,6 +93,33 @@ DEFAULT_COLUMNS: tuple[str, ...] = ("bid", "ask", "iv", "sigma", "p_beyond", "p_
 HEADER_LINES = 3
 
 
+#: The words of a ladder sort's order in the settings file.
+SORT_ORDERS = ("ascending", "descending")
+
+
+def sort_text(sort: tuple[str, str, bool] | None) -> str:
+    """A ladder sort (column key, side, descending) as the settings file keeps it, e.g.
+    ``"p_beyond put descending"``; "" for strike order."""
+    if sort is None:
+        return ""
+    key, side, descending = sort
+    return f"{key} {side} {SORT_ORDERS[bool(descending)]}"
+
+
+def parse_sort_text(text: Any) -> tuple[str, str, bool] | None:
+    """The ladder sort ``sort_text`` wrote (None for "": strike order); ValueError for anything else
+    (an unknown column, side or order, or not text)."""
+    if not isinstance(text, str):
+        raise ValueError("should be text such as 'p_beyond put descending'")
+    words = text.split()
+    if not words:
+        return None
+    if len(words) != 3 or words[0] not in COLUMNS or words[1] not in (CALL, PUT) or words[2] not in SORT_ORDERS:
+        raise ValueError("should be a column, call or put, and ascending or descending, "
+                         "e.g. 'p_beyond put descending'")
+    return words[0], words[1], words[2] == SORT_ORDERS[1]
+
+
 def known_columns(keys: Iterable[str]) -> list[str]:
     """``keys`` without the ones the grid does not know (e.g. from an older settings file)."""
     return [k for k in keys if k in COLUMNS]

@@ -345,12 +345,16 @@ def save_settings(settings: Settings, path: str | os.PathLike[str] | None = None
 
 
 def save_preferences(settings: Settings, *, theme: str, ascii_only: bool, columns: list[str], confidence: float,
-                     plot: str, path: str | os.PathLike[str] | None = None) -> Path:
+                     plot: str, ladder_sort: str = "", path: str | os.PathLike[str] | None = None) -> Path:
     """Put the app's current looks into ``settings`` and write them (``save_settings``);
-    ChainTriageError if they cannot be written (``settings`` holds them all the same)."""
+    ChainTriageError if they cannot be written (``settings`` holds them all the same). ``ladder_sort``
+    is ``ladder_columns.sort_text``'s text ("" for strike order: the key is then left out of a file
+    that does not have it)."""
     settings.theme = theme
     settings.ascii_only = bool(ascii_only)
     settings.columns = list(columns)
     settings.confidence = float(confidence)
     settings.extra["plot"] = plot
+    if ladder_sort or "ladder_sort" in settings.extra:
+        settings.extra["ladder_sort"] = ladder_sort
     return save_settings(settings, path)

@@ -23,16 +23,19 @@ class TriageState:
     """The state behind the triage screen (see the module docstring).
 
     ``confidence`` is the range's two-sided confidence (decimal); ``columns`` the ladder's
-    column keys per side; ``plot`` one of PLOT_AUTO, PLOT_SHOWN, PLOT_HIDDEN.
+    column keys per side; ``plot`` one of PLOT_AUTO, PLOT_SHOWN, PLOT_HIDDEN; ``ladder_sort``
+    the ladder's sort (column key, side, descending) or None.
     """
 
     def __init__(self, *, theme: ChainTheme, confidence: float, columns: list[str], ascii_only: bool = False,
-                 plot: str = PLOT_AUTO) -> None:
+                 plot: str = PLOT_AUTO, ladder_sort: tuple[str, str, bool] | None = None) -> None:
         self.theme = theme
         self.confidence = float(confidence)
         self.columns = list(columns)
         self.ascii_only = bool(ascii_only)
         self.plot_pref = plot if plot in (PLOT_AUTO, PLOT_SHOWN, PLOT_HIDDEN) else PLOT_AUTO
+        #: The ladder's sort (column key, side, descending), kept in the settings; None: strike order.
+        self.ladder_sort = ladder_sort
         self.views: list[SnapshotView] = []
         self.view_index = -1
         #: The expiry shown in each snapshot (view index -> expiry position), so each one reopens where it was.

@@ -116,3 +116,60 @@ def test_keys_move_in_the_shown_order_and_g_finds_the_forward():
         assert grid.sort == ("p_beyond", "put", True)
 
     run(app, scenario)
+
+
+def test_the_sort_text_round_trips_and_refuses_what_is_not_a_sort():
+    # [D] the settings file's form of a sort: column key, side, order
+    from chaintriage.tui.ladder_columns import parse_sort_text, sort_text
+
+    for sort in [("p_beyond", "put", True), ("bid", "call", False), ("flags", "put", False), None]:
+        assert parse_sort_text(sort_text(sort)) == sort
+    assert sort_text(("iv", "call", True)) == "iv call descending"
+    assert parse_sort_text("  ") is None
+    for bad in ["nonsense put descending", "bid both ascending", "bid put sideways", "bid put", 3,
+                "bid put descending extra"]:
+        with pytest.raises(ValueError):
+            parse_sort_text(bad)
+
+
+def test_the_sort_is_kept_in_the_settings_for_the_next_start(config_home):
+    from chaintriage.tui.settings import load_settings
+
+    app = make_app()
+
+    async def sort_then_back(pilot) -> None:
+        await pilot.press("]", "right")
+        await pilot.pause()
+        await choose(pilot, "p_beyond", descending=True)
+        assert app.triage.grid.sort == ("p_beyond", "put", True)
+
+    run(app, sort_then_back)
+    settings, notices = load_settings()
+    assert notices == [] and settings.extra["ladder_sort"] == "p_beyond put descending"
+
+    again = make_app()
+
+    async def restarted(pilot) -> None:
+        grid = again.triage.grid
+        assert grid.sort == ("p_beyond", "put", True)
+        frame = again.state.view.frame(again.state.current_expiry)
+        assert shown_strikes(grid) == expected(frame, "p_beyond", "put", True)  # oracle: pandas' stable sort
+        await choose(pilot, None)  # back to strike order: kept too
+        assert grid.sort is None
+
+    run(again, restarted)
+    assert load_settings()[0].extra["ladder_sort"] == ""
+    assert make_app().state.ladder_sort is None
+
+
+def test_an_unreadable_saved_sort_gives_strike_order_and_a_notice(config_home):
+    (config_home / "chaintriage").mkdir(exist_ok=True)
+    (config_home / "chaintriage" / "settings.toml").write_text('ladder_sort = "strike sideways"\n')
+    app = make_app()
+    assert app.state.ladder_sort is None
+    assert any("ladder_sort" in n for n in app._startup_notices)
+
+    async def scenario(pilot) -> None:
+        assert app.triage.grid.sort is None
+
+    run(app, scenario)

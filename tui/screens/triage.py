@@ -131,6 +131,8 @@ class TriageScreen(Screen):
         await self.query_one("#body").mount(
             StrikeGrid(id="grid", theme=st.theme, columns=st.columns, ascii_only=st.ascii_only, title=False),
             DistributionPlot(id="plot", theme=st.theme, ascii_only=st.ascii_only))
+        if st.ladder_sort is not None:
+            self.grid.set_sort(st.ladder_sort)  # the sort kept in the settings (checked when read)
         self.body_ready = True
         self.update_layout()
 
