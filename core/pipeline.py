@@ -27,13 +27,11 @@ from typing import TYPE_CHECKING
 import numpy as np
 import pandas as pd
 
-from . import black76, greeks
-from . import trade_economics as econ
+from . import black76
 from .confidence import DEFAULT_CONFIDENCE
+from .contract_figures import GREEK_COLUMNS, TRADE_COLUMNS, contract_figures
 from .distribution import (
     Distribution,
-    prob_above,
-    prob_above_flat,
     range_flat,
     range_smile_rows,
     terminal_distribution,
@@ -58,22 +56,6 @@ from .calendar_arbitrage import calendar_findings
 
 if TYPE_CHECKING:  # pragma: no cover
     from .touch_expiry import ExpiryTouch
-
-#: Greeks beside delta: gamma per unit of spot squared, theta in price units per day of the
-#: basis (a trading day on 252/250, a calendar day on 365), vega in price units per vol point.
-GREEK_COLUMNS = ["gamma", "theta", "vega"]
-
-#: Economics at executable prices (seller at the bid, buyer at the ask), core/trade_economics.py:
-#: premiums and breakevens in price units; P(profit) at expiry, risk-neutral; premium per
-#: calendar day; the seller's simple return on capital (cash-secured put: bid / (strike - bid),
-#: covered call: bid / spot) and its simple ACT/365 annualisation; the buyer's move to break
-#: even in sigmas (payoff direction, from the forward); the edge to mid (ask - mid) in price
-#: units and as a share of each side's premium.
-TRADE_COLUMNS = [
-    "sell_premium", "buy_premium", "breakeven_sell", "breakeven_buy", "p_profit_sell", "p_profit_buy",
-    "premium_per_day_sell", "premium_per_day_buy", "return_sell", "return_sell_annual",
-    "move_to_breakeven_buy", "edge_to_mid", "edge_share_sell", "edge_share_buy",
-]
 
 #: Columns of the annotated contract table, in display order.
 CONTRACT_TABLE_COLUMNS = [
@@ -663,7 +645,7 @@ def _annotate_sorted(snapshot: Snapshot, settings: PipelineSettings, findings: l
         results[expiry] = ExpiryResult(expiry, float(t_exp[i]), estimates[i], smiles[i] if have_smile[i] else None,
                                        atm_ivs[i], expiry_findings[i])
 
-    # 5. Per-contract figures from each row's own expiry smile, in blocks of rows (_contract_figures).
+    # 5. Per-contract figures from each row's own expiry smile, in blocks of rows (contract_figures).
     p_touch = np.full(n, np.nan)  # touch figures: per expiry on demand (AnnotatedSnapshot.touch)
     ranges = np.full((n_exp, 4), np.nan)
     e_ok = np.flatnonzero(have_smile)
@@ -672,7 +654,7 @@ def _annotate_sorted(snapshot: Snapshot, settings: PipelineSettings, findings: l
         ranges[e_ok, 2], ranges[e_ok, 3] = range_smile_rows(slices.take((e_ok, None)), forwards[e_ok],
                                                             settings.confidence)
     per_year = 365.0 if settings.basis == "365" else float(settings.basis)
-    figures = _contract_figures(
+    figures = contract_figures(
         snapshot.spot, strike, bid, ask, mid, iv, k_row, is_call, exp_code, have_smile, slices, atm_ivs, t_exp,
         t_cal, forwards, discounts, per_year)
     sigma_distance, p_beyond, p_beyond_flat, delta, breakeven, p_breakeven, spread_pct = (
@@ -736,126 +718,6 @@ def _annotate_sorted(snapshot: Snapshot, settings: PipelineSettings, findings: l
     for fs in expiry_findings:
         findings.extend(fs)
     return AnnotatedSnapshot(snapshot, settings, out, exp_table, results, findings)
-
-
-#: Rows per block of the per-contract figures (``_contract_figures``): a block's temporaries stay in the
-#: processor's cache and the allocator hands the same memory back block after block, where whole-table
-#: temporaries would be fresh memory every time (paid in page faults, more than the arithmetic at a
-#: million rows); large enough that the per-block Python overhead does not show.
-CONTRACT_BLOCK = 32768
-
-
-def _contract_figures(spot, strike, bid, ask, mid, iv, k_row, is_call, exp_code, have_smile, slices, atm_ivs, t_exp,
-                      t_cal, forwards, discounts, per_year) -> dict[str, np.ndarray]:
-    """Per-contract figures (rows in table order), computed ``CONTRACT_BLOCK`` rows at a time.
-
-    Arrays per row: ``strike``, ``bid``, ``ask``, ``mid`` (price units), ``iv`` (decimal), ``k_row`` = ln(K/F),
-    ``is_call``, ``exp_code`` (expiry index). Per expiry: ``have_smile``, ``slices`` (SviSlices, one per
-    expiry), ``atm_ivs``, ``t_exp`` (years on the basis), ``t_cal`` (ACT/365 years), ``forwards``,
-    ``discounts``; ``per_year``: days of the basis per year. Returns sigma_distance, p_beyond,
-    p_beyond_flat, delta, breakeven, p_breakeven, spread_pct, GREEK_COLUMNS and TRADE_COLUMNS; every
-    figure of a row depends on that row and its expiry only, so the blocks give what one pass would.
-    """
-    n = strike.size
-    out: dict[str, np.ndarray] = {}
-    for lo in range(0, max(n, 1), CONTRACT_BLOCK):
-        b = slice(lo, min(lo + CONTRACT_BLOCK, n))
-        got = _contract_block(spot, strike[b], bid[b], ask[b], mid[b], iv[b], k_row[b], is_call[b], exp_code[b],
-                              have_smile, slices, atm_ivs, t_exp, t_cal, forwards, discounts, per_year)
-        if not out:  # one buffer for every figure, one contiguous row per figure
-            buffer = np.empty((len(got), n))
-            out = dict(zip(got, buffer))
-        for name, v in got.items():
-            out[name][b] = v
-    return out
-
-
-def _contract_block(spot, strike, bid, ask, mid, iv, k_row, is_call, code, have_smile, slices, atm_ivs, t_exp, t_cal,
-                    forwards, discounts, per_year) -> dict[str, np.ndarray]:
-    """:func:`_contract_figures` for one block of rows (``code``: each row's expiry index)."""
-    n = strike.size
-    t_row = t_exp[code]
-    f_row = forwards[code]
-    df_row = discounts[code]
-    sigma_distance = np.full(n, np.nan)
-    p_above = np.full(n, np.nan)
-    p_above_flat = np.full(n, np.nan)
-    smile_vol = np.full(n, np.nan)
-    p_above_be = np.full(n, np.nan)
-    breakeven = np.where(is_call, strike + mid, strike - mid)
-    rows = np.flatnonzero(have_smile[code])
-    row_smiles = None
-    if rows.size:
-        row_smiles = slices.take(code[rows])
-        atm_row = atm_ivs[code[rows]]
-        t_r = t_row[rows]
-        f_r = f_row[rows]
-        sigma_distance[rows] = k_row[rows] / (atm_row * np.sqrt(t_r))
-        p_above[rows] = prob_above(row_smiles, f_r, strike[rows])
-        p_above_flat[rows] = prob_above_flat(f_r, strike[rows], atm_row, t_r)
-        w_r = np.asarray(row_smiles.total_variance(k_row[rows]), dtype=float)
-        with np.errstate(invalid="ignore"):
-            smile_vol[rows] = np.sqrt(np.where(w_r > 0, w_r, np.nan) / t_r)
-        be = breakeven[rows]
-        with np.errstate(invalid="ignore", divide="ignore"):
-            ok = np.isfinite(be) & (be > 0)
-        pa_be = np.full(rows.size, np.nan)
-        pa_be[ok] = prob_above(row_smiles.take(ok), f_r[ok], be[ok])
-        p_above_be[rows] = pa_be
-
-    # Delta on the spot (dV/dS = DF * F/S * dV/dF), at the contract's own vol, else the smile's.
-    vol_for_greeks = np.where(np.isfinite(iv), iv, smile_vol)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        fwd_delta = black76.delta(f_row, strike, vol_for_greeks, t_row, 1.0, is_call)
-        delta = df_row * (f_row / spot) * fwd_delta
-        spread_pct = np.where(mid > 0, (ask - np.where(np.isfinite(bid), bid, 0.0)) / mid, np.nan)
-    return {
-        "sigma_distance": sigma_distance,
-        "p_beyond": np.where(is_call, p_above, 1.0 - p_above),
-        "p_beyond_flat": np.where(is_call, p_above_flat, 1.0 - p_above_flat),
-        "delta": delta,
-        "breakeven": breakeven,
-        "p_breakeven": np.where(is_call, p_above_be, 1.0 - p_above_be),
-        "spread_pct": spread_pct,
-        **_greek_and_trade_columns(spot, f_row, df_row, strike, vol_for_greeks, t_row, t_row * per_year,
-                                   t_cal[code] * 365.0, atm_ivs[code], is_call, bid, ask, mid, rows, row_smiles),
-    }
-
-
-def _greek_and_trade_columns(spot, f_row, df_row, strike, vol, t_row, basis_days, calendar_days, atm_row,
-                             is_call, bid, ask, mid, rows, row_smiles) -> dict[str, np.ndarray]:
-    """GREEK_COLUMNS and TRADE_COLUMNS per contract (rows in table order); P(profit) only on ``rows`` (those with a smile)."""
-    n = strike.size
-    sell, buy = econ.executable_premiums(bid, ask)
-    p_sell = np.full(n, np.nan)
-    p_buy = np.full(n, np.nan)
-    if rows.size:
-        p_sell[rows], p_buy[rows] = econ.profit_probabilities(row_smiles, f_row[rows], strike[rows], sell[rows],
-                                                              buy[rows], is_call[rows])
-    be_sell = econ.breakeven(strike, sell, is_call)
-    be_buy = econ.breakeven(strike, buy, is_call)
-    ret = econ.seller_return(strike, spot, sell, is_call)
-    edge = econ.edge_to_mid(ask, mid)
-    gamma, theta, vega = greeks.gamma_theta_vega(spot, f_row, strike, vol, t_row, df_row, basis_days, is_call)
-    return {
-        "gamma": gamma,
-        "theta": theta,
-        "vega": vega,
-        "sell_premium": sell,
-        "buy_premium": buy,
-        "breakeven_sell": be_sell,
-        "breakeven_buy": be_buy,
-        "p_profit_sell": p_sell,
-        "p_profit_buy": p_buy,
-        "premium_per_day_sell": econ.premium_per_day(sell, calendar_days),
-        "premium_per_day_buy": econ.premium_per_day(buy, calendar_days),
-        "return_sell": ret,
-        "return_sell_annual": econ.annualised_simple(ret, calendar_days),
-        "move_to_breakeven_buy": econ.move_to_breakeven(f_row, be_buy, atm_row, t_row, is_call),
-        "edge_to_mid": edge,
-        "edge_share_sell": econ.share_of_premium(edge, sell),
-        "edge_share_buy": econ.share_of_premium(edge, buy),
-    }
 
 
 def _no_vol_findings(status, contracts, order, exp_code, is_call, strike, mid, otm, underlying, labels,
