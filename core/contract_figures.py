@@ -80,6 +80,22 @@ class _PerExpiry:
     calendar_days: np.ndarray  # calendar days where positive, else NaN
 
 
+@dataclass(frozen=True)
+class _RowSmiles:
+    """Each row's raw SVI parameters (and sigma^2) and whether its forward is finite and positive."""
+
+    a: np.ndarray
+    b: np.ndarray
+    rho: np.ndarray
+    m: np.ndarray
+    sigma2: np.ndarray
+    forward_ok: np.ndarray
+
+    @classmethod
+    def of(cls, e: _PerExpiry, c) -> "_RowSmiles":
+        return cls(e.a[c], e.b[c], e.rho[c], e.m[c], e.sigma2[c], e.forward_ok[c])
+
+
 def _per_expiry(spot, have_smile, slices: SviSlices, atm_ivs, t_exp, t_cal, forwards, discounts, per_year):
     p = slices.params
     with np.errstate(divide="ignore", invalid="ignore"):
@@ -127,34 +143,34 @@ def contract_figures(spot, strike, bid, ask, mid, iv, k_row, is_call, exp_code, 
     return out
 
 
-def _w_and_slope(e: _PerExpiry, c, k):
-    """(w(k), w'(k)) of raw SVI per row (expiry index ``c``), as svi.w_and_dw_dk computes them."""
-    x = k - e.m[c]
+def _w_and_slope(sm: _RowSmiles, k):
+    """(w(k), w'(k)) of raw SVI per row, as svi.w_and_dw_dk computes them."""
+    x = k - sm.m
     r = x * x
-    r += e.sigma2[c]
+    r += sm.sigma2
     np.sqrt(r, out=r)
-    b = e.b[c]
-    rho = e.rho[c]
+    b = sm.b
+    rho = sm.rho
     w = rho * x
     w += r
     w *= b
-    w += e.a[c]
+    w += sm.a
     w1 = np.divide(x, r, out=x)
     w1 += rho
     w1 *= b
     return w, w1
 
 
-def _total_variance(e: _PerExpiry, c, k):
+def _total_variance(sm: _RowSmiles, k):
     """w(k) of raw SVI per row, as svi.total_variance computes it."""
-    x = k - e.m[c]
+    x = k - sm.m
     r = x * x
-    r += e.sigma2[c]
+    r += sm.sigma2
     np.sqrt(r, out=r)
-    x *= e.rho[c]
+    x *= sm.rho
     x += r
-    x *= e.b[c]
-    x += e.a[c]
+    x *= sm.b
+    x += sm.a
     return x
 
 
@@ -190,17 +206,17 @@ def _log_ratio_where_ok(level, forward, forward_ok, log_ratio=None):
     return k
 
 
-def _prob_above_level(e: _PerExpiry, c, forward, level, log_ratio=None):
+def _prob_above_level(sm: _RowSmiles, forward, level, log_ratio=None):
     """P(S_T > level) from each row's smile (distribution.prob_above), NaN where the level or F is unusable."""
-    k = _log_ratio_where_ok(level, forward, e.forward_ok[c], log_ratio)
-    w, w1 = _w_and_slope(e, c, k)
+    k = _log_ratio_where_ok(level, forward, sm.forward_ok, log_ratio)
+    w, w1 = _w_and_slope(sm, k)
     return _prob_above_w(k, w, w1)
 
 
-def _p_above_breakeven(e: _PerExpiry, c, forward, level, log_ratio=None):
+def _p_above_breakeven(sm: _RowSmiles, forward, level, log_ratio=None):
     """trade_economics._p_above_breakeven: P(S_T > level), 1 where the level is at or below zero."""
     positive = level > 0
-    p = _prob_above_level(e, c, forward, np.where(positive, level, np.nan), log_ratio)
+    p = _prob_above_level(sm, forward, np.where(positive, level, np.nan), log_ratio)
     np.copyto(p, np.where(np.isfinite(level), 1.0, np.nan), where=~positive)
     return p
 
@@ -239,14 +255,15 @@ def _block(e: _PerExpiry, spot, strike, bid, ask, mid, iv, k_row, is_call, c, o)
         if rows is None or rows.size:
             r = slice(None) if rows is None else rows
             cr, kr, fr, sr = c[r], k_row[r], f[r], strike[r]
+            sm = _RowSmiles.of(e, cr)
             _put(o["sigma_distance"], rows, kr / e.atm_scale[cr])
             strike_ok = np.isfinite(sr)
             strike_ok &= sr > 0
-            strike_ok &= e.forward_ok[cr]
+            strike_ok &= sm.forward_ok
             all_ok = bool(strike_ok.all())
             k = kr if all_ok else np.where(strike_ok, kr, np.nan)
-            w, w1 = _w_and_slope(e, cr, k)
-            w_strike = w if all_ok else _total_variance(e, cr, kr)
+            w, w1 = _w_and_slope(sm, k)
+            w_strike = w if all_ok else _total_variance(sm, kr)
             vol = np.where(w_strike > 0, w_strike, np.nan)
             vol /= t[r]
             np.sqrt(vol, out=vol)
@@ -258,7 +275,7 @@ def _block(e: _PerExpiry, spot, strike, bid, ask, mid, iv, k_row, is_call, c, o)
             z -= e.flat_half[cr]
             _put(o["p_beyond_flat"], rows, _either_side(is_call[r], ndtr(z), True))
             be_r = be[r]
-            _put(o["p_breakeven"], rows, _either_side(is_call[r], _prob_above_level(e, cr, fr, be_r), True))
+            _put(o["p_breakeven"], rows, _either_side(is_call[r], _prob_above_level(sm, fr, be_r), True))
         else:
             for name in ("sigma_distance", "p_beyond", "p_beyond_flat", "p_breakeven", "p_profit_sell",
                          "p_profit_buy"):
@@ -337,12 +354,19 @@ def _block(e: _PerExpiry, spot, strike, bid, ask, mid, iv, k_row, is_call, c, o)
         np.subtract(strike, buy, out=be_buy)
         np.add(strike, buy, out=be_buy, where=is_call)
         log_buy = np.log(be_buy / f)
+        move = o["move_to_breakeven_buy"]
+        np.divide(log_buy, e.atm_scale[c], out=move)
+        np.negative(move, out=move, where=~is_call)
+        move_ok = f > 0
+        move_ok &= be_buy > 0
+        move_ok &= e.atm_ok[c]
+        np.copyto(move, np.nan, where=~move_ok)
         if rows is None or rows.size:
             r = slice(None) if rows is None else rows
-            cr, fr = c[r], f[r]
-            _put(o["p_profit_sell"], rows, _either_side(is_call[r], _p_above_breakeven(e, cr, fr, be_sell[r]), False))
+            fr = f[r]
+            _put(o["p_profit_sell"], rows, _either_side(is_call[r], _p_above_breakeven(sm, fr, be_sell[r]), False))
             _put(o["p_profit_buy"], rows,
-                 _either_side(is_call[r], _p_above_breakeven(e, cr, fr, be_buy[r], log_buy[r].copy()), True))
+                 _either_side(is_call[r], _p_above_breakeven(sm, fr, be_buy[r], log_buy[r]), True))
         days = e.calendar_days[c]
         np.divide(sell, days, out=o["premium_per_day_sell"])
         np.divide(buy, days, out=o["premium_per_day_buy"])
@@ -353,13 +377,6 @@ def _block(e: _PerExpiry, spot, strike, bid, ask, mid, iv, k_row, is_call, c, o)
         np.copyto(ret, np.nan, where=~(capital > 0))
         annual = np.multiply(ret, _DAYS_PER_YEAR, out=o["return_sell_annual"])
         annual /= days
-        move = o["move_to_breakeven_buy"]
-        np.divide(log_buy, e.atm_scale[c], out=move)
-        np.negative(move, out=move, where=~is_call)
-        move_ok = f > 0
-        move_ok &= be_buy > 0
-        move_ok &= e.atm_ok[c]
-        np.copyto(move, np.nan, where=~move_ok)
         edge = o["edge_to_mid"]
         np.subtract(ask, mid, out=edge)
         np.divide(edge, sell, out=o["edge_share_sell"])

@@ -733,13 +733,15 @@ def _no_vol_findings(status, contracts, order, exp_code, is_call, strike, mid, o
         return
     rows = order[bad]  # the few rows taken before the text becomes objects (not the whole column)
     files = contracts["source_file"].array.take(rows).to_numpy(dtype=object)
-    lines = contracts["source_line"].to_numpy()[rows]
-    for j, file, line in zip(bad, files, lines):
-        kind = "call" if is_call[j] else "put"
-        severity = WARNING if otm[j] else NOTE
-        expiry_findings[exp_code[j]].append(Finding(
-            severity, f"{kind} {strike[j]:g}: no implied vol: {STATUS_REASONS[int(status[j])]} (mid {mid[j]:.4g})",
-            file=str(file), line=int(line), underlying=underlying, expiry=labels[exp_code[j]]))
+    lines = contracts["source_line"].to_numpy()[rows].tolist()
+    # Python numbers (tolist) format and index faster than numpy scalars, to the same text.
+    for file, line, code, call, out, k, m, st in zip(files, lines, exp_code[bad].tolist(), is_call[bad].tolist(),
+                                                     otm[bad].tolist(), strike[bad].tolist(), mid[bad].tolist(),
+                                                     status[bad].tolist()):
+        expiry_findings[code].append(Finding(
+            WARNING if out else NOTE,
+            f"{'call' if call else 'put'} {k:g}: no implied vol: {STATUS_REASONS[int(st)]} (mid {m:.4g})",
+            file=str(file), line=int(line), underlying=underlying, expiry=labels[code]))
 
 
 def _fit_smiles_in_bands(fit_sel, bound_sel, k_row, iv, t_row, t_exp, f_row, df_row, strike, bid, ask, is_call,
