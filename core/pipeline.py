@@ -345,8 +345,23 @@ def _sort_order(contracts: pd.DataFrame) -> tuple[np.ndarray, np.ndarray, np.nda
         kind_key = is_put  # 'call' sorts before 'put'
     else:
         kind_key = pd.factorize(kind, sort=True, use_na_sentinel=False)[0]
-    order = np.lexsort((kind_key, contracts["strike"].to_numpy(float), contracts["expiry"].to_numpy()))
+    order = _lexsort_by_expiry(kind_key, contracts["strike"].to_numpy(float), contracts["expiry"].to_numpy())
     return order, is_call[order], is_put[order]
+
+
+def _lexsort_by_expiry(kind_key: np.ndarray, strike: np.ndarray, expiry: np.ndarray) -> np.ndarray:
+    """``np.lexsort((kind_key, strike, expiry))``; where the expiries already come in order (as files
+    usually have them), each expiry's run of rows sorted on its own (the same order, in a fraction
+    of the time: short sorts in cache, no pass over the expiry key)."""
+    if not (expiry[1:] >= expiry[:-1]).all():  # NaT compares False: sorted as a whole
+        return np.lexsort((kind_key, strike, expiry))
+    bounds = [0, *(np.flatnonzero(expiry[1:] != expiry[:-1]) + 1).tolist(), expiry.size]
+    order = np.empty(expiry.size, dtype=np.intp)
+    for lo, hi in zip(bounds[:-1], bounds[1:]):
+        run = order[lo:hi]
+        run[...] = np.lexsort((kind_key[lo:hi], strike[lo:hi]))
+        run += lo
+    return order
 
 
 def _text_per_expiry(column: pd.Series, order: np.ndarray, starts: np.ndarray, ends: np.ndarray, default: str):

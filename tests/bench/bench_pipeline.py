@@ -1,6 +1,6 @@
 """Benchmark: the whole core pipeline on synthetic chains (run by hand, not by pytest).
 
-    python tests/bench/bench_pipeline.py [--quick] [--baseline REV] [--profile]
+    python tests/bench/bench_pipeline.py [--quick] [--baseline REV] [--fresh N] [--profile]
 
 Prints the warm time (best of N) of ``annotate`` for a 20,000-contract,
 50-expiry chain, a 200,000-contract chain and a 1,000,000-contract chain
@@ -15,7 +15,12 @@ with the load average at the start and the end, since the machine may be shared.
 revision (exported to a temporary directory and imported in child
 processes, alternating with the working tree), so before and after come
 from one run on the same, shared machine. ``--profile`` prints the top
-functions of a cProfile of the 20,000-contract run.
+functions of a cProfile of the 20,000-contract run. ``--fresh N`` (with
+``--baseline``) measures instead the first ``annotate`` of a fresh process, as
+the command line runs it (one BLAS thread, no huge-page requests; the file
+loaded first, not timed): N rounds, each a child per revision and size in turn,
+on bench_table's index-like chains of 100 expiries (a quarter of the quotes,
+the cheapest of each expiry, with no bid), written once as CSV files.
 """
 
 from __future__ import annotations
@@ -169,6 +174,61 @@ def run_child(core_root: str | None, repeats: int) -> dict:
     return {int(k): tuple(v) for k, v in json.loads(out.stdout.strip().splitlines()[-1]).items()}
 
 
+#: The first annotate of a fresh process, after loading the file as the command line does:
+#: CPU, wall and system seconds of annotate, as JSON on the last line.
+FRESH_CHILD = (
+    "import os, sys, time, json\n"
+    "os.environ.setdefault('OPENBLAS_NUM_THREADS', '1'); os.environ.setdefault('NUMPY_MADVISE_HUGEPAGE', '0')\n"
+    "from chaintriage.core.loading import load_files\n"
+    "from chaintriage.core.pipeline import annotate\n"
+    "snap = load_files([sys.argv[1]]).snapshots[0]\n"
+    "r0, c0, t0 = os.times(), time.process_time(), time.perf_counter()\n"
+    "annotate(snap)\n"
+    "r1, c1, t1 = os.times(), time.process_time(), time.perf_counter()\n"
+    "print(json.dumps([t1 - t0, c1 - c0, r1.system - r0.system]))\n"
+)
+
+
+def fresh_rounds(root: str, rounds: int, sizes=SIZES) -> dict:
+    """{label: {n: [(wall, cpu, sys) seconds per round]}} of the first annotate in fresh children,
+    baseline (core/ under ``root``) and now alternating, sizes in turn."""
+    from bench_table import write_chain
+
+    got: dict = {"baseline": {n: [] for n in sizes}, "now": {n: [] for n in sizes}}
+    with tempfile.TemporaryDirectory() as tmp:
+        files = {}
+        for n in sizes:
+            files[n] = os.path.join(tmp, f"chain{n}.csv")
+            write_chain(Path(files[n]), n, 100)
+        for _ in range(rounds):
+            for n in sizes:
+                for label, env in (("baseline", child_env(root)), ("now", child_env(None))):
+                    out = subprocess.run([sys.executable, "-c", FRESH_CHILD, files[n]], capture_output=True, text=True,
+                                         check=True, env=env)
+                    got[label][n].append(tuple(json.loads(out.stdout.strip().splitlines()[-1])))
+    return got
+
+
+def report_fresh(got: dict, rounds: int) -> None:
+    """Best and median CPU and wall (ms) per size, baseline and now, and the ratios of the CPU figures."""
+    print(f"first annotate in a fresh process, bench_table's chains of 100 expiries, {rounds} alternating rounds "
+          "(ms: best / median; system part of the best-CPU run in brackets)")
+    for n in got["now"]:
+        line = [f"{n:>9,} contracts:"]
+        stats = {}
+        for label in ("baseline", "now"):
+            runs = got[label][n]
+            cpu = sorted(r[1] for r in runs)
+            wall = sorted(r[0] for r in runs)
+            sys_best = min(runs, key=lambda r: r[1])[2]
+            stats[label] = (cpu[0], cpu[len(cpu) // 2])
+            line.append(f"{label} cpu {1e3 * cpu[0]:7.1f} / {1e3 * cpu[len(cpu) // 2]:7.1f} ({1e3 * sys_best:4.0f}) "
+                        f"wall {1e3 * wall[0]:7.1f} / {1e3 * wall[len(wall) // 2]:7.1f}")
+        line.append(f"cpu ratio best {stats['baseline'][0] / stats['now'][0]:.2f}x, "
+                    f"median {stats['baseline'][1] / stats['now'][1]:.2f}x")
+        print("   ".join(line))
+
+
 def load_text() -> str:
     load = os.getloadavg() if hasattr(os, "getloadavg") else (float("nan"),) * 3
     return f"load average {load[0]:.1f} {load[1]:.1f} {load[2]:.1f} on {os.cpu_count()} cores"
@@ -204,10 +264,19 @@ def main() -> None:
     parser.add_argument("--quick", action="store_true", help="fewer repeats")
     parser.add_argument("--baseline", metavar="REV", help="also measure core/ of this git revision")
     parser.add_argument("--profile", action="store_true", help="print a cProfile of the 20k run")
+    parser.add_argument("--fresh", type=int, metavar="N",
+                        help="with --baseline: the first annotate of fresh processes, N alternating rounds")
     args = parser.parse_args()
     repeats = 2 if args.quick else 5
 
-    if args.baseline:
+    if args.fresh and args.baseline:
+        with tempfile.TemporaryDirectory() as tmp:
+            root = export_revision(args.baseline, tmp)
+            print(f"start: {load_text()}; baseline = {args.baseline}")
+            got = fresh_rounds(root, args.fresh)
+        print(f"end: {load_text()}")
+        report_fresh(got, args.fresh)
+    elif args.baseline:
         with tempfile.TemporaryDirectory() as tmp:
             root = export_revision(args.baseline, tmp)
             rounds = {"baseline": [], "now": []}
