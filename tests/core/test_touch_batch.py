@@ -162,3 +162,15 @@ def test_touch_columns_taken_earlier_do_not_change_with_later_expiries():
     a.touch(second)
     assert _same(held.to_numpy(), values)
     assert not _same(a.contracts["p_touch"].to_numpy(), values)  # the new column has the second expiry
+
+
+def test_puts_and_calls_at_once_are_the_one_at_a_time_prices():
+    """[D] touch_bounds' put and call grid prices from one normal-probability call equal, to the bit,
+    ``_undiscounted_black`` of each side (deep wings, zero and tiny variances included)."""
+    from chaintriage.core import touch_bounds as tb
+
+    y = np.geomspace(1.0, 1000.0, 801)
+    for w in (np.full(801, 0.04), np.linspace(0.0, 2.0, 801), np.full(801, 1e-320)):
+        put, call = tb._undiscounted_puts_and_calls(100.0, y, w)
+        assert _same(put, tb._undiscounted_black(100.0, y, w, False))
+        assert _same(call, tb._undiscounted_black(100.0, y, w, True))
