@@ -228,6 +228,16 @@ def _either_side(is_call, p, call_takes_p: bool):
     return p
 
 
+def _put_side(out, rows, p, is_call, call_takes_p: bool) -> None:
+    """``_put`` of ``_either_side(is_call, p, call_takes_p)``, written straight into ``out`` where every row
+    is there (``p`` written over otherwise)."""
+    if rows is None:
+        np.subtract(1.0, p, out=out)
+        np.copyto(out, p, where=is_call if call_takes_p else ~is_call)
+    else:
+        _put(out, rows, _either_side(is_call, p, call_takes_p))
+
+
 def _put(out, rows, values) -> None:
     """``values`` (one per row of ``rows``) into ``out``, NaN elsewhere; rows None: every row."""
     if rows is None:
@@ -251,7 +261,7 @@ def _block(e: _PerExpiry, spot, strike, bid, ask, mid, iv, k_row, is_call, c, o)
         # Smile figures on the rows whose expiry has a smile (rows None: all of them).
         smile = e.have_smile[c]
         rows = None if smile.all() else np.flatnonzero(smile)
-        smile_vol = np.full(n, np.nan)
+        smile_vol = None
         if rows is None or rows.size:
             r = slice(None) if rows is None else rows
             cr, kr, fr, sr = c[r], k_row[r], f[r], strike[r]
@@ -267,22 +277,26 @@ def _block(e: _PerExpiry, spot, strike, bid, ask, mid, iv, k_row, is_call, c, o)
             vol = np.where(w_strike > 0, w_strike, np.nan)
             vol /= t[r]
             np.sqrt(vol, out=vol)
-            smile_vol[r] = vol
-            _put(o["p_beyond"], rows, _either_side(is_call[r], _prob_above_w(k, w, w1), True))
+            if rows is None:
+                smile_vol = vol
+            else:
+                smile_vol = np.full(n, np.nan)
+                smile_vol[rows] = vol
+            _put_side(o["p_beyond"], rows, _prob_above_w(k, w, w1), is_call[r], True)
             s_flat = e.flat_s[cr]
             z = np.negative(k)
             z /= s_flat
             z -= e.flat_half[cr]
-            _put(o["p_beyond_flat"], rows, _either_side(is_call[r], ndtr(z), True))
+            _put_side(o["p_beyond_flat"], rows, ndtr(z), is_call[r], True)
             be_r = be[r]
-            _put(o["p_breakeven"], rows, _either_side(is_call[r], _prob_above_level(sm, fr, be_r), True))
+            _put_side(o["p_breakeven"], rows, _prob_above_level(sm, fr, be_r), is_call[r], True)
         else:
             for name in ("sigma_distance", "p_beyond", "p_beyond_flat", "p_breakeven", "p_profit_sell",
                          "p_profit_buy"):
                 o[name].fill(np.nan)
 
         # Delta on the spot (dV/dS = DF * F/S * dV/dF), at the contract's own vol, else the smile's.
-        vol = np.where(np.isfinite(iv), iv, smile_vol)
+        vol = np.where(np.isfinite(iv), iv, np.nan if smile_vol is None else smile_vol)
         s = vol * e.sqrt_t[c]
         log_fk = np.log(f / strike)
         d1 = log_fk / s
@@ -364,9 +378,8 @@ def _block(e: _PerExpiry, spot, strike, bid, ask, mid, iv, k_row, is_call, c, o)
         if rows is None or rows.size:
             r = slice(None) if rows is None else rows
             fr = f[r]
-            _put(o["p_profit_sell"], rows, _either_side(is_call[r], _p_above_breakeven(sm, fr, be_sell[r]), False))
-            _put(o["p_profit_buy"], rows,
-                 _either_side(is_call[r], _p_above_breakeven(sm, fr, be_buy[r], log_buy[r]), True))
+            _put_side(o["p_profit_sell"], rows, _p_above_breakeven(sm, fr, be_sell[r]), is_call[r], False)
+            _put_side(o["p_profit_buy"], rows, _p_above_breakeven(sm, fr, be_buy[r], log_buy[r]), is_call[r], True)
         days = e.calendar_days[c]
         np.divide(sell, days, out=o["premium_per_day_sell"])
         np.divide(buy, days, out=o["premium_per_day_buy"])
