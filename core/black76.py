@@ -32,9 +32,11 @@ def price(forward, strike, sigma, t, discount=1.0, is_call=True):
     forward = np.asarray(forward, dtype=float)
     strike = np.asarray(strike, dtype=float)
     d1, d2 = d1_d2(forward, strike, sigma, t)
-    call = forward * ndtr(d1) - strike * ndtr(d2)
-    put = strike * ndtr(-d2) - forward * ndtr(-d1)
-    return np.asarray(discount, dtype=float) * np.where(is_call, call, put)
+    call = np.asarray(is_call, dtype=bool)
+    # A call needs N(d1), N(d2), a put N(-d2), N(-d1): two normal probabilities per contract, not four.
+    n1 = ndtr(np.where(call, d1, -d2))
+    n2 = ndtr(np.where(call, d2, -d1))
+    return np.asarray(discount, dtype=float) * np.where(call, forward * n1 - strike * n2, strike * n1 - forward * n2)
 
 
 def delta(forward, strike, sigma, t, discount=1.0, is_call=True):

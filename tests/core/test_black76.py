@@ -157,3 +157,27 @@ def test_random_contracts_match_quantlib():
     )
     # Relative where the price is material, absolute (a tiny share of F) in the far tails.
     np.testing.assert_allclose(got, want, rtol=1e-11, atol=1e-13 * f.max())
+
+
+def test_price_takes_two_normal_probabilities_per_contract_to_the_bit():
+    """[D] price computes N only at the two points each contract's side needs; every price equals, bit for
+    bit, the call F N(d1) - K N(d2) or the put K N(-d2) - F N(-d1), discounted (zero time, zero strike,
+    missing vol and an infinite forward among the rows)."""
+    from chaintriage.core.standard_normal import ndtr
+
+    rng = np.random.default_rng(3)
+    n = 5000
+    f = rng.uniform(50, 150, n)
+    k = f * np.exp(rng.normal(0, 0.8, n))
+    sig = rng.uniform(0.01, 2.0, n)
+    t = rng.uniform(0.0, 3.0, n)
+    sig[::97], t[::101], k[::103], f[::107] = np.nan, 0.0, 0.0, np.inf
+    df = np.exp(-0.03 * t)
+    is_call = rng.random(n) < 0.5
+    with np.errstate(all="ignore"):
+        d1, d2 = d1_d2(f, k, sig, t)
+        want = df * np.where(is_call, f * ndtr(d1) - k * ndtr(d2), k * ndtr(-d2) - f * ndtr(-d1))
+        got = price(f, k, sig, t, df, is_call)
+    nan = np.isnan(want)
+    assert np.array_equal(nan, np.isnan(got))
+    assert np.array_equal(want[~nan].view(np.int64), got[~nan].view(np.int64))
