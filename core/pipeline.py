@@ -807,9 +807,12 @@ def _fit_smiles_in_bands(fit_sel, bound_sel, k_row, iv, t_row, t_exp, f_row, df_
             return np.maximum(np.abs(fitted_vol(fit_sel) - iv[fit_sel]) - half, 0.0)
 
     nf = fit_sel.size
+    bound_dist = None  # outside(bound_sel) with the smiles as first fitted
+    refitted = []  # expiries whose smile was fitted again
     if bound_sel.size:
+        bound_dist = outside(bound_sel)
         with np.errstate(invalid="ignore"):
-            above = outside(bound_sel) > 1e-6
+            above = bound_dist > 1e-6
         redo = np.unique(exp_code[bound_sel[above]])
         redo = redo[[isinstance(smiles[e], Smile) and smiles[e].method == "svi" for e in redo]] if redo.size else redo
         if redo.size:
@@ -833,11 +836,15 @@ def _fit_smiles_in_bands(fit_sel, bound_sel, k_row, iv, t_row, t_exp, f_row, df_
                 n_up = int(np.count_nonzero(exp_code[extra] == e))
                 if isinstance(refit[j], Smile) and n_up:
                     smiles[e] = refit[j]
+                    refitted.append(e)
                     expiry_findings[e].append(Finding(
                         NOTE, f"smile: the fit to the two-sided quotes priced {n_up} zero-bid quote(s) above "
                               "their ask; fitted again with those held at their ask", underlying=underlying,
                         expiry=labels[e]))
-    dist = np.concatenate([outside_fitted(), outside(bound_sel)])
+    if refitted:  # the bounds' distances again where the smile changed (each row's own: the same elsewhere)
+        again = np.flatnonzero(np.isin(exp_code[bound_sel], refitted))
+        bound_dist[again] = outside(bound_sel[again])
+    dist = np.concatenate([outside_fitted(), outside(bound_sel) if bound_dist is None else bound_dist])
     if bound_sel.size:  # zero-bid quotes still priced above their ask: said, not counted in the fit error
         over = dist[nf:]
         with np.errstate(invalid="ignore"):
