@@ -201,9 +201,7 @@ def _log_ratio_where_ok(level, forward, forward_ok, log_ratio=None):
     ok = np.isfinite(level)
     ok &= level > 0
     ok &= forward_ok
-    k = np.log(level / forward) if log_ratio is None else log_ratio
-    np.copyto(k, np.nan, where=~ok)
-    return k
+    return np.where(ok, np.log(level / forward) if log_ratio is None else log_ratio, np.nan)
 
 
 def _prob_above_level(sm: _RowSmiles, forward, level, log_ratio=None):
@@ -217,25 +215,18 @@ def _p_above_breakeven(sm: _RowSmiles, forward, level, log_ratio=None):
     """trade_economics._p_above_breakeven: P(S_T > level), 1 where the level is at or below zero."""
     positive = level > 0
     p = _prob_above_level(sm, forward, np.where(positive, level, np.nan), log_ratio)
-    np.copyto(p, np.where(np.isfinite(level), 1.0, np.nan), where=~positive)
-    return p
+    return np.where(positive, p, np.where(np.isfinite(level), 1.0, np.nan))
 
 
 def _either_side(is_call, p, call_takes_p: bool):
-    """where(is_call, p, 1 - p) (call_takes_p) or where(is_call, 1 - p, p), written over ``p``."""
+    """where(is_call, p, 1 - p) (call_takes_p) or where(is_call, 1 - p, p)."""
     q = np.subtract(1.0, p)
-    np.copyto(p, q, where=is_call if not call_takes_p else ~is_call)
-    return p
+    return np.where(is_call, p, q) if call_takes_p else np.where(is_call, q, p)
 
 
 def _put_side(out, rows, p, is_call, call_takes_p: bool) -> None:
-    """``_put`` of ``_either_side(is_call, p, call_takes_p)``, written straight into ``out`` where every row
-    is there (``p`` written over otherwise)."""
-    if rows is None:
-        np.subtract(1.0, p, out=out)
-        np.copyto(out, p, where=is_call if call_takes_p else ~is_call)
-    else:
-        _put(out, rows, _either_side(is_call, p, call_takes_p))
+    """``_put`` of ``_either_side(is_call, p, call_takes_p)``."""
+    _put(out, rows, _either_side(is_call, p, call_takes_p))
 
 
 def _put(out, rows, values) -> None:
@@ -253,9 +244,10 @@ def _block(e: _PerExpiry, spot, strike, bid, ask, mid, iv, k_row, is_call, c, o)
     f = e.forward[c]
     t = e.t[c]
     # Breakeven at the mid: K + mid (call), K - mid (put).
+    # (np.where rather than ufuncs with where=: calls and puts alternate row by row, and a masked
+    # ufunc pays per run of the mask)
     be = o["breakeven"]
-    np.subtract(strike, mid, out=be)
-    np.add(strike, mid, out=be, where=is_call)
+    be[...] = np.where(is_call, strike + mid, strike - mid)
 
     with np.errstate(divide="ignore", invalid="ignore"):
         # Smile figures on the rows whose expiry has a smile (rows None: all of them).
@@ -302,8 +294,7 @@ def _block(e: _PerExpiry, spot, strike, bid, ask, mid, iv, k_row, is_call, c, o)
         d1 = log_fk / s
         d1 += 0.5 * s
         nd1 = ndtr(d1)
-        fwd_delta = np.subtract(nd1, 1.0)
-        np.copyto(fwd_delta, nd1, where=is_call)
+        fwd_delta = np.where(is_call, nd1, nd1 - 1.0)
         np.multiply(e.df_f_over_s[c], fwd_delta, out=o["delta"])
         spread = o["spread_pct"]
         np.subtract(ask, np.where(np.isfinite(bid), bid, 0.0), out=spread)
@@ -340,9 +331,7 @@ def _block(e: _PerExpiry, spot, strike, bid, ask, mid, iv, k_row, is_call, c, o)
         call = np.multiply(f, nd1, out=nd1)
         nd2 *= strike
         call -= nd2
-        value = np.subtract(f, strike, out=nd2)
-        np.subtract(call, value, out=value)
-        np.copyto(value, call, where=is_call)
+        value = np.where(is_call, call, call - (f - strike))
         value *= e.discount[c]
         life = np.multiply(dfp, s, out=dfp)
         life /= 2.0
@@ -356,25 +345,19 @@ def _block(e: _PerExpiry, spot, strike, bid, ask, mid, iv, k_row, is_call, c, o)
 
         # Economics at the bid and the ask (trade_economics).
         sell = o["sell_premium"]
-        sell[...] = np.nan
-        np.copyto(sell, bid, where=bid > 0)
+        sell[...] = np.where(bid > 0, bid, np.nan)
         buy = o["buy_premium"]
-        buy[...] = np.nan
-        np.copyto(buy, ask, where=ask > 0)
+        buy[...] = np.where(ask > 0, ask, np.nan)
         be_sell = o["breakeven_sell"]
-        np.subtract(strike, sell, out=be_sell)
-        np.add(strike, sell, out=be_sell, where=is_call)
+        be_sell[...] = np.where(is_call, strike + sell, strike - sell)
         be_buy = o["breakeven_buy"]
-        np.subtract(strike, buy, out=be_buy)
-        np.add(strike, buy, out=be_buy, where=is_call)
+        be_buy[...] = np.where(is_call, strike + buy, strike - buy)
         log_buy = np.log(be_buy / f)
-        move = o["move_to_breakeven_buy"]
-        np.divide(log_buy, e.atm_scale[c], out=move)
-        np.negative(move, out=move, where=~is_call)
+        z = log_buy / e.atm_scale[c]
         move_ok = f > 0
         move_ok &= be_buy > 0
         move_ok &= e.atm_ok[c]
-        np.copyto(move, np.nan, where=~move_ok)
+        o["move_to_breakeven_buy"][...] = np.where(move_ok, np.where(is_call, z, -z), np.nan)
         if rows is None or rows.size:
             r = slice(None) if rows is None else rows
             fr = f[r]
@@ -384,10 +367,8 @@ def _block(e: _PerExpiry, spot, strike, bid, ask, mid, iv, k_row, is_call, c, o)
         np.divide(sell, days, out=o["premium_per_day_sell"])
         np.divide(buy, days, out=o["premium_per_day_buy"])
         ret = o["return_sell"]
-        capital = np.subtract(strike, sell)
-        np.copyto(capital, spot, where=is_call)
-        np.divide(sell, capital, out=ret)
-        np.copyto(ret, np.nan, where=~(capital > 0))
+        capital = np.where(is_call, spot, strike - sell)
+        ret[...] = np.where(capital > 0, sell / capital, np.nan)
         annual = np.multiply(ret, _DAYS_PER_YEAR, out=o["return_sell_annual"])
         annual /= days
         edge = o["edge_to_mid"]
