@@ -552,9 +552,11 @@ def _annotate_sorted(snapshot: Snapshot, settings: PipelineSettings, findings: l
     n_pairs = int(new_pair.sum())
     quotes = {}
     for side, mask in (("call", is_call), ("put", is_put)):
+        rows = np.flatnonzero(mask)  # taken by index: a boolean mask alternating row by row is slow to index with
+        at = pair[rows]
         for name, values in (("bid", bid), ("ask", ask)):
             arr = np.full(n_pairs, np.nan)
-            arr[pair[mask]] = values[mask]
+            arr[at] = values[rows]
             quotes[side, name] = arr
     estimates = implied_forwards(
         exp_code[new_pair], strike[new_pair], quotes["call", "bid"], quotes["call", "ask"],
@@ -867,9 +869,10 @@ def _fit_smiles_in_bands(fit_sel, bound_sel, k_row, iv, t_row, t_exp, f_row, df_
 
 def _rms_per_expiry(err: np.ndarray, exp_code: np.ndarray, n_exp: int) -> np.ndarray:
     """Root mean square of the finite values of ``err`` per expiry (NaN where there is none)."""
-    ok = np.isfinite(err)
-    n = np.bincount(exp_code[ok], minlength=n_exp)
-    ss = np.bincount(exp_code[ok], weights=err[ok] ** 2, minlength=n_exp)
+    ok = np.flatnonzero(np.isfinite(err))  # by index: the finite rows alternate with calls and puts
+    code = exp_code[ok]
+    n = np.bincount(code, minlength=n_exp)
+    ss = np.bincount(code, weights=err[ok] ** 2, minlength=n_exp)
     with np.errstate(invalid="ignore", divide="ignore"):
         return np.where(n > 0, np.sqrt(ss / np.maximum(n, 1)), np.nan)
 
