@@ -1,6 +1,6 @@
 """Check (by hand) that the annotated figures of this tree equal those of a git revision to the bit.
 
-    python tests/bench/check_annotate_identity.py [--baseline REV] [--big PATH] [--no-touch]
+    python tests/bench/check_annotate_identity.py [--baseline REV] [--big PATH] [--no-touch] [--table]
 
 Annotates the same chains with this working tree's core/ and with the core/ of
 ``REV`` (default ``main``, exported with ``git archive`` and imported in a child
@@ -11,7 +11,10 @@ columns with ``Series.equals``; also the findings' texts. Chains: the demo
 chains (on the three time bases, and with the file's vols), a 20,000-contract
 synthetic chain (bench_pipeline.synthetic_snapshot) and, if ``--big`` names a
 file (tests/bench/bench_table.write_chain makes one), that file. Touch figures
-(``fill_touch``) are compared too (``--no-touch`` leaves them out). Exits 1 on the first difference set, printing each.
+(``fill_touch``) are compared too (``--no-touch`` leaves them out). ``--table`` also runs ``chaintriage table`` of both revisions (core/,
+tui/, themes/ and demo_chains/ of REV) on the demo chains (csv, plain and json, on the
+default and the calendar basis) and on the big file (csv and plain) and compares the
+output byte for byte. Exits 1 if anything differs, printing each difference.
 """
 
 from __future__ import annotations
@@ -97,17 +100,46 @@ def compare(before: dict, after: dict) -> list[str]:
     return bad
 
 
+def table_runs(big: str | None) -> list[list[str]]:
+    demo = REPO / "demo_chains"
+    runs = [[str(demo / f), "--format", fmt, *extra]
+            for f in ("tsbh_2026-12-01.csv", "ospx_2026-12-01.csv", "messy_export.csv")
+            for fmt in ("csv", "plain", "json") for extra in ([], ["--basis", "365"])]
+    runs.append([str(demo / "tsbh_2026-12-01.csv"), str(demo / "ospx_2026-12-01.csv"), "--format", "csv"])
+    if big:
+        runs += [[big, "--format", "csv", "--quiet"], [big, "--format", "plain", "--quiet"]]
+    return runs
+
+
+def compare_tables(root: str, big: str | None) -> list[str]:
+    """``chaintriage table`` of the package under ``root`` against this tree's, byte for byte (stdout and exit status)."""
+    bad = []
+    for args in table_runs(big):
+        got = []
+        for where in (root, None):
+            pre = f"import sys; sys.path.insert(0, {where!r}); " if where else "import sys; "
+            code = pre + "from chaintriage.tui.cli.main import main; sys.exit(main(sys.argv[1:]))"
+            r = subprocess.run([sys.executable, "-c", code, "table", *args], capture_output=True)
+            got.append((r.returncode, r.stdout))
+        if got[0] != got[1]:
+            bad.append("table " + " ".join(Path(a).name for a in args) + ": output differs")
+    print(f"{len(table_runs(big))} table runs compared byte for byte")
+    return bad
+
+
 def main() -> int:
     ap = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
     ap.add_argument("--baseline", default="main", metavar="REV")
     ap.add_argument("--big", metavar="PATH", help="a big chain file to compare too")
     ap.add_argument("--no-touch", action="store_true")
+    ap.add_argument("--table", action="store_true", help="compare `chaintriage table` output byte for byte too")
     args = ap.parse_args()
     with tempfile.TemporaryDirectory() as tmp:
         pkg = Path(tmp) / "rev" / "chaintriage"
         pkg.mkdir(parents=True)
         (pkg / "__init__.py").write_text("")
-        archive = subprocess.run(["git", "-C", str(REPO), "archive", args.baseline, "core"], capture_output=True,
+        parts = ["core", "tui", "themes", "demo_chains"] if args.table else ["core"]
+        archive = subprocess.run(["git", "-C", str(REPO), "archive", args.baseline, *parts], capture_output=True,
                                  check=True)
         subprocess.run(["tar", "-x", "-C", str(pkg)], input=archive.stdout, check=True)
         files = {}
@@ -123,7 +155,9 @@ def main() -> int:
             before = pickle.load(fh)
         with open(files["now"], "rb") as fh:
             after = pickle.load(fh)
-    bad = compare(before, after)
+        bad = compare(before, after)
+        if args.table:
+            bad += compare_tables(str(pkg.parent), args.big)
     n_cols = sum(len(v[0].columns) + len(v[1].columns) for v in before.values())
     for line in bad:
         print(line)
