@@ -197,7 +197,7 @@ def _prob_above_w(k, w, w1):
 
 def _log_ratio_where_ok(level, forward, forward_ok, log_ratio=None):
     """ln(level / F) where F and the level are finite and positive, else NaN (distribution._log_moneyness);
-    ``log_ratio``: ln(level / F) already computed (written over)."""
+    ``log_ratio``: ln(level / F) already computed."""
     ok = np.isfinite(level)
     ok &= level > 0
     ok &= forward_ok
