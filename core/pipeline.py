@@ -205,21 +205,33 @@ class AnnotatedSnapshot:
         (no smile, no time left, unknown) are left out."""
         from .touch_expiry import expiries_touch  # here only: it imports scipy.linalg, not needed to annotate
 
-        todo = [e for e in dict.fromkeys(pd.Timestamp(e) for e in expiries) if self._has_touch(e)]
+        todo, args, kwargs = self.touch_inputs(expiries)
         if not todo:
             return {}
+        return dict(zip(todo, expiries_touch(*args, **kwargs, workers=workers)))
+
+    def touch_inputs(self, expiries) -> tuple[list[pd.Timestamp], tuple, dict]:
+        """What ``compute_touch_many`` gives ``touch_expiry.expiries_touch`` for ``expiries``: (the
+        expiries with figures to compute, the positional and the keyword arguments but ``workers``;
+        plain data: strikes, spot, times, forwards, smiles, indices). Another process given them
+        computes the same figures; ``apply_touch(dict(zip(expiries, its result)))`` writes them."""
+        todo = [e for e in dict.fromkeys(pd.Timestamp(e) for e in expiries) if self._has_touch(e)]
+        if not todo:
+            return [], (), {}
         self.prepare_touch()
         all_strikes = self._touch_cache[2]
         order = list(self.results)
         strikes = [all_strikes[self._touch_rows(expiry)] for expiry in todo]
         vols = [None] * len(todo)  # each smile's vol at its strikes, computed only for a one-vol fallback
-        got_all = expiries_touch(strikes, self.snapshot.spot,
-                                 np.array([r.t_years for r in self.results.values()]),
-                                 np.array([r.forward for r in self.results.values()]),
-                                 [r.smile for r in self.results.values()], [order.index(e) for e in todo], vols,
-                                 underlying=self.snapshot.underlying, labels=[f"{e:%Y-%m-%d}" for e in todo],
-                                 workers=workers)
-        return dict(zip(todo, got_all))
+        args = (strikes, self.snapshot.spot, np.array([r.t_years for r in self.results.values()]),
+                np.array([r.forward for r in self.results.values()]),
+                [r.smile for r in self.results.values()], [order.index(e) for e in todo], vols)
+        return todo, args, {"underlying": self.snapshot.underlying, "labels": [f"{e:%Y-%m-%d}" for e in todo]}
+
+    def touch_rows(self, expiry) -> np.ndarray:
+        """The positions in ``contracts`` of ``expiry``'s rows (the order of ``touch_inputs``' strikes)."""
+        self.prepare_touch()
+        return self._touch_rows(pd.Timestamp(expiry))
 
     def apply_touch(self, computed: dict) -> None:
         """Write touch figures from ``compute_touch_many`` (expiry -> ExpiryTouch) to ``contracts`` (each

@@ -30,7 +30,9 @@ from .findings import NOTE, WARNING, Finding
 from .local_vol import LocalVolSurface
 from .touch import prob_touch_smile
 from .touch_bounds import touch_bounds
-from .touch_local_vol import touch_local_vol_many
+
+# touch_local_vol (scipy.linalg) is imported where the equations are solved: a process that only
+# receives ExpiryTouch figures (from a second process) needs none of it.
 
 #: Above this share of guarded local-variance points near the forward, the one-vol figure is used instead.
 MAX_GUARDED_SHARE = 0.25
@@ -90,6 +92,8 @@ def expiries_touch(strikes: list, spot: float, t, forwards, smiles: list, indice
     bounds in a second thread meanwhile (numpy releases the GIL in their
     large array operations); at most ``os.cpu_count()`` threads in all.
     """
+    from .touch_local_vol import touch_local_vol_many
+
     t = np.asarray(t, dtype=float)
     fw = np.asarray(forwards, dtype=float)
     labels = list(labels) if labels is not None else [None] * len(indices)

@@ -114,13 +114,18 @@ def _wanted_expiries(args: argparse.Namespace) -> list[pd.Timestamp]:
     return wanted
 
 
-def _selected(a, args: argparse.Namespace, wanted: list[pd.Timestamp]) -> tuple[pd.DataFrame, pd.Series]:
-    """The rows of one annotated snapshot that `table` writes (touch figures computed for them), and
-    the mask that chose them."""
+def _selected(a, args: argparse.Namespace, wanted: list[pd.Timestamp], touch_server=None):
+    """The rows of one annotated snapshot that `table` writes (touch figures computed for them), the
+    mask that chose them, and the touch columns when ``touch_server`` (``touch_process.TouchServer``)
+    computes them (the frame's touch cells are then placeholders), else None."""
     import pandas as pd
 
-    # touch figures are computed on demand: the asked expiries together
-    a.touch_many([expiry for expiry in a.results if not wanted or expiry in wanted])
+    # touch figures are computed on demand: the asked expiries together (for a big chain, by a
+    # second process while the writer formats the other columns)
+    expiries = [expiry for expiry in a.results if not wanted or expiry in wanted]
+    pending = touch_server.submit(a, expiries) if touch_server is not None else None
+    if pending is None:
+        a.touch_many(expiries)
     c = a.contracts
     keep = pd.Series(True, index=c.index)
     if wanted:
@@ -130,7 +135,8 @@ def _selected(a, args: argparse.Namespace, wanted: list[pd.Timestamp]) -> tuple[
     if args.beyond is not None:
         keep &= c["otm"] & (c["sigma_distance"].abs() >= args.beyond)
     # boolean selection already copies; a further .copy() would merge the blocks (0.4 s at 200k rows)
-    return with_as_of(c.loc[keep, _columns()], a, args.format), keep
+    frame = with_as_of(c.loc[keep, _columns()], a, args.format)
+    return frame, keep, (pending.columns(keep) if pending is not None else None)
 
 
 def _columns() -> list[str]:
@@ -186,7 +192,7 @@ def _run_table_in_parts(args: argparse.Namespace, overrides, column_map, setting
                 present.update(snap.contracts["expiry"].unique())
             a = annotate(snap, settings)
             del snap
-            frame, keep = _selected(a, args, wanted)
+            frame, keep, _ = _selected(a, args, wanted)  # (big inputs read in parts: in-process)
             if compare is not None:
                 cmp = compare(a)
                 frame = history_columns(frame, cmp.contracts if cmp else None, keep, HISTORY_TABLE_COLUMNS)
@@ -234,14 +240,31 @@ def _say_missing_expiries(wanted, present) -> bool:
 def run_table(args: argparse.Namespace) -> int:
     """Load, then annotate and write one snapshot at a time (csv and json leave as they are made)."""
     from chaintriage.core import loading
-    from chaintriage.core.loading import inputs_bytes, load_files
-    from chaintriage.core.pipeline import annotate
-    from chaintriage.tui.cli.table_output import TableStream
+    from chaintriage.core.loading import inputs_bytes
+    from chaintriage.tui.cli import touch_process
 
     overrides, column_map = snapshot_options(args)
     settings = pipeline_settings(args)
-    if inputs_bytes(args.files) > loading.PART_INPUT_BYTES:
+    size = inputs_bytes(args.files)
+    if size > loading.PART_INPUT_BYTES:
         return _run_table_in_parts(args, overrides, column_map, settings)
+    # P(touch) of a big chain by a second process, started now to import its modules meanwhile, its
+    # figures streamed to the csv and plain writers (json has nothing to format meanwhile; --history
+    # annotates every snapshot first)
+    server = touch_process.serve(size) if args.format in ("csv", "plain") and not args.history else None
+    try:
+        return _run_table_whole(args, overrides, column_map, settings, server)
+    finally:
+        if server is not None:
+            server.close()
+
+
+def _run_table_whole(args: argparse.Namespace, overrides, column_map, settings, touch_server) -> int:
+    """`table` on inputs read whole (``run_table``)."""
+    from chaintriage.core.loading import load_files
+    from chaintriage.core.pipeline import annotate
+    from chaintriage.tui.cli.table_output import TableStream
+
     result = load_files(args.files, overrides=overrides, column_map=column_map)
     for exc in result.errors:
         error(str(exc))
@@ -262,14 +285,16 @@ def run_table(args: argparse.Namespace) -> int:
     else:  # one snapshot at a time: annotated, written, let go
         items = ((i, annotate(snap, settings)) for i, snap in enumerate(result.snapshots))
     for i, a in items:
-        frame, keep = _selected(a, args, wanted)
+        frame, keep, late = _selected(a, args, wanted, touch_server)
         if loads is not None:
             cmp = history.get(i)
             frame = history_columns(frame, cmp.contracts if cmp else None, keep, HISTORY_TABLE_COLUMNS)
-        stream.write(frame)
-        model_findings.append(a.findings)
-        del a, keep
+        stream.write(frame, late=late)
+        model_findings.append(a.findings)  # (the touch findings join this list when they come)
+        del a, keep, late
     stream.close()
+    if touch_server is not None:
+        touch_server.finish()
     report_findings(args, result, model_findings, wanted)
     return finish_with_history(args, loads, extra, annotated_status(result, model_findings))
 

@@ -25,7 +25,7 @@ import io
 import json
 import math
 import sys
-from typing import TextIO
+from typing import Protocol, TextIO
 
 import numpy as np
 
@@ -52,6 +52,34 @@ from chaintriage.tui.formatting import (
     signed,
     tidy_zero,
 )
+
+class LateColumns(Protocol):
+    """Decimal columns of a table whose values are still being computed (e.g. by another process)
+    when the table is handed to a writer (their cells in the frame are placeholders): the writers
+    format the other columns first and ask for these a block of rows at a time."""
+
+    #: the columns' names
+    names: tuple[str, ...]
+
+    def rows(self, stop: int) -> dict[str, np.ndarray]:
+        """Each late column's values (float, one per row of the frame), known at least for the rows
+        before ``stop`` (waiting for them if need be)."""
+
+
+def with_late(frame: pd.DataFrame, late: LateColumns | None) -> pd.DataFrame:
+    """``frame`` with the late columns' values in place (waiting for all of them); itself when
+    ``late`` is None."""
+    if late is None:
+        return frame
+    values = late.rows(len(frame))
+    names = [n for n in late.names if n in frame.columns]
+    if not names:
+        return frame
+    frame = frame.copy(deep=False)
+    for n in names:
+        frame[n] = values[n]
+    return frame
+
 
 #: How plain output shows each known column: (heading, formatter name).
 _PLAIN = {
@@ -364,19 +392,27 @@ def _plain_kinds(frame: pd.DataFrame) -> tuple[list[str], list[str]]:
     return [_PLAIN.get(c, (c, "text"))[0] for c in cols], [_PLAIN.get(c, (c, "text"))[1] for c in cols]
 
 
-def write_plain(frame: pd.DataFrame, out: TextIO) -> None:
-    """A fixed-width, right-aligned (text left-aligned) table for reading."""
+def write_plain(frame: pd.DataFrame, out: TextIO, late: LateColumns | None = None) -> None:
+    """A fixed-width, right-aligned (text left-aligned) table for reading. ``late``: columns of
+    ``frame`` whose values come later (``LateColumns``), formatted after the others."""
     headings, _ = _plain_kinds(frame)
-    coded, widths, left = _plain_coded(frame)
+    coded, widths, left = _plain_coded(frame, late)
     _plain_heading(headings, widths, left, out)
     _plain_rows(coded, widths, left, len(frame), out)
 
 
-def _plain_coded(frame: pd.DataFrame) -> tuple[list, list[int], list[bool]]:
+def _plain_coded(frame: pd.DataFrame, late: LateColumns | None = None) -> tuple[list, list[int], list[bool]]:
     """Each column's (codes, texts, ASCII texts), the widths of its heading and widest text, and which
-    are left-aligned. The ASCII texts are ``texts`` as a numpy bytes array, None when one is not ASCII."""
+    are left-aligned. The ASCII texts are ``texts`` as a numpy bytes array, None when one is not ASCII.
+    ``late``: columns whose values are asked for (``LateColumns.rows``) once the others are coded."""
     headings, kinds = _plain_kinds(frame)
-    coded = [(*_format_codes(frame.iloc[:, j], k), None) for j, k in enumerate(kinds)]
+    names = list(frame.columns)
+    later = [] if late is None else [j for j, name in enumerate(names) if name in late.names]
+    coded = [None if j in later else (*_format_codes(frame.iloc[:, j], k), None) for j, k in enumerate(kinds)]
+    if late is not None:  # asked for even when the frame shows none of them: whoever computes them finishes
+        values = late.rows(len(frame))
+        for j in later:
+            coded[j] = (*_format_codes(pd.Series(values[names[j]]), kinds[j]), None)
     widths = []
     for j, (h, (codes, texts, _)) in enumerate(zip(headings, coded)):
         if not len(codes):
@@ -558,11 +594,14 @@ def _nan_missing_text(dtype) -> bool:
     return isinstance(dtype, pd.StringDtype) and isinstance(na, float) and math.isnan(na)
 
 
-def _csv_lines(frame: pd.DataFrame, out: TextIO) -> None:
+def _csv_lines(frame: pd.DataFrame, out: TextIO, late: LateColumns | None = None) -> None:
     """The csv lines of ``frame`` (no heading), block by block: the decimals of a block formatted at
-    once (``core.number_text``, ``%.10g``, NaN empty), other cells once per distinct value."""
+    once (``core.number_text``, ``%.10g``, NaN empty), other cells once per distinct value. ``late``:
+    decimal columns whose values are asked for a block at a time (``LateColumns.rows``)."""
     floats = [j for j in range(frame.shape[1]) if pd.api.types.is_float_dtype(frame.dtypes.iloc[j])]
-    numbers = [frame.iloc[:, j].to_numpy(dtype=float, na_value=np.nan) for j in floats]
+    late_values = late.rows(0) if late is not None else {}
+    numbers = [late_values[frame.columns[j]] if frame.columns[j] in late_values
+               else frame.iloc[:, j].to_numpy(dtype=float, na_value=np.nan) for j in floats]
     slot = {j: i for i, j in enumerate(floats)}
     coded = {j: _coded_cells(frame.iloc[:, j], _csv_cell_text if _is_text(frame.iloc[:, j]) else _csv_scalar)
              for j in range(frame.shape[1]) if j not in slot}
@@ -572,6 +611,8 @@ def _csv_lines(frame: pd.DataFrame, out: TextIO) -> None:
     line_room, line_bytes = np.empty(0, dtype=np.uint8), bytearray()  # line_room: a view of line_bytes
     for a in range(0, len(frame), BLOCK_ROWS):
         rows = min(BLOCK_ROWS, len(frame) - a)
+        if late is not None:  # the late values of this block's rows (the arrays in ``numbers`` filled)
+            late.rows(a + rows)
         # one call for every decimal of the block, column after column (columns all missing left out)
         filled = [i for i, x in enumerate(numbers) if not np.isnan(x[a:a + rows]).all()]
         place = {i: k for k, i in enumerate(filled)}
@@ -619,20 +660,26 @@ def _csv_header(name: object) -> str:
     return _csv_cell_text(str(name))
 
 
-def write_csv(frame: pd.DataFrame, out: TextIO, header: bool = True) -> None:
+def write_csv(frame: pd.DataFrame, out: TextIO, header: bool = True, late: LateColumns | None = None) -> None:
     """CSV with decimals to 10 significant digits, missing values empty, dates as YYYY-MM-DD.
 
     Text cells are escaped and neutralised (``_safe_text_cells``), then quoted
-    where they hold a comma, quote or line break.
+    where they hold a comma, quote or line break. ``late``: decimal columns
+    whose values come later (``LateColumns``), taken a block at a time.
     """
+    if late is not None and not all(pd.api.types.is_float_dtype(frame[n].dtype)
+                                    for n in late.names if n in frame.columns):
+        frame, late = with_late(frame, late), None
     if header:
         out.write(",".join(_csv_header(c) for c in frame.columns) + "\n")
     if frame.shape[1] == 0:
+        with_late(frame, late)  # asked for all the same: whoever computes them finishes
         out.write("\n" * len(frame))
         return
     try:
-        _csv_lines(frame, out)
+        _csv_lines(frame, out, late)
     except ValueError:  # a cell's text holds a NUL character (``text_bytes``): string by string
+        frame = with_late(frame, late)
         for a in range(0, len(frame), BLOCK_ROWS):
             block = frame.iloc[a:a + BLOCK_ROWS]
             cols = [_csv_column(block.iloc[:, j]).tolist() for j in range(block.shape[1])]
@@ -777,23 +824,26 @@ class TableStream:
         self.out = out or sys.stdout
         self.rows = 0
         self.pieces = 0
-        self._kept: list[pd.DataFrame] = []
+        self._kept: list[tuple[pd.DataFrame, LateColumns | None]] = []
         self._kept_rows = 0
         self._widths: list[int] | None = None  # plain, once streaming: the widths so far
 
-    def write(self, frame: pd.DataFrame) -> None:
-        """Add rows (every piece has the same columns)."""
+    def write(self, frame: pd.DataFrame, late: LateColumns | None = None) -> None:
+        """Add rows (every piece has the same columns). ``late``: decimal columns of ``frame`` whose
+        values come later (``LateColumns``): csv asks for them a block at a time, plain once its
+        other columns are coded (when the table is written), json at once."""
         if self.fmt == "plain":
             if self._widths is not None:
-                self._plain_piece(frame)
+                self._plain_piece(with_late(frame, late))
             else:
-                self._kept.append(frame)
+                self._kept.append((frame, late))
                 self._kept_rows += len(frame)
                 if self._kept_rows > PLAIN_WIDTH_ROWS:
                     self._flush_kept()
         elif self.fmt == "csv":
-            write_csv(frame, self.out, header=self.pieces == 0)
+            write_csv(frame, self.out, header=self.pieces == 0, late=late)
         elif len(frame):
+            frame = with_late(frame, late)
             if self.rows == 0:
                 self.out.write("[\n")
             _json_records(frame, self.out, first=self.rows == 0)
@@ -802,13 +852,20 @@ class TableStream:
 
     def _flush_kept(self) -> None:
         """The kept rows written (heading first); from here on plain streams."""
-        kept = pd.concat(self._kept, ignore_index=True) if len(self._kept) > 1 else self._kept[0]
-        self._kept = []
+        kept, late = self._kept_frame()
         headings, _ = _plain_kinds(kept)
-        coded, widths, left = _plain_coded(kept)
+        coded, widths, left = _plain_coded(kept, late)
         _plain_heading(headings, widths, left, self.out)
         _plain_rows(coded, widths, left, len(kept), self.out)
         self._widths = widths
+
+    def _kept_frame(self) -> tuple[pd.DataFrame, LateColumns | None]:
+        """The kept pieces as one frame (forgotten here), and the late columns of a lone piece (several
+        pieces get their late values first)."""
+        kept, self._kept = self._kept, []
+        if len(kept) == 1:
+            return kept[0]
+        return pd.concat([with_late(frame, late) for frame, late in kept], ignore_index=True), None
 
     def _plain_piece(self, frame: pd.DataFrame) -> None:
         coded, widths, left = _plain_coded(frame)
@@ -819,9 +876,8 @@ class TableStream:
         """Finish the table."""
         if self.fmt == "plain":
             if self._kept:
-                write_plain(pd.concat(self._kept, ignore_index=True) if len(self._kept) > 1 else self._kept[0],
-                            self.out)
-                self._kept = []
+                frame, late = self._kept_frame()
+                write_plain(frame, self.out, late)
         elif self.fmt == "json":
             self.out.write("[]\n" if self.rows == 0 else "\n]\n")
 

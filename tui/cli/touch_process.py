@@ -1,0 +1,409 @@
+"""P(touch) of a big chain computed by a second process, streamed to `table`'s writer a few expiries at a time.
+
+The touch figures (core ``AnnotatedSnapshot.compute_touch_many``: local-vol
+Crank-Nicolson and the model-free bounds, ~0.5 s of CPU at 200,000 contracts,
+plus ~0.1 s importing scipy.linalg) hold the interpreter, so a thread cannot run
+them beside the writer. On Linux, with two or more cores, no other Python thread
+running and inputs of at least ``MIN_INPUT_BYTES``, ``serve`` forks at the
+command's start: the child imports the touch modules while the parent loads and
+annotates, then waits. ``TouchServer.submit`` sends it a snapshot's touch inputs
+(``AnnotatedSnapshot.touch_inputs``: strikes, times, forwards, smiles; at least
+``MIN_CONTRACTS`` contracts, else the caller computes in-process) cut into
+chunks of whole expiries in row order (about ``CHUNK_ROWS`` contracts each).
+The child answers each chunk with ``expiries_touch`` of its expiries as soon as
+they are computed: the same code on the same inputs, and the expiries of one
+call are independent of each other (``touch_local_vol_many`` steps them side by
+side in one tridiagonal system, block by block), so the figures are the same to
+the bit as one call over all of them. The writer formats a block's other columns
+and asks for the touch columns of that block's rows (``TouchColumns.rows``),
+waiting only for the chunks that cover them.
+
+The parent never depends on the child: when the child fails, dies, answers
+something unreadable or takes longer than ``CHILD_SECONDS``, it is killed and
+the expiries not answered yet are computed here (together, as they would have
+been). The child is killed and reaped when `table` ends (``TouchServer.close``),
+at exit (Ctrl-C, a broken pipe, an error) and dies with its parent (Linux's
+parent-death signal), so none is left behind. Elsewhere (Windows, macOS, one
+core) ``serve`` returns None and everything is computed in-process.
+
+``CHAINTRIAGE_TOUCH_PROCESS``: ``0`` never forks, ``1`` forks whatever the
+chain's size (where forking is possible at all); unset, by size.
+"""
+
+from __future__ import annotations
+
+import atexit
+import os
+import pickle
+import select
+import signal
+import struct
+import sys
+import threading
+import time
+
+import numpy as np
+
+#: Fewer contracts than this in the asked expiries: computed in-process (the fork and the pipe would
+#: cost more than the overlap gains).
+MIN_CONTRACTS = 20_000
+
+#: Inputs of fewer bytes than this: no second process is started (about 12,000 contracts of csv).
+MIN_INPUT_BYTES = 1_000_000
+
+#: Contracts per chunk the child answers at once (whole expiries: a chunk closes once it holds this many).
+CHUNK_ROWS = 10_000
+
+#: The child's time limit (seconds, from a request): past it the figures are computed in-process.
+CHILD_SECONDS = 60.0
+
+#: The environment variable that forces the second process off (``0``) or on whatever the size (``1``).
+SWITCH = "CHAINTRIAGE_TOUCH_PROCESS"
+
+#: The columns the child computes.
+TOUCH_COLUMNS = ("p_touch", "p_touch_low", "p_touch_high")
+
+_HEADER = struct.Struct("<Q")
+
+
+def _cores() -> int:
+    try:
+        return len(os.sched_getaffinity(0))
+    except (AttributeError, OSError):
+        return os.cpu_count() or 1
+
+
+def usable(contracts: int) -> bool:
+    """Whether a second process would compute the touch figures of ``contracts`` contracts."""
+    switch = os.environ.get(SWITCH, "").strip()
+    if switch == "0":
+        return False
+    if not sys.platform.startswith("linux") or not hasattr(os, "fork") or _cores() < 2:
+        return False
+    if threading.active_count() != 1:  # forking copies only this thread: another may hold a lock
+        return False
+    return switch == "1" or contracts >= MIN_CONTRACTS
+
+
+def serve(input_bytes: int) -> TouchServer | None:
+    """A second process forked now, at the command's start, importing the touch modules (scipy.linalg)
+    while this one loads and annotates; it then computes what ``TouchServer.submit`` sends it. None
+    when it is not worth it (inputs under ``MIN_INPUT_BYTES``, see ``usable``) or cannot start."""
+    if not usable(MIN_CONTRACTS if input_bytes >= MIN_INPUT_BYTES else 0):
+        return None
+    try:
+        ask_r, ask_w = os.pipe()
+        answer_r, answer_w = os.pipe()
+    except OSError:
+        return None
+    parent = os.getpid()
+    try:
+        pid = os.fork()
+    except OSError:
+        for fd in (ask_r, ask_w, answer_r, answer_w):
+            os.close(fd)
+        return None
+    if pid == 0:  # the child: never returns
+        os.close(ask_w)
+        os.close(answer_r)
+        _child(ask_r, answer_w, parent)
+    os.close(ask_r)
+    os.close(answer_w)
+    os.set_blocking(ask_w, False)  # a request is written as the child takes it, up to a deadline
+    return TouchServer(pid, ask_w, answer_r)
+
+
+def _child(ask: int, answer: int, parent: int) -> None:
+    """Import, then answer each request chunk by chunk until the parent closes its end; exit (never
+    running the parent's exit handlers or flushing its buffers)."""
+    status = 1
+    try:
+        import gc
+
+        gc.disable()  # a short life: a collection would only copy the parent's pages
+        signal.signal(signal.SIGINT, signal.SIG_DFL)  # Ctrl-C ends the child at once
+        signal.signal(signal.SIGPIPE, signal.SIG_DFL)
+        _die_with(parent)
+        from chaintriage.core import touch_expiry, touch_local_vol  # noqa: F401 - scipy.linalg, now
+
+        while True:
+            message = _read_message(ask, None)
+            if message is None:  # the parent has finished (or gone)
+                break
+            args, kwargs, chunks = pickle.loads(message)
+            for chunk in chunks:
+                got = _computed(*_chunk_inputs(args, kwargs, chunk))
+                if not _write_message(answer, pickle.dumps(got, protocol=pickle.HIGHEST_PROTOCOL), None):
+                    break
+        status = 0
+    except BaseException:  # noqa: BLE001 - whatever it is, the parent computes the figures itself
+        pass
+    finally:
+        os._exit(status)
+
+
+def _chunk_inputs(args: tuple, kwargs: dict, chunk: list[int]) -> tuple[tuple, dict]:
+    """``expiries_touch``'s arguments for the expiries ``chunk`` (positions in ``args``' lists)."""
+    strikes, spot, t, forwards, smiles, indices, vols = args
+    sub = dict(kwargs)
+    if sub.get("labels") is not None:
+        sub["labels"] = [sub["labels"][j] for j in chunk]
+    return ([strikes[j] for j in chunk], spot, t, forwards, smiles, [indices[j] for j in chunk],
+            [vols[j] for j in chunk]), sub
+
+
+def _computed(args: tuple, kwargs: dict) -> list:
+    """The child's work for one chunk: ``expiries_touch`` (kept apart so a test can make it fail)."""
+    from chaintriage.core.touch_expiry import expiries_touch
+
+    return expiries_touch(*args, **kwargs)
+
+
+def _read_message(fd: int, deadline: float | None) -> bytes | None:
+    """One length-prefixed message; None at the pipe's end or past ``deadline`` (time.monotonic)."""
+    header = _read(fd, _HEADER.size, deadline)
+    return None if header is None else _read(fd, _HEADER.unpack(header)[0], deadline)
+
+
+def _read(fd: int, n: int, deadline: float | None) -> bytes | None:
+    parts, left = [], n
+    while left:
+        if deadline is not None:
+            wait = deadline - time.monotonic()
+            if wait <= 0 or not select.select([fd], [], [], wait)[0]:
+                return None
+        chunk = os.read(fd, min(left, 1 << 20))
+        if not chunk:
+            return None
+        parts.append(chunk)
+        left -= len(chunk)
+    return b"".join(parts)
+
+
+def _write_message(fd: int, data: bytes, deadline: float | None) -> bool:
+    """Write a length-prefixed message; False when the reader has gone or past ``deadline``."""
+    view = memoryview(_HEADER.pack(len(data)) + data)
+    try:
+        while view:
+            try:
+                view = view[os.write(fd, view):]
+                continue
+            except BlockingIOError:  # (a non-blocking pipe, full)
+                pass
+            wait = None if deadline is None else deadline - time.monotonic()
+            if (wait is not None and wait <= 0) or not select.select([], [fd], [], wait)[1]:
+                return False
+    except OSError:  # EPIPE: the reader has gone
+        return False
+    return True
+
+
+def _die_with(parent: int) -> None:
+    """Ask Linux to end this process when its parent ends (prctl PR_SET_PDEATHSIG); exit if the
+    parent has already gone."""
+    try:
+        import ctypes
+
+        ctypes.CDLL(None, use_errno=True).prctl(1, signal.SIGKILL, 0, 0, 0)  # 1: PR_SET_PDEATHSIG
+    except (OSError, AttributeError):
+        pass
+    if os.getppid() != parent:
+        os._exit(1)
+
+
+#: Second processes not reaped yet: pid -> their pipe ends here (killed and reaped at exit).
+_LIVE: dict[int, tuple[int, ...]] = {}
+
+
+def _reap_all() -> None:
+    for pid in list(_LIVE):
+        _end(pid)
+
+
+atexit.register(_reap_all)
+
+
+def _end(pid: int) -> int | None:
+    """Close the pipes to a child, kill it and reap it; its wait status, None if unknown."""
+    for fd in _LIVE.pop(pid, ()):
+        try:
+            os.close(fd)
+        except OSError:
+            pass
+    try:
+        os.kill(pid, signal.SIGKILL)
+    except OSError:
+        pass
+    try:
+        return os.waitpid(pid, 0)[1]
+    except (ChildProcessError, OSError):
+        return None
+
+
+def chunks_of(rows: list[np.ndarray], size: int) -> list[list[int]]:
+    """Consecutive expiries (positions in ``rows``, each expiry's rows) grouped into chunks of at
+    least ``size`` rows (the last may hold fewer)."""
+    chunks: list[list[int]] = []
+    current, held = [], 0
+    for j, r in enumerate(rows):
+        current.append(j)
+        held += len(r)
+        if held >= size:
+            chunks.append(current)
+            current, held = [], 0
+    if current:
+        chunks.append(current)
+    return chunks
+
+
+class TouchServer:
+    """The second process (``serve``): ``submit`` sends it a snapshot's touch inputs; ``close`` ends it."""
+
+    def __init__(self, pid: int, ask: int, answer: int) -> None:
+        self.pid, self.ask, self.answer = pid, ask, answer
+        self.alive = True
+        self.pending: PendingTouch | None = None
+        _LIVE[pid] = (ask, answer)
+
+    def submit(self, a, expiries) -> PendingTouch | None:
+        """The touch figures of ``expiries`` of the annotated snapshot ``a`` being computed by the
+        second process, or None when the caller should compute them (``a.touch_many``): fewer than
+        ``MIN_CONTRACTS`` contracts, nothing to compute, or the second process gone."""
+        self.finish()  # one request at a time
+        if not self.alive:
+            return None
+        todo, args, kwargs = a.touch_inputs([e for e in expiries if a.needs_touch(e)])
+        if not todo or not usable(sum(len(k) for k in args[0])):
+            return None
+        rows = [a.touch_rows(e) for e in todo]
+        chunks = chunks_of(rows, CHUNK_ROWS)
+        deadline = time.monotonic() + CHILD_SECONDS
+        message = pickle.dumps((args, kwargs, chunks), protocol=pickle.HIGHEST_PROTOCOL)
+        if not _write_message(self.ask, message, deadline):
+            self.close()
+            return None
+        self.pending = PendingTouch(self, a, todo, rows, chunks, deadline)
+        return self.pending
+
+    def finish(self) -> None:
+        """The request under way, if any, finished: its figures written into its snapshot."""
+        if self.pending is not None:
+            self.pending.finish()
+
+    def close(self) -> None:
+        """End the second process (killed: whatever it was doing is not needed any more) and reap it.
+        Chunks not answered yet are then computed here when asked for."""
+        if self.alive:
+            self.alive = False
+            _end(self.pid)
+
+
+class PendingTouch:
+    """Touch figures being computed by the second process (``TouchServer.submit``), chunk by chunk.
+
+    ``wait(n)`` takes the first ``n`` chunks (the child's, or computed here when the child fails);
+    ``columns(keep)`` hands the touch columns of the selected rows to a writer; ``finish`` takes the
+    rest and writes every figure and finding into the annotated snapshot (``apply_touch``, in the
+    order ``touch_many`` would)."""
+
+    def __init__(self, server: TouchServer, a, todo: list, rows: list, chunks: list, deadline: float) -> None:
+        self.server, self.a, self.todo, self.rows, self.chunks = server, a, todo, rows, chunks
+        self.deadline = deadline
+        self.got: list = [None] * len(todo)  # each expiry's ExpiryTouch (None: not yet, or nothing)
+        self.taken = 0  # chunks taken so far
+        self.done = False
+        self.from_child = 0  # chunks the child answered
+        n = len(a.contracts)
+        #: the chunk that holds each contract row (-1: none, nothing to wait for)
+        self.chunk_of_row = np.full(n, -1, dtype=np.int64)
+        for c, chunk in enumerate(chunks):
+            for j in chunk:
+                self.chunk_of_row[rows[j]] = c
+        #: the touch columns over every contract row, filled as chunks come
+        self.values = {name: a.contracts[name].to_numpy(dtype=float, copy=True) for name in TOUCH_COLUMNS}
+
+    def wait(self, n: int) -> None:
+        """The first ``n`` chunks taken (waiting for the child, or computed here when it fails)."""
+        while self.taken < min(n, len(self.chunks)):
+            chunk = self.chunks[self.taken]
+            got = self._receive(len(chunk))
+            if got is None:  # the child failed: what is left computed here, together
+                self._compute_rest()
+                return
+            self.from_child += 1
+            self._take(chunk, got)
+
+    def _take(self, chunk: list[int], got: list) -> None:
+        for j, figures in zip(chunk, got):
+            self.got[j] = figures
+            if figures is not None:
+                for name, arr in zip(TOUCH_COLUMNS, (figures.p_touch, figures.low, figures.high)):
+                    self.values[name][self.rows[j]] = arr
+        self.taken += 1
+
+    def _compute_rest(self) -> None:
+        rest = [j for chunk in self.chunks[self.taken:] for j in chunk]
+        computed = self.a.compute_touch_many([self.todo[j] for j in rest])
+        for chunk in self.chunks[self.taken:]:
+            self._take(chunk, [computed.get(self.todo[j]) for j in chunk])
+
+    def _receive(self, count: int) -> list | None:
+        """The child's figures of the next chunk (``count`` expiries), or None when it failed (it is
+        then killed and reaped)."""
+        got = None
+        if self.server.alive:
+            try:
+                message = _read_message(self.server.answer, self.deadline)
+                got = pickle.loads(message) if message is not None else None
+            except Exception:  # noqa: BLE001 - anything unreadable: computed here instead
+                got = None
+        if not (isinstance(got, list) and len(got) == count and all(_is_figures(g) for g in got)):
+            self.server.close()
+            return None
+        return got
+
+    def finish(self) -> None:
+        """Every chunk taken, the figures and findings written into the snapshot (``apply_touch``)."""
+        if self.done:
+            return
+        self.wait(len(self.chunks))
+        self.done = True
+        if self.server.pending is self:
+            self.server.pending = None
+        self.a.apply_touch({e: g for e, g in zip(self.todo, self.got) if g is not None})
+
+    def columns(self, keep) -> TouchColumns:
+        """The touch columns of the rows ``keep`` (a boolean mask over the snapshot's contracts) for a
+        writer (``table_output.LateColumns``)."""
+        return TouchColumns(self, np.flatnonzero(np.asarray(keep, dtype=bool)))
+
+
+def _is_figures(got) -> bool:
+    """Whether ``got`` is one expiry's answer: an ``ExpiryTouch`` (or None, nothing computed)."""
+    if got is None:
+        return True
+    from chaintriage.core.touch_expiry import ExpiryTouch
+
+    return isinstance(got, ExpiryTouch)
+
+
+class TouchColumns:
+    """``table_output.LateColumns``: the touch figures of the selected rows (``positions`` in the
+    snapshot's contracts), filled as the writer asks for them."""
+
+    names = TOUCH_COLUMNS
+
+    def __init__(self, pending: PendingTouch, positions: np.ndarray) -> None:
+        self.pending, self.positions = pending, positions
+        self.known = 0
+        self._values = {name: np.full(positions.size, np.nan) for name in self.names}
+
+    def rows(self, stop: int) -> dict[str, np.ndarray]:
+        stop = min(int(stop), self.positions.size)
+        if stop > self.known:
+            at = self.positions[self.known:stop]
+            self.pending.wait(int(self.pending.chunk_of_row[at].max()) + 1)
+            for name in self.names:
+                self._values[name][self.known:stop] = self.pending.values[name][at]
+            self.known = stop
+        return self._values
