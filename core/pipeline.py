@@ -123,6 +123,40 @@ class ExpiryResult:
 
 
 @dataclass
+class TouchSource:
+    """What the touch figures of a snapshot's expiries are computed from, known once its smiles are
+    fitted (``annotate``'s ``smiles_ready`` is given one before the per-contract figures are made).
+
+    ``strikes``: every contract's strike (price units) in the annotated rows' order; ``rows_of(expiry)``:
+    the positions of an expiry's rows.
+    """
+
+    results: dict
+    strikes: np.ndarray
+    spot: float
+    underlying: str
+    rows_of: object
+
+    def inputs(self, expiries) -> tuple[list[pd.Timestamp], tuple, dict]:
+        """``AnnotatedSnapshot.touch_inputs`` (the same values): (the expiries of ``expiries`` with
+        figures to compute, ``expiries_touch``'s positional and keyword arguments)."""
+        todo = []
+        for e in dict.fromkeys(pd.Timestamp(e) for e in expiries):
+            res = self.results.get(e)
+            if res is not None and res.smile is not None and res.t_years > 0:
+                todo.append(e)
+        if not todo:
+            return [], (), {}
+        order = list(self.results)
+        strikes = [self.strikes[self.rows_of(expiry)] for expiry in todo]
+        vols = [None] * len(todo)  # each smile's vol at its strikes, computed only for a one-vol fallback
+        args = (strikes, self.spot, np.array([r.t_years for r in self.results.values()]),
+                np.array([r.forward for r in self.results.values()]),
+                [r.smile for r in self.results.values()], [order.index(e) for e in todo], vols)
+        return todo, args, {"underlying": self.underlying, "labels": [f"{e:%Y-%m-%d}" for e in todo]}
+
+
+@dataclass
 class AnnotatedSnapshot:
     """The pipeline's output for one snapshot: contract and expiry tables.
 
@@ -215,18 +249,9 @@ class AnnotatedSnapshot:
         expiries with figures to compute, the positional and the keyword arguments but ``workers``;
         plain data: strikes, spot, times, forwards, smiles, indices). Another process given them
         computes the same figures; ``apply_touch(dict(zip(expiries, its result)))`` writes them."""
-        todo = [e for e in dict.fromkeys(pd.Timestamp(e) for e in expiries) if self._has_touch(e)]
-        if not todo:
-            return [], (), {}
         self.prepare_touch()
-        all_strikes = self._touch_cache[2]
-        order = list(self.results)
-        strikes = [all_strikes[self._touch_rows(expiry)] for expiry in todo]
-        vols = [None] * len(todo)  # each smile's vol at its strikes, computed only for a one-vol fallback
-        args = (strikes, self.snapshot.spot, np.array([r.t_years for r in self.results.values()]),
-                np.array([r.forward for r in self.results.values()]),
-                [r.smile for r in self.results.values()], [order.index(e) for e in todo], vols)
-        return todo, args, {"underlying": self.snapshot.underlying, "labels": [f"{e:%Y-%m-%d}" for e in todo]}
+        return TouchSource(self.results, self._touch_cache[2], self.snapshot.spot, self.snapshot.underlying,
+                           self._touch_rows).inputs(expiries)
 
     def touch_rows(self, expiry) -> np.ndarray:
         """The positions in ``contracts`` of ``expiry``'s rows (the order of ``touch_inputs``' strikes)."""
@@ -420,16 +445,19 @@ def _without_far_strikes(snapshot: Snapshot, findings: list[Finding], far: np.nd
     return replace(snapshot, contracts=contracts[~far].reset_index(drop=True))
 
 
-def annotate(snapshot: Snapshot, settings: PipelineSettings | None = None, touch: bool = False) -> AnnotatedSnapshot:
+def annotate(snapshot: Snapshot, settings: PipelineSettings | None = None, touch: bool = False,
+             smiles_ready=None) -> AnnotatedSnapshot:
     """Run the whole per-expiry pipeline over a snapshot.
 
     The touch columns are left NaN for ``AnnotatedSnapshot.touch`` to fill per
-    expiry on demand; ``touch=True`` fills every expiry now.
+    expiry on demand; ``touch=True`` fills every expiry now. ``smiles_ready``:
+    called with a ``TouchSource`` once the smiles are fitted, before the
+    per-contract figures (e.g. to have the touch figures computed elsewhere meanwhile).
     """
     settings = settings or PipelineSettings()
     findings: list[Finding] = []
     snapshot, order, is_call, is_put = _cleaned(snapshot, findings)
-    annotated = _annotate_sorted(snapshot, settings, findings, order, is_call, is_put)
+    annotated = _annotate_sorted(snapshot, settings, findings, order, is_call, is_put, smiles_ready=smiles_ready)
     return annotated.fill_touch() if touch else annotated
 
 
@@ -512,7 +540,8 @@ def _joined(snapshot: Snapshot, settings: PipelineSettings, far_findings: list[F
 
 
 def _annotate_sorted(snapshot: Snapshot, settings: PipelineSettings, findings: list[Finding], order: np.ndarray,
-                     is_call: np.ndarray, is_put: np.ndarray, compare_expiries: bool = True) -> AnnotatedSnapshot:
+                     is_call: np.ndarray, is_put: np.ndarray, compare_expiries: bool = True,
+                     smiles_ready=None) -> AnnotatedSnapshot:
     """``annotate`` of a snapshot already cleaned of far strikes, its rows in ``order`` (see ``_cleaned``);
     ``findings`` holds the findings so far. ``compare_expiries=False`` leaves out the calendar-arbitrage
     findings (for a part of the expiries: ``annotate_in_parts``)."""
@@ -673,6 +702,10 @@ def _annotate_sorted(snapshot: Snapshot, settings: PipelineSettings, findings: l
     for i, expiry in enumerate(expiries):
         results[expiry] = ExpiryResult(expiry, float(t_exp[i]), estimates[i], smiles[i] if have_smile[i] else None,
                                        atm_ivs[i], expiry_findings[i])
+    if smiles_ready is not None:  # (``annotate``'s): rows are sorted by expiry, each expiry a run of rows
+        runs = dict(zip(expiries, zip(starts.tolist(), ends.tolist())))
+        smiles_ready(TouchSource(results, strike, snapshot.spot, underlying,
+                                 lambda e: np.arange(*runs.get(pd.Timestamp(e), (0, 0)))))
 
     # 5. Per-contract figures from each row's own expiry smile, in blocks of rows (contract_figures).
     p_touch = np.full(n, np.nan)  # touch figures: per expiry on demand (AnnotatedSnapshot.touch)

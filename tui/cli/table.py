@@ -114,18 +114,16 @@ def _wanted_expiries(args: argparse.Namespace) -> list[pd.Timestamp]:
     return wanted
 
 
-def _selected(a, args: argparse.Namespace, wanted: list[pd.Timestamp], touch_server=None):
+def _selected(a, args: argparse.Namespace, wanted: list[pd.Timestamp], pending=None):
     """The rows of one annotated snapshot that `table` writes (touch figures computed for them), the
-    mask that chose them, and the touch columns when ``touch_server`` (``touch_process.TouchServer``)
-    computes them (the frame's touch cells are then placeholders), else None."""
+    mask that chose them, and the touch columns when a second process computes them (``pending``, a
+    ``touch_process.PendingTouch``: the frame's touch cells are then placeholders), else None."""
     import pandas as pd
 
-    # touch figures are computed on demand: the asked expiries together (for a big chain, by a
-    # second process while the writer formats the other columns)
-    expiries = [expiry for expiry in a.results if not wanted or expiry in wanted]
-    pending = touch_server.submit(a, expiries) if touch_server is not None else None
-    if pending is None:
-        a.touch_many(expiries)
+    if pending is None:  # touch figures are computed on demand: the asked expiries together
+        a.touch_many(_touch_expiries(a.results, wanted))
+    else:
+        pending.attach(a)
     c = a.contracts
     keep = pd.Series(True, index=c.index)
     if wanted:
@@ -137,6 +135,28 @@ def _selected(a, args: argparse.Namespace, wanted: list[pd.Timestamp], touch_ser
     # boolean selection already copies; a further .copy() would merge the blocks (0.4 s at 200k rows)
     frame = with_as_of(c.loc[keep, _columns()], a, args.format)
     return frame, keep, (pending.columns(keep) if pending is not None else None)
+
+
+def _touch_expiries(expiries, wanted: list[pd.Timestamp]) -> list[pd.Timestamp]:
+    """The expiries whose touch figures `table` computes."""
+    return [expiry for expiry in expiries if not wanted or expiry in wanted]
+
+
+def _annotated(snap, settings, wanted: list[pd.Timestamp], touch_server):
+    """``annotate`` of one snapshot and, when ``touch_server`` (``touch_process.TouchServer``) takes
+    them, its touch figures being computed by the second process from the moment its smiles are
+    fitted (a ``PendingTouch``), else None."""
+    from chaintriage.core.pipeline import annotate
+
+    if touch_server is None:
+        return annotate(snap, settings), None
+    pending = []
+
+    def smiles_ready(source) -> None:
+        pending.append(touch_server.submit(source, _touch_expiries(source.results, wanted)))
+
+    a = annotate(snap, settings, smiles_ready=smiles_ready)
+    return a, (pending[0] if pending else None)
 
 
 def _columns() -> list[str]:
@@ -281,17 +301,17 @@ def _run_table_whole(args: argparse.Namespace, overrides, column_map, settings, 
     if args.history:  # the history odds need every snapshot's time: annotate them all first
         annotated = [annotate(snap, settings) for snap in result.snapshots]
         history, loads, extra = history_for(args, annotated)
-        items = enumerate(annotated)
+        items = ((i, a, None) for i, a in enumerate(annotated))
     else:  # one snapshot at a time: annotated, written, let go
-        items = ((i, annotate(snap, settings)) for i, snap in enumerate(result.snapshots))
-    for i, a in items:
-        frame, keep, late = _selected(a, args, wanted, touch_server)
+        items = ((i, *_annotated(snap, settings, wanted, touch_server)) for i, snap in enumerate(result.snapshots))
+    for i, a, pending in items:
+        frame, keep, late = _selected(a, args, wanted, pending)
         if loads is not None:
             cmp = history.get(i)
             frame = history_columns(frame, cmp.contracts if cmp else None, keep, HISTORY_TABLE_COLUMNS)
         stream.write(frame, late=late)
         model_findings.append(a.findings)  # (the touch findings join this list when they come)
-        del a, keep, late
+        del a, keep, late, pending
     stream.close()
     if touch_server is not None:
         touch_server.finish()

@@ -65,6 +65,10 @@ TOUCH_COLUMNS = ("p_touch", "p_touch_low", "p_touch_high")
 
 _HEADER = struct.Struct("<Q")
 
+#: Bytes the answers' pipe is asked to hold (Linux's F_SETPIPE_SZ; an unprivileged process may ask up
+#: to 1 MiB): the child computes a few chunks ahead while the parent formats, not blocked in a write.
+PIPE_BYTES = 1 << 20
+
 
 def _cores() -> int:
     try:
@@ -96,6 +100,12 @@ def serve(input_bytes: int) -> TouchServer | None:
         answer_r, answer_w = os.pipe()
     except OSError:
         return None
+    try:  # room for several chunks' answers (the default 64 KiB holds less than one)
+        import fcntl
+
+        fcntl.fcntl(answer_r, getattr(fcntl, "F_SETPIPE_SZ", 1031), PIPE_BYTES)
+    except (ImportError, OSError):
+        pass
     parent = os.getpid()
     try:
         pid = os.fork()
@@ -180,6 +190,49 @@ def _read(fd: int, n: int, deadline: float | None) -> bytes | None:
     return b"".join(parts)
 
 
+class _Inbox:
+    """The parent's end of the answers' pipe, read without blocking into a buffer whenever the writer
+    asks (``pump``), so the child seldom waits for room in the pipe."""
+
+    def __init__(self, fd: int) -> None:
+        self.fd = fd
+        self.buffer = bytearray()
+        self.ended = False
+        os.set_blocking(fd, False)
+
+    def pump(self) -> None:
+        """Whatever the pipe holds now, moved into the buffer."""
+        while not self.ended:
+            try:
+                data = os.read(self.fd, 1 << 20)
+            except BlockingIOError:
+                return
+            except OSError:
+                data = b""
+            if not data:
+                self.ended = True
+                return
+            self.buffer += data
+
+    def message(self, deadline: float) -> bytes | None:
+        """The next length-prefixed message; None at the pipe's end or past ``deadline`` (time.monotonic)."""
+        while True:
+            self.pump()
+            if len(self.buffer) >= _HEADER.size:
+                size = _HEADER.size + _HEADER.unpack_from(self.buffer)[0]
+                if len(self.buffer) >= size:
+                    data = bytes(self.buffer[_HEADER.size:size])
+                    del self.buffer[:size]
+                    return data
+            wait = deadline - time.monotonic()
+            if self.ended or wait <= 0:
+                return None
+            try:
+                select.select([self.fd], [], [], wait)
+            except (OSError, ValueError):
+                return None
+
+
 def _write_message(fd: int, data: bytes, deadline: float | None) -> bool:
     """Write a length-prefixed message; False when the reader has gone or past ``deadline``."""
     view = memoryview(_HEADER.pack(len(data)) + data)
@@ -261,28 +314,31 @@ class TouchServer:
 
     def __init__(self, pid: int, ask: int, answer: int) -> None:
         self.pid, self.ask, self.answer = pid, ask, answer
+        self.inbox = _Inbox(answer)
         self.alive = True
         self.pending: PendingTouch | None = None
         _LIVE[pid] = (ask, answer)
 
-    def submit(self, a, expiries) -> PendingTouch | None:
-        """The touch figures of ``expiries`` of the annotated snapshot ``a`` being computed by the
-        second process, or None when the caller should compute them (``a.touch_many``): fewer than
-        ``MIN_CONTRACTS`` contracts, nothing to compute, or the second process gone."""
+    def submit(self, source, expiries) -> PendingTouch | None:
+        """The touch figures of ``expiries`` of a snapshot being annotated (``source``: its
+        ``pipeline.TouchSource``, as ``annotate`` hands it to ``smiles_ready``) being computed by the
+        second process, or None when the caller should compute them (``touch_many``): fewer than
+        ``MIN_CONTRACTS`` contracts, nothing to compute, or the second process gone. The annotated
+        snapshot is then given to the answer (``PendingTouch.attach``)."""
         self.finish()  # one request at a time
         if not self.alive:
             return None
-        todo, args, kwargs = a.touch_inputs([e for e in expiries if a.needs_touch(e)])
+        todo, args, kwargs = source.inputs(expiries)
         if not todo or not usable(sum(len(k) for k in args[0])):
             return None
-        rows = [a.touch_rows(e) for e in todo]
+        rows = [source.rows_of(e) for e in todo]
         chunks = chunks_of(rows, CHUNK_ROWS)
         deadline = time.monotonic() + CHILD_SECONDS
         message = pickle.dumps((args, kwargs, chunks), protocol=pickle.HIGHEST_PROTOCOL)
         if not _write_message(self.ask, message, deadline):
             self.close()
             return None
-        self.pending = PendingTouch(self, a, todo, rows, chunks, deadline)
+        self.pending = PendingTouch(self, todo, rows, chunks, deadline, len(source.strikes))
         return self.pending
 
     def finish(self) -> None:
@@ -299,28 +355,33 @@ class TouchServer:
 
 
 class PendingTouch:
-    """Touch figures being computed by the second process (``TouchServer.submit``), chunk by chunk.
+    """Touch figures being computed by the second process (``TouchServer.submit``), chunk by chunk,
+    for the annotated snapshot given to ``attach`` (before anything else is asked).
 
     ``wait(n)`` takes the first ``n`` chunks (the child's, or computed here when the child fails);
     ``columns(keep)`` hands the touch columns of the selected rows to a writer; ``finish`` takes the
     rest and writes every figure and finding into the annotated snapshot (``apply_touch``, in the
     order ``touch_many`` would)."""
 
-    def __init__(self, server: TouchServer, a, todo: list, rows: list, chunks: list, deadline: float) -> None:
-        self.server, self.a, self.todo, self.rows, self.chunks = server, a, todo, rows, chunks
+    def __init__(self, server: TouchServer, todo: list, rows: list, chunks: list, deadline: float, n: int) -> None:
+        self.server, self.todo, self.rows, self.chunks = server, todo, rows, chunks
+        self.a = None
         self.deadline = deadline
         self.got: list = [None] * len(todo)  # each expiry's ExpiryTouch (None: not yet, or nothing)
         self.taken = 0  # chunks taken so far
         self.done = False
         self.from_child = 0  # chunks the child answered
-        n = len(a.contracts)
         #: the chunk that holds each contract row (-1: none, nothing to wait for)
         self.chunk_of_row = np.full(n, -1, dtype=np.int64)
         for c, chunk in enumerate(chunks):
             for j in chunk:
                 self.chunk_of_row[rows[j]] = c
-        #: the touch columns over every contract row, filled as chunks come
-        self.values = {name: a.contracts[name].to_numpy(dtype=float, copy=True) for name in TOUCH_COLUMNS}
+        #: the touch columns over every contract row (NaN where nothing is computed), filled as chunks come
+        self.values = {name: np.full(n, np.nan) for name in TOUCH_COLUMNS}
+
+    def attach(self, a) -> None:
+        """The annotated snapshot the figures are for (``annotate``'s result)."""
+        self.a = a
 
     def wait(self, n: int) -> None:
         """The first ``n`` chunks taken (waiting for the child, or computed here when it fails)."""
@@ -353,7 +414,7 @@ class PendingTouch:
         got = None
         if self.server.alive:
             try:
-                message = _read_message(self.server.answer, self.deadline)
+                message = self.server.inbox.message(self.deadline)
                 got = pickle.loads(message) if message is not None else None
             except Exception:  # noqa: BLE001 - anything unreadable: computed here instead
                 got = None
@@ -399,6 +460,8 @@ class TouchColumns:
         self._values = {name: np.full(positions.size, np.nan) for name in self.names}
 
     def rows(self, stop: int) -> dict[str, np.ndarray]:
+        if self.pending.server.alive:  # answers come in meanwhile: the child is not held up by a full pipe
+            self.pending.server.inbox.pump()
         stop = min(int(stop), self.positions.size)
         if stop > self.known:
             at = self.positions[self.known:stop]
