@@ -386,7 +386,7 @@ def test_the_parent_does_not_import_the_touch_equations_when_the_child_serves():
     assert done.returncode == 0 and done.stderr.split()[-2:] == ["False", "False"]
 
 
-@pytest.mark.parametrize("size", [1, 300])
+@pytest.mark.parametrize("size", [1, 250])
 def test_touch_figures_in_chunks_are_the_bits_of_one_call(size):
     """[D] ``expiries_touch`` over chunks of expiries (as the child computes them) against one call over
     all of them (as ``touch_many`` does): the same bits, the same findings."""
@@ -398,7 +398,7 @@ def test_touch_figures_in_chunks_are_the_bits_of_one_call(size):
     todo, args, kwargs = a.touch_inputs(list(a.results))
     whole = expiries_touch(*args, **kwargs)
     chunks = tp.chunks_of([a.touch_rows(e) for e in todo], size)
-    assert len(chunks) > 3
+    assert len(chunks) >= 3
     parts = [got for chunk in chunks for got in tp._computed(*tp._chunk_inputs(args, kwargs, chunk))]
     assert len(parts) == len(whole) == len(todo) > 5
     for one, part in zip(whole, parts):
