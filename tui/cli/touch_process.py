@@ -134,6 +134,9 @@ def _child(ask: int, answer: int, parent: int) -> None:
         signal.signal(signal.SIGINT, signal.SIG_DFL)  # Ctrl-C ends the child at once
         signal.signal(signal.SIGPIPE, signal.SIG_DFL)
         _die_with(parent)
+        null = os.open(os.devnull, os.O_WRONLY)  # the table's reader sees its end when the parent ends
+        os.dup2(null, 1)
+        os.close(null)
         from chaintriage.core import touch_expiry, touch_local_vol  # noqa: F401 - scipy.linalg, now
 
         while True:
