@@ -406,3 +406,22 @@ def test_touch_figures_in_chunks_are_the_bits_of_one_call(size):
             assert x.tobytes() == y.tobytes()
         assert [str(f) for f in one.findings] == [str(f) for f in part.findings]
         assert (one.method, one.clipped, one.max_cross) == (part.method, part.clipped, part.max_cross)
+
+
+def test_no_second_process_on_one_core_beside_another_thread_or_off_linux(monkeypatch):
+    monkeypatch.setenv(tp.SWITCH, "1")
+    monkeypatch.setattr(tp, "_cores", lambda: 1)
+    assert tp.serve(10 ** 9) is None
+    monkeypatch.setattr(tp, "_cores", lambda: 2)
+    monkeypatch.setattr(tp.sys, "platform", "darwin")
+    assert tp.serve(10 ** 9) is None
+    monkeypatch.setattr(tp.sys, "platform", "linux")
+    stop = threading.Event()
+    other = threading.Thread(target=stop.wait)
+    other.start()
+    try:
+        assert tp.serve(10 ** 9) is None  # forking copies only this thread: another may hold a lock
+    finally:
+        stop.set()
+        other.join()
+    assert tp._LIVE == {}
