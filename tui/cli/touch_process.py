@@ -338,7 +338,10 @@ class TouchServer:
         rows = [source.rows_of(e) for e in todo]
         chunks = chunks_of(rows, CHUNK_ROWS)
         deadline = time.monotonic() + CHILD_SECONDS
-        message = pickle.dumps((args, kwargs, chunks), protocol=pickle.HIGHEST_PROTOCOL)
+        try:
+            message = pickle.dumps((args, kwargs, chunks), protocol=pickle.HIGHEST_PROTOCOL)
+        except Exception:  # noqa: BLE001 - inputs that cannot be sent: computed here
+            return None
         if not _write_message(self.ask, message, deadline):
             self.close()
             return None
