@@ -269,9 +269,8 @@ def run_table(args: argparse.Namespace) -> int:
     if size > loading.PART_INPUT_BYTES:
         return _run_table_in_parts(args, overrides, column_map, settings)
     # P(touch) of a big chain by a second process, started now to import its modules meanwhile, its
-    # figures streamed to the csv and plain writers (json has nothing to format meanwhile; --history
-    # annotates every snapshot first)
-    server = touch_process.serve(size) if args.format in ("csv", "plain") and not args.history else None
+    # figures streamed to the writer (--history annotates every snapshot first: in-process)
+    server = touch_process.serve(size) if not args.history else None
     try:
         return _run_table_whole(args, overrides, column_map, settings, server)
     finally:

@@ -720,8 +720,12 @@ def write_json(frame: pd.DataFrame, out: TextIO) -> None:
     out.write("\n]\n")
 
 
-def _json_records(frame: pd.DataFrame, out: TextIO, first: bool) -> None:
-    """The records of ``frame``, comma-separated (a leading comma unless ``first``)."""
+def _json_records(frame: pd.DataFrame, out: TextIO, first: bool, late: LateColumns | None = None) -> None:
+    """The records of ``frame``, comma-separated (a leading comma unless ``first``). ``late``: decimal
+    columns whose values are asked for a block at a time (``LateColumns.rows``)."""
+    if late is not None and (frame.shape[1] == 0 or not all(
+            pd.api.types.is_float_dtype(frame[n].dtype) for n in late.names if n in frame.columns)):
+        frame, late = with_late(frame, late), None
     if frame.shape[1] == 0:
         for a in range(0, len(frame), BLOCK_ROWS):
             rows = [" {}"] * len(frame.iloc[a:a + BLOCK_ROWS])
@@ -732,11 +736,18 @@ def _json_records(frame: pd.DataFrame, out: TextIO, first: bool) -> None:
                           dtype=np.uint8) for j, c in enumerate(frame.columns)]
     try:  # other cells once per distinct value of the whole table; decimals (mostly distinct) per block
         coded = {j: _json_cells(frame.iloc[:, j]) for j in range(frame.shape[1]) if not floats[j]}
+        late_values = late.rows(0) if late is not None else {}
+        later = {j: late_values[c] for j, c in enumerate(frame.columns) if c in late_values}
         for a in range(0, len(frame), BLOCK_ROWS):
             block = frame.iloc[a:a + BLOCK_ROWS]
+            if later:  # the late values of this block's rows (the arrays in ``later`` filled)
+                late.rows(a + len(block))
             cells = []
             for j in range(frame.shape[1]):
-                codes, matrix = coded[j] if j in coded else _json_cells(block.iloc[:, j])
+                if j in later:
+                    codes, matrix = _json_cells(pd.Series(later[j][a:a + len(block)]))
+                else:
+                    codes, matrix = coded[j] if j in coded else _json_cells(block.iloc[:, j])
                 cells += [np.broadcast_to(keys[j], (len(block), keys[j].size)),
                           (matrix, codes[a:a + len(block)] if j in coded else codes)]
             lines = line_matrix(cells, sep=b"", end=b"\n },\n")
@@ -744,7 +755,7 @@ def _json_records(frame: pd.DataFrame, out: TextIO, first: bool) -> None:
                 out.write(",\n")
             _write_bytes(out, compact(lines)[:-2])  # records joined by ",\n"
     except ValueError:  # a text with a NUL character (``text_bytes``): string by string
-        _json_records_as_strings(frame, out, first)
+        _json_records_as_strings(with_late(frame, late), out, first)
 
 
 def _json_cells(s: pd.Series) -> tuple[np.ndarray, np.ndarray]:
@@ -830,8 +841,8 @@ class TableStream:
 
     def write(self, frame: pd.DataFrame, late: LateColumns | None = None) -> None:
         """Add rows (every piece has the same columns). ``late``: decimal columns of ``frame`` whose
-        values come later (``LateColumns``): csv asks for them a block at a time, plain once its
-        other columns are coded (when the table is written), json at once."""
+        values come later (``LateColumns``): csv and json ask for them a block at a time, plain once
+        its other columns are coded (when the table is written)."""
         if self.fmt == "plain":
             if self._widths is not None:
                 self._plain_piece(with_late(frame, late))
@@ -843,10 +854,9 @@ class TableStream:
         elif self.fmt == "csv":
             write_csv(frame, self.out, header=self.pieces == 0, late=late)
         elif len(frame):
-            frame = with_late(frame, late)
             if self.rows == 0:
                 self.out.write("[\n")
-            _json_records(frame, self.out, first=self.rows == 0)
+            _json_records(frame, self.out, first=self.rows == 0, late=late)
         self.rows += len(frame)
         self.pieces += 1
 

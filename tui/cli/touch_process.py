@@ -14,9 +14,10 @@ The child answers each chunk with ``expiries_touch`` of its expiries as soon as
 they are computed: the same code on the same inputs, and the expiries of one
 call are independent of each other (``touch_local_vol_many`` steps them side by
 side in one tridiagonal system, block by block), so the figures are the same to
-the bit as one call over all of them. The writer formats a block's other columns
-and asks for the touch columns of that block's rows (``TouchColumns.rows``),
-waiting only for the chunks that cover them.
+the bit as one call over all of them. The csv and json writers format a block's
+other columns and ask for the touch columns of that block's rows
+(``TouchColumns.rows``), waiting only for the chunks that cover them; plain asks
+for all of them once its other columns are coded (its widths need every cell).
 
 The parent never depends on the child: when the child fails, dies, answers
 something unreadable or takes longer than ``CHILD_SECONDS``, it is killed and
