@@ -423,3 +423,16 @@ def test_no_second_process_on_one_core_beside_another_thread_or_off_linux(monkey
         stop.set()
         other.join()
     assert tp._LIVE == {}
+
+
+def test_no_second_process_when_every_core_is_busy(monkeypatch):
+    monkeypatch.delenv(tp.SWITCH, raising=False)
+    monkeypatch.setattr(tp, "_cores", lambda: 2)
+    monkeypatch.setattr(tp, "_idle_core", lambda: False)
+    assert not tp.worth_forking(10 ** 9)
+    monkeypatch.setenv(tp.SWITCH, "1")  # forced on: whatever the load
+    assert tp.worth_forking(10 ** 9) == (sys.platform.startswith("linux") and threading.active_count() == 1)
+    monkeypatch.delenv(tp.SWITCH)
+    monkeypatch.setattr(tp, "_idle_core", lambda: True)
+    assert tp.worth_forking(tp.MIN_INPUT_BYTES) == (sys.platform.startswith("linux") and threading.active_count() == 1)
+    assert not tp.worth_forking(tp.MIN_INPUT_BYTES - 1)

@@ -4,12 +4,13 @@ The touch figures (core ``AnnotatedSnapshot.compute_touch_many``: local-vol
 Crank-Nicolson and the model-free bounds, ~0.5 s of CPU at 200,000 contracts,
 plus ~0.1 s importing scipy.linalg) hold the interpreter, so a thread cannot run
 them beside the writer. On Linux, with two or more cores, no other Python thread
-running and inputs of at least ``MIN_INPUT_BYTES``, ``serve`` forks at the
-command's start: the child imports the touch modules while the parent loads and
-annotates, then waits. ``TouchServer.submit`` sends it a snapshot's touch inputs
-(``AnnotatedSnapshot.touch_inputs``: strikes, times, forwards, smiles; at least
-``MIN_CONTRACTS`` contracts, else the caller computes in-process) cut into
-chunks of whole expiries in row order (about ``CHUNK_ROWS`` contracts each).
+running, inputs of at least ``MIN_INPUT_BYTES`` and a core idle at that moment,
+``serve`` forks at the command's start: the child imports the touch modules
+while the parent loads and annotates, then waits. As soon as a snapshot's smiles
+are fitted (``annotate``'s ``smiles_ready``), ``TouchServer.submit`` sends it the
+touch inputs (``pipeline.TouchSource.inputs``: strikes, times, forwards, smiles;
+at least ``MIN_CONTRACTS`` contracts, else the caller computes in-process) cut
+into chunks of whole expiries in row order (about ``CHUNK_ROWS`` contracts each).
 The child answers each chunk with ``expiries_touch`` of its expiries as soon as
 they are computed: the same code on the same inputs, and the expiries of one
 call are independent of each other (``touch_local_vol_many`` steps them side by
@@ -18,6 +19,7 @@ the bit as one call over all of them. The csv and json writers format a block's
 other columns and ask for the touch columns of that block's rows
 (``TouchColumns.rows``), waiting only for the chunks that cover them; plain asks
 for all of them once its other columns are coded (its widths need every cell).
+The parent never imports the touch equations (scipy.linalg) then.
 
 The parent never depends on the child: when the child fails, dies, answers
 something unreadable or takes longer than ``CHILD_SECONDS``, it is killed and
@@ -28,7 +30,7 @@ parent-death signal), so none is left behind. Elsewhere (Windows, macOS, one
 core) ``serve`` returns None and everything is computed in-process.
 
 ``CHAINTRIAGE_TOUCH_PROCESS``: ``0`` never forks, ``1`` forks whatever the
-chain's size (where forking is possible at all); unset, by size.
+chain's size and the load (where forking is possible at all); unset, by size and load.
 """
 
 from __future__ import annotations
@@ -79,6 +81,21 @@ def _cores() -> int:
         return os.cpu_count() or 1
 
 
+def _idle_core() -> bool:
+    """Whether a core has nothing to run besides this process right now (Linux's count of runnable
+    threads, ``procs_running`` in /proc/stat, this one included, below the cores). On a machine
+    whose cores are all busy the two processes would share them with the others: the figures come
+    no sooner and cost more CPU (cache and switches). True when the count cannot be read."""
+    try:
+        with open("/proc/stat", "rb") as fh:
+            for line in fh:
+                if line.startswith(b"procs_running "):
+                    return int(line.split()[1]) < _cores()
+    except (OSError, ValueError, IndexError):
+        pass
+    return True
+
+
 def usable(contracts: int) -> bool:
     """Whether a second process would compute the touch figures of ``contracts`` contracts."""
     switch = os.environ.get(SWITCH, "").strip()
@@ -91,11 +108,19 @@ def usable(contracts: int) -> bool:
     return switch == "1" or contracts >= MIN_CONTRACTS
 
 
+def worth_forking(input_bytes: int) -> bool:
+    """Whether ``serve`` starts a second process for inputs of ``input_bytes``: ``usable``, at least
+    ``MIN_INPUT_BYTES`` and a core idle now (``_idle_core``), or the switch on."""
+    if os.environ.get(SWITCH, "").strip() == "1":
+        return usable(0)
+    return input_bytes >= MIN_INPUT_BYTES and usable(MIN_CONTRACTS) and _idle_core()
+
+
 def serve(input_bytes: int) -> TouchServer | None:
     """A second process forked now, at the command's start, importing the touch modules (scipy.linalg)
     while this one loads and annotates; it then computes what ``TouchServer.submit`` sends it. None
     when it is not worth it (inputs under ``MIN_INPUT_BYTES``, see ``usable``) or cannot start."""
-    if not usable(MIN_CONTRACTS if input_bytes >= MIN_INPUT_BYTES else 0):
+    if not worth_forking(input_bytes):
         return None
     try:
         ask_r, ask_w = os.pipe()
