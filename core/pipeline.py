@@ -20,7 +20,7 @@ Before anything else, strikes far outside their expiry's range (typos such as
 from __future__ import annotations
 
 import contextlib
-from collections.abc import Iterator
+from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field, replace
 from typing import TYPE_CHECKING
 
@@ -135,7 +135,7 @@ class TouchSource:
     strikes: np.ndarray
     spot: float
     underlying: str
-    rows_of: object
+    rows_of: Callable[[pd.Timestamp], np.ndarray]
 
     def inputs(self, expiries) -> tuple[list[pd.Timestamp], tuple, dict]:
         """``AnnotatedSnapshot.touch_inputs`` (the same values): (the expiries of ``expiries`` with

@@ -53,6 +53,7 @@ from chaintriage.tui.formatting import (
     tidy_zero,
 )
 
+
 class LateColumns(Protocol):
     """Decimal columns of a table whose values are still being computed (e.g. by another process)
     when the table is handed to a writer (their cells in the frame are placeholders): the writers
