@@ -25,8 +25,9 @@ import numpy as np
 #: Largest precision the float path serves (the mantissa must stay far inside float64's 53 bits).
 MAX_PRECISION = 12
 
-#: Values formatted at once (the temporaries of a chunk stay in the processor's cache).
-CHUNK = 32768
+#: Values formatted at once: the temporaries of a chunk stay in the processor's cache, and their float64
+#: arrays (96 KB) below the size from which malloc maps fresh memory (and the kernel's page faults) for each.
+CHUNK = 12288
 
 #: Values at least this far from zero and from the overflow end take the float path; the rest Python's ``%``.
 _LOW, _HIGH = 1e-280, 1e280
@@ -39,6 +40,7 @@ _ZERO, _POINT, _MINUS, _PLUS, _E = 48, 46, 45, 43, 101
 
 #: 0, 1, 2, ...: digit positions, as a column to compare whole (position, value) arrays against.
 _PLACES = np.arange(MAX_PRECISION, dtype=np.int32)
+_PLACES8 = _PLACES.astype(np.int8)
 
 
 def general_bytes(values, precision: int = 10, nan: str = "nan", trim: bool = True,
@@ -112,19 +114,27 @@ def _fast(x: np.ndarray, p: int, by_position: np.ndarray) -> np.ndarray:
     e = np.floor(np.log10(a)).astype(np.int32)
     y = a * _POW10[(p + 299) - e]
     low, high = y < lo, y >= 10.0 * lo
-    if low.any() or high.any():
+    off = low.any() or high.any()
+    if off:
         e = e - low + high
         y = np.where(low | high, a * _POW10[(p + 299) - e], y)
     margin = max(1e-4, 64 * 2.0 ** -52 * 10.0 ** p)
     r = np.rint(y)
     # near a half (|y - r| is at most 0.5) or off the mantissa range: decided by Python's printf
-    lone = (np.abs(y - r) > 0.5 - margin) | (y < lo) | (y >= 10.0 * lo)
+    gap = y - r
+    np.abs(gap, out=gap)
+    lone = gap > 0.5 - margin
+    if off:  # (without a correction every y is in the range)
+        lone |= (y < lo) | (y >= 10.0 * lo)
     # near a power of ten either exponent gives the same text (a mantissa just under 10**p rounds up to it)
     carry = r >= 10.0 * lo  # rounded up to the next power of ten: 10**(p-1), one exponent higher
     e += carry
-    r = np.where(carry | lone, lo, r)
+    np.putmask(r, carry | lone, lo)
     sci = (e < -4) | (e >= p)
-    fixed_below_one = ~sci & (e < 0)
+    # where the point goes: after digit ``point_after`` (fixed notation: the exponent, -4..p-1) or after
+    # the first digit (scientific); int8, the cheapest to compare whole (digit position x value) arrays with
+    point_after = e.astype(np.int8)  # (wrapped where scientific; set to 0 there next)
+    np.putmask(point_after, sci, 0)
     # the mantissa's digits, most significant first, from groups of at most 4 digits (uint16: the
     # cheapest integer division); r / 10**4 is exact to the unit (r < 10**12), so its floor is too
     digits = np.empty((p, n), dtype=np.uint8)
@@ -143,29 +153,35 @@ def _fast(x: np.ndarray, p: int, by_position: np.ndarray) -> np.ndarray:
             np.subtract(h, q * np.uint16(10), out=digits[k], casting="unsafe")
             h = q
         end -= count
-    # a digit is shown when a nonzero digit follows it or it lies in the integer part
+    # a digit is shown when a nonzero digit follows it or it lies in the integer part (of length
+    # point_after + 1: one digit when scientific, none below 1)
     later = digits != 0
     for k in range(p - 2, -1, -1):
         np.logical_or(later[k], later[k + 1], out=later[k])
-    intlen = np.where(sci, 1, np.maximum(e + 1, 0))
-    shown = later | (_PLACES[:p, None] < intlen)
-    # the point: after the integer part (fixed) or the first digit (scientific), when a digit follows
-    point_after = np.where(sci, 0, e)
+    shown = later | (_PLACES8[:p, None] <= point_after)
     sign = (x < 0).view(np.uint8)
     np.multiply(sign, np.uint8(_MINUS), out=by_position[0])
-    below = fixed_below_one.view(np.uint8)
+    below = (point_after < 0).view(np.uint8)  # fixed notation below 1: "0." first
     np.multiply(below, np.uint8(_ZERO), out=by_position[1])
     np.multiply(below, np.uint8(_POINT), out=by_position[2])
     for j, k in ((3, 2), (4, 3), (5, 4)):  # zeros after "0." of 0.0x, 0.00x, 0.000x
-        np.multiply((fixed_below_one & (e <= -k)).view(np.uint8), np.uint8(_ZERO), out=by_position[j])
+        np.multiply((point_after <= -k).view(np.uint8), np.uint8(_ZERO), out=by_position[j])
     # digit k at position 6 + 2k, the point after it at 7 + 2k
     np.add(digits, np.uint8(_ZERO), out=digits)
     np.multiply(digits, shown.view(np.uint8), out=by_position[6:6 + 2 * p:2])
-    points = (point_after == _PLACES[:p - 1, None]) & shown[1:]
+    points = (point_after == _PLACES8[:p - 1, None]) & shown[1:]
     np.multiply(points.view(np.uint8), np.uint8(_POINT), out=by_position[7:5 + 2 * p:2])
     j = 5 + 2 * p
-    if not sci.any():  # no exponent anywhere in the chunk
+    few = np.flatnonzero(sci)
+    if few.size <= n // 8:  # the exponents of the few values in scientific notation only ("e+dd", "e-ddd")
         by_position[j:] = 0
+        if few.size:
+            ae = np.abs(e[few]).astype(np.uint32)
+            by_position[j, few] = _E
+            by_position[j + 1, few] = np.where(e[few] < 0, np.uint8(_MINUS), np.uint8(_PLUS))
+            by_position[j + 2, few] = np.where(ae >= 100, (ae // np.uint32(100)).astype(np.uint8) + np.uint8(_ZERO), 0)
+            by_position[j + 3, few] = (ae // np.uint32(10) % np.uint32(10)).astype(np.uint8) + np.uint8(_ZERO)
+            by_position[j + 4, few] = (ae % np.uint32(10)).astype(np.uint8) + np.uint8(_ZERO)
         return lone
     ae = np.abs(e).astype(np.uint32)
     exponent = [(sci, _E), (sci, np.where(e < 0, np.uint8(_MINUS), np.uint8(_PLUS))),

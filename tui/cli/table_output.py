@@ -608,7 +608,11 @@ def _csv_lines(frame: pd.DataFrame, out: TextIO, late: LateColumns | None = None
              for j in range(frame.shape[1]) if j not in slot}
     # memory reused from block to block (fresh memory costs the kernel's page faults): the decimals'
     # text by byte position, and the lines
-    text_room = np.empty((2 * CSV_PRECISION + 10, len(floats) * min(BLOCK_ROWS, len(frame))), dtype=np.uint8)
+    rows_max = min(BLOCK_ROWS, len(frame))
+    width = 2 * CSV_PRECISION + 10
+    text_room = np.empty((width, len(floats) * rows_max), dtype=np.uint8)
+    number_room = np.empty(len(floats) * rows_max)
+    cell_room = np.empty(width * len(floats) * rows_max, dtype=np.uint8)  # the decimals' cells, (row, byte)
     line_room, line_bytes = np.empty(0, dtype=np.uint8), bytearray()  # line_room: a view of line_bytes
     for a in range(0, len(frame), BLOCK_ROWS):
         rows = min(BLOCK_ROWS, len(frame) - a)
@@ -618,11 +622,12 @@ def _csv_lines(frame: pd.DataFrame, out: TextIO, late: LateColumns | None = None
         filled = [i for i, x in enumerate(numbers) if not np.isnan(x[a:a + rows]).all()]
         place = {i: k for k, i in enumerate(filled)}
         if filled:
-            block = np.empty((len(filled), rows))
+            block = number_room[:len(filled) * rows].reshape(len(filled), rows)
             for k, i in enumerate(filled):
                 block[k] = numbers[i][a:a + rows]
-            by_position = general_bytes(block.ravel(), CSV_PRECISION, nan="", trim=False,
-                                        out=text_room[:, :block.size]).T
+            text = text_room[:, :block.size]
+            general_bytes(block.ravel(), CSV_PRECISION, nan="", trim=False, out=text)
+            in_use = text.reshape(text.shape[0], len(filled), rows).any(axis=2)  # (byte position, column)
         cells = []
         for j in range(frame.shape[1]):
             if j in slot:
@@ -630,8 +635,11 @@ def _csv_lines(frame: pd.DataFrame, out: TextIO, late: LateColumns | None = None
                     cells.append(np.zeros((rows, 0), dtype=np.uint8))
                     continue
                 k = place[slot[j]]
-                bp = by_position[:, k * rows:(k + 1) * rows]
-                cells.append(bp[bp.any(axis=1)].T)
+                # the byte positions in use, turned to (row, byte position) in reused memory
+                used = text[:, k * rows:(k + 1) * rows][in_use[:, k]]
+                cell = cell_room[k * rows * width:(k * width + len(used)) * rows].reshape(rows, len(used))
+                cell[...] = used.T
+                cells.append(cell)
             else:
                 codes, matrix = coded[j]
                 cells.append((matrix, codes[a:a + rows]))
