@@ -63,3 +63,41 @@ def test_the_app_worker_sets_them_before_its_imports(monkeypatch):
     monkeypatch.setattr(snapshot_loading, "set_numerical_defaults", lambda: calls.append("set"))
     snapshot_loading.import_numerical_modules()
     assert calls == ["set"]
+
+
+HEAP_PROBE = """
+import json, resource, numpy as np
+from chaintriage.tui.cli.main import _import_numerical_modules
+_import_numerical_modules()
+from chaintriage.tui.numerical_environment import hold_freed_memory
+faults = []
+for _ in range(6):  # three 3 MB arrays made, filled and freed, again and again
+    before = resource.getrusage(resource.RUSAGE_SELF).ru_minflt
+    arrays = [np.ones(3 * 2**20, dtype=np.uint8) for _ in range(3)]
+    del arrays
+    faults.append(resource.getrusage(resource.RUSAGE_SELF).ru_minflt - before)
+print(json.dumps({"held": hold_freed_memory(), "faults": sum(faults[2:])}))
+"""
+
+
+def _heap_probe(**env_overrides) -> dict:
+    env = {k: v for k, v in os.environ.items() if k not in ("GLIBC_TUNABLES", "MALLOC_TOP_PAD_")}
+    env.update(env_overrides)
+    out = subprocess.run([sys.executable, "-c", HEAP_PROBE], env=env, capture_output=True, text=True, timeout=120)
+    assert out.returncode == 0, out.stderr
+    return json.loads(out.stdout)
+
+
+@pytest.mark.skipif(not sys.platform.startswith("linux"), reason="glibc's malloc settings")
+def test_a_subcommand_keeps_freed_memory_for_reuse():
+    # [D] glibc hands freed memory at the heap's top back to the kernel past its trim threshold, and
+    # memory handed back faults in again page by page (4 KB): 3 x 3 MB per round is ~2,300 pages. With
+    # the settings the arrays of a later round reuse the first round's pages.
+    held = _heap_probe()
+    if not held["held"]:
+        pytest.skip("not glibc")
+    assert held["faults"] < 200
+    # a malloc setting of the user's own (here the default top pad) leaves glibc's defaults: pages fault again
+    default = _heap_probe(MALLOC_TOP_PAD_="131072")
+    assert default["held"] is False
+    assert default["faults"] > 2000

@@ -123,17 +123,19 @@ def _version() -> str:
 def _import_numerical_modules() -> None:
     """The loader (numpy, pandas), which every subcommand that runs uses, imported with the cycle
     collector paused and its objects frozen after (later passes skip them): ~0.05-0.1 s less CPU;
-    numpy gets ``numerical_environment.NUMERICAL_DEFAULTS`` unless the environment says otherwise."""
+    numpy gets ``numerical_environment.NUMERICAL_DEFAULTS`` unless the environment says otherwise, and
+    malloc keeps freed memory for reuse (``numerical_environment.hold_freed_memory``)."""
     import gc
 
     from chaintriage.tui.collector import collector_paused
-    from chaintriage.tui.numerical_environment import set_numerical_defaults
+    from chaintriage.tui.numerical_environment import hold_freed_memory, set_numerical_defaults
 
     set_numerical_defaults()
 
     with collector_paused():
         import chaintriage.core.loading  # noqa: F401
     gc.freeze()
+    hold_freed_memory()  # (after numpy's import, which brings ctypes)
 
 
 def main(argv: Sequence[str] | None = None) -> int:
