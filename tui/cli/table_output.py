@@ -546,6 +546,10 @@ def _csv_scalar(v: object) -> str:
     return str(v)
 
 
+#: Rows per block of csv lines (at most ``BLOCK_ROWS``): a block's numbers, their text, cells and lines (~5 MB at 40 columns)
+#: are memory reused from block to block, and fresh memory's first touch costs page faults.
+CSV_BLOCK_ROWS = 4096
+
 #: Significant digits of decimals in csv (printf ``%.10g``).
 CSV_PRECISION = 10
 
@@ -608,14 +612,15 @@ def _csv_lines(frame: pd.DataFrame, out: TextIO, late: LateColumns | None = None
              for j in range(frame.shape[1]) if j not in slot}
     # memory reused from block to block (fresh memory costs the kernel's page faults): the decimals'
     # text by byte position, and the lines
-    rows_max = min(BLOCK_ROWS, len(frame))
+    step = min(BLOCK_ROWS, CSV_BLOCK_ROWS)
+    rows_max = min(step, len(frame))
     width = 2 * CSV_PRECISION + 10
     text_room = np.empty((width, len(floats) * rows_max), dtype=np.uint8)
     number_room = np.empty(len(floats) * rows_max)
     cell_room = np.empty(width * len(floats) * rows_max, dtype=np.uint8)  # the decimals' cells, (row, byte)
     line_room, line_bytes = np.empty(0, dtype=np.uint8), bytearray()  # line_room: a view of line_bytes
-    for a in range(0, len(frame), BLOCK_ROWS):
-        rows = min(BLOCK_ROWS, len(frame) - a)
+    for a in range(0, len(frame), step):
+        rows = min(step, len(frame) - a)
         if late is not None:  # the late values of this block's rows (the arrays in ``numbers`` filled)
             late.rows(a + rows)
         # one call for every decimal of the block, column after column (columns all missing left out)
