@@ -640,10 +640,13 @@ def _csv_lines(frame: pd.DataFrame, out: TextIO, late: LateColumns | None = None
                     cells.append(np.zeros((rows, 0), dtype=np.uint8))
                     continue
                 k = place[slot[j]]
-                # the byte positions in use, turned to (row, byte position) in reused memory
-                used = text[:, k * rows:(k + 1) * rows][in_use[:, k]]
+                # the byte positions in use, turned to (row, byte position) in reused memory a position at
+                # a time (numpy's 2-d transposing copy runs its inner loop over the few positions: ~3x slower)
+                bp = text[:, k * rows:(k + 1) * rows]
+                used = np.flatnonzero(in_use[:, k]).tolist()
                 cell = cell_room[k * rows * width:(k * width + len(used)) * rows].reshape(rows, len(used))
-                cell[...] = used.T
+                for q, i in enumerate(used):
+                    cell[:, q] = bp[i]
                 cells.append(cell)
             else:
                 codes, matrix = coded[j]
