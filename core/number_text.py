@@ -82,8 +82,12 @@ def general_bytes(values, precision: int = 10, nan: str = "nan", trim: bool = Tr
             for mask, text in ((np.isnan(v), nan), (v == np.inf, "inf"), (v == -np.inf, "-inf"),
                                ((v == 0) & ~np.signbit(v), "0"), ((v == 0) & np.signbit(v), "-0")):
                 if mask.any():
-                    pattern = np.frombuffer(text.encode("ascii").ljust(width, b"\0"), dtype=np.uint8)
-                    by_position[:, a + odd[mask]] = pattern[:, None]
+                    at = a + odd[mask]
+                    # the stand-in 1.0's text is "1" at byte position 6 (_fast's layout): that position and
+                    # the text's own bytes are the ones to write
+                    for j, byte in enumerate(text.encode("ascii").ljust(7, b"\0")):
+                        if byte or j == 6:
+                            by_position[j, at] = byte
                     slow[odd[mask]] = False
         rows = np.flatnonzero(slow)
         if rows.size:
