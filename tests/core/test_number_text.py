@@ -145,6 +145,27 @@ def test_join_lines_with_gathered_columns_and_reused_memory():
         general_bytes(np.ones(3), 10, out=np.empty((30, 4), dtype=np.uint8))
 
 
+@pytest.mark.parametrize("sep", [b",", b"  ", b" | ", b""])
+def test_gathered_columns_of_every_width_side_by_side(sep):
+    """[D] Gathered columns of widths 1..20 (cells widened to a word size with junk past the separator,
+    overwritten by the next cell or the line end), next to each other, an empty column, the last: the
+    text equals ``str.join`` of the cells, with and without the widened cells kept between calls."""
+    rng = np.random.default_rng(9)
+    n = 500
+    columns, texts = [], []
+    for w in [*range(1, 21), 0, 3, 7, 13]:
+        distinct = ["".join(rng.choice(list("abcdef xyz"), size=w)) if w else "" for _ in range(17)]
+        distinct = [t.rjust(w, "q") if t else t for t in distinct]
+        codes = rng.integers(0, len(distinct), n)
+        columns.append((text_bytes(distinct) if w else np.zeros((len(distinct), 0), dtype=np.uint8), codes))
+        texts.append([distinct[c] for c in codes])
+    expected = "".join(sep.decode().join(r) + "\n" for r in zip(*texts))
+    kept: dict = {}
+    for widened in (None, kept, kept):  # the second call with ``kept`` reuses the widened cells
+        assert compact(line_matrix(columns, sep=sep, widened=widened)).decode() == expected
+    assert kept
+
+
 def test_powers_of_ten_are_correctly_rounded():
     """The table of 10**k the float path scales by: each the float nearest the exact rational [L]
     (``fractions.Fraction`` arithmetic is exact and its float() correctly rounded)."""

@@ -452,8 +452,10 @@ def _plain_rows(coded: list, widths: list[int], left: list[bool], n: int, out: T
     # ASCII cells are padded to their width with spaces (no holes): unless line ends are stripped, the
     # lines are the matrix's bytes as they are
     holes = strip or not all(m.all() for m in cells)
+    widened: dict = {}  # the cells widened for gathering, made once (``text_rows.place_cells``)
     for a in range(0, n, BLOCK_ROWS):
-        lines = line_matrix([(m, codes[a:a + BLOCK_ROWS]) for (codes, *_), m in zip(coded, cells)], sep=b"  ")
+        lines = line_matrix([(m, codes[a:a + BLOCK_ROWS]) for (codes, *_), m in zip(coded, cells)], sep=b"  ",
+                            widened=widened)
         if holes:
             _write_bytes(out, compact(strip_line_ends(lines) if strip else lines))
         else:
@@ -619,6 +621,7 @@ def _csv_lines(frame: pd.DataFrame, out: TextIO, late: LateColumns | None = None
     number_room = np.empty(len(floats) * rows_max)
     cell_room = np.empty(width * len(floats) * rows_max, dtype=np.uint8)  # the decimals' cells, (row, byte)
     line_room, line_bytes = np.empty(0, dtype=np.uint8), bytearray()  # line_room: a view of line_bytes
+    widened: dict = {}  # text cells widened for gathering (``text_rows.place_cells``), made once
     for a in range(0, len(frame), step):
         rows = min(step, len(frame) - a)
         if late is not None:  # the late values of this block's rows (the arrays in ``numbers`` filled)
@@ -651,7 +654,7 @@ def _csv_lines(frame: pd.DataFrame, out: TextIO, late: LateColumns | None = None
             else:
                 codes, matrix = coded[j]
                 cells.append((matrix, codes[a:a + rows]))
-        lines = line_matrix(cells, room=line_room)
+        lines = line_matrix(cells, room=line_room, widened=widened)
         if lines.base is None:  # did not fit (the first block): room for somewhat wider lines kept
             size = lines.size
             _write_bytes(out, compact(lines))
@@ -753,6 +756,7 @@ def _json_records(frame: pd.DataFrame, out: TextIO, first: bool, late: LateColum
                           dtype=np.uint8) for j, c in enumerate(frame.columns)]
     try:  # other cells once per distinct value of the whole table; decimals (mostly distinct) per block
         coded = {j: _json_cells(frame.iloc[:, j]) for j in range(frame.shape[1]) if not floats[j]}
+        widened: dict = {}  # their cells widened for gathering (``text_rows.place_cells``), made once
         late_values = late.rows(0) if late is not None else {}
         later = {j: late_values[c] for j, c in enumerate(frame.columns) if c in late_values}
         for a in range(0, len(frame), BLOCK_ROWS):
@@ -767,7 +771,7 @@ def _json_records(frame: pd.DataFrame, out: TextIO, first: bool, late: LateColum
                     codes, matrix = coded[j] if j in coded else _json_cells(block.iloc[:, j])
                 cells += [np.broadcast_to(keys[j], (len(block), keys[j].size)),
                           (matrix, codes[a:a + len(block)] if j in coded else codes)]
-            lines = line_matrix(cells, sep=b"", end=b"\n },\n")
+            lines = line_matrix(cells, sep=b"", end=b"\n },\n", widened=widened)
             if not (a == 0 and first):
                 out.write(",\n")
             _write_bytes(out, compact(lines)[:-2])  # records joined by ",\n"
