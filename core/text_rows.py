@@ -6,6 +6,9 @@ text): ``core.number_text`` writes numbers so, ``text_bytes`` writes given
 strings so (left-aligned). ``join_lines`` lays the columns side by side with
 a separator and a line end and keeps every nonzero byte in order: the lines,
 in one pass over the bytes. Text holding a NUL character cannot be a cell.
+Cells gathered by codes from a column's few distinct ones move as one
+machine word (4, 8, 16 or 32 bytes, the separator and junk the next cell
+overwrites included): numpy moves cells of other sizes byte-wise.
 """
 
 from __future__ import annotations
@@ -104,7 +107,7 @@ def place_cells(lines: np.ndarray, at: int, cells: np.ndarray, codes: np.ndarray
             kept = widened.get(key) if widened is not None else None
             if kept is not None and kept[0] is cells and kept[1] == after and kept[2].shape[1] == size:
                 cells = kept[2]
-            elif cells.shape[0] > 2 * len(codes):  # many more cells than gathered: widening would cost more
+            elif 4 * cells.shape[0] > len(codes):  # cells not few against the rows gathered: widening costs more
                 pass
             else:
                 wide = np.zeros((cells.shape[0], size), dtype=np.uint8)
