@@ -99,7 +99,8 @@ def place_cells(lines: np.ndarray, at: int, cells: np.ndarray, codes: np.ndarray
     With ``codes``, ``after`` (bytes that follow each cell in the lines) and ``spare`` (how many bytes
     after those are written later, whole): cells are widened with ``after`` and junk up to a word size
     when that fits, and gathered a word at a time; the caller overwrites the junk. ``widened``: a dict
-    keeping the widened cells under ``key`` for the next call with the same cells."""
+    keeping the widened cells under ``key`` for the next call with the same cells (given by callers that
+    gather from the same cells block after block; without it many cells are gathered as they are)."""
     w = cells.shape[1]
     if codes is not None:
         size = next((s for s in _WORD_SIZES if s >= w + len(after)), 0)
@@ -107,8 +108,8 @@ def place_cells(lines: np.ndarray, at: int, cells: np.ndarray, codes: np.ndarray
             kept = widened.get(key) if widened is not None else None
             if kept is not None and kept[0] is cells and kept[1] == after and kept[2].shape[1] == size:
                 cells = kept[2]
-            elif 4 * cells.shape[0] > len(codes):  # cells not few against the rows gathered: widening costs more
-                pass
+            elif widened is None and 4 * cells.shape[0] > len(codes):
+                pass  # cells not few against the rows gathered, and not kept for more: widening costs more
             else:
                 wide = np.zeros((cells.shape[0], size), dtype=np.uint8)
                 wide[:, :w] = cells

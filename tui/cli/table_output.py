@@ -756,7 +756,6 @@ def _json_records(frame: pd.DataFrame, out: TextIO, first: bool, late: LateColum
                           dtype=np.uint8) for j, c in enumerate(frame.columns)]
     try:  # other cells once per distinct value of the whole table; decimals (mostly distinct) per block
         coded = {j: _json_cells(frame.iloc[:, j]) for j in range(frame.shape[1]) if not floats[j]}
-        widened: dict = {}  # their cells widened for gathering (``text_rows.place_cells``), made once
         late_values = late.rows(0) if late is not None else {}
         later = {j: late_values[c] for j, c in enumerate(frame.columns) if c in late_values}
         for a in range(0, len(frame), BLOCK_ROWS):
@@ -771,7 +770,7 @@ def _json_records(frame: pd.DataFrame, out: TextIO, first: bool, late: LateColum
                     codes, matrix = coded[j] if j in coded else _json_cells(block.iloc[:, j])
                 cells += [np.broadcast_to(keys[j], (len(block), keys[j].size)),
                           (matrix, codes[a:a + len(block)] if j in coded else codes)]
-            lines = line_matrix(cells, sep=b"", end=b"\n },\n", widened=widened)
+            lines = line_matrix(cells, sep=b"", end=b"\n },\n")
             if not (a == 0 and first):
                 out.write(",\n")
             _write_bytes(out, compact(lines)[:-2])  # records joined by ",\n"
