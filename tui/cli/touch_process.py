@@ -61,6 +61,13 @@ CHUNK_ROWS = 10_000
 #: The child's time limit (seconds, from a request): past it the figures are computed in-process.
 CHILD_SECONDS = 60.0
 
+#: Unanswered contracts a whole-rest wait must leave for the parent to share the work (below it, waiting
+#: costs less than importing the touch modules here, ~0.1 s, and computing: the child is ~2.5 us a contract).
+SHARE_MIN_ROWS = 60_000
+
+#: Whether the parent shares the rest of the work when it would wait for all of it (``PendingTouch.wait``).
+SHARE = True
+
 #: The environment variable that forces the second process off (``0``) or on whatever the size (``1``).
 SWITCH = "CHAINTRIAGE_TOUCH_PROCESS"
 
@@ -170,8 +177,16 @@ def _child(ask: int, answer: int, parent: int) -> None:
             message = _read_message(ask, None)
             if message is None:  # the parent has finished (or gone)
                 break
-            args, kwargs, chunks = pickle.loads(message)
+            request = pickle.loads(message)
+            if request is None:  # a stop after the request's last answer: acknowledged
+                if not _write_message(answer, STOPPED, None):
+                    break
+                continue
+            args, kwargs, chunks = request
             for chunk in chunks:
+                if _stop_asked(ask):  # the parent has the rest: acknowledged, the request dropped
+                    _write_message(answer, STOPPED, None)
+                    break
                 got = _computed(*_chunk_inputs(args, kwargs, chunk))
                 if not _write_message(answer, pickle.dumps(got, protocol=pickle.HIGHEST_PROTOCOL), None):
                     break
@@ -180,6 +195,23 @@ def _child(ask: int, answer: int, parent: int) -> None:
         pass
     finally:
         os._exit(status)
+
+
+#: The child's answer to a stop (``TouchServer.stop``): an empty message, after the request's last answer.
+STOPPED = b""
+
+#: A stop, as the parent sends it (a request of None).
+_STOP = pickle.dumps(None)
+
+
+def _stop_asked(ask: int) -> bool:
+    """Whether the parent has sent a stop (read here; nothing else comes while a request is under way)."""
+    if not select.select([ask], [], [], 0)[0]:
+        return False
+    message = _read_message(ask, None)
+    if message is None or pickle.loads(message) is not None:
+        raise EOFError("the parent has gone, or sent something other than a stop")
+    return True
 
 
 def _chunk_inputs(args: tuple, kwargs: dict, chunk: list[int]) -> tuple[tuple, dict]:
@@ -243,6 +275,11 @@ class _Inbox:
                 self.ended = True
                 return
             self.buffer += data
+
+    def ready(self) -> bool:
+        """Whether a whole message is here now (the pipe read first)."""
+        self.pump()
+        return len(self.buffer) >= _HEADER.size and len(self.buffer) >= _HEADER.size + _HEADER.unpack_from(self.buffer)[0]
 
     def message(self, deadline: float) -> bytes | None:
         """The next length-prefixed message; None at the pipe's end or past ``deadline`` (time.monotonic)."""
@@ -347,6 +384,7 @@ class TouchServer:
         self.inbox = _Inbox(answer)
         self.alive = True
         self.pending: PendingTouch | None = None
+        self.stopping = False  # a stop sent, its acknowledgement (``STOPPED``) not read yet
         _LIVE[pid] = (ask, answer)
 
     def submit(self, source, expiries) -> PendingTouch | None:
@@ -356,6 +394,7 @@ class TouchServer:
         ``MIN_CONTRACTS`` contracts, nothing to compute, or the second process gone. The annotated
         snapshot is then given to the answer (``PendingTouch.attach``)."""
         self.finish()  # one request at a time
+        self._stopped()
         if not self.alive:
             return None
         todo, args, kwargs = source.inputs(expiries)
@@ -371,8 +410,32 @@ class TouchServer:
         if not _write_message(self.ask, message, deadline):
             self.close()
             return None
-        self.pending = PendingTouch(self, todo, rows, chunks, deadline, len(source.strikes))
+        self.pending = PendingTouch(self, todo, rows, chunks, deadline, len(source.strikes), args, kwargs)
         return self.pending
+
+    def stop(self) -> None:
+        """Tell the child to drop the request under way (the parent has computed the rest): it answers
+        ``STOPPED`` after its last answer, read before the next request (``_stopped``). Closed when the
+        stop cannot be sent."""
+        if self.alive and not self.stopping:
+            self.stopping = True
+            if not _write_message(self.ask, _STOP, time.monotonic() + 1.0):
+                self.close()
+
+    def _stopped(self) -> None:
+        """The answers the child sent before its ``STOPPED`` read and dropped; closed when it does not come
+        in ``CHILD_SECONDS``."""
+        if not (self.alive and self.stopping):
+            return
+        deadline = time.monotonic() + CHILD_SECONDS
+        while True:
+            message = self.inbox.message(deadline)
+            if message is None:
+                self.close()
+                return
+            if message == STOPPED:
+                self.stopping = False
+                return
 
     def finish(self) -> None:
         """The request under way, if any, finished: its figures written into its snapshot."""
@@ -396,14 +459,18 @@ class PendingTouch:
     rest and writes every figure and finding into the annotated snapshot (``apply_touch``, in the
     order ``touch_many`` would)."""
 
-    def __init__(self, server: TouchServer, todo: list, rows: list, chunks: list, deadline: float, n: int) -> None:
+    def __init__(self, server: TouchServer, todo: list, rows: list, chunks: list, deadline: float, n: int,
+                 args: tuple, kwargs: dict) -> None:
         self.server, self.todo, self.rows, self.chunks = server, todo, rows, chunks
+        self.args, self.kwargs = args, kwargs  # the request's inputs (``expiries_touch``'s arguments)
         self.a = None
         self.deadline = deadline
         self.got: list = [None] * len(todo)  # each expiry's ExpiryTouch (None: not yet, or nothing)
-        self.taken = 0  # chunks taken so far
+        self.taken = 0  # chunks taken so far from the front (the child's, in order)
+        self.tail = len(chunks)  # chunks from here on computed here while the child worked (``_share``)
         self.done = False
         self.from_child = 0  # chunks the child answered
+        self.shared = 0  # chunks computed here while the child worked
         #: the chunk that holds each contract row (-1: none, nothing to wait for)
         self.chunk_of_row = np.full(n, -1, dtype=np.int64)
         for c, chunk in enumerate(chunks):
@@ -417,8 +484,14 @@ class PendingTouch:
         self.a = a
 
     def wait(self, n: int) -> None:
-        """The first ``n`` chunks taken (waiting for the child, or computed here when it fails)."""
-        while self.taken < min(n, len(self.chunks)):
+        """The first ``n`` chunks taken (waiting for the child, or computed here when it fails). When
+        ``n`` covers every chunk left and the child has not answered the next one yet, this process
+        computes the last ones meanwhile (``_share``), from the end backwards, until the two meet."""
+        n = min(n, len(self.chunks))
+        while self.taken < min(n, self.tail):
+            if n >= self.tail and self._share_now():
+                self._share()
+                continue
             chunk = self.chunks[self.taken]
             got = self._receive(len(chunk))
             if got is None:  # the child failed: what is left computed here, together
@@ -426,6 +499,30 @@ class PendingTouch:
                 return
             self.from_child += 1
             self._take(chunk, got)
+            self.taken += 1
+        if self.taken == self.tail < len(self.chunks):  # met in the middle: the child's request dropped
+            self.taken = len(self.chunks)
+            self.server.stop()
+
+    def _share_now(self) -> bool:
+        """Whether to compute the last chunk not taken here now: sharing on, the child alive, working on
+        the next chunk (no answer waiting) with another left behind it, and either sharing already under
+        way or at least ``SHARE_MIN_ROWS`` contracts unanswered."""
+        if not (SHARE and self.server.alive and self.tail - self.taken >= 2) or self.server.inbox.ready():
+            return False
+        return self.shared > 0 or sum(len(self.rows[j]) for c in self.chunks[self.taken:self.tail]
+                                      for j in c) >= SHARE_MIN_ROWS
+
+    def _share(self) -> None:
+        """The last chunk not taken computed here: ``expiries_touch`` on the chunk's inputs, as the child
+        would (the same bits)."""
+        from chaintriage.core.touch_expiry import expiries_touch
+
+        chunk = self.chunks[self.tail - 1]
+        args, kwargs = _chunk_inputs(self.args, self.kwargs, chunk)
+        self._take(chunk, expiries_touch(*args, **kwargs))
+        self.tail -= 1
+        self.shared += 1
 
     def _take(self, chunk: list[int], got: list) -> None:
         for j, figures in zip(chunk, got):
@@ -433,13 +530,14 @@ class PendingTouch:
             if figures is not None:
                 for name, arr in zip(TOUCH_COLUMNS, (figures.p_touch, figures.low, figures.high)):
                     self.values[name][self.rows[j]] = arr
-        self.taken += 1
 
     def _compute_rest(self) -> None:
-        rest = [j for chunk in self.chunks[self.taken:] for j in chunk]
-        computed = self.a.compute_touch_many([self.todo[j] for j in rest])
-        for chunk in self.chunks[self.taken:]:
-            self._take(chunk, [computed.get(self.todo[j]) for j in chunk])
+        rest = [j for chunk in self.chunks[self.taken:self.tail] for j in chunk]
+        if rest:
+            computed = self.a.compute_touch_many([self.todo[j] for j in rest])
+            for chunk in self.chunks[self.taken:self.tail]:
+                self._take(chunk, [computed.get(self.todo[j]) for j in chunk])
+        self.taken = len(self.chunks)
 
     def _receive(self, count: int) -> list | None:
         """The child's figures of the next chunk (``count`` expiries), or None when it failed (it is
