@@ -436,3 +436,120 @@ def test_no_second_process_when_every_core_is_busy(monkeypatch):
     monkeypatch.setattr(tp, "_idle_core", lambda: True)
     assert tp.worth_forking(tp.MIN_INPUT_BYTES) == (sys.platform.startswith("linux") and threading.active_count() == 1)
     assert not tp.worth_forking(tp.MIN_INPUT_BYTES - 1)
+
+
+@pytest.fixture
+def shares(monkeypatch):
+    """Records, for each request finished: (its chunks, how many the child answered, how many the parent
+    computed while the child worked)."""
+    seen: list[tuple[int, int, int]] = []
+    original = tp.PendingTouch.finish
+
+    def finish(self):
+        first = not self.done
+        original(self)
+        if first:
+            seen.append((len(self.chunks), self.from_child, self.shared))
+
+    monkeypatch.setattr(tp.PendingTouch, "finish", finish)
+    return seen
+
+
+def _slow(seconds: float, log: Path | None = None):
+    """``_computed`` taking ``seconds`` longer a chunk (run in the child), each chunk's first expiry
+    appended to ``log``."""
+    original = tp._computed
+
+    def computed(args, kwargs):
+        time.sleep(seconds)
+        if log is not None:
+            with open(log, "a") as fh:
+                fh.write(f"{len(args[0][0])}\n")
+        return original(args, kwargs)
+
+    return computed
+
+
+@linux_only
+@pytest.mark.parametrize("fmt", ["plain", "csv", "json"])
+def test_the_same_bytes_when_the_parent_shares_the_work(fmt, capsysbinary, monkeypatch, shares, tmp_path):
+    """[D] A slow child: the parent computes the last chunks itself (plain asks for every chunk at once;
+    csv and json share in ``finish`` at most), meets the child, stops it; the output, findings included,
+    is the in-process one, and the child computed no more than one chunk past what it answered."""
+    only_thread()
+    monkeypatch.setattr(to, "BLOCK_ROWS", 64)
+    monkeypatch.setattr(tp, "CHUNK_ROWS", 100)
+    monkeypatch.setattr(tp, "SHARE_MIN_ROWS", 0)
+    files = demo_files()
+    here = run_table(capsysbinary, monkeypatch, "0", *files, "--format", fmt)
+    assert shares == []
+    log = tmp_path / "child.log"
+    monkeypatch.setattr(tp, "_computed", _slow(0.05, log))  # inherited by the forked child
+    apart = run_table(capsysbinary, monkeypatch, "1", *files, "--format", fmt)
+    assert apart == here  # exit status, stdout and the findings on stderr
+    assert len(shares) == 3 and all(answered + shared == chunks for chunks, answered, shared in shares)
+    # the child's chunks from the front (the one it works on always left to it), the parent's from the end
+    assert all(answered >= 1 for _, answered, _ in shares)
+    if fmt == "plain":  # every chunk asked at once: shared (the first chain, 11 chunks, at least)
+        assert shares[0][2] >= 1 and sum(shared for _, _, shared in shares) >= 2
+    # the child stopped: at most the chunk under way when told, past its answers, per request
+    computed = len(log.read_text().split())
+    assert computed <= sum(answered for _, answered, _ in shares) + len(shares)
+    assert children_of(os.getpid()) == []
+    assert tp._LIVE == {}
+
+
+@linux_only
+def test_the_child_answers_the_next_request_after_a_stop(monkeypatch, shares):
+    """After the parent met the child in one snapshot's chunks, the next snapshot's are the child's
+    again (the stop acknowledged, the answers it sent before dropped): the same figures as in-process."""
+    only_thread()
+    monkeypatch.setattr(tp, "CHUNK_ROWS", 100)
+    monkeypatch.setattr(tp, "SHARE_MIN_ROWS", 0)
+    monkeypatch.setattr(tp, "_computed", _slow(0.03))
+    monkeypatch.setenv(tp.SWITCH, "1")
+    from chaintriage.core.loading import load_files
+    from chaintriage.core.pipeline import annotate
+
+    snaps = load_files(demo_files()[:2]).snapshots
+    server = tp.serve(10 ** 9)
+    assert server is not None
+    try:
+        for snap in snaps:
+            ready = []
+            a = annotate(snap, smiles_ready=lambda source: ready.append(
+                server.submit(source, list(source.results))))
+            pending = ready[0]
+            pending.attach(a)
+            pending.wait(len(pending.chunks))  # everything at once: shared
+            assert pending.shared >= 1 and pending.from_child >= 1 and server.stopping
+            pending.finish()
+            b = annotate(snap)
+            b.touch_many(list(b.results))
+            for name in tp.TOUCH_COLUMNS:
+                assert a.contracts[name].to_numpy().tobytes() == b.contracts[name].to_numpy().tobytes()
+            assert [str(f) for f in a.findings] == [str(f) for f in b.findings]
+        assert server.alive and shares[1][1] >= 1
+    finally:
+        server.close()
+    assert children_of(os.getpid()) == [] and tp._LIVE == {}
+
+
+@linux_only
+@pytest.mark.parametrize("failure", [_raise, _hang])
+def test_a_child_failing_while_the_parent_shares_falls_back_to_the_same_output(failure, capsysbinary,
+                                                                               monkeypatch, shares):
+    """The child fails at its first chunk while the parent computes from the end: the parent shares down
+    to that chunk, then computes it once the child is found gone (or past ``CHILD_SECONDS``)."""
+    only_thread()
+    monkeypatch.setattr(tp, "CHUNK_ROWS", 50)
+    monkeypatch.setattr(tp, "SHARE_MIN_ROWS", 0)
+    files = demo_files()[:1]
+    here = run_table(capsysbinary, monkeypatch, "0", *files, "--format", "plain")
+    monkeypatch.setattr(tp, "_computed", failure)
+    monkeypatch.setattr(tp, "CHILD_SECONDS", 1.0)
+    apart = run_table(capsysbinary, monkeypatch, "1", *files, "--format", "plain")
+    assert apart == here
+    chunks, answered, shared = shares[0]
+    assert answered == 0 and 1 <= shared < chunks  # the child's chunk computed here after it failed
+    assert children_of(os.getpid()) == [] and tp._LIVE == {}
