@@ -70,9 +70,11 @@ def _gone(pid: int, seconds: float = 10.0) -> bool:
 
 @pytest.fixture
 def spy(monkeypatch):
-    """Records, for each request finished: (its chunks, how many the child answered)."""
+    """Records, for each request finished: (its chunks, how many the child answered). The parent's sharing
+    is off (the child answers every chunk; sharing is tested with ``shares``)."""
     seen: list[tuple[int, int]] = []
     original = tp.PendingTouch.finish
+    monkeypatch.setattr(tp, "SHARE", False)
 
     def finish(self):
         first = not self.done

@@ -19,7 +19,20 @@ the bit as one call over all of them. The csv and json writers format a block's
 other columns and ask for the touch columns of that block's rows
 (``TouchColumns.rows``), waiting only for the chunks that cover them; plain asks
 for all of them once its other columns are coded (its widths need every cell).
-The parent never imports the touch equations (scipy.linalg) then.
+The parent never imports the touch equations (scipy.linalg) then, unless it
+shares the work: when a wait covers every chunk left (plain's ask, ``finish``),
+the child has not answered the next one yet and at least ``SHARE_MIN_ROWS``
+contracts are unanswered (or the touch modules are imported here already), the
+parent computes the last chunks itself, whole chunks from the end backwards with
+the same ``expiries_touch`` on the same inputs (the same bits), checking between
+its chunks for the child's answers and always leaving it the chunk it works on,
+until the two meet. The child is then told to stop (``TouchServer.stop``): it
+checks between chunks, and answers ``STOPPED`` after its last answer; the
+answers it sent for chunks the parent did are read and dropped before the next
+request (``TouchServer._stopped``; no ``STOPPED`` within ``CHILD_SECONDS``: it
+is killed). The csv and json writers' waits for a block are short (the child
+keeps ahead): they do not share (importing scipy.linalg, ~0.2 s, would cost
+more than they wait). ``SHARE = False`` turns sharing off.
 
 The parent never depends on the child: when the child fails, dies, answers
 something unreadable or takes longer than ``CHILD_SECONDS``, it is killed and
@@ -61,9 +74,11 @@ CHUNK_ROWS = 10_000
 #: The child's time limit (seconds, from a request): past it the figures are computed in-process.
 CHILD_SECONDS = 60.0
 
-#: Unanswered contracts a whole-rest wait must leave for the parent to share the work (below it, waiting
-#: costs less than importing the touch modules here, ~0.1 s, and computing: the child is ~2.5 us a contract).
-SHARE_MIN_ROWS = 60_000
+#: Unanswered contracts a wait for all of them must leave for the parent to start sharing the work while
+#: the touch modules are not imported here yet: importing them (scipy.linalg) costs the parent ~0.2 s, in
+#: which the child computes ~60,000 contracts (~3 us each); sharing gains about half of what is left past
+#: that. Measured at 200,000 contracts, plain waited with ~150,000 unanswered: 4.06x to 3.77x read_csv.
+SHARE_MIN_ROWS = 80_000
 
 #: Whether the parent shares the rest of the work when it would wait for all of it (``PendingTouch.wait``).
 SHARE = True
@@ -506,12 +521,12 @@ class PendingTouch:
 
     def _share_now(self) -> bool:
         """Whether to compute the last chunk not taken here now: sharing on, the child alive, working on
-        the next chunk (no answer waiting) with another left behind it, and either sharing already under
-        way or at least ``SHARE_MIN_ROWS`` contracts unanswered."""
+        the next chunk (no answer waiting) with another left behind it, and either the touch modules
+        imported here already or at least ``SHARE_MIN_ROWS`` contracts unanswered."""
         if not (SHARE and self.server.alive and self.tail - self.taken >= 2) or self.server.inbox.ready():
             return False
-        return self.shared > 0 or sum(len(self.rows[j]) for c in self.chunks[self.taken:self.tail]
-                                      for j in c) >= SHARE_MIN_ROWS
+        return "chaintriage.core.touch_local_vol" in sys.modules or sum(
+            len(self.rows[j]) for c in self.chunks[self.taken:self.tail] for j in c) >= SHARE_MIN_ROWS
 
     def _share(self) -> None:
         """The last chunk not taken computed here: ``expiries_touch`` on the chunk's inputs, as the child
