@@ -26,12 +26,17 @@ print(json.dumps({"huge": m._get_madvise_hugepage(), "blas": os.environ.get("OPE
 """
 
 
-def _probe(**env_overrides) -> dict:
-    env = {k: v for k, v in os.environ.items() if k not in ("OPENBLAS_NUM_THREADS", "NUMPY_MADVISE_HUGEPAGE")}
+def _run_probe(code: str, unset: tuple[str, ...], **env_overrides) -> dict:
+    """The JSON a fresh interpreter running ``code`` prints, without the ``unset`` variables (plus overrides)."""
+    env = {k: v for k, v in os.environ.items() if k not in unset}
     env.update(env_overrides)
-    out = subprocess.run([sys.executable, "-c", PROBE], env=env, capture_output=True, text=True, timeout=120)
+    out = subprocess.run([sys.executable, "-c", code], env=env, capture_output=True, text=True, timeout=120)
     assert out.returncode == 0, out.stderr
     return json.loads(out.stdout)
+
+
+def _probe(**env_overrides) -> dict:
+    return _run_probe(PROBE, ("OPENBLAS_NUM_THREADS", "NUMPY_MADVISE_HUGEPAGE"), **env_overrides)
 
 
 @pytest.mark.skipif(not sys.platform.startswith("linux"), reason="numpy asks for huge pages on Linux only")
@@ -81,11 +86,7 @@ print(json.dumps({"held": hold_freed_memory(), "faults": sum(faults[2:])}))
 
 
 def _heap_probe(**env_overrides) -> dict:
-    env = {k: v for k, v in os.environ.items() if k not in ("GLIBC_TUNABLES", "MALLOC_TOP_PAD_")}
-    env.update(env_overrides)
-    out = subprocess.run([sys.executable, "-c", HEAP_PROBE], env=env, capture_output=True, text=True, timeout=120)
-    assert out.returncode == 0, out.stderr
-    return json.loads(out.stdout)
+    return _run_probe(HEAP_PROBE, ("GLIBC_TUNABLES", "MALLOC_TOP_PAD_"), **env_overrides)
 
 
 @pytest.mark.skipif(not sys.platform.startswith("linux"), reason="glibc's malloc settings")
