@@ -64,7 +64,8 @@ class LateColumns(Protocol):
 
     def rows(self, stop: int) -> dict[str, np.ndarray]:
         """Each late column's values (float, one per row of the frame), known at least for the rows
-        before ``stop`` (waiting for them if need be)."""
+        before ``stop`` (waiting for them if need be). Every call returns the same arrays, filled in
+        place: the csv writer keeps those of ``rows(0)`` and reads each block after asking for it."""
 
 
 def with_late(frame: pd.DataFrame, late: LateColumns | None) -> pd.DataFrame:
